@@ -1,0 +1,237 @@
+/**
+ * The model spec: Plateau's JSON description of a population PK model (structure, parameters
+ * with transforms and between-subject variability, covariate relations, residual error and
+ * estimator settings). One parser for the CLI, the worker and the UI; it reports every problem
+ * with its JSON path.
+ */
+import type { PkParameterName, StructureId, Transform } from '../models/types.js';
+
+export type CovariateRelation = 'power' | 'linear' | 'categorical';
+export type ResidualModelId = 'additive' | 'proportional' | 'combined' | 'log-additive';
+
+export interface ParameterSpec {
+  /** Typical value on the natural scale (initial value for a fit, the estimate for dosing). */
+  typical: number;
+  transform: Transform;
+  /** SD of the random effect on the transformed scale; null = no between-subject variability. */
+  bsv: number | null;
+  /** Typical value held fixed (not estimated). */
+  fixed: boolean;
+}
+
+export interface CovariateEffectSpec {
+  parameter: PkParameterName;
+  covariate: string;
+  relation: CovariateRelation;
+  /**
+   * Continuous: reference value (power: log(c / reference); linear: c - reference).
+   * Categorical: the reference level (no shift).
+   */
+  reference: number | string;
+  /** Continuous relations: the coefficient on the transformed scale (initial value or fixed). */
+  coefficient?: number;
+  /** Categorical: shift per non-reference level, on the transformed scale. */
+  coefficients?: Record<string, number>;
+  fixed: boolean;
+}
+
+export interface ResidualSpec {
+  model: ResidualModelId;
+  /** Additive SD (mg/L); for log-additive, the SD on the log scale. */
+  a?: number;
+  /** Proportional coefficient (fraction of the prediction). */
+  b?: number;
+}
+
+export interface ModelSpec {
+  /** Free-text name of the model. */
+  name?: string;
+  /** Where the model comes from (free text: a site fit, a publication). */
+  source?: string;
+  structure: StructureId;
+  /** In the order given in the file. */
+  parameters: Partial<Record<PkParameterName, ParameterSpec>>;
+  covariates: CovariateEffectSpec[];
+  /** Each entry is a block of parameters whose random effects are correlated. */
+  correlations: PkParameterName[][];
+  /** Initial or known correlation values, keyed "CL,V" (optional). */
+  correlationValues?: Record<string, number>;
+  residual: ResidualSpec;
+  /** Estimator settings, validated by the estimator (engine/saem/settings.ts). */
+  estimation: Record<string, unknown>;
+  /** Covariate ranges the model was built on: name -> [min, max]. */
+  covariateRanges?: Record<string, [number, number]>;
+}
+
+export class SpecError extends Error {
+  readonly problems: readonly string[];
+  constructor(problems: readonly string[]) {
+    super(`invalid model spec:\n${problems.map((p) => `  ${p}`).join('\n')}`);
+    this.name = 'SpecError';
+    this.problems = problems;
+  }
+}
+
+export const STRUCTURE_PARAMETERS: Record<StructureId, readonly PkParameterName[]> = {
+  '1cmt': ['CL', 'V'],
+  '2cmt': ['CL', 'V1', 'Q', 'V2'],
+  '3cmt': ['CL', 'V1', 'Q2', 'V2', 'Q3', 'V3'],
+  '1cmt-mm': ['Vmax', 'Km', 'V'],
+};
+export const ABSORPTION_PARAMETERS: readonly PkParameterName[] = ['ka', 'tlag', 'F'];
+
+const TRANSFORMS: readonly Transform[] = ['log', 'logit', 'none'];
+const RELATIONS: readonly CovariateRelation[] = ['power', 'linear', 'categorical'];
+const RESIDUALS: readonly ResidualModelId[] = ['additive', 'proportional', 'combined', 'log-additive'];
+
+function isRecord(x: unknown): x is Record<string, unknown> {
+  return typeof x === 'object' && x !== null && !Array.isArray(x);
+}
+const finite = (x: unknown): x is number => typeof x === 'number' && Number.isFinite(x);
+
+/** Parse and validate a model spec from already-parsed JSON. Throws SpecError listing every problem. */
+export function parseModelSpec(json: unknown): ModelSpec {
+  const problems: string[] = [];
+  if (!isRecord(json)) throw new SpecError(['the spec must be a JSON object']);
+
+  const structure = json.structure as StructureId;
+  if (!(typeof structure === 'string' && structure in STRUCTURE_PARAMETERS)) {
+    throw new SpecError([`structure: unknown model id ${JSON.stringify(json.structure)} (one of ${Object.keys(STRUCTURE_PARAMETERS).join(', ')})`]);
+  }
+  const allowed = [...STRUCTURE_PARAMETERS[structure], ...ABSORPTION_PARAMETERS];
+
+  const parameters: Partial<Record<PkParameterName, ParameterSpec>> = Object.create(null);
+  if (!isRecord(json.parameters)) problems.push('parameters: must be an object of name -> {typical, transform, bsv, fixed}');
+  else {
+    for (const [name, raw] of Object.entries(json.parameters)) {
+      const at = `parameters.${name}`;
+      if (!allowed.includes(name as PkParameterName)) {
+        problems.push(`${at}: not a parameter of ${structure} (allowed: ${allowed.join(', ')})`);
+        continue;
+      }
+      if (!isRecord(raw)) {
+        problems.push(`${at}: must be an object {typical, transform, bsv, fixed}`);
+        continue;
+      }
+      const transform = (raw.transform ?? (name === 'F' ? 'logit' : 'log')) as Transform;
+      if (!TRANSFORMS.includes(transform)) problems.push(`${at}.transform: must be log, logit or none`);
+      const typical = raw.typical;
+      if (!finite(typical)) problems.push(`${at}.typical: must be a finite number`);
+      else if (transform === 'log' && typical <= 0) problems.push(`${at}.typical: must be > 0 for a log transform`);
+      else if (transform === 'logit' && !(typical > 0 && typical < 1)) problems.push(`${at}.typical: must lie in (0, 1) for a logit transform`);
+      else if (name !== 'tlag' && typical <= 0 && transform === 'none') problems.push(`${at}.typical: must be > 0`);
+      else if (name === 'tlag' && typical < 0) problems.push(`${at}.typical: must be >= 0`);
+      const bsv = raw.bsv ?? null;
+      if (bsv !== null && !(finite(bsv) && bsv > 0)) problems.push(`${at}.bsv: must be a number > 0 or null`);
+      const fixed = raw.fixed ?? false;
+      if (typeof fixed !== 'boolean') problems.push(`${at}.fixed: must be true or false`);
+      parameters[name as PkParameterName] = { typical: typical as number, transform, bsv: bsv as number | null, fixed: fixed as boolean };
+    }
+    for (const required of STRUCTURE_PARAMETERS[structure]) {
+      if (!(required in parameters)) problems.push(`parameters.${required}: missing (required by ${structure})`);
+    }
+  }
+
+  const covariates: CovariateEffectSpec[] = [];
+  const rawCov = json.covariates ?? [];
+  if (!Array.isArray(rawCov)) problems.push('covariates: must be an array');
+  else
+    rawCov.forEach((c, i) => {
+      const at = `covariates[${i}]`;
+      if (!isRecord(c)) return problems.push(`${at}: must be an object`);
+      const parameter = c.parameter as PkParameterName;
+      if (!(typeof parameter === 'string' && parameter in parameters)) problems.push(`${at}.parameter: ${JSON.stringify(c.parameter)} is not a parameter of this model`);
+      if (!(typeof c.covariate === 'string' && c.covariate.length > 0)) problems.push(`${at}.covariate: must name a covariate column`);
+      const relation = c.relation as CovariateRelation;
+      if (!RELATIONS.includes(relation)) problems.push(`${at}.relation: must be power, linear or categorical`);
+      const fixed = c.fixed ?? false;
+      if (typeof fixed !== 'boolean') problems.push(`${at}.fixed: must be true or false`);
+      if (relation === 'categorical') {
+        if (!(typeof c.reference === 'string' || finite(c.reference))) problems.push(`${at}.reference: the reference level is required`);
+        const coefs = c.coefficients ?? {};
+        if (!isRecord(coefs) || !Object.values(coefs).every(finite)) problems.push(`${at}.coefficients: must map level -> number`);
+        const coefficients: Record<string, number> = Object.create(null);
+        if (isRecord(coefs)) for (const [k, v] of Object.entries(coefs)) coefficients[k] = v as number;
+        covariates.push({ parameter, covariate: c.covariate as string, relation, reference: String(c.reference), coefficients, fixed: fixed as boolean });
+      } else {
+        if (!finite(c.reference)) problems.push(`${at}.reference: must be a number`);
+        else if (relation === 'power' && c.reference <= 0) problems.push(`${at}.reference: must be > 0 for a power relation`);
+        const coefficient = c.coefficient ?? 0;
+        if (!finite(coefficient)) problems.push(`${at}.coefficient: must be a number`);
+        covariates.push({ parameter, covariate: c.covariate as string, relation, reference: c.reference as number, coefficient: coefficient as number, fixed: fixed as boolean });
+      }
+    });
+
+  const correlations: PkParameterName[][] = [];
+  const rawCorr = json.correlations ?? [];
+  if (!Array.isArray(rawCorr)) problems.push('correlations: must be an array of parameter-name lists');
+  else
+    rawCorr.forEach((block, i) => {
+      if (!Array.isArray(block) || block.length < 2) return problems.push(`correlations[${i}]: must list at least two parameters`);
+      for (const p of block) {
+        const ps = parameters[p as PkParameterName];
+        if (!ps) problems.push(`correlations[${i}]: ${JSON.stringify(p)} is not a parameter of this model`);
+        else if (ps.bsv === null) problems.push(`correlations[${i}]: ${p} has no between-subject variability to correlate`);
+      }
+      correlations.push(block as PkParameterName[]);
+    });
+
+  let correlationValues: Record<string, number> | undefined;
+  if (json.correlationValues !== undefined) {
+    if (!isRecord(json.correlationValues)) problems.push('correlationValues: must map "P1,P2" -> number in (-1, 1)');
+    else {
+      correlationValues = Object.create(null) as Record<string, number>;
+      for (const [k, v] of Object.entries(json.correlationValues)) {
+        if (!(finite(v) && v > -1 && v < 1)) problems.push(`correlationValues.${k}: must be a number in (-1, 1)`);
+        else correlationValues[k] = v;
+      }
+    }
+  }
+
+  let residual: ResidualSpec = { model: 'additive', a: 1 };
+  if (!isRecord(json.residual)) problems.push('residual: must be an object {model, a, b}');
+  else {
+    const model = json.residual.model as ResidualModelId;
+    if (!RESIDUALS.includes(model)) problems.push('residual.model: must be additive, proportional, combined or log-additive');
+    const a = json.residual.a;
+    const b = json.residual.b;
+    const needA = model === 'additive' || model === 'combined' || model === 'log-additive';
+    const needB = model === 'proportional' || model === 'combined';
+    if (needA && !(finite(a) && a > 0)) problems.push(`residual.a: must be a number > 0 for ${model} error`);
+    if (needB && !(finite(b) && b > 0)) problems.push(`residual.b: must be a number > 0 for ${model} error`);
+    residual = { model, ...(needA ? { a: a as number } : {}), ...(needB ? { b: b as number } : {}) };
+  }
+
+  const estimation = json.estimation ?? {};
+  if (!isRecord(estimation)) problems.push('estimation: must be an object');
+
+  let covariateRanges: Record<string, [number, number]> | undefined;
+  if (json.covariateRanges !== undefined) {
+    if (!isRecord(json.covariateRanges)) problems.push('covariateRanges: must map covariate -> [min, max]');
+    else {
+      covariateRanges = Object.create(null) as Record<string, [number, number]>;
+      for (const [k, v] of Object.entries(json.covariateRanges)) {
+        if (!(Array.isArray(v) && v.length === 2 && finite(v[0]) && finite(v[1]) && v[0] <= v[1])) problems.push(`covariateRanges.${k}: must be [min, max]`);
+        else covariateRanges[k] = [v[0], v[1]];
+      }
+    }
+  }
+
+  for (const key of ['name', 'source'] as const) {
+    if (json[key] !== undefined && typeof json[key] !== 'string') problems.push(`${key}: must be text`);
+  }
+
+  if (problems.length) throw new SpecError(problems);
+  return {
+    ...(typeof json.name === 'string' ? { name: json.name } : {}),
+    ...(typeof json.source === 'string' ? { source: json.source } : {}),
+    structure,
+    parameters,
+    covariates,
+    correlations,
+    ...(correlationValues ? { correlationValues } : {}),
+    residual,
+    estimation: estimation as Record<string, unknown>,
+    ...(covariateRanges ? { covariateRanges } : {}),
+  };
+}
