@@ -1,0 +1,175 @@
+/** File helpers for commands: JSON reading with located errors, atomic writes, path resolution. */
+import { randomBytes } from 'node:crypto';
+import { promises as fs } from 'node:fs';
+import * as path from 'node:path';
+import { CliError } from './types.js';
+
+/** Resolve a user-given path against the command's working directory. */
+export function resolvePath(cwd: string, file: string): string {
+  return path.resolve(cwd, file);
+}
+
+/** Read a text file; a missing or unreadable file is a CliError naming it. */
+export async function readTextFile(file: string): Promise<string> {
+  try {
+    return await fs.readFile(file, 'utf8');
+  } catch (e) {
+    const code = (e as NodeJS.ErrnoException).code;
+    if (code === 'ENOENT') throw new CliError(`file not found: ${file}`);
+    if (code === 'EISDIR') throw new CliError(`${file} is a folder, not a file`);
+    throw new CliError(`cannot read ${file}: ${(e as Error).message}`);
+  }
+}
+
+/** 1-based line and column of a character offset. */
+export function lineColumn(text: string, offset: number): { line: number; column: number } {
+  let line = 1;
+  let lineStart = 0;
+  for (let i = 0; i < offset && i < text.length; i++) {
+    if (text.charCodeAt(i) === 10) {
+      line++;
+      lineStart = i + 1;
+    }
+  }
+  return { line, column: offset - lineStart + 1 };
+}
+
+/**
+ * Find where JSON text first breaks the grammar (RFC 8259) and why. Used only after JSON.parse
+ * has failed, because Node 20's messages do not always give a position.
+ */
+export function locateJsonError(text: string): { offset: number; reason: string } | undefined {
+  let i = 0;
+  const fail = (reason: string): never => {
+    throw { offset: i, reason };
+  };
+  const ws = () => {
+    while (i < text.length && ' \t\n\r'.includes(text[i])) i++;
+  };
+  const describe = () => (i >= text.length ? 'the file ends too early' : `unexpected ${JSON.stringify(text[i])}`);
+  const value = (depth: number): void => {
+    if (depth > 10_000) fail('nesting too deep');
+    ws();
+    const c = text[i];
+    if (c === '{') {
+      i++;
+      ws();
+      if (text[i] === '}') return void i++;
+      for (;;) {
+        ws();
+        if (text[i] !== '"') fail(`${describe()} where a "quoted" key was expected`);
+        string();
+        ws();
+        if (text[i] !== ':') fail(`${describe()} where ':' was expected`);
+        i++;
+        value(depth + 1);
+        ws();
+        if (text[i] === ',') {
+          i++;
+          ws();
+          if (text[i] === '}') fail("trailing comma before '}'");
+          continue;
+        }
+        if (text[i] === '}') return void i++;
+        fail(`${describe()} where ',' or '}' was expected`);
+      }
+    }
+    if (c === '[') {
+      i++;
+      ws();
+      if (text[i] === ']') return void i++;
+      for (;;) {
+        value(depth + 1);
+        ws();
+        if (text[i] === ',') {
+          i++;
+          ws();
+          if (text[i] === ']') fail("trailing comma before ']'");
+          continue;
+        }
+        if (text[i] === ']') return void i++;
+        fail(`${describe()} where ',' or ']' was expected`);
+      }
+    }
+    if (c === '"') return string();
+    for (const word of ['true', 'false', 'null']) {
+      if (text.startsWith(word, i)) return void (i += word.length);
+    }
+    const m = /^-?(0|[1-9]\d*)(\.\d+)?([eE][+-]?\d+)?/.exec(text.slice(i, i + 400));
+    if (m && m[0].length > 0 && m[0] !== '-') return void (i += m[0].length);
+    fail(`${describe()} where a value was expected`);
+  };
+  const string = () => {
+    i++;
+    while (i < text.length) {
+      const c = text.charCodeAt(i);
+      if (c === 0x22) return void i++;
+      if (c < 0x20) fail('a control character (e.g. a line break) inside a string');
+      if (c === 0x5c) {
+        const e = text[i + 1];
+        if (e === 'u') {
+          if (!/^[0-9a-fA-F]{4}$/.test(text.slice(i + 2, i + 6))) fail('bad \\u escape');
+          i += 6;
+        } else if (e !== undefined && '"\\/bfnrt'.includes(e)) i += 2;
+        else fail('bad escape in a string');
+      } else i++;
+    }
+    fail('a string is not closed');
+  };
+  try {
+    value(0);
+    ws();
+    if (i < text.length) fail(`${describe()} after the end of the JSON value`);
+    return undefined;
+  } catch (e) {
+    if (typeof e === 'object' && e !== null && 'offset' in e) return e as { offset: number; reason: string };
+    throw e;
+  }
+}
+
+/** Parse JSON text; a syntax error names the file, line and column. */
+export function parseJsonText(text: string, file: string): unknown {
+  const body = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
+  try {
+    return JSON.parse(body);
+  } catch (e) {
+    const located = locateJsonError(body);
+    if (!located) throw new CliError(`${file} is not valid JSON: ${(e as Error).message}`);
+    const { line, column } = lineColumn(body, located.offset);
+    throw new CliError(`${file} is not valid JSON at line ${line}, column ${column}: ${located.reason}`);
+  }
+}
+
+/** Read and parse a JSON file, with errors naming the file and the syntax position. */
+export async function readJsonFile(file: string): Promise<unknown> {
+  return parseJsonText(await readTextFile(file), file);
+}
+
+/**
+ * Write a file atomically: a temporary file in the same folder, flushed, then renamed over the
+ * target, so a reader never sees half a file and a crash leaves the old file intact.
+ */
+export async function writeFileAtomic(file: string, data: string | Uint8Array): Promise<void> {
+  const dir = path.dirname(file);
+  try {
+    const st = await fs.stat(dir);
+    if (!st.isDirectory()) throw new CliError(`cannot write ${file}: ${dir} is not a folder`);
+  } catch (e) {
+    if (e instanceof CliError) throw e;
+    throw new CliError(`cannot write ${file}: the folder ${dir} does not exist`);
+  }
+  const tmp = path.join(dir, `.${path.basename(file)}.${process.pid}.${randomBytes(4).toString('hex')}.tmp`);
+  let handle: fs.FileHandle | undefined;
+  try {
+    handle = await fs.open(tmp, 'w');
+    await handle.writeFile(data);
+    await handle.sync();
+    await handle.close();
+    handle = undefined;
+    await fs.rename(tmp, file);
+  } catch (e) {
+    if (handle) await handle.close().catch(() => undefined);
+    await fs.rm(tmp, { force: true }).catch(() => undefined);
+    throw new CliError(`cannot write ${file}: ${(e as Error).message}`);
+  }
+}

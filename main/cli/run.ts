@@ -1,0 +1,179 @@
+/**
+ * The `plateau` command runner, shared by the bin (plateau.ts) and by in-process tests.
+ * Commands are discovered at run time from the commands/ folder beside this file (one module
+ * per command exporting `command: CliCommand`), so adding a command edits no shared registry.
+ */
+import { promises as fs } from 'node:fs';
+import * as path from 'node:path';
+import { fileURLToPath, pathToFileURL } from 'node:url';
+import { DataError } from '../../engine/data/types.js';
+import { SpecError } from '../../engine/spec/modelSpec.js';
+import { CliError, UsageError, type CliCommand, type CliIo } from './types.js';
+
+export interface RunOptions {
+  /** Folder to discover commands in (default: commands/ next to this module). */
+  commandsDir?: string;
+  signal?: AbortSignal;
+  /** Print stack traces for unexpected errors (default: PLATEAU_DEBUG=1 in the environment). */
+  debug?: boolean;
+}
+
+interface LoadedCommand {
+  name: string;
+  command?: CliCommand;
+  /** Why the module could not be used (shown when the command is asked for). */
+  loadError?: string;
+}
+
+const defaultCommandsDir = (): string => path.join(path.dirname(fileURLToPath(import.meta.url)), 'commands');
+
+function isCommandModule(file: string): boolean {
+  if (file.endsWith('.d.ts') || /\.(test|spec)\.[cm]?[jt]s$/.test(file)) return false;
+  return /\.[cm]?js$/.test(file) || /\.[cm]?ts$/.test(file);
+}
+
+function isCommand(x: unknown): x is CliCommand {
+  const c = x as CliCommand;
+  return typeof c === 'object' && c !== null && typeof c.name === 'string' && typeof c.run === 'function';
+}
+
+/** Load every command module; a module that fails to load is kept as an error, not fatal. */
+export async function loadCommands(dir: string = defaultCommandsDir()): Promise<Map<string, LoadedCommand>> {
+  const found = new Map<string, LoadedCommand>();
+  let files: string[];
+  try {
+    files = (await fs.readdir(dir)).filter(isCommandModule).sort();
+  } catch {
+    return found;
+  }
+  // Under the source tree both a .ts and (never) a .js may exist; prefer .js (compiled) once per name.
+  const byName = new Map<string, string>();
+  for (const file of files) {
+    const base = file.replace(/\.[cm]?[jt]s$/, '');
+    const prev = byName.get(base);
+    if (!prev || /\.[cm]?js$/.test(file)) byName.set(base, file);
+  }
+  for (const [base, file] of byName) {
+    try {
+      const mod = (await import(pathToFileURL(path.join(dir, file)).href)) as { command?: unknown };
+      if (!isCommand(mod.command)) {
+        found.set(base, { name: base, loadError: `${file} does not export \`command\` (a CliCommand)` });
+        continue;
+      }
+      found.set(mod.command.name, { name: mod.command.name, command: mod.command });
+    } catch (e) {
+      found.set(base, { name: base, loadError: `${file} failed to load: ${(e as Error).message}` });
+    }
+  }
+  return found;
+}
+
+function helpText(commands: Map<string, LoadedCommand>): string {
+  const names = [...commands.keys()].sort();
+  const width = Math.max(4, ...names.map((n) => n.length));
+  const lines = names.map((n) => {
+    const c = commands.get(n)!;
+    return `  ${n.padEnd(width)}  ${c.command ? c.command.summary : '(unavailable: ' + c.loadError + ')'}`;
+  });
+  return [
+    'Plateau: population PK fitting (SAEM) and Bayesian dose individualisation.',
+    '',
+    'Usage: plateau <command> [options]',
+    '       plateau <command> --help',
+    '',
+    'Commands:',
+    `  ${'help'.padEnd(width)}  Show this list, or a command's usage: plateau help <command>`,
+    ...lines,
+    '',
+  ].join('\n');
+}
+
+function withNewline(text: string): string {
+  return text.endsWith('\n') ? text : `${text}\n`;
+}
+
+/** Print a failure readably and return its exit code; no stack trace unless debugging. */
+export function reportError(error: unknown, io: CliIo, debug: boolean, usage?: string): number {
+  if (error instanceof UsageError) {
+    io.stderr(`plateau: ${error.message}\n`);
+    const u = error.usage ?? usage;
+    if (u) io.stderr(`\n${withNewline(u)}`);
+    return 2;
+  }
+  if (error instanceof DataError) {
+    io.stderr(`plateau: ${withNewline(error.message)}`);
+    io.stderr('Fix the rows listed above and run the command again.\n');
+    if (debug && error.stack) io.stderr(`${error.stack}\n`);
+    return 1;
+  }
+  if (error instanceof SpecError) {
+    io.stderr(`plateau: the model spec has ${error.problems.length} problem(s):\n`);
+    for (const p of error.problems) io.stderr(`  ${p}\n`);
+    io.stderr('Fix these fields in the spec file (see README, "Model spec").\n');
+    if (debug && error.stack) io.stderr(`${error.stack}\n`);
+    return 1;
+  }
+  if (error instanceof CliError) {
+    io.stderr(`plateau: ${withNewline(error.message)}`);
+    if (debug && error.stack) io.stderr(`${error.stack}\n`);
+    return 1;
+  }
+  const message = error instanceof Error ? error.message : String(error);
+  io.stderr(`plateau: ${withNewline(message)}`);
+  if (debug && error instanceof Error && error.stack) io.stderr(`${error.stack}\n`);
+  else io.stderr('(set PLATEAU_DEBUG=1 to see where it happened)\n');
+  return 1;
+}
+
+/** Run `plateau <argv...>`; resolves to the exit code. Never throws. */
+export async function runCli(argv: readonly string[], io: CliIo, options: RunOptions = {}): Promise<number> {
+  const debug = options.debug ?? (typeof process !== 'undefined' && process.env.PLATEAU_DEBUG === '1');
+  let commands: Map<string, LoadedCommand>;
+  try {
+    commands = await loadCommands(options.commandsDir);
+  } catch (e) {
+    return reportError(e, io, debug);
+  }
+  const [first, ...rest] = argv;
+  if (first === undefined || first === 'help' || first === '--help' || first === '-h') {
+    const target = first === 'help' ? rest[0] : undefined;
+    if (target !== undefined) {
+      const c = commands.get(target);
+      if (!c) {
+        io.stderr(`plateau: unknown command "${target}"\n\n${helpText(commands)}`);
+        return 2;
+      }
+      if (!c.command) {
+        io.stderr(`plateau: the ${target} command is unavailable: ${c.loadError}\n`);
+        return 1;
+      }
+      io.stdout(withNewline(c.command.usage));
+      return 0;
+    }
+    (first === undefined ? io.stderr : io.stdout)(helpText(commands));
+    return first === undefined ? 2 : 0;
+  }
+  if (first === '--version') {
+    io.stdout('plateau 0.1.0\n');
+    return 0;
+  }
+  const c = commands.get(first);
+  if (!c) {
+    io.stderr(`plateau: unknown command "${first}"\n\n${helpText(commands)}`);
+    return 2;
+  }
+  if (!c.command) {
+    io.stderr(`plateau: the ${first} command is unavailable: ${c.loadError}\n`);
+    return 1;
+  }
+  if (rest.includes('--help') || rest.includes('-h')) {
+    io.stdout(withNewline(c.command.usage));
+    return 0;
+  }
+  try {
+    const code = await c.command.run([...rest], io, options.signal);
+    return Number.isInteger(code) ? code : 1;
+  } catch (e) {
+    return reportError(e, io, debug, c.command.usage);
+  }
+}
