@@ -1,0 +1,320 @@
+/**
+ * Linear mammillary 1/2/3-compartment models, solved analytically from event to event.
+ *
+ * Method: every input (bolus, infusion, depot outflow) enters the central compartment and the
+ * output is the central concentration, so the central amount is a sum of independent modes,
+ * A_c(t) = sum_i r_i z_i(t), where -lambda_i are the eigenvalues of the disposition matrix and
+ * r_i the residues of the central impulse response (sum r_i = 1; e.g. Gibaldi & Perrier,
+ * Pharmacokinetics 2nd ed. 1982, ch. 2-3, macro-constants from micro-constants). Each mode obeys
+ * dz_i/dt = -lambda_i z_i + input(t), and the depot da/dt = -ka a, so an interval of length dt
+ * is an exact scalar transition per mode: z_i <- e^{-lambda_i dt} z_i + R (1 - e^{-lambda_i dt})
+ * / lambda_i + ka a (e^{-lambda_i dt} - e^{-ka dt}) / (ka - lambda_i). The last factor is taken in
+ * an expm1-based divided-difference form when ka is near lambda_i, so ka = k is exact.
+ * Cost per evaluation: O(events + outputs).
+ *
+ * Steady state (Dose.steadyStateIntervalH = tau): the state just before the dose is the fixed
+ * point of the one-interval map, x_ss = (I - M)^{-1} x_1 with M the transition over tau
+ * (diagonal per mode, triangular with the depot), x_1 the state one interval after a single dose
+ * from zero. With an oral lag the train is shifted by tlag; doses of the train still inside
+ * their lag time at the reset (only when tlag > tau) are re-entered on time.
+ */
+import type { Dose } from '../data/types.js';
+import type { Predictor, SolverSettings } from './types.js';
+import {
+  buildSchedule,
+  EV_BOLUS,
+  EV_INF_START,
+  EV_INF_STOP,
+  EV_OUTPUT,
+  EV_RESET,
+  ROUTE_BOLUS,
+  ROUTE_INFUSION,
+  type Schedule,
+} from './schedule.js';
+
+/** Maximum number of train doses still in their lag time at a steady-state reset. */
+const MAX_PENDING = 10_000;
+
+/** (1 - e^{-x}) / x, exact at and near 0. */
+function oneMinusExpOver(x: number): number {
+  return x === 0 ? 1 : -Math.expm1(-x) / x;
+}
+
+/**
+ * (e^{-l dt} - e^{-ka dt}) / (ka - l), given el = e^{-l dt} and ea = e^{-ka dt}. When
+ * |ka - l| dt is small the difference quotient is rewritten as e^{-min dt} dt (1 - e^{-d})/d.
+ */
+export function expDivDiff(l: number, ka: number, dt: number, el: number, ea: number): number {
+  const d = (ka - l) * dt;
+  if (d > 0.5 || d < -0.5) return (el - ea) / (ka - l);
+  return d >= 0 ? el * dt * oneMinusExpOver(d) : ea * dt * oneMinusExpOver(-d);
+}
+
+/**
+ * Advance the modal state s (modes 0..n-1, depot at s[n]) by dt with a constant infusion rate
+ * R (mg/h) into the central compartment.
+ */
+function advance(s: Float64Array, n: number, lam: Float64Array, ka: number, rate: number, dt: number): void {
+  const a = s[n];
+  const ea = a !== 0 ? Math.exp(-ka * dt) : 0;
+  for (let i = 0; i < n; i++) {
+    const l = lam[i];
+    const x = l * dt;
+    const e = Math.exp(-x);
+    let z = e * s[i];
+    if (rate !== 0) z += (rate * (x < 0.5 ? -Math.expm1(-x) : 1 - e)) / l;
+    if (a !== 0) z += ka * a * expDivDiff(l, ka, dt, e, ea);
+    s[i] = z;
+  }
+  if (a !== 0) s[n] = a * ea;
+}
+
+/**
+ * Disposition: from the parameter vector, write the mode rates lambda_i (1/h) and output
+ * weights w_i = r_i / V_central (1/L). Returns false on parameters outside the domain.
+ */
+export type ModeFunction = (params: Float64Array, lam: Float64Array, w: Float64Array) => boolean;
+
+const positive = (x: number): boolean => x > 0 && x < Infinity;
+
+export const oneCompartmentModes: ModeFunction = (p, lam, w) => {
+  const cl = p[0];
+  const v = p[1];
+  if (!(positive(cl) && positive(v))) return false;
+  lam[0] = cl / v;
+  w[0] = 1 / v;
+  return true;
+};
+
+export const twoCompartmentModes: ModeFunction = (p, lam, w) => {
+  const cl = p[0];
+  const v1 = p[1];
+  const q = p[2];
+  const v2 = p[3];
+  if (!(positive(cl) && positive(v1) && positive(q) && positive(v2))) return false;
+  const k10 = cl / v1;
+  const k12 = q / v1;
+  const k21 = q / v2;
+  // Discriminant as a sum of squares (no cancellation): (k10 + k12 - k21)^2 + 4 k12 k21.
+  const u = k10 + k12 - k21;
+  const root = Math.sqrt(u * u + 4 * k12 * k21);
+  const alpha = 0.5 * (k10 + k12 + k21 + root);
+  const beta = (k10 * k21) / alpha;
+  const sep = alpha - beta;
+  if (!(sep > 0)) return false;
+  lam[0] = alpha;
+  lam[1] = beta;
+  w[0] = (alpha - k21) / sep / v1;
+  w[1] = (k21 - beta) / sep / v1;
+  return true;
+};
+
+/** Roots of x^3 - a2 x^2 + a1 x - a0 (three distinct positive roots), Newton-polished, into r[0..2]. */
+function cubicRoots(a2: number, a1: number, a0: number, r: Float64Array): boolean {
+  const m = a2 / 3;
+  const p = a1 - a2 * m;
+  const q = -2 * m * m * m + a1 * m - a0;
+  if (!(p < 0)) return false;
+  const rad = 2 * Math.sqrt(-p / 3);
+  let c = (3 * q) / (p * rad);
+  if (c > 1) c = 1;
+  else if (c < -1) c = -1;
+  const theta = Math.acos(c) / 3;
+  // Trigonometric solution (Viete): theta - 2 pi k / 3 gives the largest (k = 0), middle (k = 1), smallest (k = 2).
+  const r0 = m + rad * Math.cos(theta);
+  const r1 = m + rad * Math.cos(theta - (2 * Math.PI) / 3);
+  r[0] = r0;
+  r[1] = r1;
+  // The smallest root from the product of roots avoids the cancellation in m + rad cos(...).
+  r[2] = a0 / (r0 * r1);
+  for (let k = 0; k < 3; k++) {
+    let x = r[k];
+    for (let it = 0; it < 3; it++) {
+      const f = ((x - a2) * x + a1) * x - a0;
+      const df = (3 * x - 2 * a2) * x + a1;
+      if (df === 0) break;
+      const dx = f / df;
+      x -= dx;
+      if (Math.abs(dx) <= 1e-16 * Math.abs(x)) break;
+    }
+    r[k] = x;
+  }
+  return r[0] > r[1] && r[1] > r[2] && r[2] > 0;
+}
+
+export function makeThreeCompartmentModes(): ModeFunction {
+  const roots = new Float64Array(3);
+  return (p, lam, w) => {
+    const cl = p[0];
+    const v1 = p[1];
+    const q2 = p[2];
+    const v2 = p[3];
+    const q3 = p[4];
+    const v3 = p[5];
+    if (!(positive(cl) && positive(v1) && positive(q2) && positive(v2) && positive(q3) && positive(v3))) return false;
+    const k10 = cl / v1;
+    const k12 = q2 / v1;
+    const k21 = q2 / v2;
+    const k13 = q3 / v1;
+    const k31 = q3 / v3;
+    const a2 = k10 + k12 + k13 + k21 + k31;
+    const a1 = k10 * k21 + k10 * k31 + k21 * k31 + k21 * k13 + k31 * k12;
+    const a0 = k10 * k21 * k31;
+    if (!cubicRoots(a2, a1, a0, roots)) return false;
+    for (let i = 0; i < 3; i++) {
+      const li = roots[i];
+      const lj = roots[(i + 1) % 3];
+      const lk = roots[(i + 2) % 3];
+      lam[i] = li;
+      w[i] = ((k21 - li) * (k31 - li)) / ((lj - li) * (lk - li)) / v1;
+    }
+    return true;
+  };
+}
+
+/**
+ * Build the predictor of a linear model with `nModes` modes and `nDisposition` disposition
+ * parameters (ka, tlag, F follow them in the vector).
+ */
+export function prepareLinear(
+  nModes: number,
+  nDisposition: number,
+  modes: ModeFunction,
+  doses: readonly Dose[],
+  timesH: ArrayLike<number>,
+  _solver?: Partial<SolverSettings>,
+): Predictor {
+  const sc: Schedule = buildSchedule(doses, timesH);
+  const n = nModes;
+  const lam = new Float64Array(n);
+  const w = new Float64Array(n);
+  const s = new Float64Array(n + 1);
+  const { timeH, kind, value, epoch: evEpoch, oralTimeH, oralAmountMg, oralEpoch, hasOral } = sc;
+  const ns = sc.n;
+  const no = sc.nOral;
+  const nOut = sc.nOutputs;
+  const { doseRoute, doseAmountMg, doseDurationH, doseIntervalH } = sc;
+
+  const fail = (out: Float64Array): boolean => {
+    out.fill(NaN);
+    return false;
+  };
+
+  return (params: Float64Array, out: Float64Array): boolean => {
+    if (!modes(params, lam, w)) return fail(out);
+    let ka = 0;
+    let tlag = 0;
+    let F = 1;
+    if (hasOral) {
+      ka = params[nDisposition];
+      tlag = params[nDisposition + 1];
+      F = params[nDisposition + 2];
+      if (!(positive(ka) && tlag >= 0 && tlag < Infinity && positive(F))) return fail(out);
+    }
+    for (let i = 0; i <= n; i++) s[i] = 0;
+    let rate = 0;
+    let nInf = 0;
+    let epoch = 0;
+    let tc = 0;
+    let is = 0;
+    let io = 0;
+    let pendCount = 0;
+    let pendTimeH = 0;
+    let pendTauH = 0;
+    let pendAmountMg = 0;
+    let left = nOut;
+    while (left > 0) {
+      const ts = is < ns ? timeH[is] : Infinity;
+      const to = io < no ? oralTimeH[io] + tlag : Infinity;
+      const tp = pendCount > 0 ? pendTimeH : Infinity;
+      let t: number;
+      let src: number;
+      if (ts <= to && ts <= tp) {
+        t = ts;
+        src = 0;
+      } else if (tp <= to) {
+        t = tp;
+        src = 2;
+      } else {
+        t = to;
+        src = 1;
+      }
+      if (t === Infinity) break;
+      const dt = t - tc;
+      if (dt > 0) advance(s, n, lam, ka, rate, dt);
+      tc = t;
+      if (src === 1) {
+        if (oralEpoch[io] >= epoch) s[n] += F * oralAmountMg[io];
+        io++;
+        continue;
+      }
+      if (src === 2) {
+        s[n] += pendAmountMg;
+        pendCount--;
+        pendTimeH += pendTauH;
+        continue;
+      }
+      const k = kind[is];
+      const v = value[is];
+      const ep = evEpoch[is];
+      is++;
+      if (k === EV_OUTPUT) {
+        let c = 0;
+        for (let i = 0; i < n; i++) c += w[i] * s[i];
+        out[v] = c;
+        left--;
+      } else if (k === EV_BOLUS) {
+        for (let i = 0; i < n; i++) s[i] += v;
+      } else if (k === EV_INF_START) {
+        rate += v;
+        nInf++;
+      } else if (k === EV_INF_STOP) {
+        if (ep >= epoch) {
+          nInf--;
+          rate = nInf === 0 ? 0 : rate - v;
+        }
+      } else if (k === EV_RESET) {
+        epoch = ep;
+        rate = 0;
+        nInf = 0;
+        pendCount = 0;
+        const d = v;
+        const route = doseRoute[d];
+        const amount = doseAmountMg[d];
+        const tau = doseIntervalH[d];
+        if (route === ROUTE_BOLUS) {
+          for (let i = 0; i < n; i++) s[i] = amount / Math.expm1(lam[i] * tau);
+          s[n] = 0;
+        } else if (route === ROUTE_INFUSION) {
+          const dur = doseDurationH[d];
+          const r = amount / dur;
+          for (let i = 0; i < n; i++) {
+            const l = lam[i];
+            s[i] = (r * dur * oneMinusExpOver(l * dur) * Math.exp(-l * (tau - dur))) / -Math.expm1(-l * tau);
+          }
+          s[n] = 0;
+        } else {
+          const fd = F * amount;
+          const ea = Math.exp(-ka * tau);
+          const aAfter = fd / -Math.expm1(-ka * tau);
+          for (let i = 0; i < n; i++) {
+            const l = lam[i];
+            const e = Math.exp(-l * tau);
+            s[i] = (ka * expDivDiff(l, ka, tau, e, ea) * aAfter) / -Math.expm1(-l * tau);
+          }
+          s[n] = aAfter;
+          // Latest train dose already in the depot is the m-th before; the state then is u0 after its entry.
+          const m = Math.max(1, Math.ceil(tlag / tau));
+          const u0 = m * tau - tlag;
+          if (u0 > 0) advance(s, n, lam, ka, 0, u0);
+          if (m - 1 > MAX_PENDING) return fail(out);
+          pendCount = m - 1;
+          pendTimeH = t + tlag - (m - 1) * tau;
+          pendTauH = tau;
+          pendAmountMg = fd;
+        }
+      }
+    }
+    return true;
+  };
+}
