@@ -1,56 +1,47 @@
 /**
- * log Phi(z), accurate in both tails, used by the censored likelihood. Kept here until the
- * shared engine/rng normal functions land; then this module re-exports those.
- * Method: Taylor series Phi(z) = 1/2 + phi(z) sum z^(2n+1)/(2n+1)!! for |z| < 3, and the
- * continued fraction of the Mills ratio (Abramowitz & Stegun 26.2.14, from memory) beyond.
+ * Normal-tail helpers for the censored likelihood and the imputation of censored levels.
+ * log Phi comes from engine/rng; the truncated draw works on the log scale so that levels far
+ * below the LLOQ (tiny tail mass) are still drawn accurately.
  */
-const LOG_SQRT_2PI = 0.5 * Math.log(2 * Math.PI);
+import { logNormalCdf, normalQuantile } from '../rng/index.js';
 
-/** Q(x) / phi(x) for x >= 3 by the Mills-ratio continued fraction (modified Lentz). */
-function millsRatio(x: number): number {
-  // R(x) = 1 / (x + 1 / (x + 2 / (x + 3 / (x + ...))))
-  const tiny = 1e-300;
-  let fr = x;
-  let c = x;
-  let d = 0;
-  for (let n = 1; n < 500; n++) {
-    d = x + n * d;
-    if (d === 0) d = tiny;
-    c = x + n / c;
-    if (c === 0) c = tiny;
-    d = 1 / d;
-    const delta = c * d;
-    fr *= delta;
-    if (Math.abs(delta - 1) < 1e-16) break;
+export { logNormalCdf };
+
+/**
+ * The z with log Phi(z) = logP (logP <= 0). Starts from the quantile of exp(logP) (or the
+ * asymptotic tail form when it underflows) and polishes with Newton steps on log Phi.
+ */
+export function normalQuantileFromLog(logP: number): number {
+  if (!(logP <= 0)) return NaN;
+  if (logP === 0) return Infinity;
+  if (logP === -Infinity) return -Infinity;
+  let z: number;
+  if (logP > -Math.LN2) {
+    // Upper half: Phi(z) = 1 - q with q = -expm1(logP) accurate.
+    return -normalQuantile(-Math.expm1(logP));
   }
-  return 1 / fr;
+  if (logP > -700) z = normalQuantile(Math.exp(logP));
+  else {
+    const t = -2 * logP;
+    z = -Math.sqrt(t - Math.log(t) - Math.log(2 * Math.PI));
+  }
+  if (logP > -600) return z;
+  for (let it = 0; it < 6; it++) {
+    // d/dz log Phi(z) = phi(z)/Phi(z) = exp(logPdf - logCdf)
+    const lc = logNormalCdf(z);
+    const slope = Math.exp(-0.5 * z * z - 0.5 * Math.log(2 * Math.PI) - lc);
+    const step = (lc - logP) / slope;
+    z -= step;
+    if (Math.abs(step) < 1e-14 * Math.abs(z)) break;
+  }
+  return z;
 }
 
-/** Phi(z) - 1/2 = phi(z) * sum_{n>=0} z^(2n+1) / (2n+1)!!, for moderate |z|. */
-function centralSeries(z: number): number {
-  const z2 = z * z;
-  let term = z;
-  let sum = z;
-  for (let n = 1; n < 200; n++) {
-    term *= z2 / (2 * n + 1);
-    sum += term;
-    if (Math.abs(term) < 1e-17 * Math.abs(sum)) break;
-  }
-  return Math.exp(-0.5 * z2 - LOG_SQRT_2PI) * sum;
-}
-
-/** log of the standard normal CDF; -Infinity at -Infinity, 0 at +Infinity, NaN for NaN. */
-export function logNormalCdf(z: number): number {
-  if (z !== z) return NaN;
-  if (z === -Infinity) return -Infinity;
-  if (z === Infinity) return 0;
-  if (z < -3) {
-    const x = -z;
-    return -0.5 * x * x - LOG_SQRT_2PI + Math.log(millsRatio(x));
-  }
-  if (z > 3) {
-    const q = Math.exp(-0.5 * z * z - LOG_SQRT_2PI) * millsRatio(z);
-    return Math.log1p(-q);
-  }
-  return Math.log(0.5 + centralSeries(z));
+/**
+ * Draw from N(0,1) truncated to (-inf, upper] given one uniform u in (0,1):
+ * Phi^-1(u Phi(upper)) (Samson, Lavielle & Mentre 2006, from memory), on the log scale.
+ */
+export function truncatedNormalBelow(upper: number, u: number): number {
+  const z = normalQuantileFromLog(Math.log(u) + logNormalCdf(upper));
+  return z > upper ? upper : z;
 }

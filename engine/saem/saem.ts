@@ -1,0 +1,828 @@
+/**
+ * SAEM with MCMC (Delyon, Lavielle & Moulines 1999; Kuhn & Lavielle 2004, 2005; censored
+ * levels: Samson, Lavielle & Mentre 2006; all from memory), DESIGN.md §5.
+ *
+ * Each iteration k: (1) for every subject and chain, Metropolis-Hastings steps on phi_i
+ * targeting p(phi_i | y_i; theta_k) (independent proposal from the population distribution,
+ * full random walk N(phi, kappa Omega), component-wise random walk with adaptive scales), then
+ * censored levels drawn from their truncated conditional distribution; (2) stochastic
+ * approximation of the complete-data sufficient statistics, s_k = s_{k-1} + gamma_k (S_k -
+ * s_{k-1}), gamma 1 in exploration then (k-K1)^-alpha; (3) M-step: typical values and covariate
+ * effects of parameters with BSV by GLS from s_k (reduces to least squares under a diagonal
+ * Omega), Omega from the second moments (within the chosen blocks), additive / proportional /
+ * log-additive residual variance in closed form. Parameters without BSV and combined-error
+ * (a, b) have no sufficient statistics: they move by a stochastic-approximation Newton step on
+ * the complete-data log-likelihood at the current draws, theta <- theta - gamma Hbar^-1 grad
+ * (Robbins-Monro; by Fisher's identity its fixed point solves the observed-data score equation,
+ * so it lands on the MLE). Variances are annealed during exploration (at most (1 - tau) fall per
+ * iteration). Randomness: one stream per subject and chain from the seed.
+ *
+ * The iteration itself is synchronous and allocation-free; `runSaem` drives it, reports progress
+ * every iteration and honours an abort signal between iterations.
+ */
+import { createStreams, type RngStream } from '../rng/index.js';
+import type { CompiledModel, PopulationParameters } from '../stats/model.js';
+import { choleskyLower, invertFromCholesky, solveWithCholesky } from '../stats/dense.js';
+import { residualSd } from '../stats/residual.js';
+import { truncatedNormalBelow } from '../stats/normalTail.js';
+import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
+
+export type SaemPhase = 'exploration' | 'averaging';
+
+/** Something with `aborted` (an AbortSignal); the engine has no DOM or Node types. */
+export interface AbortSignalLike {
+  readonly aborted: boolean;
+}
+
+export interface SaemProgress {
+  phase: SaemPhase;
+  /** 1-based iteration just completed. */
+  iteration: number;
+  /** Last exploration iteration once known, else null. */
+  explorationEnd: number | null;
+  /** Planned total iterations (exploration end may move it while still exploring). */
+  plannedIterations: number;
+  /** Current estimates, named by `estimateNames` (valid during the callback only). */
+  estimates: Float64Array;
+  estimateNames: readonly string[];
+}
+
+export interface SaemOptions {
+  /** Overrides the settings' seed. */
+  seed?: number;
+  /** Setting overrides (applied over the spec's estimation block). */
+  settings?: Partial<SaemSettings>;
+  /** Called after every iteration; a returned promise is awaited (a chance to yield). */
+  onProgress?: (progress: SaemProgress) => void | Promise<void>;
+  signal?: AbortSignalLike;
+  /** Milliseconds clock for timing (default Date.now). */
+  now?: () => number;
+}
+
+export interface SaemResult {
+  settings: SaemSettings;
+  seed: number;
+  chains: number;
+  /** Final population parameters (mu, beta transformed scale). */
+  theta: PopulationParameters;
+  /** Names of the trajectory columns: typical values (natural scale), covariate coefficients, BSV SDs, correlations, residual. */
+  estimateNames: readonly string[];
+  /** iterations x estimateNames.length, row-major. */
+  trajectory: Float64Array;
+  iterations: number;
+  /** Last exploration iteration (1-based). */
+  explorationEnd: number;
+  /** Whether exploration ended by the settle test (false: it hit its cap). */
+  explorationSettled: boolean;
+  /** Per subject (row) and parameter (column, spec order), natural scale: mean over the last draws of every chain. */
+  individualMean: Float64Array;
+  /** Same, transformed scale. */
+  individualPhiMean: Float64Array;
+  acceptance: { independent: number; randomWalk: number; component: Float64Array };
+  warnings: string[];
+  timingMs: { total: number; exploration: number; averaging: number };
+}
+
+export class SaemCancelledError extends Error {
+  constructor(iteration: number) {
+    super(`the fit was cancelled at iteration ${iteration}`);
+    this.name = 'AbortError';
+  }
+}
+
+/** Names of the estimates in the trajectory (and the progress callback), in order. */
+export function estimateNamesOf(model: CompiledModel): string[] {
+  const names: string[] = model.parameters.map((p) => p.name);
+  for (const t of model.covariateTerms) names.push(t.label);
+  for (let k = 0; k < model.nEta; k++) names.push(`omega_${model.parameters[model.etaParameter[k]].name}`);
+  for (const b of model.blocks)
+    for (let x = 0; x < b.length; x++)
+      for (let y = x + 1; y < b.length; y++) names.push(`corr_${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`);
+  const rm = model.residualModel;
+  if (rm === 'additive' || rm === 'combined' || rm === 'log-additive') names.push('a');
+  if (rm === 'proportional' || rm === 'combined') names.push('b');
+  return names;
+}
+
+/** A prepared SAEM run: `step()` performs one iteration; the caller decides when to stop. */
+export interface SaemRun {
+  readonly settings: SaemSettings;
+  readonly estimateNames: readonly string[];
+  step(): void;
+  readonly done: boolean;
+  readonly iteration: number;
+  readonly phase: SaemPhase;
+  readonly explorationEnd: number | null;
+  readonly plannedIterations: number;
+  readonly current: Float64Array;
+  finish(): SaemResult;
+}
+
+export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): SaemRun {
+  const settings = parseSaemSettings(model.spec.estimation, { ...(options.settings ?? {}), ...(options.seed !== undefined ? { seed: options.seed } : {}) });
+  const now = options.now ?? Date.now;
+  const tStart = now();
+  const N = model.nSubjects;
+  const p = model.nParams;
+  const nEta = model.nEta;
+  const T = model.covariateTerms.length;
+  const R = 1 + T;
+  const L = resolveChains(settings, N);
+  const NL = N * L;
+  const rm = model.residualModel;
+  const subjects = model.subjects;
+  const nObsTotal = model.nObsTotal;
+  const warnings: string[] = [...model.warnings];
+  const estimateNames = estimateNamesOf(model);
+  const nEst = estimateNames.length;
+  const maxIter = settings.explorationMaxIterations + settings.averagingIterations;
+
+  // Population parameters, working copy.
+  const theta: PopulationParameters = {
+    mu: Float64Array.from(model.initial.mu),
+    beta: Float64Array.from(model.initial.beta),
+    omega: Float64Array.from(model.initial.omega),
+    a: model.initial.a,
+    b: model.initial.b,
+  };
+  const etaParam = model.etaParameter;
+  const termParam = Int32Array.from(model.covariateTerms, (t) => t.parameterIndex);
+  const hasEta = Uint8Array.from(model.parameters, (q) => (q.etaIndex >= 0 ? 1 : 0));
+
+  // Omega factor: Cholesky (for proposals), inverse (for the prior).
+  const omegaChol = new Float64Array(nEta * nEta);
+  const omegaInv = new Float64Array(nEta * nEta);
+  const omegaSd = new Float64Array(nEta);
+  function refreshOmegaFactor(): boolean {
+    if (nEta === 0) return true;
+    if (!choleskyLower(theta.omega, nEta, omegaChol)) return false;
+    invertFromCholesky(omegaChol, nEta, omegaInv);
+    for (let k = 0; k < nEta; k++) omegaSd[k] = Math.sqrt(theta.omega[k * nEta + k]);
+    return true;
+  }
+  refreshOmegaFactor();
+
+  // Per-subject design rows z_i = [1, x_i] and Z'Z.
+  const zz = new Float64Array(R * R);
+  const zRow = new Float64Array(N * R);
+  for (let i = 0; i < N; i++) {
+    zRow[i * R] = 1;
+    for (let t = 0; t < T; t++) zRow[i * R + 1 + t] = subjects[i].design[t];
+    for (let r = 0; r < R; r++) for (let c = 0; c < R; c++) zz[r * R + c] += zRow[i * R + r] * zRow[i * R + c];
+  }
+
+  // GLS coefficient layout for parameters with BSV: per random effect, intercept then its terms.
+  const coefEta: number[] = [];
+  const coefZ: number[] = [];
+  const coefFixed: number[] = [];
+  const coefMu: number[] = []; // parameter index when the coefficient is an intercept, else -1
+  const coefBeta: number[] = []; // term index, else -1
+  for (let k = 0; k < nEta; k++) {
+    const j = etaParam[k];
+    coefEta.push(k), coefZ.push(0), coefFixed.push(model.parameters[j].fixed ? 1 : 0), coefMu.push(j), coefBeta.push(-1);
+    for (let t = 0; t < T; t++)
+      if (termParam[t] === j) coefEta.push(k), coefZ.push(1 + t), coefFixed.push(model.covariateTerms[t].fixed ? 1 : 0), coefMu.push(-1), coefBeta.push(t);
+  }
+  const nCoef = coefEta.length;
+  const freeIdx = Int32Array.from([...Array(nCoef).keys()].filter((m) => !coefFixed[m]));
+  const nFree = freeIdx.length;
+  const glsA = new Float64Array(nFree * nFree);
+  const glsL = new Float64Array(nFree * nFree);
+  const glsRhs = new Float64Array(nFree);
+  const coefValue = new Float64Array(nCoef);
+  const bMat = new Float64Array(R * nEta);
+
+  // Numerical block: typical values / coefficients of parameters without BSV, combined-error (log a, log b).
+  interface NumComp {
+    kind: 'mu' | 'beta' | 'loga' | 'logb';
+    index: number;
+  }
+  const numComps: NumComp[] = [];
+  for (let j = 0; j < p; j++) if (!hasEta[j] && !model.parameters[j].fixed) numComps.push({ kind: 'mu', index: j });
+  for (let t = 0; t < T; t++) if (!hasEta[termParam[t]] && !model.covariateTerms[t].fixed) numComps.push({ kind: 'beta', index: t });
+  const numStructural = numComps.length > 0;
+  // Fixed parameters without BSV still need predictions refreshed only if something structural moves.
+  if (rm === 'combined') numComps.push({ kind: 'loga', index: 0 }, { kind: 'logb', index: 0 });
+  const nNum = numComps.length;
+  const numTheta = new Float64Array(nNum);
+  const numGrad = new Float64Array(nNum);
+  const numHess = new Float64Array(nNum * nNum);
+  const numHessBar = new Float64Array(nNum * nNum);
+  const numNegH = new Float64Array(nNum * nNum);
+  const numLow = new Float64Array(nNum * nNum);
+  const numStep = new Float64Array(nNum);
+
+  // Chain state.
+  const phiS = new Float64Array(NL * p);
+  const llS = new Float64Array(NL);
+  const meanAll = new Float64Array(N * p);
+  const obsOff = new Int32Array(N + 1);
+  for (let i = 0; i < N; i++) obsOff[i + 1] = obsOff[i] + subjects[i].nObs;
+  const fS = new Float64Array(L * nObsTotal);
+  const yS = new Float64Array(L * nObsTotal);
+  const fView: Float64Array[] = new Array(NL);
+  const yView: Float64Array[] = new Array(NL);
+  for (let i = 0; i < N; i++)
+    for (let c = 0; c < L; c++) {
+      const s = i * L + c;
+      const off = L * obsOff[i] + c * subjects[i].nObs;
+      fView[s] = fS.subarray(off, off + subjects[i].nObs);
+      yView[s] = yS.subarray(off, off + subjects[i].nObs);
+      yView[s].set(subjects[i].y);
+    }
+  let maxObs = 0;
+  for (const s of subjects) maxObs = Math.max(maxObs, s.nObs);
+  const fPropBuf = new Float64Array(maxObs);
+  const fPropView = subjects.map((s) => fPropBuf.subarray(0, s.nObs));
+  const phiProp = new Float64Array(p);
+  const etaCur = new Float64Array(nEta);
+  const etaProp = new Float64Array(nEta);
+  const zBuf = new Float64Array(nEta);
+  const invEta = new Float64Array(nEta);
+  const meanRow = new Float64Array(p);
+
+  const root = createStreams(settings.seed);
+  const streams: RngStream[] = new Array(NL);
+  for (let i = 0; i < N; i++) for (let c = 0; c < L; c++) streams[i * L + c] = root.stream('saem', 'subject', i, 'chain', c);
+
+  // Kernel adaptation (scales relative to Omega), frozen after exploration.
+  let kappa = nEta > 0 ? 2.38 * 2.38 / nEta / 2 : 1;
+  const compScale = new Float64Array(nEta).fill(0.5);
+  let accInd = 0, triesInd = 0, accRw = 0, triesRw = 0;
+  const accComp = new Float64Array(nEta);
+  const triesComp = new Float64Array(nEta);
+  let totAccInd = 0, totTriesInd = 0, totAccRw = 0, totTriesRw = 0;
+  const totAccComp = new Float64Array(nEta);
+  const totTriesComp = new Float64Array(nEta);
+
+  // Sufficient statistics (chain-averaged) and their stochastic approximations.
+  const szp = new Float64Array(R * nEta);
+  const spp = new Float64Array(nEta * nEta);
+  const szpBar = new Float64Array(R * nEta);
+  const sppBar = new Float64Array(nEta * nEta);
+  let sres = 0;
+  let sresBar = 0;
+
+  const trajectory = new Float64Array(maxIter * nEst);
+  const current = new Float64Array(nEst);
+  const indivSum = new Float64Array(N * p);
+  const indivPhiSum = new Float64Array(N * p);
+  const natScratch = new Float64Array(p);
+  let indivCount = 0;
+
+  function refreshMeans(): void {
+    for (let i = 0; i < N; i++) {
+      model.meanPhi(i, theta, meanRow);
+      meanAll.set(meanRow, i * p);
+    }
+  }
+
+  /** Log-likelihood of a proposed phi (subject i) into fPropView[i]. */
+  function propLogLik(i: number, phi: Float64Array, a: number, b: number): number {
+    const f = fPropView[i];
+    if (!model.predict(i, phi, f)) return -Infinity;
+    return model.logLikFromPredictions(i, f, a, b);
+  }
+
+  function quadInv(eta: Float64Array): number {
+    let q = 0;
+    for (let r = 0; r < nEta; r++) {
+      let row = 0;
+      for (let c = 0; c < nEta; c++) row += omegaInv[r * nEta + c] * eta[c];
+      q += eta[r] * row;
+    }
+    return q;
+  }
+
+  function accept(s: number, i: number, ll: number): void {
+    const base = s * p;
+    for (let k = 0; k < nEta; k++) phiS[base + etaParam[k]] = phiProp[etaParam[k]];
+    fView[s].set(fPropView[i]);
+    llS[s] = ll;
+  }
+
+  // Initial chains at the population means.
+  refreshMeans();
+  for (let i = 0; i < N; i++)
+    for (let c = 0; c < L; c++) {
+      const s = i * L + c;
+      phiS.set(meanAll.subarray(i * p, i * p + p), s * p);
+      if (!model.predict(i, phiS.subarray(s * p, s * p + p), fView[s])) {
+        llS[s] = -Infinity;
+      } else llS[s] = model.logLikFromPredictions(i, fView[s], theta.a, theta.b);
+    }
+  for (let i = 0; i < N; i++)
+    if (llS[i * L] === -Infinity)
+      warnings.push(`subject ${subjects[i].id}: the initial typical values give an impossible prediction; the chains start there and move only if a proposal is valid`);
+
+  function simulate(exploring: boolean): void {
+    accInd = triesInd = accRw = triesRw = 0;
+    accComp.fill(0);
+    triesComp.fill(0);
+    const sqrtKappa = Math.sqrt(kappa);
+    for (let i = 0; i < N; i++) {
+      const mBase = i * p;
+      for (let c = 0; c < L; c++) {
+        const s = i * L + c;
+        const rng = streams[s];
+        const base = s * p;
+        let ll = llS[s];
+        if (nEta > 0) {
+          for (let j = 0; j < p; j++) phiProp[j] = phiS[base + j];
+          // 1. Independent proposal from N(mean_i, Omega): the prior cancels in the ratio.
+          for (let it = 0; it < settings.independentSteps; it++) {
+            for (let k = 0; k < nEta; k++) zBuf[k] = rng.normal();
+            for (let r = 0; r < nEta; r++) {
+              let v = 0;
+              for (let q = 0; q <= r; q++) v += omegaChol[r * nEta + q] * zBuf[q];
+              phiProp[etaParam[r]] = meanAll[mBase + etaParam[r]] + v;
+            }
+            const llp = propLogLik(i, phiProp, theta.a, theta.b);
+            triesInd++;
+            if (llp > -Infinity && Math.log(rng.uniform()) < llp - ll) {
+              accept(s, i, llp);
+              ll = llp;
+              accInd++;
+            } else for (let k = 0; k < nEta; k++) phiProp[etaParam[k]] = phiS[base + etaParam[k]];
+          }
+          // 2. Full random walk N(phi, kappa Omega).
+          for (let k = 0; k < nEta; k++) etaCur[k] = phiS[base + etaParam[k]] - meanAll[mBase + etaParam[k]];
+          let qCur = quadInv(etaCur);
+          for (let it = 0; it < settings.randomWalkSteps; it++) {
+            for (let k = 0; k < nEta; k++) zBuf[k] = rng.normal();
+            for (let r = 0; r < nEta; r++) {
+              let v = 0;
+              for (let q = 0; q <= r; q++) v += omegaChol[r * nEta + q] * zBuf[q];
+              etaProp[r] = etaCur[r] + sqrtKappa * v;
+              phiProp[etaParam[r]] = meanAll[mBase + etaParam[r]] + etaProp[r];
+            }
+            const qProp = quadInv(etaProp);
+            const llp = propLogLik(i, phiProp, theta.a, theta.b);
+            triesRw++;
+            if (llp > -Infinity && Math.log(rng.uniform()) < llp - ll - 0.5 * (qProp - qCur)) {
+              accept(s, i, llp);
+              ll = llp;
+              qCur = qProp;
+              etaCur.set(etaProp);
+              accRw++;
+            } else for (let k = 0; k < nEta; k++) phiProp[etaParam[k]] = phiS[base + etaParam[k]];
+          }
+          // 3. Component-wise random walk with adaptive scales.
+          for (let sw = 0; sw < settings.componentSweeps; sw++) {
+            for (let k = 0; k < nEta; k++) {
+              let row = 0;
+              for (let c2 = 0; c2 < nEta; c2++) row += omegaInv[k * nEta + c2] * etaCur[c2];
+              invEta[k] = row;
+            }
+            for (let k = 0; k < nEta; k++) {
+              const d = compScale[k] * omegaSd[k] * rng.normal();
+              const j = etaParam[k];
+              phiProp[j] = phiS[base + j] + d;
+              const dq = 2 * d * invEta[k] + d * d * omegaInv[k * nEta + k];
+              const llp = propLogLik(i, phiProp, theta.a, theta.b);
+              triesComp[k]++;
+              if (llp > -Infinity && Math.log(rng.uniform()) < llp - ll - 0.5 * dq) {
+                phiS[base + j] = phiProp[j];
+                fView[s].set(fPropView[i]);
+                llS[s] = llp;
+                ll = llp;
+                etaCur[k] += d;
+                for (let r = 0; r < nEta; r++) invEta[r] += omegaInv[r * nEta + k] * d;
+                accComp[k]++;
+              } else phiProp[j] = phiS[base + j];
+            }
+          }
+        }
+        // Censored levels: draw from N(f, g^2) truncated below the LLOQ (log scale for log-additive).
+        const sub = subjects[i];
+        if (sub.nCensored > 0) {
+          const f = fView[s];
+          const y = yView[s];
+          for (let o = 0; o < sub.nObs; o++) {
+            if (!sub.censored[o]) continue;
+            const fo = f[o];
+            if (rm === 'log-additive') {
+              if (!(fo > 0)) {
+                y[o] = sub.lloqMgL[o];
+                continue;
+              }
+              const z = truncatedNormalBelow((Math.log(sub.lloqMgL[o]) - Math.log(fo)) / theta.a, rng.uniform());
+              y[o] = fo * Math.exp(theta.a * z);
+            } else {
+              const g = residualSd(rm, theta.a, theta.b, fo);
+              if (!(g > 0) || !Number.isFinite(fo)) {
+                y[o] = sub.lloqMgL[o];
+                continue;
+              }
+              y[o] = fo + g * truncatedNormalBelow((sub.lloqMgL[o] - fo) / g, rng.uniform());
+            }
+          }
+        }
+      }
+    }
+    totAccInd += accInd, totTriesInd += triesInd, totAccRw += accRw, totTriesRw += triesRw;
+    for (let k = 0; k < nEta; k++) (totAccComp[k] += accComp[k]), (totTriesComp[k] += triesComp[k]);
+    if (exploring) {
+      // kappa <- kappa (1 + delta (acc - target)), likewise the component scales (DESIGN.md §5).
+      const target = settings.targetAcceptance;
+      if (triesRw > 0) kappa = Math.min(10, Math.max(1e-4, kappa * (1 + 0.4 * (accRw / triesRw - target))));
+      for (let k = 0; k < nEta; k++)
+        if (triesComp[k] > 0) compScale[k] = Math.min(10, Math.max(1e-3, compScale[k] * (1 + 0.4 * (accComp[k] / triesComp[k] - target))));
+    }
+  }
+
+  /** Complete-data sufficient statistics at the current draws, averaged over chains. */
+  function computeStatistics(): void {
+    szp.fill(0);
+    spp.fill(0);
+    let res = 0;
+    const invL = 1 / L;
+    for (let i = 0; i < N; i++) {
+      const sub = subjects[i];
+      for (let c = 0; c < L; c++) {
+        const s = i * L + c;
+        const base = s * p;
+        for (let k = 0; k < nEta; k++) {
+          const v = phiS[base + etaParam[k]];
+          for (let r = 0; r < R; r++) szp[r * nEta + k] += zRow[i * R + r] * v * invL;
+          for (let k2 = 0; k2 <= k; k2++) spp[k * nEta + k2] += v * phiS[base + etaParam[k2]] * invL;
+        }
+        const f = fView[s];
+        const y = yView[s];
+        for (let o = 0; o < sub.nObs; o++) {
+          let e: number;
+          if (rm === 'additive') e = y[o] - f[o];
+          else if (rm === 'proportional') e = (y[o] - f[o]) / f[o];
+          else if (rm === 'log-additive') e = Math.log(y[o]) - Math.log(f[o]);
+          else e = 0;
+          res += e * e * invL;
+        }
+      }
+    }
+    for (let k = 0; k < nEta; k++) for (let k2 = 0; k2 < k; k2++) spp[k2 * nEta + k] = spp[k * nEta + k2];
+    sres = Number.isFinite(res) ? res : sresBar;
+  }
+
+  /** Complete-data log-likelihood of the numerical block at numTheta (chain-averaged). */
+  function numObjective(x: Float64Array): number {
+    let a = theta.a;
+    let b = theta.b;
+    for (let m = 0; m < nNum; m++) {
+      const nc = numComps[m];
+      if (nc.kind === 'loga') a = Math.exp(x[m]);
+      else if (nc.kind === 'logb') b = Math.exp(x[m]);
+    }
+    let total = 0;
+    for (let i = 0; i < N; i++) {
+      if (numStructural) {
+        // mean of the non-BSV components under x
+        for (let j = 0; j < p; j++) meanRow[j] = hasEta[j] ? 0 : theta.mu[j];
+        for (let m = 0; m < nNum; m++) if (numComps[m].kind === 'mu') meanRow[numComps[m].index] = x[m];
+        for (let t = 0; t < T; t++) {
+          if (hasEta[termParam[t]]) continue;
+          let coef = theta.beta[t];
+          for (let m = 0; m < nNum; m++) if (numComps[m].kind === 'beta' && numComps[m].index === t) coef = x[m];
+          meanRow[termParam[t]] += coef * subjects[i].design[t];
+        }
+      }
+      for (let c = 0; c < L; c++) {
+        const s = i * L + c;
+        let ll: number;
+        if (numStructural) {
+          for (let j = 0; j < p; j++) phiProp[j] = hasEta[j] ? phiS[s * p + j] : meanRow[j];
+          ll = propLogLik(i, phiProp, a, b);
+        } else ll = model.logLikFromPredictions(i, fView[s], a, b);
+        total += ll;
+      }
+    }
+    return total / L;
+  }
+
+  const xTmp = new Float64Array(nNum);
+  function numericalStep(gamma: number): void {
+    for (let m = 0; m < nNum; m++) {
+      const nc = numComps[m];
+      numTheta[m] = nc.kind === 'mu' ? theta.mu[nc.index] : nc.kind === 'beta' ? theta.beta[nc.index] : nc.kind === 'loga' ? Math.log(theta.a) : Math.log(theta.b);
+    }
+    const f0 = numObjective(numTheta);
+    if (!Number.isFinite(f0)) return;
+    // Central differences for the gradient and Hessian.
+    for (let m = 0; m < nNum; m++) {
+      const h = 1e-3 * Math.max(1, Math.abs(numTheta[m]));
+      xTmp.set(numTheta);
+      xTmp[m] = numTheta[m] + h;
+      const fp = numObjective(xTmp);
+      xTmp[m] = numTheta[m] - h;
+      const fm = numObjective(xTmp);
+      numGrad[m] = (fp - fm) / (2 * h);
+      numHess[m * nNum + m] = (fp - 2 * f0 + fm) / (h * h);
+    }
+    for (let m = 0; m < nNum; m++)
+      for (let m2 = m + 1; m2 < nNum; m2++) {
+        const h1 = 1e-3 * Math.max(1, Math.abs(numTheta[m]));
+        const h2 = 1e-3 * Math.max(1, Math.abs(numTheta[m2]));
+        let acc = 0;
+        for (const [s1, s2, w] of [[1, 1, 1], [1, -1, -1], [-1, 1, -1], [-1, -1, 1]] as const) {
+          xTmp.set(numTheta);
+          xTmp[m] += s1 * h1;
+          xTmp[m2] += s2 * h2;
+          acc += w * numObjective(xTmp);
+        }
+        numHess[m * nNum + m2] = numHess[m2 * nNum + m] = acc / (4 * h1 * h2);
+      }
+    for (let q = 0; q < nNum * nNum; q++) {
+      if (!Number.isFinite(numHess[q])) return;
+    }
+    for (let m = 0; m < nNum; m++) if (!Number.isFinite(numGrad[m])) return;
+    for (let q = 0; q < nNum * nNum; q++) numHessBar[q] += gamma * (numHess[q] - numHessBar[q]);
+    for (let q = 0; q < nNum * nNum; q++) numNegH[q] = -numHessBar[q];
+    numStep.set(numGrad);
+    if (choleskyLower(numNegH, nNum, numLow)) solveWithCholesky(numLow, nNum, numStep);
+    else for (let m = 0; m < nNum; m++) numStep[m] = numGrad[m] / Math.max(Math.abs(numHessBar[m * nNum + m]), 1e-8);
+    for (let m = 0; m < nNum; m++) {
+      const cap = Math.max(1, Math.abs(numTheta[m]) * 0.5);
+      const d = Math.max(-cap, Math.min(cap, numStep[m]));
+      const v = numTheta[m] + gamma * d;
+      const nc = numComps[m];
+      if (nc.kind === 'mu') theta.mu[nc.index] = v;
+      else if (nc.kind === 'beta') theta.beta[nc.index] = v;
+      else if (nc.kind === 'loga') theta.a = Math.exp(v);
+      else theta.b = Math.exp(v);
+    }
+  }
+
+  const omegaPrev = new Float64Array(nEta * nEta);
+  const omegaNew = new Float64Array(nEta * nEta);
+  const blockOf = new Int32Array(nEta);
+  model.blocks.forEach((blk, bi) => blk.forEach((k) => (blockOf[k] = bi)));
+  let omegaFailures = 0;
+
+  function mStep(gamma: number, annealing: boolean): void {
+    for (let q = 0; q < R * nEta; q++) szpBar[q] += gamma * (szp[q] - szpBar[q]);
+    for (let q = 0; q < nEta * nEta; q++) sppBar[q] += gamma * (spp[q] - sppBar[q]);
+    sresBar += gamma * (sres - sresBar);
+
+    if (nEta > 0) {
+      // GLS for the coefficients of parameters with BSV, weights W = Omega_{k-1}^-1.
+      for (let m = 0; m < nCoef; m++) coefValue[m] = coefMu[m] >= 0 ? theta.mu[coefMu[m]] : theta.beta[coefBeta[m]];
+      if (nFree > 0) {
+        for (let fi = 0; fi < nFree; fi++) {
+          const m = freeIdx[fi];
+          let rhs = 0;
+          for (let k2 = 0; k2 < nEta; k2++) rhs += omegaInv[coefEta[m] * nEta + k2] * szpBar[coefZ[m] * nEta + k2];
+          for (let m2 = 0; m2 < nCoef; m2++) {
+            if (!coefFixed[m2]) continue;
+            rhs -= omegaInv[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]] * coefValue[m2];
+          }
+          glsRhs[fi] = rhs;
+          for (let fj = 0; fj < nFree; fj++) {
+            const m2 = freeIdx[fj];
+            glsA[fi * nFree + fj] = omegaInv[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]];
+          }
+        }
+        if (choleskyLower(glsA, nFree, glsL)) {
+          solveWithCholesky(glsL, nFree, glsRhs);
+          for (let fi = 0; fi < nFree; fi++) {
+            const m = freeIdx[fi];
+            if (Number.isFinite(glsRhs[fi])) coefValue[m] = glsRhs[fi];
+          }
+        }
+        for (let m = 0; m < nCoef; m++) {
+          if (coefMu[m] >= 0) theta.mu[coefMu[m]] = coefValue[m];
+          else theta.beta[coefBeta[m]] = coefValue[m];
+        }
+      }
+      // Omega = (S_pp - B'S_zp - S_zp'B + B'Z'Z B) / N within the blocks.
+      bMat.fill(0);
+      for (let m = 0; m < nCoef; m++) bMat[coefZ[m] * nEta + coefEta[m]] = coefValue[m];
+      omegaPrev.set(theta.omega);
+      for (let k = 0; k < nEta; k++)
+        for (let k2 = 0; k2 <= k; k2++) {
+          let v = 0;
+          if (blockOf[k] === blockOf[k2]) {
+            v = sppBar[k * nEta + k2];
+            for (let r = 0; r < R; r++) {
+              v -= bMat[r * nEta + k] * szpBar[r * nEta + k2] + szpBar[r * nEta + k] * bMat[r * nEta + k2];
+              let bz = 0;
+              for (let r2 = 0; r2 < R; r2++) bz += zz[r * R + r2] * bMat[r2 * nEta + k2];
+              v += bMat[r * nEta + k] * bz;
+            }
+            v /= N;
+          }
+          omegaNew[k * nEta + k2] = omegaNew[k2 * nEta + k] = v;
+        }
+      if (annealing)
+        for (let k = 0; k < nEta; k++) {
+          const floor = settings.annealingTau * omegaPrev[k * nEta + k];
+          if (!(omegaNew[k * nEta + k] >= floor)) {
+            // Raising a variance alone keeps the block positive definite; rescale its covariances too.
+            const ratio = Math.sqrt(floor / Math.max(omegaNew[k * nEta + k], 1e-300));
+            omegaNew[k * nEta + k] = floor;
+            for (let k2 = 0; k2 < nEta; k2++) if (k2 !== k && Number.isFinite(ratio)) {
+              omegaNew[k * nEta + k2] *= ratio;
+              omegaNew[k2 * nEta + k] *= ratio;
+            }
+          }
+        }
+      for (let k = 0; k < nEta; k++) if (!(omegaNew[k * nEta + k] > 1e-12)) omegaNew[k * nEta + k] = 1e-12;
+      theta.omega.set(omegaNew);
+      if (!refreshOmegaFactor()) {
+        omegaFailures++;
+        theta.omega.set(omegaPrev);
+        refreshOmegaFactor();
+      }
+    }
+
+    // Residual error, closed form where the model allows.
+    if (rm !== 'combined' && nObsTotal > 0) {
+      let v = sresBar / nObsTotal;
+      if (rm === 'proportional') {
+        if (annealing) v = Math.max(v, settings.annealingTau * theta.b * theta.b);
+        if (v > 0 && Number.isFinite(v)) theta.b = Math.sqrt(v);
+      } else {
+        if (annealing) v = Math.max(v, settings.annealingTau * theta.a * theta.a);
+        if (v > 0 && Number.isFinite(v)) theta.a = Math.sqrt(v);
+      }
+    }
+    if (nNum > 0) {
+      const a0 = theta.a;
+      const b0 = theta.b;
+      numericalStep(gamma);
+      if (annealing && rm === 'combined') {
+        theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * a0);
+        theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * b0);
+      }
+    }
+
+    // The chains keep their phi; refresh means, non-BSV components and cached log-likelihoods.
+    refreshMeans();
+    for (let i = 0; i < N; i++)
+      for (let c = 0; c < L; c++) {
+        const s = i * L + c;
+        if (numStructural) {
+          for (let j = 0; j < p; j++) if (!hasEta[j]) phiS[s * p + j] = meanAll[i * p + j];
+          const phi = phiS.subarray(s * p, s * p + p);
+          llS[s] = model.predict(i, phi, fView[s]) ? model.logLikFromPredictions(i, fView[s], theta.a, theta.b) : -Infinity;
+        } else llS[s] = model.logLikFromPredictions(i, fView[s], theta.a, theta.b);
+      }
+  }
+
+  function writeEstimates(out: Float64Array): void {
+    let q = 0;
+    for (let j = 0; j < p; j++) out[q++] = model.parameters[j].transform === 'log' ? Math.exp(theta.mu[j]) : model.parameters[j].transform === 'logit' ? 1 / (1 + Math.exp(-theta.mu[j])) : theta.mu[j];
+    for (let t = 0; t < T; t++) out[q++] = theta.beta[t];
+    for (let k = 0; k < nEta; k++) out[q++] = Math.sqrt(theta.omega[k * nEta + k]);
+    for (const b of model.blocks)
+      for (let x = 0; x < b.length; x++)
+        for (let y = x + 1; y < b.length; y++) out[q++] = theta.omega[b[x] * nEta + b[y]] / Math.sqrt(theta.omega[b[x] * nEta + b[x]] * theta.omega[b[y] * nEta + b[y]]);
+    if (rm === 'additive' || rm === 'combined' || rm === 'log-additive') out[q++] = theta.a;
+    if (rm === 'proportional' || rm === 'combined') out[q++] = theta.b;
+  }
+
+  /** Working scale of each estimate for the settle test: log of positive quantities. */
+  const positive = new Uint8Array(nEst);
+  {
+    let q = 0;
+    for (let j = 0; j < p; j++) positive[q++] = model.parameters[j].transform === 'log' ? 1 : 0;
+    q += T;
+    for (let k = 0; k < nEta; k++) positive[q++] = 1;
+    for (; q < nEst; q++) positive[q] = estimateNames[q] === 'a' || estimateNames[q] === 'b' ? 1 : 0;
+  }
+  function settled(k: number): boolean {
+    const W = settings.settleWindow;
+    if (k < 2 * W) return false;
+    for (let e = 0; e < nEst; e++) {
+      let s1 = 0, s2 = 0, q1 = 0, q2 = 0;
+      for (let it = k - 2 * W; it < k; it++) {
+        let v = trajectory[it * nEst + e];
+        if (positive[e]) v = Math.log(v);
+        if (it < k - W) (s1 += v), (q1 += v * v);
+        else (s2 += v), (q2 += v * v);
+      }
+      const m1 = s1 / W, m2 = s2 / W;
+      const sd1 = Math.sqrt(Math.max(0, q1 / W - m1 * m1));
+      const sd2 = Math.sqrt(Math.max(0, q2 / W - m2 * m2));
+      if (Math.abs(m2 - m1) > settings.settleTolerance * 0.5 * (sd1 + sd2) + 1e-4 * (1 + Math.abs(m2))) return false;
+    }
+    return true;
+  }
+
+  let iteration = 0;
+  let explorationEnd: number | null = null;
+  let explorationSettled = false;
+  let tExplorationEnd = tStart;
+  const annealingIterations = settings.annealingIterations ?? Infinity;
+
+  const run: SaemRun = {
+    settings,
+    estimateNames,
+    get done() {
+      return explorationEnd !== null && iteration >= explorationEnd + settings.averagingIterations;
+    },
+    get iteration() {
+      return iteration;
+    },
+    get phase(): SaemPhase {
+      return explorationEnd === null ? 'exploration' : 'averaging';
+    },
+    get explorationEnd() {
+      return explorationEnd;
+    },
+    get plannedIterations() {
+      return (explorationEnd ?? settings.explorationMaxIterations) + settings.averagingIterations;
+    },
+    current,
+    step() {
+      if (this.done) return;
+      const exploring = explorationEnd === null;
+      iteration++;
+      simulate(exploring);
+      computeStatistics();
+      const gamma = exploring ? 1 : Math.pow(iteration - (explorationEnd as number), -settings.stepExponent);
+      mStep(gamma, exploring && iteration <= annealingIterations);
+      writeEstimates(current);
+      trajectory.set(current, (iteration - 1) * nEst);
+      if (!exploring) {
+        const lastStart = explorationEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
+        if (iteration > lastStart) {
+          for (let s = 0; s < NL; s++) {
+            const i = (s / L) | 0;
+            const phi = phiS.subarray(s * p, s * p + p);
+            model.toNatural(phi, natScratch);
+            for (let j = 0; j < p; j++) {
+              indivSum[i * p + j] += natScratch[j];
+              indivPhiSum[i * p + j] += phi[j];
+            }
+          }
+          indivCount += L;
+        }
+      } else {
+        if (settings.autoEndExploration && iteration >= settings.explorationMinIterations && settled(iteration)) explorationSettled = true;
+        if (explorationSettled || iteration >= settings.explorationMaxIterations) {
+          explorationEnd = iteration;
+          tExplorationEnd = now();
+        }
+      }
+    },
+    finish(): SaemResult {
+      const tEnd = now();
+      const count = Math.max(1, indivCount / L);
+      const individualMean = new Float64Array(N * p);
+      const individualPhiMean = new Float64Array(N * p);
+      for (let q = 0; q < N * p; q++) {
+        individualMean[q] = indivSum[q] / (count * L);
+        individualPhiMean[q] = indivPhiSum[q] / (count * L);
+      }
+      if (explorationEnd !== null && !explorationSettled && settings.autoEndExploration)
+        warnings.push(`exploration reached its cap of ${settings.explorationMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.explorationMaxIterations`);
+      if (omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${omegaFailures} iteration(s); the previous Omega was kept there`);
+      const compAcc = new Float64Array(nEta);
+      for (let k = 0; k < nEta; k++) compAcc[k] = totTriesComp[k] > 0 ? totAccComp[k] / totTriesComp[k] : NaN;
+      for (let q = 0; q < nEst; q++)
+        if (!Number.isFinite(current[q])) warnings.push(`estimate ${estimateNames[q]} is not a finite number: the fit failed; check the initial values and the data`);
+      return {
+        settings,
+        seed: settings.seed,
+        chains: L,
+        theta: { mu: Float64Array.from(theta.mu), beta: Float64Array.from(theta.beta), omega: Float64Array.from(theta.omega), a: theta.a, b: theta.b },
+        estimateNames,
+        trajectory: trajectory.slice(0, iteration * nEst),
+        iterations: iteration,
+        explorationEnd: explorationEnd ?? iteration,
+        explorationSettled,
+        individualMean,
+        individualPhiMean,
+        acceptance: {
+          independent: totTriesInd > 0 ? totAccInd / totTriesInd : NaN,
+          randomWalk: totTriesRw > 0 ? totAccRw / totTriesRw : NaN,
+          component: compAcc,
+        },
+        warnings,
+        timingMs: { total: tEnd - tStart, exploration: tExplorationEnd - tStart, averaging: tEnd - tExplorationEnd },
+      };
+    },
+  };
+  return run;
+}
+
+/** Run SAEM to the end; rejects with SaemCancelledError when the signal aborts. */
+export async function runSaem(model: CompiledModel, options: SaemOptions = {}): Promise<SaemResult> {
+  const run = createSaemRun(model, options);
+  while (!run.done) {
+    if (options.signal?.aborted) throw new SaemCancelledError(run.iteration);
+    run.step();
+    if (options.onProgress) {
+      const r = options.onProgress({
+        phase: run.phase === 'averaging' && run.iteration === run.explorationEnd ? 'exploration' : run.phase,
+        iteration: run.iteration,
+        explorationEnd: run.explorationEnd,
+        plannedIterations: run.plannedIterations,
+        estimates: run.current,
+        estimateNames: run.estimateNames,
+      });
+      if (r && typeof (r as Promise<void>).then === 'function') await r;
+    }
+  }
+  if (options.signal?.aborted) throw new SaemCancelledError(run.iteration);
+  return run.finish();
+}
