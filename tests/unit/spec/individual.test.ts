@@ -21,7 +21,7 @@ describe('transforms', () => {
     }
     expect(transformForward('log', Math.E)).toBeCloseTo(1, 15);
     expect(transformForward('logit', 0.5)).toBe(0);
-    expect(transformInverse('logit', -800)).toBeGreaterThan(0); // no 0/0 in the far tail
+    expect(transformInverse('logit', -700)).toBeGreaterThan(0); // exp(phi)/(1+exp(phi)): no underflow to 0 before exp itself does
     expect(transformInverse('logit', 800)).toBe(1);
     expect(Number.isNaN(transformForward('log', 0))).toBe(true);
     expect(Number.isNaN(transformForward('logit', 1))).toBe(true);
