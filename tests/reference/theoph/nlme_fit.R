@@ -43,6 +43,7 @@ describe <- function(fit, label, call) {
     method = fit$method,
     fixedEffects = as.list(fe),
     fixedEffectsSE = as.list(tt[, "Std.Error"]),
+    fixedEffectsSEUnadjusted = as.list(sqrt(diag(fit$varFix))),
     randomEffectSD = as.list(sdre),
     randomEffectCorrelation = lapply(seq_len(nrow(corr)), function(i) as.numeric(corr[i, ])),
     randomEffectNames = colnames(re),
@@ -97,7 +98,7 @@ out <- list(
     "fm2Theo.nlme is close to but not the same model as 'reference'. Naming follows the book's script (ch08.R):",
     "fm1Theo.nlme has the general Omega, fm2Theo.nlme the pdDiag one, fm3Theo.nlme drops the BSV of lKe.",
     "fitWarnings lists the warnings nlme gave for that fit (fm1Theo.nlme, run with the book's default controls, warns that one inner LME step did not converge; its result matches the book).",
-    "fixedEffectsSE are nlme's approximate standard errors of the fixed effects (log scale)."),
+    "fixedEffectsSE are summary(fit) standard errors of the fixed effects (log scale) from nlme's linearised information, which for ML fits nlme multiplies by sqrt(N/(N - p)); fixedEffectsSEUnadjusted = sqrt(diag(varFix)) without that factor."),
   reference = ref,
   published = pub
 )
