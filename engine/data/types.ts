@@ -65,12 +65,15 @@ export interface DataProblem {
 /** Thrown when records are invalid; carries every problem found, not only the first. */
 export class DataError extends Error {
   readonly problems: readonly DataProblem[];
-  constructor(problems: readonly DataProblem[]) {
-    super(DataError.describe(problems));
+  /** The file (or other source) the problems are in, when known. */
+  readonly source?: string;
+  constructor(problems: readonly DataProblem[], source?: string) {
+    super(DataError.describe(problems, source));
     this.name = 'DataError';
     this.problems = problems;
+    if (source !== undefined) this.source = source;
   }
-  static describe(problems: readonly DataProblem[]): string {
+  static describe(problems: readonly DataProblem[], source?: string): string {
     const shown = problems.slice(0, 20).map((p) => {
       const where = [
         p.row !== undefined ? `line ${p.row}` : undefined,
@@ -82,6 +85,6 @@ export class DataError extends Error {
       return where ? `${where}: ${p.message}` : p.message;
     });
     const more = problems.length > 20 ? `\n... and ${problems.length - 20} more` : '';
-    return `${problems.length} problem(s) in the data:\n${shown.join('\n')}${more}`;
+    return `${problems.length} problem(s) in the data${source !== undefined ? ` (${source})` : ''}:\n${shown.join('\n')}${more}`;
   }
 }

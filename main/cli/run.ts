@@ -8,6 +8,8 @@ import * as path from 'node:path';
 import { fileURLToPath, pathToFileURL } from 'node:url';
 import { DataError } from '../../engine/data/types.js';
 import { SpecError } from '../../engine/spec/modelSpec.js';
+import { CovariateValueError } from '../../engine/spec/individual.js';
+import { DatasetLoadError } from '../services/datasetLoader.js';
 import { CliError, UsageError, type CliCommand, type CliIo } from './types.js';
 
 export interface RunOptions {
@@ -113,7 +115,7 @@ export function reportError(error: unknown, io: CliIo, debug: boolean, usage?: s
     if (debug && error.stack) io.stderr(`${error.stack}\n`);
     return 1;
   }
-  if (error instanceof CliError) {
+  if (error instanceof CliError || error instanceof DatasetLoadError || error instanceof CovariateValueError) {
     io.stderr(`plateau: ${withNewline(error.message)}`);
     if (debug && error.stack) io.stderr(`${error.stack}\n`);
     return 1;

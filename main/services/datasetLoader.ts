@@ -1,0 +1,84 @@
+/**
+ * Load a dataset from a file for the CLI, the worker and the app. Canonical CSV is read here;
+ * spreadsheets (.xlsx, .xls, .ods, or any file with a mapping template) go to the spreadsheet
+ * branch in spreadsheetDataset.ts, which exports
+ *   loadSpreadsheetDataset(path: string, options: LoadDatasetOptions): Promise<Dataset>
+ * and is loaded only when needed, so this module works before that branch exists.
+ */
+import { promises as fs } from 'node:fs';
+import * as path from 'node:path';
+import { parseCanonicalCsv } from '../../engine/data/canonicalCsv.js';
+import { DataError, type Dataset } from '../../engine/data/types.js';
+
+export interface LoadDatasetOptions {
+  /** Spreadsheet mapping: a template file path or its parsed JSON. Sends even a .csv to the spreadsheet branch. */
+  mapping?: string | Record<string, unknown>;
+  /** Sheet to read, for workbooks with several (spreadsheet branch). */
+  sheet?: string;
+}
+
+/** A file that cannot be loaded as a dataset, with what to do about it. */
+export class DatasetLoadError extends Error {
+  readonly file: string;
+  constructor(file: string, message: string) {
+    super(message);
+    this.name = 'DatasetLoadError';
+    this.file = file;
+  }
+}
+
+export type SpreadsheetDatasetLoader = (file: string, options: LoadDatasetOptions) => Promise<Dataset>;
+
+const SPREADSHEET_EXTENSIONS = new Set(['.xlsx', '.xlsm', '.xls', '.ods']);
+
+/** True when the file goes to the spreadsheet branch. */
+export function isSpreadsheetPath(file: string, options: LoadDatasetOptions = {}): boolean {
+  return SPREADSHEET_EXTENSIONS.has(path.extname(file).toLowerCase()) || options.mapping !== undefined;
+}
+
+let spreadsheetLoaderOverride: SpreadsheetDatasetLoader | undefined;
+
+/** Install a spreadsheet loader by hand (tests, or a host that bundles its own). */
+export function setSpreadsheetDatasetLoader(loader: SpreadsheetDatasetLoader | undefined): void {
+  spreadsheetLoaderOverride = loader;
+}
+
+async function spreadsheetLoader(file: string): Promise<SpreadsheetDatasetLoader> {
+  if (spreadsheetLoaderOverride) return spreadsheetLoaderOverride;
+  // A computed specifier, so this module compiles and runs before spreadsheetDataset.ts exists.
+  const specifier = './spreadsheetDataset.js';
+  let mod: { loadSpreadsheetDataset?: unknown };
+  try {
+    mod = (await import(specifier)) as { loadSpreadsheetDataset?: unknown };
+  } catch (e) {
+    const code = (e as NodeJS.ErrnoException).code;
+    if (code === 'ERR_MODULE_NOT_FOUND' && String((e as Error).message).includes('spreadsheetDataset')) {
+      throw new DatasetLoadError(file, `cannot read ${file}: spreadsheet import is not available in this build; save the data as Plateau's canonical CSV (see README, "Data format")`);
+    }
+    throw e;
+  }
+  if (typeof mod.loadSpreadsheetDataset !== 'function') {
+    throw new DatasetLoadError(file, `cannot read ${file}: the spreadsheet import module does not export loadSpreadsheetDataset`);
+  }
+  return mod.loadSpreadsheetDataset as SpreadsheetDatasetLoader;
+}
+
+/** Read a dataset file. Problems in the data throw a DataError naming the file and every bad row. */
+export async function loadDataset(file: string, options: LoadDatasetOptions = {}): Promise<Dataset> {
+  if (isSpreadsheetPath(file, options)) return (await spreadsheetLoader(file))(file, options);
+  let text: string;
+  try {
+    text = await fs.readFile(file, 'utf8');
+  } catch (e) {
+    const code = (e as NodeJS.ErrnoException).code;
+    if (code === 'ENOENT') throw new DatasetLoadError(file, `data file not found: ${file}`);
+    if (code === 'EISDIR') throw new DatasetLoadError(file, `${file} is a folder, not a data file`);
+    throw new DatasetLoadError(file, `cannot read ${file}: ${(e as Error).message}`);
+  }
+  try {
+    return parseCanonicalCsv(text);
+  } catch (e) {
+    if (e instanceof DataError) throw new DataError(e.problems, file);
+    throw e;
+  }
+}
