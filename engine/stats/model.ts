@@ -473,7 +473,7 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
 
   function priorFactor(omega: ArrayLike<number>): OmegaFactor | null {
     const chol = new Float64Array(nEta * nEta);
-    if (nEta > 0 && !choleskyLower(omega, nEta, chol)) return null;
+    if (nEta > 0 && !choleskyLower(Float64Array.from(omega), nEta, chol)) return null;
     let logDet = 0;
     for (let k = 0; k < nEta; k++) logDet += 2 * Math.log(chol[k * nEta + k]);
     const inverse = new Float64Array(nEta * nEta);

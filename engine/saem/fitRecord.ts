@@ -1,0 +1,131 @@
+/**
+ * The fit result record (fit.json): what was fitted (engine version, seed, data hash, spec,
+ * settings), the population estimates, the individual estimates, the trajectory with its
+ * phase boundary, timing and warnings. Later stages (standard errors, likelihood,
+ * diagnostics) add fields to the same record.
+ */
+import type { ModelSpec } from '../spec/modelSpec.js';
+import type { CompiledModel } from '../stats/model.js';
+import { ENGINE_VERSION } from '../version.js';
+import type { SaemResult } from './saem.js';
+import type { SaemSettings } from './settings.js';
+
+export type PopulationKind = 'typical' | 'bsv' | 'correlation' | 'covariate' | 'residual';
+
+export interface PopulationEstimate {
+  /** Parameter name ("CL"); for correlations "CL,V"; for residual terms "a" or "b". */
+  parameter: string;
+  kind: PopulationKind;
+  /** Covariate terms: the covariate, with "=level" for a categorical level. */
+  covariate?: string;
+  /** typical: natural scale; bsv: SD on the transformed scale; covariate: coefficient on the transformed scale. */
+  estimate: number;
+  /** Held at its spec value, not estimated. */
+  fixed: boolean;
+}
+
+export interface FitRecord {
+  format: 'plateau-fit';
+  engineVersion: string;
+  seed: number;
+  dataHash: string;
+  spec: ModelSpec;
+  settings: SaemSettings;
+  chainsPerSubject: number;
+  nSubjects: number;
+  nObservations: number;
+  nCensored: number;
+  population: PopulationEstimate[];
+  individual: { subject: string; parameters: Record<string, number> }[];
+  trajectory: {
+    names: string[];
+    explorationEnd: number;
+    explorationSettled: boolean;
+    iterations: number;
+    /** One row per iteration, columns as `names`. */
+    values: number[][];
+  };
+  acceptance: { independent: number | null; randomWalk: number | null; component: Record<string, number | null> };
+  timing: { totalMs: number; explorationMs: number; averagingMs: number };
+  warnings: string[];
+}
+
+const finiteOrNull = (x: number): number | null => (Number.isFinite(x) ? x : null);
+
+export function buildFitRecord(model: CompiledModel, result: SaemResult, dataHash: string): FitRecord {
+  const nEst = result.estimateNames.length;
+  const last = result.trajectory.subarray((result.iterations - 1) * nEst, result.iterations * nEst);
+  const population: PopulationEstimate[] = [];
+  let q = 0;
+  for (const p of model.parameters) population.push({ parameter: p.name, kind: 'typical', estimate: last[q++], fixed: p.fixed });
+  for (const t of model.covariateTerms)
+    population.push({ parameter: model.parameters[t.parameterIndex].name, kind: 'covariate', covariate: t.level !== undefined ? `${t.covariate}=${t.level}` : t.covariate, estimate: last[q++], fixed: t.fixed });
+  for (let k = 0; k < model.nEta; k++) population.push({ parameter: model.parameters[model.etaParameter[k]].name, kind: 'bsv', estimate: last[q++], fixed: false });
+  for (const b of model.blocks)
+    for (let x = 0; x < b.length; x++)
+      for (let y = x + 1; y < b.length; y++)
+        population.push({ parameter: `${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`, kind: 'correlation', estimate: last[q++], fixed: false });
+  for (; q < nEst; q++) population.push({ parameter: result.estimateNames[q], kind: 'residual', estimate: last[q], fixed: false });
+
+  const p = model.nParams;
+  const individual = model.subjects.map((s, i) => {
+    const parameters: Record<string, number> = Object.create(null);
+    model.parameters.forEach((par, j) => (parameters[par.name] = result.individualMean[i * p + j]));
+    return { subject: s.id, parameters };
+  });
+  const values: number[][] = [];
+  for (let it = 0; it < result.iterations; it++) values.push(Array.from(result.trajectory.subarray(it * nEst, (it + 1) * nEst)));
+  const component: Record<string, number | null> = Object.create(null);
+  for (let k = 0; k < model.nEta; k++) component[model.parameters[model.etaParameter[k]].name] = finiteOrNull(result.acceptance.component[k]);
+
+  const warnings = [...result.warnings];
+  for (const e of population) if (!Number.isFinite(e.estimate)) warnings.push(`estimate ${e.kind} ${e.parameter} is not finite: do not use this fit`);
+
+  return {
+    format: 'plateau-fit',
+    engineVersion: ENGINE_VERSION,
+    seed: result.seed,
+    dataHash,
+    spec: model.spec,
+    settings: result.settings,
+    chainsPerSubject: result.chains,
+    nSubjects: model.nSubjects,
+    nObservations: model.nObsTotal,
+    nCensored: model.nCensoredTotal,
+    population,
+    individual,
+    trajectory: { names: [...result.estimateNames], explorationEnd: result.explorationEnd, explorationSettled: result.explorationSettled, iterations: result.iterations, values },
+    acceptance: { independent: finiteOrNull(result.acceptance.independent), randomWalk: finiteOrNull(result.acceptance.randomWalk), component },
+    timing: { totalMs: result.timingMs.total, explorationMs: result.timingMs.exploration, averagingMs: result.timingMs.averaging },
+    warnings,
+  };
+}
+
+/** A plain-text summary of a fit for the terminal. */
+export function formatFitSummary(record: FitRecord): string {
+  const lines: string[] = [];
+  const fmt = (x: number) => (Number.isFinite(x) ? (Math.abs(x) >= 1e4 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(4) : x.toPrecision(5)) : String(x));
+  lines.push(`Plateau fit (engine ${record.engineVersion}, seed ${record.seed})`);
+  lines.push(`  ${record.nSubjects} subjects, ${record.nObservations} levels (${record.nCensored} below the LLOQ), ${record.chainsPerSubject} chain(s) per subject`);
+  lines.push(`  exploration ${record.trajectory.explorationEnd} iterations${record.trajectory.explorationSettled ? ' (settled)' : ' (cap reached)'}, averaging ${record.trajectory.iterations - record.trajectory.explorationEnd}; ${(record.timing.totalMs / 1000).toFixed(2)} s`);
+  lines.push('');
+  for (const e of record.population) {
+    let label: string;
+    let extra = '';
+    if (e.kind === 'typical') label = `${e.parameter} (typical)`;
+    else if (e.kind === 'bsv') {
+      label = `BSV ${e.parameter} (omega)`;
+      const transform = record.spec.parameters[e.parameter as keyof ModelSpec['parameters']]?.transform;
+      if (transform === 'log') extra = `  CV ${(100 * Math.sqrt(Math.expm1(e.estimate * e.estimate))).toFixed(1)}%`;
+    } else if (e.kind === 'correlation') label = `correlation ${e.parameter}`;
+    else if (e.kind === 'covariate') label = `${e.parameter} ~ ${e.covariate}`;
+    else label = e.parameter === 'b' ? 'residual: proportional b' : record.spec.residual.model === 'log-additive' ? 'residual: log-scale SD a' : 'residual: additive a';
+    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)}${e.fixed ? '  (fixed)' : ''}${extra}`);
+  }
+  if (record.warnings.length) {
+    lines.push('');
+    lines.push('Warnings:');
+    for (const w of record.warnings) lines.push(`  - ${w}`);
+  }
+  return lines.join('\n');
+}
