@@ -8,14 +8,6 @@
 /** dy/dt = f(y) (autonomous: time-varying inputs are piecewise constant between events). */
 export type Rhs = (y: Float64Array, dy: Float64Array) => void;
 
-const A21 = 1 / 5;
-const A31 = 3 / 40, A32 = 9 / 40;
-const A41 = 44 / 45, A42 = -56 / 15, A43 = 32 / 9;
-const A51 = 19372 / 6561, A52 = -25360 / 2187, A53 = 64448 / 6561, A54 = -212 / 729;
-const A61 = 9017 / 3168, A62 = -355 / 33, A63 = 46732 / 5247, A64 = 49 / 176, A65 = -5103 / 18656;
-const A71 = 35 / 384, A73 = 500 / 1113, A74 = 125 / 192, A75 = -2187 / 6784, A76 = 11 / 84;
-const E1 = 71 / 57600, E3 = -71 / 16695, E4 = 71 / 1920, E5 = -17253 / 339200, E6 = 22 / 525, E7 = -1 / 40;
-
 export interface Dopri5 {
   /**
    * Integrate y in place over a duration dt (no discontinuity inside). Uses and updates the
@@ -42,6 +34,14 @@ export function createDopri5(n: number, f: Rhs): Dopri5 {
     h: 0,
     integrate(y, dt, relTol, absTol, maxSteps) {
       if (!(dt > 0)) return 0;
+      // Tableau as locals: module-level constants are loaded from the context on every use.
+      const A21 = 1 / 5;
+      const A31 = 3 / 40, A32 = 9 / 40;
+      const A41 = 44 / 45, A42 = -56 / 15, A43 = 32 / 9;
+      const A51 = 19372 / 6561, A52 = -25360 / 2187, A53 = 64448 / 6561, A54 = -212 / 729;
+      const A61 = 9017 / 3168, A62 = -355 / 33, A63 = 46732 / 5247, A64 = 49 / 176, A65 = -5103 / 18656;
+      const A71 = 35 / 384, A73 = 500 / 1113, A74 = 125 / 192, A75 = -2187 / 6784, A76 = 11 / 84;
+      const E1 = 71 / 57600, E3 = -71 / 16695, E4 = 71 / 1920, E5 = -17253 / 339200, E6 = 22 / 525, E7 = -1 / 40;
       let steps = 0;
       let done = 0;
       f(y, k1);
@@ -52,8 +52,8 @@ export function createDopri5(n: number, f: Rhs): Dopri5 {
         let d1 = 0;
         for (let i = 0; i < n; i++) {
           const sc = absTol + relTol * Math.abs(y[i]);
-          d0 += (y[i] / sc) ** 2;
-          d1 += (k1[i] / sc) ** 2;
+          d0 += (y[i] / sc) * (y[i] / sc);
+          d1 += (k1[i] / sc) * (k1[i] / sc);
         }
         d0 = Math.sqrt(d0 / n);
         d1 = Math.sqrt(d1 / n);
@@ -84,7 +84,8 @@ export function createDopri5(n: number, f: Rhs): Dopri5 {
         for (let i = 0; i < n; i++) {
           const e = h * (E1 * k1[i] + E3 * k3[i] + E4 * k4[i] + E5 * k5[i] + E6 * k6[i] + E7 * k7[i]);
           const sc = absTol + relTol * Math.max(Math.abs(y[i]), Math.abs(yn[i]));
-          err += (e / sc) ** 2;
+          const r = e / sc;
+          err += r * r;
         }
         err = Math.sqrt(err / n);
         steps++;

@@ -195,6 +195,105 @@ export function prepareLinear(
   const nOut = sc.nOutputs;
   const { doseRoute, doseAmountMg, doseDurationH, doseIntervalH } = sc;
 
+  // Interval lengths between consecutive static points repeat (regular dosing, equal infusion
+  // durations): each distinct length gets its transition factors computed once per evaluation,
+  // on first use (stamped with the evaluation count), and is reused for every repeat.
+  const uniqueOf = new Int32Array(ns);
+  const lengths: number[] = [];
+  {
+    const seen = new Map<number, number>();
+    for (let k = 0; k < ns; k++) {
+      const dt = timeH[k] - (k > 0 ? timeH[k - 1] : 0);
+      if (!(dt > 0)) {
+        uniqueOf[k] = -1;
+        continue;
+      }
+      let u = seen.get(dt);
+      if (u === undefined) {
+        u = lengths.length;
+        seen.set(dt, u);
+        lengths.push(dt);
+      }
+      uniqueOf[k] = u;
+    }
+  }
+  const nu = lengths.length;
+  const lengthH = Float64Array.from(lengths);
+  const stamp = new Int32Array(nu);
+  const evalCount = new Int32Array(1);
+  const tabE = new Float64Array(nu * n); // e^{-lambda_i dt}
+  const tabG = new Float64Array(nu * n); // (1 - e^{-lambda_i dt}) / lambda_i (infusion)
+  const tabB = new Float64Array(nu * n); // ka (e^{-lambda_i dt} - e^{-ka dt}) / (ka - lambda_i) (depot)
+  const tabA = new Float64Array(nu); // e^{-ka dt}
+  // Oral doses of a steady-state train still in their lag time: count, next entry (h), interval (h), amount (mg).
+  const pend = new Float64Array(4);
+
+  /** Advance s over the static interval with distinct-length index u. */
+  const tableStep = (u: number, id: number, rate: number, ka: number): void => {
+    const b = u * n;
+    if (stamp[u] !== id) {
+      stamp[u] = id;
+      const dt = lengthH[u];
+      const ea = hasOral ? Math.exp(-ka * dt) : 0;
+      tabA[u] = ea;
+      for (let i = 0; i < n; i++) {
+        const l = lam[i];
+        const x = l * dt;
+        const e = Math.exp(-x);
+        tabE[b + i] = e;
+        tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
+        if (hasOral) tabB[b + i] = ka * expDivDiff(l, ka, dt, e, ea);
+      }
+    }
+    const a = s[n];
+    if (a === 0) {
+      if (rate === 0) for (let i = 0; i < n; i++) s[i] *= tabE[b + i];
+      else for (let i = 0; i < n; i++) s[i] = tabE[b + i] * s[i] + rate * tabG[b + i];
+    } else {
+      for (let i = 0; i < n; i++) s[i] = tabE[b + i] * s[i] + rate * tabG[b + i] + a * tabB[b + i];
+      s[n] = a * tabA[u];
+    }
+  };
+
+  /** Steady-state reset for dose record d at time t (see the module comment). False when the lag spans too many intervals. */
+  const reset = (d: number, t: number, ka: number, tlag: number, F: number): boolean => {
+    pend[0] = 0;
+    const route = doseRoute[d];
+    const amount = doseAmountMg[d];
+    const tau = doseIntervalH[d];
+    if (route === ROUTE_BOLUS) {
+      for (let i = 0; i < n; i++) s[i] = amount / Math.expm1(lam[i] * tau);
+      s[n] = 0;
+    } else if (route === ROUTE_INFUSION) {
+      const dur = doseDurationH[d];
+      for (let i = 0; i < n; i++) {
+        const l = lam[i];
+        s[i] = (amount * oneMinusExpOver(l * dur) * Math.exp(-l * (tau - dur))) / -Math.expm1(-l * tau);
+      }
+      s[n] = 0;
+    } else {
+      const fd = F * amount;
+      const ea = Math.exp(-ka * tau);
+      const aAfter = fd / -Math.expm1(-ka * tau);
+      for (let i = 0; i < n; i++) {
+        const l = lam[i];
+        const e = Math.exp(-l * tau);
+        s[i] = (ka * expDivDiff(l, ka, tau, e, ea) * aAfter) / -Math.expm1(-l * tau);
+      }
+      s[n] = aAfter;
+      // The latest train dose already in the depot is the m-th before this one, entered u0 hours ago.
+      const m = Math.max(1, Math.ceil(tlag / tau));
+      const u0 = m * tau - tlag;
+      if (u0 > 0) advance(s, n, lam, ka, 0, u0);
+      if (m - 1 > MAX_PENDING) return false;
+      pend[0] = m - 1;
+      pend[1] = t + tlag - (m - 1) * tau;
+      pend[2] = tau;
+      pend[3] = fd;
+    }
+    return true;
+  };
+
   const fail = (out: Float64Array): boolean => {
     out.fill(NaN);
     return false;
@@ -212,52 +311,45 @@ export function prepareLinear(
       if (!(positive(ka) && tlag >= 0 && tlag < Infinity && positive(F))) return fail(out);
     }
     for (let i = 0; i <= n; i++) s[i] = 0;
+    const id = (evalCount[0] = evalCount[0] === 0x7fffffff ? 1 : evalCount[0] + 1);
+    pend[0] = 0;
     let rate = 0;
     let nInf = 0;
     let epoch = 0;
-    let tc = 0;
-    let is = 0;
-    let io = 0;
-    let pendCount = 0;
-    let pendTimeH = 0;
-    let pendTauH = 0;
-    let pendAmountMg = 0;
     let left = nOut;
-    while (left > 0) {
-      const ts = is < ns ? timeH[is] : Infinity;
-      const to = io < no ? oralTimeH[io] + tlag : Infinity;
-      const tp = pendCount > 0 ? pendTimeH : Infinity;
-      let t: number;
-      let src: number;
-      if (ts <= to && ts <= tp) {
-        t = ts;
-        src = 0;
-      } else if (tp <= to) {
-        t = tp;
-        src = 2;
-      } else {
-        t = to;
-        src = 1;
+    let tc = 0;
+    let io = 0;
+    let afterStatic = true;
+    for (let is = 0; is < ns && left > 0; ) {
+      const ts = timeH[is];
+      if (hasOral) {
+        // Oral entries (and pending train doses) strictly before the next static point come first.
+        const to = io < no ? oralTimeH[io] + tlag : Infinity;
+        const tp = pend[0] > 0 ? pend[1] : Infinity;
+        if (to < ts || tp < ts) {
+          const t = to <= tp ? to : tp;
+          if (t > tc) advance(s, n, lam, ka, rate, t - tc);
+          tc = t;
+          afterStatic = false;
+          if (to <= tp) {
+            if (oralEpoch[io] >= epoch) s[n] += F * oralAmountMg[io];
+            io++;
+          } else {
+            s[n] += pend[3];
+            pend[0]--;
+            pend[1] += pend[2];
+          }
+          continue;
+        }
       }
-      if (t === Infinity) break;
-      const dt = t - tc;
-      if (dt > 0) advance(s, n, lam, ka, rate, dt);
-      tc = t;
-      if (src === 1) {
-        if (oralEpoch[io] >= epoch) s[n] += F * oralAmountMg[io];
-        io++;
-        continue;
-      }
-      if (src === 2) {
-        s[n] += pendAmountMg;
-        pendCount--;
-        pendTimeH += pendTauH;
-        continue;
-      }
+      if (afterStatic) {
+        const u = uniqueOf[is];
+        if (u >= 0) tableStep(u, id, rate, ka);
+      } else if (ts > tc) advance(s, n, lam, ka, rate, ts - tc);
+      tc = ts;
+      afterStatic = true;
       const k = kind[is];
       const v = value[is];
-      const ep = evEpoch[is];
-      is++;
       if (k === EV_OUTPUT) {
         let c = 0;
         for (let i = 0; i < n; i++) c += w[i] * s[i];
@@ -269,51 +361,17 @@ export function prepareLinear(
         rate += v;
         nInf++;
       } else if (k === EV_INF_STOP) {
-        if (ep >= epoch) {
+        if (evEpoch[is] >= epoch) {
           nInf--;
           rate = nInf === 0 ? 0 : rate - v;
         }
       } else if (k === EV_RESET) {
-        epoch = ep;
+        epoch = evEpoch[is];
         rate = 0;
         nInf = 0;
-        pendCount = 0;
-        const d = v;
-        const route = doseRoute[d];
-        const amount = doseAmountMg[d];
-        const tau = doseIntervalH[d];
-        if (route === ROUTE_BOLUS) {
-          for (let i = 0; i < n; i++) s[i] = amount / Math.expm1(lam[i] * tau);
-          s[n] = 0;
-        } else if (route === ROUTE_INFUSION) {
-          const dur = doseDurationH[d];
-          const r = amount / dur;
-          for (let i = 0; i < n; i++) {
-            const l = lam[i];
-            s[i] = (r * dur * oneMinusExpOver(l * dur) * Math.exp(-l * (tau - dur))) / -Math.expm1(-l * tau);
-          }
-          s[n] = 0;
-        } else {
-          const fd = F * amount;
-          const ea = Math.exp(-ka * tau);
-          const aAfter = fd / -Math.expm1(-ka * tau);
-          for (let i = 0; i < n; i++) {
-            const l = lam[i];
-            const e = Math.exp(-l * tau);
-            s[i] = (ka * expDivDiff(l, ka, tau, e, ea) * aAfter) / -Math.expm1(-l * tau);
-          }
-          s[n] = aAfter;
-          // Latest train dose already in the depot is the m-th before; the state then is u0 after its entry.
-          const m = Math.max(1, Math.ceil(tlag / tau));
-          const u0 = m * tau - tlag;
-          if (u0 > 0) advance(s, n, lam, ka, 0, u0);
-          if (m - 1 > MAX_PENDING) return fail(out);
-          pendCount = m - 1;
-          pendTimeH = t + tlag - (m - 1) * tau;
-          pendTauH = tau;
-          pendAmountMg = fd;
-        }
+        if (!reset(v, ts, ka, tlag, F)) return fail(out);
       }
+      is++;
     }
     return true;
   };

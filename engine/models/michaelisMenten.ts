@@ -40,27 +40,23 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
   const no = sc.nOral;
   const nOut = sc.nOutputs;
 
-  let vmax = 0;
-  let km = 0;
-  let vol = 0;
-  let ka = 0;
-  let rate = 0;
+  // Mutable numbers shared with the right-hand side live in a typed array: a double held in a
+  // closure variable is boxed by V8 on every write, which would allocate in the hot loop.
+  const ctx = new Float64Array(5); // Vmax (mg/h), Km (mg/L), V (L), ka (1/h), infusion rate (mg/h)
   const rhs = (y: Float64Array, dy: Float64Array): void => {
-    const c = y[0] / vol;
-    const elim = c > 0 ? (vmax * c) / (km + c) : (vmax * c) / km;
-    dy[0] = ka * y[1] + rate - elim;
-    dy[1] = -ka * y[1];
+    const c = y[0] / ctx[2];
+    const elim = c > 0 ? (ctx[0] * c) / (ctx[1] + c) : (ctx[0] * c) / ctx[1];
+    dy[0] = ctx[3] * y[1] + ctx[4] - elim;
+    dy[1] = -ctx[3] * y[1];
   };
   const ode = createDopri5(2, rhs);
   const y = new Float64Array(2);
-  let budget = 0;
 
-  const step = (dt: number): boolean => {
-    if (!(dt > 0)) return true;
+  /** Integrate over dt within the remaining step budget; returns the budget left, or -1. */
+  const step = (dt: number, budget: number): number => {
+    if (!(dt > 0)) return budget;
     const used = ode.integrate(y, dt, relTol, absTol, budget);
-    if (used < 0) return false;
-    budget -= used;
-    return true;
+    return used < 0 ? -1 : budget - used;
   };
 
   const fail = (out: Float64Array): boolean => {
@@ -69,11 +65,13 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
   };
 
   return (params: Float64Array, out: Float64Array): boolean => {
-    vmax = params[0];
-    km = params[1];
-    vol = params[2];
-    if (!(positive(vmax) && positive(km) && positive(vol))) return fail(out);
-    ka = 0;
+    const vmax = params[0];
+    const vol = params[2];
+    if (!(positive(vmax) && positive(params[1]) && positive(vol))) return fail(out);
+    ctx[0] = vmax;
+    ctx[1] = params[1];
+    ctx[2] = vol;
+    let ka = 0;
     let tlag = 0;
     let F = 1;
     if (hasOral) {
@@ -82,11 +80,13 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
       F = params[5];
       if (!(positive(ka) && tlag >= 0 && tlag < Infinity && positive(F))) return fail(out);
     }
+    ctx[3] = ka;
+    ctx[4] = 0;
     y[0] = 0;
     y[1] = 0;
-    rate = 0;
     ode.h = 0;
-    budget = maxSteps;
+    let budget = maxSteps;
+    let rate = 0;
     let nInf = 0;
     let epoch = 0;
     let tc = 0;
@@ -114,7 +114,7 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
         src = 1;
       }
       if (t === Infinity) break;
-      if (!step(t - tc)) return fail(out);
+      if ((budget = step(t - tc, budget)) < 0) return fail(out);
       tc = t;
       if (src === 1) {
         if (oralEpoch[io] >= epoch) y[1] += F * oralAmountMg[io];
@@ -138,12 +138,14 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
         y[0] += v;
       } else if (k === EV_INF_START) {
         rate += v;
+        ctx[4] = rate;
         nInf++;
         ode.h = 0;
       } else if (k === EV_INF_STOP) {
         if (ep >= epoch) {
           nInf--;
           rate = nInf === 0 ? 0 : rate - v;
+          ctx[4] = rate;
           ode.h = 0;
         }
       } else if (k === EV_RESET) {
@@ -160,6 +162,7 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
         y[0] = 0;
         y[1] = 0;
         rate = 0;
+        ctx[4] = 0;
         let prevDelta = NaN;
         let converged = false;
         for (let it = 0; it < MAX_SS_INTERVALS && !converged; it++) {
@@ -168,16 +171,16 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
           ode.h = 0;
           if (route === ROUTE_BOLUS) {
             y[0] += amount;
-            if (!step(tau)) return fail(out);
+            if ((budget = step(tau, budget)) < 0) return fail(out);
           } else if (route === ROUTE_INFUSION) {
-            rate = amount / dur;
-            if (!step(dur)) return fail(out);
-            rate = 0;
+            ctx[4] = amount / dur;
+            if ((budget = step(dur, budget)) < 0) return fail(out);
+            ctx[4] = 0;
             ode.h = 0;
-            if (!step(tau - dur)) return fail(out);
+            if ((budget = step(tau - dur, budget)) < 0) return fail(out);
           } else {
             y[1] += fd;
-            if (!step(tau)) return fail(out);
+            if ((budget = step(tau, budget)) < 0) return fail(out);
           }
           const delta = Math.abs(y[0] - x0) + Math.abs(y[1] - a0);
           const tol = relTol * (Math.abs(y[0]) + Math.abs(y[1])) + absTol;
@@ -196,7 +199,7 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
           if (u0 < tau) {
             y[1] += fd;
             ode.h = 0;
-            if (!step(u0)) return fail(out);
+            if ((budget = step(u0, budget)) < 0) return fail(out);
           }
           if (m - 1 > MAX_PENDING) return fail(out);
           pendCount = m - 1;
