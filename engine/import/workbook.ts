@@ -1,0 +1,364 @@
+/**
+ * Spreadsheet bytes -> a neutral sheet model: sheets, rows of cells (raw value, kind, text as
+ * shown), detected header row and column type profiles. Nothing from a cell ever becomes a key
+ * of a plain object: sheets are an array, header lookups go through Map.
+ */
+import * as XLSX from 'xlsx';
+
+export type CellKind = 'number' | 'date' | 'text' | 'boolean' | 'error';
+
+export interface Cell {
+  kind: CellKind;
+  /** number (for 'date': the Excel serial day number), string, or boolean. */
+  raw: number | string | boolean;
+  /** The text as the spreadsheet shows it (formatted numbers, dates as displayed). */
+  text: string;
+}
+
+export interface SheetModel {
+  name: string;
+  /** rows[r][c]; r, c 0-based from A1 (so the spreadsheet's row number is r + 1). */
+  rows: (Cell | undefined)[][];
+  /** Number of columns spanned by the sheet (max row length). */
+  columnCount: number;
+  /** True when the row cap cut the sheet short. */
+  truncated: boolean;
+}
+
+export interface WorkbookModel {
+  format: 'xlsx' | 'xls' | 'ods' | 'csv' | 'other';
+  sheets: SheetModel[];
+  /** Workbook uses the 1904 date system (serials then count from 1904-01-01). */
+  date1904: boolean;
+}
+
+export interface ReadOptions {
+  /** Stop reading each sheet after this many rows (fuzzing, previews). Default: no cap. */
+  maxRows?: number;
+  /** Cells longer than this are cut (and marked) so one giant string cannot stall the parse. */
+  maxCellChars?: number;
+}
+
+/** Thrown for files that are not a readable spreadsheet; the message says what to do. */
+export class WorkbookError extends Error {
+  constructor(message: string) {
+    super(message);
+    this.name = 'WorkbookError';
+  }
+}
+
+/**
+ * Text of a CSV file: UTF-16 by its byte-order mark, else strict UTF-8 (BOM dropped), else
+ * Latin-1 (older exports from Windows systems). SheetJS would read UTF-8 without a BOM as Latin-1.
+ */
+export function decodeText(bytes: Uint8Array): string {
+  if (bytes.length >= 2 && ((bytes[0] === 0xff && bytes[1] === 0xfe) || (bytes[0] === 0xfe && bytes[1] === 0xff))) {
+    const le = bytes[0] === 0xff;
+    const parts: string[] = [];
+    let chunk: number[] = [];
+    for (let i = 2; i + 1 < bytes.length; i += 2) {
+      chunk.push(le ? bytes[i] | (bytes[i + 1] << 8) : (bytes[i] << 8) | bytes[i + 1]);
+      if (chunk.length === 8192) {
+        parts.push(String.fromCharCode(...chunk));
+        chunk = [];
+      }
+    }
+    parts.push(String.fromCharCode(...chunk));
+    return parts.join('');
+  }
+  let i = bytes.length >= 3 && bytes[0] === 0xef && bytes[1] === 0xbb && bytes[2] === 0xbf ? 3 : 0;
+  const start = i;
+  const parts: string[] = [];
+  let chunk: number[] = [];
+  const n = bytes.length;
+  let valid = true;
+  while (i < n) {
+    const b = bytes[i];
+    let cp: number;
+    if (b < 0x80) {
+      cp = b;
+      i++;
+    } else if (b >= 0xc2 && b < 0xe0 && i + 1 < n && (bytes[i + 1] & 0xc0) === 0x80) {
+      cp = ((b & 0x1f) << 6) | (bytes[i + 1] & 0x3f);
+      i += 2;
+    } else if (b >= 0xe0 && b < 0xf0 && i + 2 < n && (bytes[i + 1] & 0xc0) === 0x80 && (bytes[i + 2] & 0xc0) === 0x80) {
+      cp = ((b & 0x0f) << 12) | ((bytes[i + 1] & 0x3f) << 6) | (bytes[i + 2] & 0x3f);
+      i += 3;
+    } else if (b >= 0xf0 && b < 0xf5 && i + 3 < n && (bytes[i + 1] & 0xc0) === 0x80 && (bytes[i + 2] & 0xc0) === 0x80 && (bytes[i + 3] & 0xc0) === 0x80) {
+      cp = ((b & 0x07) << 18) | ((bytes[i + 1] & 0x3f) << 12) | ((bytes[i + 2] & 0x3f) << 6) | (bytes[i + 3] & 0x3f);
+      i += 4;
+    } else {
+      valid = false;
+      break;
+    }
+    if (cp > 0xffff) {
+      cp -= 0x10000;
+      chunk.push(0xd800 + (cp >> 10), 0xdc00 + (cp & 0x3ff));
+    } else chunk.push(cp);
+    if (chunk.length >= 8192) {
+      parts.push(String.fromCharCode(...chunk));
+      chunk = [];
+    }
+  }
+  if (valid) {
+    parts.push(String.fromCharCode(...chunk));
+    return parts.join('');
+  }
+  const latin: string[] = [];
+  for (let j = start; j < n; j += 8192) latin.push(String.fromCharCode(...bytes.subarray(j, Math.min(n, j + 8192))));
+  return latin.join('');
+}
+
+function sniffFormat(bytes: Uint8Array): WorkbookModel['format'] {
+  if (bytes.length >= 2 && ((bytes[0] === 0xff && bytes[1] === 0xfe) || (bytes[0] === 0xfe && bytes[1] === 0xff))) return 'csv';
+  if (bytes.length >= 4 && bytes[0] === 0x50 && bytes[1] === 0x4b) {
+    // ODS keeps "mimetypeapplication/vnd.oasis.opendocument" near the start of the zip.
+    const head = String.fromCharCode(...bytes.subarray(0, Math.min(bytes.length, 100)));
+    return head.includes('opendocument') ? 'ods' : 'xlsx';
+  }
+  if (bytes.length >= 8 && bytes[0] === 0xd0 && bytes[1] === 0xcf && bytes[2] === 0x11 && bytes[3] === 0xe0) return 'xls';
+  let binary = 0;
+  const n = Math.min(bytes.length, 4096);
+  for (let i = 0; i < n; i++) {
+    const b = bytes[i];
+    if (b === 0 || (b < 0x09) || (b > 0x0d && b < 0x20 && b !== 0x1b)) binary++;
+  }
+  if (n > 0 && binary / n > 0.01) return 'other';
+  return 'csv';
+}
+
+export function columnLetter(col: number): string {
+  let s = '';
+  let c = col + 1;
+  while (c > 0) {
+    const m = (c - 1) % 26;
+    s = String.fromCharCode(65 + m) + s;
+    c = Math.floor((c - 1) / 26);
+  }
+  return s;
+}
+
+export function columnIndex(letter: string): number {
+  let n = 0;
+  for (const ch of letter.toUpperCase()) {
+    const code = ch.charCodeAt(0);
+    if (code < 65 || code > 90) return -1;
+    n = n * 26 + (code - 64);
+  }
+  return n - 1;
+}
+
+function toCell(c: XLSX.CellObject, maxChars: number): Cell | undefined {
+  const t = c.t;
+  if (t === 'z' || c.v === undefined || c.v === null) return undefined;
+  if (t === 'n') {
+    const v = c.v as number;
+    if (!Number.isFinite(v)) return { kind: 'error', raw: String(v), text: String(v) };
+    const fmt = typeof c.z === 'string' ? c.z : undefined;
+    const text = typeof c.w === 'string' ? c.w : String(v);
+    const isDate = fmt !== undefined && XLSX.SSF.is_date(fmt);
+    return { kind: isDate ? 'date' : 'number', raw: v, text };
+  }
+  if (t === 'd') {
+    // cellDates is off, but a format may still hand us a Date: keep the serial, UTC getters.
+    const d = c.v as unknown as Date;
+    const ms = d.getTime();
+    if (!Number.isFinite(ms)) return { kind: 'error', raw: 'invalid date', text: 'invalid date' };
+    const serial = ms / 86_400_000 + 25569;
+    return { kind: 'date', raw: serial, text: typeof c.w === 'string' ? c.w : d.toISOString() };
+  }
+  if (t === 'b') return { kind: 'boolean', raw: Boolean(c.v), text: c.v ? 'TRUE' : 'FALSE' };
+  if (t === 'e') {
+    const text = typeof c.w === 'string' ? c.w : '#ERROR';
+    return { kind: 'error', raw: text, text };
+  }
+  let s = String(c.v);
+  if (s.length > maxChars) s = s.slice(0, maxChars) + '…';
+  return { kind: 'text', raw: s, text: s };
+}
+
+/**
+ * Read spreadsheet bytes (.xlsx, .xls, .ods, .csv) into the neutral model. Formulas are never
+ * evaluated: a formula cell contributes only its cached value (or nothing).
+ */
+export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): WorkbookModel {
+  const format = sniffFormat(bytes);
+  if (bytes.length === 0) throw new WorkbookError('the file is empty: export the sheet again from the source system');
+  if (format === 'other')
+    throw new WorkbookError('the file is not a spreadsheet Plateau can read (.xlsx, .xls, .ods or .csv): it looks like binary data of another kind');
+  const maxChars = options.maxCellChars ?? 32_767;
+  let wb: XLSX.WorkBook;
+  try {
+    const input = format === 'csv' ? decodeText(bytes) : bytes;
+    wb = XLSX.read(input, {
+      type: format === 'csv' ? 'string' : 'array',
+      dense: true,
+      cellNF: true,
+      cellFormula: false,
+      cellHTML: false,
+      cellStyles: false,
+      bookVBA: false,
+      // CSV: keep every field as text; Plateau parses numbers, dates and "<2.0" itself.
+      raw: format === 'csv',
+      sheetRows: options.maxRows !== undefined ? options.maxRows + 1 : 0,
+    });
+  } catch (e) {
+    const why = e instanceof Error ? e.message : String(e);
+    throw new WorkbookError(`the file could not be read as a ${format === 'csv' ? 'text (CSV)' : format} spreadsheet (${why}): it may be damaged, password-protected or truncated; save it again as .xlsx or .csv`);
+  }
+  const names = Array.isArray(wb.SheetNames) ? wb.SheetNames : [];
+  if (names.length === 0) throw new WorkbookError('the workbook has no sheets');
+  const sheets: SheetModel[] = [];
+  for (const name of names) {
+    const ws = (wb.Sheets as Record<string, XLSX.WorkSheet | undefined>)[name];
+    const data = ws ? ((ws as unknown as { '!data'?: XLSX.CellObject[][] })['!data'] ?? []) : [];
+    const rows: (Cell | undefined)[][] = new Array(data.length);
+    let columnCount = 0;
+    const cap = options.maxRows ?? Infinity;
+    const n = Math.min(data.length, cap);
+    for (let r = 0; r < n; r++) {
+      const src = data[r];
+      if (!src) {
+        rows[r] = [];
+        continue;
+      }
+      const row: (Cell | undefined)[] = new Array(src.length);
+      for (let c = 0; c < src.length; c++) {
+        const cell = src[c];
+        row[c] = cell ? toCell(cell, maxChars) : undefined;
+      }
+      while (row.length > 0 && row[row.length - 1] === undefined) row.pop();
+      if (row.length > columnCount) columnCount = row.length;
+      rows[r] = row;
+    }
+    rows.length = n;
+    sheets.push({ name: String(name), rows, columnCount, truncated: data.length > cap });
+  }
+  const date1904 = Boolean((wb as { Workbook?: { WBProps?: { date1904?: boolean } } }).Workbook?.WBProps?.date1904);
+  return { format, sheets, date1904 };
+}
+
+// ---------------------------------------------------------------------------------------------
+// Header detection and column profiles
+
+function isTextLabel(cell: Cell | undefined): boolean {
+  if (!cell || cell.kind !== 'text') return false;
+  const s = cell.text.trim();
+  return s.length > 0 && !/^[-+<>]?\s*\d[\d.,\s]*$/.test(s);
+}
+
+function filled(row: (Cell | undefined)[] | undefined): number {
+  if (!row) return 0;
+  let n = 0;
+  for (const c of row) if (c && c.text.trim() !== '') n++;
+  return n;
+}
+
+/**
+ * The header row (0-based): the first row among the top 30 whose non-empty cells are all text
+ * labels and that has at least two of them and at least 60 % of the widest row's cells, so
+ * titles ("Ward 7 export, March") and blank rows above it are skipped.
+ */
+export function detectHeaderRow(sheet: SheetModel): number {
+  const top = Math.min(sheet.rows.length, 30);
+  let widest = 0;
+  for (let r = 0; r < Math.min(sheet.rows.length, 60); r++) widest = Math.max(widest, filled(sheet.rows[r]));
+  for (let r = 0; r < top; r++) {
+    const row = sheet.rows[r];
+    const n = filled(row);
+    if (n < 2 || n < 0.6 * widest) continue;
+    let labels = 0;
+    for (const c of row) if (isTextLabel(c)) labels++;
+    if (labels >= Math.max(2, n - 0)) return r;
+    if (labels >= 2 && labels >= 0.8 * n) return r;
+  }
+  for (let r = 0; r < top; r++) if (filled(sheet.rows[r]) > 0) return r;
+  return 0;
+}
+
+export type ColumnType = 'number' | 'date' | 'text' | 'time' | 'empty' | 'mixed';
+
+export interface ColumnProfile {
+  index: number;
+  letter: string;
+  header: string;
+  type: ColumnType;
+  counts: { number: number; date: number; text: number; boolean: number; error: number; empty: number };
+  /** Up to five distinct values as shown, for the preview. */
+  samples: string[];
+}
+
+const NUMERIC_TEXT = /^\s*[-+]?(\d+([.,]\d*)?|[.,]\d+)([eE][-+]?\d+)?\s*$/;
+const DATE_TEXT = /^\s*(\d{4}-\d{1,2}-\d{1,2}([T ]\d{1,2}:\d{2}(:\d{2}(\.\d+)?)?Z?)?|\d{1,2}[./-]\d{1,2}[./-]\d{2,4}(\s+\d{1,2}:\d{2}(:\d{2})?(\s*[AaPp][Mm])?)?)\s*$/;
+const TIME_TEXT = /^\s*\d{1,2}:\d{2}(:\d{2})?(\s*[AaPp][Mm])?\s*$/;
+
+/** Profile every column below the header row (scans at most `maxRows` data rows). */
+export function profileColumns(sheet: SheetModel, headerRow: number, maxRows = 2000): ColumnProfile[] {
+  const header = sheet.rows[headerRow] ?? [];
+  const width = Math.max(sheet.columnCount, header.length);
+  const profiles: ColumnProfile[] = [];
+  const end = Math.min(sheet.rows.length, headerRow + 1 + maxRows);
+  for (let c = 0; c < width; c++) {
+    const counts = { number: 0, date: 0, text: 0, boolean: 0, error: 0, empty: 0 };
+    let time = 0;
+    const samples: string[] = [];
+    const seen = new Set<string>();
+    for (let r = headerRow + 1; r < end; r++) {
+      const cell = sheet.rows[r]?.[c];
+      if (!cell || cell.text.trim() === '') {
+        counts.empty++;
+        continue;
+      }
+      if (cell.kind === 'text') {
+        if (NUMERIC_TEXT.test(cell.text)) counts.number++;
+        else if (DATE_TEXT.test(cell.text)) counts.date++;
+        else if (TIME_TEXT.test(cell.text)) time++;
+        else counts.text++;
+      } else if (cell.kind === 'date') {
+        if ((cell.raw as number) < 1 && (cell.raw as number) >= 0) time++;
+        else counts.date++;
+      } else counts[cell.kind]++;
+      if (samples.length < 5 && !seen.has(cell.text)) {
+        seen.add(cell.text);
+        samples.push(cell.text.length > 40 ? cell.text.slice(0, 40) + '…' : cell.text);
+      }
+    }
+    const nonEmpty = counts.number + counts.date + counts.text + counts.boolean + counts.error + time;
+    let type: ColumnType = 'empty';
+    if (nonEmpty > 0) {
+      const top = Math.max(counts.number, counts.date, counts.text, time);
+      if (top < 0.8 * nonEmpty) type = 'mixed';
+      else if (top === counts.date) type = 'date';
+      else if (top === time) type = 'time';
+      else if (top === counts.number) type = 'number';
+      else type = 'text';
+      // Text columns with a few numbers ("<2.0" levels among numbers) stay "number" when numbers dominate.
+      if (type === 'mixed' && counts.number >= 0.5 * nonEmpty) type = 'number';
+    }
+    const h = header[c];
+    profiles.push({ index: c, letter: columnLetter(c), header: h ? h.text.trim() : '', type, counts: { ...counts }, samples });
+  }
+  return profiles;
+}
+
+export interface SheetPreview {
+  name: string;
+  headerRow: number;
+  /** Data rows below the header (blank rows included). */
+  dataRowCount: number;
+  columns: ColumnProfile[];
+  truncated: boolean;
+}
+
+export function previewWorkbook(model: WorkbookModel): SheetPreview[] {
+  return model.sheets.map((s) => {
+    const headerRow = detectHeaderRow(s);
+    return {
+      name: s.name,
+      headerRow: headerRow + 1,
+      dataRowCount: Math.max(0, s.rows.length - headerRow - 1),
+      columns: profileColumns(s, headerRow),
+      truncated: s.truncated,
+    };
+  });
+}

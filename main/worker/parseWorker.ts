@@ -1,0 +1,42 @@
+/**
+ * Worker process for parsing untrusted spreadsheets. Speaks ParseRequest / ParseResponse
+ * (main/services/importProtocol.ts) over Node's IPC (child_process.fork) or Electron's
+ * process.parentPort. The service enforces the time limit by killing this process.
+ */
+import { analyseWorkbook } from '../../engine/import/analyse.js';
+import { WorkbookError } from '../../engine/import/workbook.js';
+import { TemplateError } from '../../engine/import/roles.js';
+import { validateParseRequest, type ParseResponse } from '../services/importProtocol.js';
+import { DEFAULT_MAX_FILE_BYTES } from './limits.js';
+
+interface ElectronParentPort {
+  on(event: 'message', listener: (e: { data: unknown }) => void): void;
+  postMessage(message: unknown): void;
+}
+
+const parentPort = (process as unknown as { parentPort?: ElectronParentPort }).parentPort;
+
+function send(message: ParseResponse): void {
+  if (parentPort) parentPort.postMessage(message);
+  else if (process.send) process.send(message);
+}
+
+export function handleParseMessage(raw: unknown): ParseResponse {
+  const v = validateParseRequest(raw);
+  if (!v.ok) return { type: 'error', id: v.id, kind: 'request', message: v.message };
+  const req = v.request;
+  try {
+    if (req.bytes.length > DEFAULT_MAX_FILE_BYTES * 4)
+      return { type: 'error', id: req.id, kind: 'workbook', message: `${req.fileName} is too large to parse` };
+    const analysis = analyseWorkbook(req.bytes, { mapping: req.mapping, options: req.options, ...(req.maxRows ? { maxRows: req.maxRows } : {}) });
+    return { type: 'result', id: req.id, analysis };
+  } catch (e) {
+    if (e instanceof WorkbookError) return { type: 'error', id: req.id, kind: 'workbook', message: `${req.fileName}: ${e.message}` };
+    if (e instanceof TemplateError) return { type: 'error', id: req.id, kind: 'template', message: e.message, problems: e.problems };
+    const why = e instanceof Error ? e.message : String(e);
+    return { type: 'error', id: req.id, kind: 'internal', message: `${req.fileName} could not be read (${why.slice(0, 500)}): the file may be damaged; save it again from the source system` };
+  }
+}
+
+if (parentPort) parentPort.on('message', (e) => send(handleParseMessage(e.data)));
+else if (process.send) process.on('message', (m) => send(handleParseMessage(m)));
