@@ -28,9 +28,13 @@ export class CovariateValueError extends Error {
   readonly covariate: string;
   readonly parameter: PkParameterName;
   readonly subject?: string;
+  /** The message without the subject, for reports that name the subject themselves. */
+  readonly reason: string;
   constructor(effect: CovariateEffectSpec, message: string, subject?: string) {
-    super(`${subject !== undefined ? `subject ${subject}: ` : ''}covariate ${effect.covariate} (on ${effect.parameter}): ${message}`);
+    const reason = `covariate ${effect.covariate} (on ${effect.parameter}): ${message}`;
+    super(`${subject !== undefined ? `subject ${subject}: ` : ''}${reason}`);
     this.name = 'CovariateValueError';
+    this.reason = reason;
     this.covariate = effect.covariate;
     this.parameter = effect.parameter;
     if (subject !== undefined) this.subject = subject;
@@ -82,13 +86,14 @@ export function typicalIndividualParameters(
       out[info.name] = info.defaultWhenAbsent ?? NaN;
       continue;
     }
-    let phi = transformForward(p.transform, p.typical);
+    let shift = 0;
     for (const effect of spec.covariates) {
       if (effect.parameter !== info.name) continue;
       const value = Object.prototype.hasOwnProperty.call(covariates, effect.covariate) ? covariates[effect.covariate] : undefined;
-      phi += covariateShift(effect, value, subject);
+      shift += covariateShift(effect, value, subject);
     }
-    out[info.name] = transformInverse(p.transform, phi);
+    // No shift: the typical value itself, not exp(log(typical)) with its rounding.
+    out[info.name] = shift === 0 ? p.typical : transformInverse(p.transform, transformForward(p.transform, p.typical) + shift);
   }
   return out;
 }

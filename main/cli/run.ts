@@ -90,6 +90,8 @@ function helpText(commands: Map<string, LoadedCommand>): string {
   ].join('\n');
 }
 
+const EXPECTED_ERROR_NAMES = new Set(['ImportError', 'WorkbookError', 'TemplateError', 'PatientError', 'PopulationModelError', 'PriorError', 'RegimenParseError', 'TargetError', 'AdviceError', 'ModelDataError', 'SaemCancelledError']);
+
 function withNewline(text: string): string {
   return text.endsWith('\n') ? text : `${text}\n`;
 }
@@ -115,7 +117,8 @@ export function reportError(error: unknown, io: CliIo, debug: boolean, usage?: s
     if (debug && error.stack) io.stderr(`${error.stack}\n`);
     return 1;
   }
-  if (error instanceof CliError || error instanceof DatasetLoadError || error instanceof CovariateValueError) {
+  // Errors that already say what to do (ours, and the import service's by name) print as they are.
+  if (error instanceof CliError || error instanceof DatasetLoadError || error instanceof CovariateValueError || (error instanceof Error && EXPECTED_ERROR_NAMES.has(error.name))) {
     io.stderr(`plateau: ${withNewline(error.message)}`);
     if (debug && error.stack) io.stderr(`${error.stack}\n`);
     return 1;

@@ -2,7 +2,7 @@
  * Load a dataset from a file for the CLI, the worker and the app. Canonical CSV is read here;
  * spreadsheets (.xlsx, .xls, .ods, or any file with a mapping template) go to the spreadsheet
  * branch in spreadsheetDataset.ts, which exports
- *   loadSpreadsheetDataset(path: string, options: LoadDatasetOptions): Promise<Dataset>
+ *   loadSpreadsheetDataset(path: string, mappingPath: string | undefined): Promise<Dataset>
  * and is loaded only when needed, so this module works before that branch exists.
  */
 import { promises as fs } from 'node:fs';
@@ -11,10 +11,8 @@ import { parseCanonicalCsv } from '../../engine/data/canonicalCsv.js';
 import { DataError, type Dataset } from '../../engine/data/types.js';
 
 export interface LoadDatasetOptions {
-  /** Spreadsheet mapping: a template file path or its parsed JSON. Sends even a .csv to the spreadsheet branch. */
-  mapping?: string | Record<string, unknown>;
-  /** Sheet to read, for workbooks with several (spreadsheet branch). */
-  sheet?: string;
+  /** Spreadsheet mapping template file. Sends even a .csv to the spreadsheet branch. */
+  mapping?: string;
 }
 
 /** A file that cannot be loaded as a dataset, with what to do about it. */
@@ -27,7 +25,7 @@ export class DatasetLoadError extends Error {
   }
 }
 
-export type SpreadsheetDatasetLoader = (file: string, options: LoadDatasetOptions) => Promise<Dataset>;
+export type SpreadsheetDatasetLoader = (file: string, mappingPath: string | undefined) => Promise<Dataset>;
 
 const SPREADSHEET_EXTENSIONS = new Set(['.xlsx', '.xlsm', '.xls', '.ods']);
 
@@ -65,7 +63,7 @@ async function spreadsheetLoader(file: string): Promise<SpreadsheetDatasetLoader
 
 /** Read a dataset file. Problems in the data throw a DataError naming the file and every bad row. */
 export async function loadDataset(file: string, options: LoadDatasetOptions = {}): Promise<Dataset> {
-  if (isSpreadsheetPath(file, options)) return (await spreadsheetLoader(file))(file, options);
+  if (isSpreadsheetPath(file, options)) return (await spreadsheetLoader(file))(file, options.mapping);
   let text: string;
   try {
     text = await fs.readFile(file, 'utf8');
