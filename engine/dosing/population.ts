@@ -1,0 +1,170 @@
+/**
+ * The population model used as the prior: a site fit (the estimator's fit.json, whose estimates
+ * replace the spec's initial values) or a model spec entered from the literature (its typical,
+ * bsv, covariate and residual values are the population values). Carries its provenance and
+ * the covariate ranges it was built on.
+ */
+import { parseModelSpec, type ModelSpec } from '../spec/modelSpec.js';
+
+export interface ModelProvenance {
+  kind: 'site fit' | 'model spec';
+  name?: string;
+  /** Free-text source (publication, site and period). */
+  source?: string;
+  engineVersion?: string;
+  dataHash?: string;
+  seed?: number | string;
+  /** Warnings the fit itself reported. */
+  fitWarnings?: string[];
+}
+
+export interface PopulationModel {
+  spec: ModelSpec;
+  provenance: ModelProvenance;
+  /** Covariate name -> [min, max] the model was built on; null when unknown. */
+  covariateRanges: Record<string, [number, number]> | null;
+  /** Problems with the model as a prior (unknown ranges, no source). */
+  warnings: string[];
+}
+
+export class PopulationModelError extends Error {
+  readonly problems: readonly string[];
+  constructor(problems: readonly string[]) {
+    super(`invalid model file:\n${problems.map((p) => `  ${p}`).join('\n')}`);
+    this.name = 'PopulationModelError';
+    this.problems = problems;
+  }
+}
+
+const isRecord = (x: unknown): x is Record<string, unknown> => typeof x === 'object' && x !== null && !Array.isArray(x);
+const finite = (x: unknown): x is number => typeof x === 'number' && Number.isFinite(x);
+
+/** A fit.json or a model spec, told apart by the fit's `population` table. */
+export function loadPopulationModel(json: unknown): PopulationModel {
+  if (isRecord(json) && Array.isArray(json.population) && json.spec !== undefined) return populationModelFromFit(json);
+  return populationModelFromSpec(parseModelSpec(json));
+}
+
+function parseRanges(raw: unknown, at: string, problems: string[]): Record<string, [number, number]> | undefined {
+  if (raw === undefined || raw === null) return undefined;
+  if (!isRecord(raw)) {
+    problems.push(`${at}: must map covariate -> [min, max]`);
+    return undefined;
+  }
+  const out: Record<string, [number, number]> = Object.create(null);
+  for (const [k, v] of Object.entries(raw)) {
+    if (Array.isArray(v) && v.length === 2 && finite(v[0]) && finite(v[1]) && v[0] <= v[1]) out[k] = [v[0], v[1]];
+    else if (isRecord(v) && finite(v.min) && finite(v.max) && v.min <= v.max) out[k] = [v.min, v.max];
+    else problems.push(`${at}.${k}: must be [min, max]`);
+  }
+  return out;
+}
+
+export function populationModelFromSpec(spec: ModelSpec): PopulationModel {
+  const warnings: string[] = [];
+  if (!spec.source) warnings.push('the model spec has no "source": record where the model comes from (publication, site fit) before using it for dosing');
+  if (!spec.covariateRanges) warnings.push('the model spec gives no covariateRanges: whether this patient lies inside the population the model was built on cannot be checked');
+  return {
+    spec,
+    provenance: { kind: 'model spec', ...(spec.name ? { name: spec.name } : {}), ...(spec.source ? { source: spec.source } : {}) },
+    covariateRanges: spec.covariateRanges ?? null,
+    warnings,
+  };
+}
+
+/**
+ * Convert the estimator's fit.json: population entries (typical: natural-scale typical value;
+ * bsv: SD on the transformed scale; correlation: parameter "P1,P2"; covariate: coefficient on
+ * the transformed scale, categorical levels as covariate "name=level"; residual: parameter a or b)
+ * replace the spec's values.
+ */
+export function populationModelFromFit(fit: Record<string, unknown>): PopulationModel {
+  const problems: string[] = [];
+  let spec: ModelSpec;
+  try {
+    spec = parseModelSpec(fit.spec);
+  } catch (e) {
+    throw new PopulationModelError([`spec: ${(e as Error).message}`]);
+  }
+  const params = { ...spec.parameters };
+  for (const k of Object.keys(params)) params[k as keyof typeof params] = { ...params[k as keyof typeof params]! };
+  const covariates = spec.covariates.map((c) => ({ ...c, ...(c.coefficients ? { coefficients: { ...c.coefficients } } : {}) }));
+  const correlationValues: Record<string, number> = Object.assign(Object.create(null), spec.correlationValues ?? {});
+  const residual = { ...spec.residual };
+  const seenTypical = new Set<string>();
+  (fit.population as unknown[]).forEach((e, i) => {
+    const at = `population[${i}]`;
+    if (!isRecord(e) || typeof e.parameter !== 'string' || !finite(e.estimate)) return void problems.push(`${at}: must be {parameter, kind, estimate}`);
+    const name = e.parameter;
+    const est = e.estimate;
+    switch (e.kind) {
+      case 'typical': {
+        const p = params[name as keyof typeof params];
+        if (!p) return void problems.push(`${at}: typical value for ${name}, which the spec does not have`);
+        p.typical = est;
+        seenTypical.add(name);
+        return;
+      }
+      case 'bsv': {
+        const p = params[name as keyof typeof params];
+        if (!p) return void problems.push(`${at}: BSV for ${name}, which the spec does not have`);
+        if (!(est > 0)) return void problems.push(`${at}: BSV of ${name} must be > 0, got ${est}`);
+        p.bsv = est;
+        return;
+      }
+      case 'correlation': {
+        if (!(est > -1 && est < 1)) return void problems.push(`${at}: correlation ${name} must lie in (-1, 1)`);
+        correlationValues[name.replace(/\s+/g, '')] = est;
+        return;
+      }
+      case 'covariate': {
+        const cov = typeof e.covariate === 'string' ? e.covariate : '';
+        const [cname, level] = cov.split('=');
+        const c = covariates.find((x) => x.parameter === name && x.covariate === cname);
+        if (!c) return void problems.push(`${at}: covariate effect ${name}~${cov} is not in the spec`);
+        if (c.relation === 'categorical') {
+          if (!level) return void problems.push(`${at}: categorical effect ${name}~${cname} needs covariate "${cname}=<level>"`);
+          c.coefficients = { ...(c.coefficients ?? {}), [level]: est };
+        } else c.coefficient = est;
+        return;
+      }
+      case 'residual': {
+        if (name === 'a' || name === 'b') residual[name] = est;
+        else problems.push(`${at}: residual parameter must be a or b, got ${name}`);
+        return;
+      }
+      default:
+        problems.push(`${at}.kind: must be typical, bsv, correlation, covariate or residual`);
+    }
+  });
+  for (const name of Object.keys(params)) if (!seenTypical.has(name) && !params[name as keyof typeof params]!.fixed) problems.push(`population: no estimate of the typical ${name}; the fit file is incomplete`);
+  const ranges = parseRanges(fit.covariateRanges ?? (isRecord(fit.dataset) ? fit.dataset.covariateRanges : undefined), 'covariateRanges', problems);
+  if (problems.length) throw new PopulationModelError(problems);
+  const warnings: string[] = [];
+  const covariateRanges = ranges ?? spec.covariateRanges ?? null;
+  if (!covariateRanges) warnings.push('the fit carries no covariate ranges of its dataset: whether this patient lies inside the fitted population cannot be checked');
+  const fitWarnings = Array.isArray(fit.warnings) ? fit.warnings.map((w) => (typeof w === 'string' ? w : JSON.stringify(w))) : [];
+  if (fitWarnings.length) warnings.push(`the fit reported ${fitWarnings.length} warning(s): review them before using it for dosing`);
+  const merged: ModelSpec = {
+    ...spec,
+    parameters: params,
+    covariates,
+    ...(Object.keys(correlationValues).length ? { correlationValues } : {}),
+    residual,
+    ...(covariateRanges ? { covariateRanges } : {}),
+  };
+  return {
+    spec: merged,
+    provenance: {
+      kind: 'site fit',
+      ...(spec.name ? { name: spec.name } : {}),
+      source: spec.source ?? `site fit${typeof fit.dataHash === 'string' ? ` of dataset ${fit.dataHash}` : ''}`,
+      ...(typeof fit.engineVersion === 'string' ? { engineVersion: fit.engineVersion } : {}),
+      ...(typeof fit.dataHash === 'string' ? { dataHash: fit.dataHash } : {}),
+      ...(finite(fit.seed) || typeof fit.seed === 'string' ? { seed: fit.seed as number | string } : {}),
+      ...(fitWarnings.length ? { fitWarnings } : {}),
+    },
+    covariateRanges,
+    warnings,
+  };
+}
