@@ -10,16 +10,21 @@ export type Rhs = (y: Float64Array, dy: Float64Array) => void;
 
 export interface Dopri5 {
   /**
-   * Integrate y in place over a duration dt (no discontinuity inside). Uses and updates the
-   * step-size guess `h` (state of the integrator). Returns the number of steps taken, or -1
-   * when the step budget ran out or the step size collapsed / went non-finite.
+   * Integrate y in place over work[DURATION] hours (no discontinuity inside), starting with the
+   * step-size guess work[STEP] (0 = choose one) and leaving the next guess there. Returns the
+   * number of steps taken, or -1 when maxSteps ran out or the step size collapsed / went
+   * non-finite. Doubles travel in `work` so that no call boxes a number.
    */
-  integrate(y: Float64Array, dt: number, relTol: number, absTol: number, maxSteps: number): number;
-  /** Step-size guess (h); set to 0 to let the next call choose one. */
-  h: number;
+  integrate(y: Float64Array, maxSteps: number): number;
+  work: Float64Array;
 }
 
-export function createDopri5(n: number, f: Rhs): Dopri5 {
+/** Index of the duration to integrate in Dopri5.work. */
+export const DURATION = 0;
+/** Index of the step-size guess in Dopri5.work. */
+export const STEP = 1;
+
+export function createDopri5(n: number, f: Rhs, relTol: number, absTol: number): Dopri5 {
   const k1 = new Float64Array(n);
   const k2 = new Float64Array(n);
   const k3 = new Float64Array(n);
@@ -30,9 +35,11 @@ export function createDopri5(n: number, f: Rhs): Dopri5 {
   const yt = new Float64Array(n);
   const yn = new Float64Array(n);
 
-  const self: Dopri5 = {
-    h: 0,
-    integrate(y, dt, relTol, absTol, maxSteps) {
+  const work = new Float64Array(2);
+  return {
+    work,
+    integrate(y, maxSteps) {
+      const dt = work[DURATION];
       if (!(dt > 0)) return 0;
       // Tableau as locals: module-level constants are loaded from the context on every use.
       const A21 = 1 / 5;
@@ -45,7 +52,7 @@ export function createDopri5(n: number, f: Rhs): Dopri5 {
       let steps = 0;
       let done = 0;
       f(y, k1);
-      let h = self.h;
+      let h = work[STEP];
       if (!(h > 0)) {
         // Initial guess: a step over which the solution changes by about the tolerance^(1/5) (Hairer II.4, simplified).
         let d0 = 0;
@@ -105,9 +112,8 @@ export function createDopri5(n: number, f: Rhs): Dopri5 {
           if (h < 1e-14 * Math.max(1, dt)) return -1;
         }
       }
-      self.h = h;
+      work[STEP] = h;
       return steps;
     },
   };
-  return self;
 }

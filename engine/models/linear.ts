@@ -50,11 +50,22 @@ export function expDivDiff(l: number, ka: number, dt: number, el: number, ea: nu
   return d >= 0 ? el * dt * oneMinusExpOver(d) : ea * dt * oneMinusExpOver(-d);
 }
 
+/** Scratch cell layout shared by the walk and its helpers (doubles passed through a typed array are never boxed). */
+const KA = 0;
+const TLAG = 1;
+const BIO = 2;
+const RATE = 3;
+const DT = 4;
+const TIME = 5;
+
 /**
- * Advance the modal state s (modes 0..n-1, depot at s[n]) by dt with a constant infusion rate
- * R (mg/h) into the central compartment.
+ * Advance the modal state s (modes 0..n-1, depot at s[n]) by cur[DT] hours with the infusion
+ * rate cur[RATE] (mg/h) into the central compartment and absorption rate cur[KA].
  */
-function advance(s: Float64Array, n: number, lam: Float64Array, ka: number, rate: number, dt: number): void {
+function advance(s: Float64Array, n: number, lam: Float64Array, cur: Float64Array): void {
+  const ka = cur[KA];
+  const rate = cur[RATE];
+  const dt = cur[DT];
   const a = s[n];
   const ea = a !== 0 ? Math.exp(-ka * dt) : 0;
   for (let i = 0; i < n; i++) {
@@ -63,7 +74,12 @@ function advance(s: Float64Array, n: number, lam: Float64Array, ka: number, rate
     const e = Math.exp(-x);
     let z = e * s[i];
     if (rate !== 0) z += (rate * (x < 0.5 ? -Math.expm1(-x) : 1 - e)) / l;
-    if (a !== 0) z += ka * a * expDivDiff(l, ka, dt, e, ea);
+    if (a !== 0) {
+      // expDivDiff written out: a call returning a double could box it.
+      const d = (ka - l) * dt;
+      const dd = d > 0.5 || d < -0.5 ? (e - ea) / (ka - l) : d >= 0 ? (d === 0 ? e * dt : (e * dt * -Math.expm1(-d)) / d) : (ea * dt * -Math.expm1(d)) / -d;
+      z += ka * a * dd;
+    }
     s[i] = z;
   }
   if (a !== 0) s[n] = a * ea;
@@ -227,12 +243,15 @@ export function prepareLinear(
   const tabA = new Float64Array(nu); // e^{-ka dt}
   // Oral doses of a steady-state train still in their lag time: count, next entry (h), interval (h), amount (mg).
   const pend = new Float64Array(4);
+  const cur = new Float64Array(6);
 
   /** Advance s over the static interval with distinct-length index u. */
-  const tableStep = (u: number, id: number, rate: number, ka: number): void => {
+  const tableStep = (u: number, id: number): void => {
     const b = u * n;
+    const rate = cur[RATE];
     if (stamp[u] !== id) {
       stamp[u] = id;
+      const ka = cur[KA];
       const dt = lengthH[u];
       const ea = hasOral ? Math.exp(-ka * dt) : 0;
       tabA[u] = ea;
@@ -242,7 +261,11 @@ export function prepareLinear(
         const e = Math.exp(-x);
         tabE[b + i] = e;
         tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
-        if (hasOral) tabB[b + i] = ka * expDivDiff(l, ka, dt, e, ea);
+        if (hasOral) {
+          const d = (ka - l) * dt;
+          tabB[b + i] =
+            ka * (d > 0.5 || d < -0.5 ? (e - ea) / (ka - l) : d >= 0 ? (d === 0 ? e * dt : (e * dt * -Math.expm1(-d)) / d) : (ea * dt * -Math.expm1(d)) / -d);
+        }
       }
     }
     const a = s[n];
@@ -256,7 +279,11 @@ export function prepareLinear(
   };
 
   /** Steady-state reset for dose record d at time t (see the module comment). False when the lag spans too many intervals. */
-  const reset = (d: number, t: number, ka: number, tlag: number, F: number): boolean => {
+  const reset = (d: number): boolean => {
+    const t = cur[TIME];
+    const ka = cur[KA];
+    const tlag = cur[TLAG];
+    const F = cur[BIO];
     pend[0] = 0;
     const route = doseRoute[d];
     const amount = doseAmountMg[d];
@@ -268,7 +295,7 @@ export function prepareLinear(
       const dur = doseDurationH[d];
       for (let i = 0; i < n; i++) {
         const l = lam[i];
-        s[i] = (amount * oneMinusExpOver(l * dur) * Math.exp(-l * (tau - dur))) / -Math.expm1(-l * tau);
+        s[i] = ((amount / dur) * -Math.expm1(-l * dur) * Math.exp(-l * (tau - dur))) / (l * -Math.expm1(-l * tau));
       }
       s[n] = 0;
     } else {
@@ -278,13 +305,19 @@ export function prepareLinear(
       for (let i = 0; i < n; i++) {
         const l = lam[i];
         const e = Math.exp(-l * tau);
-        s[i] = (ka * expDivDiff(l, ka, tau, e, ea) * aAfter) / -Math.expm1(-l * tau);
+        const dk = (ka - l) * tau;
+        const dd = dk > 0.5 || dk < -0.5 ? (e - ea) / (ka - l) : dk >= 0 ? (dk === 0 ? e * tau : (e * tau * -Math.expm1(-dk)) / dk) : (ea * tau * -Math.expm1(dk)) / -dk;
+        s[i] = (ka * dd * aAfter) / -Math.expm1(-l * tau);
       }
       s[n] = aAfter;
       // The latest train dose already in the depot is the m-th before this one, entered u0 hours ago.
       const m = Math.max(1, Math.ceil(tlag / tau));
       const u0 = m * tau - tlag;
-      if (u0 > 0) advance(s, n, lam, ka, 0, u0);
+      if (u0 > 0) {
+        cur[RATE] = 0;
+        cur[DT] = u0;
+        advance(s, n, lam, cur);
+      }
       if (m - 1 > MAX_PENDING) return false;
       pend[0] = m - 1;
       pend[1] = t + tlag - (m - 1) * tau;
@@ -310,10 +343,13 @@ export function prepareLinear(
       F = params[nDisposition + 2];
       if (!(positive(ka) && tlag >= 0 && tlag < Infinity && positive(F))) return fail(out);
     }
+    cur[KA] = ka;
+    cur[TLAG] = tlag;
+    cur[BIO] = F;
+    cur[RATE] = 0;
     for (let i = 0; i <= n; i++) s[i] = 0;
     const id = (evalCount[0] = evalCount[0] === 0x7fffffff ? 1 : evalCount[0] + 1);
     pend[0] = 0;
-    let rate = 0;
     let nInf = 0;
     let epoch = 0;
     let left = nOut;
@@ -328,7 +364,10 @@ export function prepareLinear(
         const tp = pend[0] > 0 ? pend[1] : Infinity;
         if (to < ts || tp < ts) {
           const t = to <= tp ? to : tp;
-          if (t > tc) advance(s, n, lam, ka, rate, t - tc);
+          if (t > tc) {
+            cur[DT] = t - tc;
+            advance(s, n, lam, cur);
+          }
           tc = t;
           afterStatic = false;
           if (to <= tp) {
@@ -344,8 +383,11 @@ export function prepareLinear(
       }
       if (afterStatic) {
         const u = uniqueOf[is];
-        if (u >= 0) tableStep(u, id, rate, ka);
-      } else if (ts > tc) advance(s, n, lam, ka, rate, ts - tc);
+        if (u >= 0) tableStep(u, id);
+      } else if (ts > tc) {
+        cur[DT] = ts - tc;
+        advance(s, n, lam, cur);
+      }
       tc = ts;
       afterStatic = true;
       const k = kind[is];
@@ -353,23 +395,25 @@ export function prepareLinear(
       if (k === EV_OUTPUT) {
         let c = 0;
         for (let i = 0; i < n; i++) c += w[i] * s[i];
-        out[v] = c;
+        // Mode sums can round to a few ulps below 0 next to a zero level; a level is never negative.
+        out[v] = c < 0 ? 0 : c;
         left--;
       } else if (k === EV_BOLUS) {
         for (let i = 0; i < n; i++) s[i] += v;
       } else if (k === EV_INF_START) {
-        rate += v;
+        cur[RATE] += v;
         nInf++;
       } else if (k === EV_INF_STOP) {
         if (evEpoch[is] >= epoch) {
           nInf--;
-          rate = nInf === 0 ? 0 : rate - v;
+          cur[RATE] = nInf === 0 ? 0 : cur[RATE] - v;
         }
       } else if (k === EV_RESET) {
         epoch = evEpoch[is];
-        rate = 0;
+        cur[RATE] = 0;
         nInf = 0;
-        if (!reset(v, ts, ka, tlag, F)) return fail(out);
+        cur[TIME] = ts;
+        if (!reset(v)) return fail(out);
       }
       is++;
     }

@@ -15,7 +15,7 @@
  * exists and the predictor returns false.
  */
 import type { Dose } from '../data/types.js';
-import { createDopri5 } from './dopri5.js';
+import { createDopri5, DURATION, STEP } from './dopri5.js';
 import {
   buildSchedule,
   EV_BOLUS,
@@ -47,7 +47,7 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
   // Mutable numbers shared between closures live in typed arrays: a double held in a closure
   // variable is boxed by V8 on every write, which would allocate in the hot loop.
   const ctx = new Float64Array(5); // Vmax (mg/h), Km (mg/L), V (L), ka (1/h), infusion rate (mg/h)
-  const budget = new Float64Array(1); // steps left in this evaluation
+  const budget = new Int32Array(1); // steps left in this evaluation
   const pend = new Float64Array(4); // train doses in their lag time: count, next entry (h), interval (h), amount (mg)
   const rhs = (y: Float64Array, dy: Float64Array): void => {
     const c = y[0] / ctx[2];
@@ -55,58 +55,76 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
     dy[0] = ctx[3] * y[1] + ctx[4] - elim;
     dy[1] = -ctx[3] * y[1];
   };
-  const ode = createDopri5(2, rhs);
+  const ode = createDopri5(2, rhs, relTol, absTol);
+  const work = ode.work;
   const y = new Float64Array(2);
+  const maxBudget = Math.min(Math.floor(maxSteps), 0x3fffffff);
 
-  /** Integrate y over dt within the step budget; false when the budget ran out or the solver failed. */
-  const step = (dt: number): boolean => {
-    if (!(dt > 0)) return true;
-    const used = ode.integrate(y, dt, relTol, absTol, budget[0]);
+  /** Integrate y over work[DURATION] h within the step budget; false when it ran out or the solver failed. */
+  const run = (): boolean => {
+    if (!(work[DURATION] > 0)) return true;
+    const used = ode.integrate(y, budget[0]);
     if (used < 0) return false;
     budget[0] -= used;
     return true;
   };
 
-  /** One interval of the steady-state train from trough x (depot a0 before the entry); returns the next trough or NaN. */
-  const oneInterval = (x: number, a0: number, route: number, amount: number, dur: number, tau: number): number => {
-    y[0] = x;
-    y[1] = a0;
-    ode.h = 0;
+  // Steady-state iteration cells: depot before an entry (mg), amount entering (mg), trough in (mg);
+  // and the walk's oral lag (h), bioavailability and reset time (h).
+  const ssCell = new Float64Array(3);
+  const cur = new Float64Array(3);
+
+  /** One interval of the steady-state train of dose d from trough ssCell[2]; the next trough is left in y[0]. */
+  const oneInterval = (d: number, route: number): boolean => {
+    const tau = doseIntervalH[d];
+    y[0] = ssCell[2];
+    y[1] = ssCell[0];
+    work[STEP] = 0;
     if (route === ROUTE_BOLUS) {
-      y[0] += amount;
-      if (!step(tau)) return NaN;
-    } else if (route === ROUTE_INFUSION) {
-      ctx[4] = amount / dur;
-      const ok = step(dur);
-      ctx[4] = 0;
-      ode.h = 0;
-      if (!ok || !step(tau - dur)) return NaN;
-    } else {
-      y[1] += amount;
-      if (!step(tau)) return NaN;
+      y[0] += ssCell[1];
+      work[DURATION] = tau;
+      return run();
     }
-    return y[0];
+    if (route === ROUTE_INFUSION) {
+      const dur = doseDurationH[d];
+      ctx[4] = ssCell[1] / dur;
+      work[DURATION] = dur;
+      const ok = run();
+      ctx[4] = 0;
+      work[STEP] = 0;
+      work[DURATION] = tau - dur;
+      return ok && run();
+    }
+    y[1] += ssCell[1];
+    work[DURATION] = tau;
+    return run();
   };
 
-  /** Steady-state reset for dose record d at time t; leaves the state in y. */
-  const reset = (d: number, t: number, ka: number, tlag: number, F: number): boolean => {
+  /** Steady-state reset for dose record d at time cur[2]; leaves the state in y. */
+  const reset = (d: number): boolean => {
+    const ka = ctx[3];
+    const tlag = cur[0];
     pend[0] = 0;
     const route = doseRoute[d];
     const tau = doseIntervalH[d];
-    const dur = doseDurationH[d];
     const oral = route !== ROUTE_BOLUS && route !== ROUTE_INFUSION;
-    const amount = oral ? F * doseAmountMg[d] : doseAmountMg[d];
+    const amount = oral ? cur[1] * doseAmountMg[d] : doseAmountMg[d];
     if (!(amount / tau < ctx[0])) return false;
-    const saved = ctx[4];
     ctx[4] = 0;
     const aBefore = oral ? (amount * Math.exp(-ka * tau)) / -Math.expm1(-ka * tau) : 0;
+    ssCell[0] = aBefore;
+    ssCell[1] = amount;
+    // Secant iteration on g(x) - x, x the trough; plain iteration when a secant step is unusable.
     let x0 = 0;
-    let g0 = oneInterval(x0, aBefore, route, amount, dur, tau);
+    ssCell[2] = x0;
+    if (!oneInterval(d, route)) return false;
+    let g0 = y[0];
     let x1 = g0;
     let converged = false;
     for (let it = 0; it < MAX_SS_ITERATIONS; it++) {
-      const g1 = oneInterval(x1, aBefore, route, amount, dur, tau);
-      if (!(g1 === g1)) return false;
+      ssCell[2] = x1;
+      if (!oneInterval(d, route)) return false;
+      const g1 = y[0];
       const h0 = g0 - x0;
       const h1 = g1 - x1;
       let next = h1 !== h0 ? x1 - (h1 * (x1 - x0)) / (h1 - h0) : g1;
@@ -120,23 +138,23 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
         break;
       }
     }
-    ctx[4] = saved;
     if (!converged) return false;
     y[0] = x1;
     y[1] = aBefore;
-    ode.h = 0;
+    work[STEP] = 0;
     if (oral) {
       // The oral train is shifted by tlag: the last entry before t was u0 hours earlier.
       const m = Math.max(1, Math.ceil(tlag / tau));
       const u0 = m * tau - tlag;
       if (u0 < tau) {
         y[1] += amount;
-        if (!step(u0)) return false;
-        ode.h = 0;
+        work[DURATION] = u0;
+        if (!run()) return false;
+        work[STEP] = 0;
       }
       if (m - 1 > MAX_PENDING) return false;
       pend[0] = m - 1;
-      pend[1] = t + tlag - (m - 1) * tau;
+      pend[1] = cur[2] + tlag - (m - 1) * tau;
       pend[2] = tau;
       pend[3] = amount;
     }
@@ -167,10 +185,12 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
     ctx[2] = vol;
     ctx[3] = ka;
     ctx[4] = 0;
+    cur[0] = tlag;
+    cur[1] = F;
     y[0] = 0;
     y[1] = 0;
-    ode.h = 0;
-    budget[0] = maxSteps;
+    work[STEP] = 0;
+    budget[0] = maxBudget;
     pend[0] = 0;
     let rate = 0;
     let nInf = 0;
@@ -185,7 +205,8 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
         const tp = pend[0] > 0 ? pend[1] : Infinity;
         if (to < ts || tp < ts) {
           const t = to <= tp ? to : tp;
-          if (!step(t - tc)) return fail(out);
+          work[DURATION] = t - tc;
+          if (!run()) return fail(out);
           tc = t;
           if (to <= tp) {
             if (oralEpoch[io] >= epoch) y[1] += F * oralAmountMg[io];
@@ -198,7 +219,8 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
           continue;
         }
       }
-      if (!step(ts - tc)) return fail(out);
+      work[DURATION] = ts - tc;
+      if (!run()) return fail(out);
       tc = ts;
       const k = kind[is];
       const v = value[is];
@@ -211,20 +233,21 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
         rate += v;
         nInf++;
         ctx[4] = rate;
-        ode.h = 0;
+        work[STEP] = 0;
       } else if (k === EV_INF_STOP) {
         if (evEpoch[is] >= epoch) {
           nInf--;
           rate = nInf === 0 ? 0 : rate - v;
           ctx[4] = rate;
-          ode.h = 0;
+          work[STEP] = 0;
         }
       } else if (k === EV_RESET) {
         epoch = evEpoch[is];
         rate = 0;
         nInf = 0;
         ctx[4] = 0;
-        if (!reset(v, ts, ka, tlag, F)) return fail(out);
+        cur[2] = ts;
+        if (!reset(v)) return fail(out);
       }
       is++;
     }
