@@ -45,7 +45,7 @@ export interface FitRecord {
     /** One row per iteration, columns as `names`. */
     values: number[][];
   };
-  acceptance: { independent: number | null; randomWalk: number | null; component: Record<string, number | null> };
+  acceptance: { independent: number | null; randomWalk: number | null; adaptive: number | null; component: Record<string, number | null> };
   timing: { totalMs: number; explorationMs: number; averagingMs: number };
   warnings: string[];
 }
@@ -54,7 +54,7 @@ const finiteOrNull = (x: number): number | null => (Number.isFinite(x) ? x : nul
 
 export function buildFitRecord(model: CompiledModel, result: SaemResult, dataHash: string): FitRecord {
   const nEst = result.estimateNames.length;
-  const last = result.trajectory.subarray((result.iterations - 1) * nEst, result.iterations * nEst);
+  const last = result.estimates;
   const population: PopulationEstimate[] = [];
   let q = 0;
   for (const p of model.parameters) population.push({ parameter: p.name, kind: 'typical', estimate: last[q++], fixed: p.fixed });
@@ -95,7 +95,7 @@ export function buildFitRecord(model: CompiledModel, result: SaemResult, dataHas
     population,
     individual,
     trajectory: { names: [...result.estimateNames], explorationEnd: result.explorationEnd, explorationSettled: result.explorationSettled, iterations: result.iterations, values },
-    acceptance: { independent: finiteOrNull(result.acceptance.independent), randomWalk: finiteOrNull(result.acceptance.randomWalk), component },
+    acceptance: { independent: finiteOrNull(result.acceptance.independent), randomWalk: finiteOrNull(result.acceptance.randomWalk), adaptive: finiteOrNull(result.acceptance.adaptive), component },
     timing: { totalMs: result.timingMs.total, explorationMs: result.timingMs.exploration, averagingMs: result.timingMs.averaging },
     warnings,
   };

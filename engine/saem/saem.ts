@@ -67,6 +67,8 @@ export interface SaemResult {
   theta: PopulationParameters;
   /** Names of the trajectory columns: typical values (natural scale), covariate coefficients, BSV SDs, correlations, residual. */
   estimateNames: readonly string[];
+  /** Final estimates named by estimateNames (natural scale for typical values, SDs for BSV). */
+  estimates: Float64Array;
   /** iterations x estimateNames.length, row-major. */
   trajectory: Float64Array;
   iterations: number;
@@ -78,7 +80,7 @@ export interface SaemResult {
   individualMean: Float64Array;
   /** Same, transformed scale. */
   individualPhiMean: Float64Array;
-  acceptance: { independent: number; randomWalk: number; component: Float64Array };
+  acceptance: { independent: number; randomWalk: number; component: Float64Array; adaptive: number };
   warnings: string[];
   timingMs: { total: number; exploration: number; averaging: number };
 }
@@ -315,8 +317,49 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     if (llS[i * L] === -Infinity)
       warnings.push(`subject ${subjects[i].id}: the initial typical values give an impossible prediction; the chains start there and move only if a proposal is valid`);
 
+  // Per-subject covariance of the draws (exponentially weighted over exploration) and its factor.
+  const subjW = new Float64Array(N);
+  const subjS1 = new Float64Array(N * nEta);
+  const subjS2 = new Float64Array(N * nEta * nEta);
+  const subjCov = new Float64Array(nEta * nEta);
+  const subjChol = new Float64Array(N * nEta * nEta);
+  const subjReady = new Uint8Array(N);
+  let adaptScale = nEta > 0 ? (2.38 * 2.38) / nEta : 1;
+  let accAd = 0, triesAd = 0, totAccAd = 0, totTriesAd = 0;
+  let adaptUpdates = 0;
+  function updateSubjectCovariances(): void {
+    const forget = 0.98;
+    adaptUpdates++;
+    for (let i = 0; i < N; i++) {
+      subjW[i] = forget * subjW[i] + L;
+      for (let q = 0; q < nEta; q++) subjS1[i * nEta + q] *= forget;
+      for (let q = 0; q < nEta * nEta; q++) subjS2[i * nEta * nEta + q] *= forget;
+      for (let c = 0; c < L; c++) {
+        const base = (i * L + c) * p;
+        for (let k = 0; k < nEta; k++) {
+          const v = phiS[base + etaParam[k]];
+          subjS1[i * nEta + k] += v;
+          for (let k2 = 0; k2 <= k; k2++) subjS2[i * nEta * nEta + k * nEta + k2] += v * phiS[base + etaParam[k2]];
+        }
+      }
+    }
+    if (adaptUpdates < 20 || adaptUpdates % 5 !== 0) return;
+    for (let i = 0; i < N; i++) {
+      const w = subjW[i];
+      for (let k = 0; k < nEta; k++)
+        for (let k2 = 0; k2 <= k; k2++) {
+          const v = subjS2[i * nEta * nEta + k * nEta + k2] / w - (subjS1[i * nEta + k] / w) * (subjS1[i * nEta + k2] / w);
+          subjCov[k * nEta + k2] = subjCov[k2 * nEta + k] = v;
+        }
+      // A small share of Omega keeps the proposal non-degenerate while the chain is still stuck.
+      for (let k = 0; k < nEta; k++) subjCov[k * nEta + k] += 1e-3 * theta.omega[k * nEta + k];
+      subjReady[i] = choleskyLower(subjCov, nEta, subjChol.subarray(i * nEta * nEta, (i + 1) * nEta * nEta)) ? 1 : 0;
+    }
+  }
+
   function simulate(exploring: boolean): void {
-    accInd = triesInd = accRw = triesRw = 0;
+    accInd = triesInd = accRw = triesRw = accAd = triesAd = 0;
+    const sqrtAdapt = Math.sqrt(adaptScale);
     accComp.fill(0);
     triesComp.fill(0);
     const sqrtKappa = Math.sqrt(kappa);
@@ -392,6 +435,33 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
               } else phiProp[j] = phiS[base + j];
             }
           }
+          // 4. Random walk shaped by the subject's own conditional covariance (adaptive
+          // Metropolis, Haario, Saksman & Tamminen 2001, from memory): mixes along ridges of
+          // p(phi_i | y_i) that Omega-shaped proposals cross only in tiny steps.
+          if (subjReady[i] && settings.adaptiveSteps > 0) {
+            const cBase = i * nEta * nEta;
+            for (let k = 0; k < nEta; k++) etaCur[k] = phiS[base + etaParam[k]] - meanAll[mBase + etaParam[k]];
+            let qCur = quadInv(etaCur);
+            for (let it = 0; it < settings.adaptiveSteps; it++) {
+              for (let k = 0; k < nEta; k++) zBuf[k] = rng.normal();
+              for (let r = 0; r < nEta; r++) {
+                let v = 0;
+                for (let q = 0; q <= r; q++) v += subjChol[cBase + r * nEta + q] * zBuf[q];
+                etaProp[r] = etaCur[r] + sqrtAdapt * v;
+                phiProp[etaParam[r]] = meanAll[mBase + etaParam[r]] + etaProp[r];
+              }
+              const qProp = quadInv(etaProp);
+              const llp = propLogLik(i, phiProp, theta.a, theta.b);
+              triesAd++;
+              if (llp > -Infinity && Math.log(rng.uniform()) < llp - ll - 0.5 * (qProp - qCur)) {
+                accept(s, i, llp);
+                ll = llp;
+                qCur = qProp;
+                etaCur.set(etaProp);
+                accAd++;
+              } else for (let k = 0; k < nEta; k++) phiProp[etaParam[k]] = phiS[base + etaParam[k]];
+            }
+          }
         }
         // Censored levels: draw from N(f, g^2) truncated below the LLOQ (log scale for log-additive).
         const sub = subjects[i];
@@ -420,12 +490,14 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         }
       }
     }
-    totAccInd += accInd, totTriesInd += triesInd, totAccRw += accRw, totTriesRw += triesRw;
+    if (exploring && nEta > 0 && settings.adaptiveSteps > 0) updateSubjectCovariances();
+    totAccInd += accInd, totTriesInd += triesInd, totAccRw += accRw, totTriesRw += triesRw, totAccAd += accAd, totTriesAd += triesAd;
     for (let k = 0; k < nEta; k++) (totAccComp[k] += accComp[k]), (totTriesComp[k] += triesComp[k]);
     if (exploring) {
       // kappa <- kappa (1 + delta (acc - target)), likewise the component scales (DESIGN.md §5).
       const target = settings.targetAcceptance;
       if (triesRw > 0) kappa = Math.min(10, Math.max(1e-4, kappa * (1 + 0.4 * (accRw / triesRw - target))));
+      if (triesAd > 0) adaptScale = Math.min(20, Math.max(1e-4, adaptScale * (1 + 0.4 * (accAd / triesAd - target))));
       for (let k = 0; k < nEta; k++)
         if (triesComp[k] > 0) compScale[k] = Math.min(10, Math.max(1e-3, compScale[k] * (1 + 0.4 * (accComp[k] / triesComp[k] - target))));
     }
@@ -707,6 +779,11 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     return true;
   }
 
+  const avgMu = new Float64Array(p);
+  const avgBeta = new Float64Array(T);
+  const avgOmega = new Float64Array(nEta * nEta);
+  let avgA = 0, avgB = 0, avgCount = 0;
+
   let iteration = 0;
   let explorationEnd: number | null = null;
   let explorationSettled = false;
@@ -743,6 +820,14 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       writeEstimates(current);
       trajectory.set(current, (iteration - 1) * nEst);
       if (!exploring) {
+        if (settings.iterateAveraging && iteration > explorationEnd! + Math.floor(settings.averagingIterations / 2)) {
+          for (let j = 0; j < p; j++) avgMu[j] += theta.mu[j];
+          for (let t = 0; t < T; t++) avgBeta[t] += theta.beta[t];
+          for (let q = 0; q < nEta * nEta; q++) avgOmega[q] += theta.omega[q];
+          avgA += theta.a;
+          avgB += theta.b;
+          avgCount++;
+        }
         const lastStart = explorationEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
         if (iteration > lastStart) {
           for (let s = 0; s < NL; s++) {
@@ -776,16 +861,26 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       if (explorationEnd !== null && !explorationSettled && settings.autoEndExploration)
         warnings.push(`exploration reached its cap of ${settings.explorationMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.explorationMaxIterations`);
       if (omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${omegaFailures} iteration(s); the previous Omega was kept there`);
+      if (avgCount > 0) {
+        for (let j = 0; j < p; j++) theta.mu[j] = avgMu[j] / avgCount;
+        for (let t = 0; t < T; t++) theta.beta[t] = avgBeta[t] / avgCount;
+        for (let q = 0; q < nEta * nEta; q++) theta.omega[q] = avgOmega[q] / avgCount;
+        theta.a = avgA / avgCount;
+        theta.b = avgB / avgCount;
+      }
+      const estimates = new Float64Array(nEst);
+      writeEstimates(estimates);
       const compAcc = new Float64Array(nEta);
       for (let k = 0; k < nEta; k++) compAcc[k] = totTriesComp[k] > 0 ? totAccComp[k] / totTriesComp[k] : NaN;
       for (let q = 0; q < nEst; q++)
-        if (!Number.isFinite(current[q])) warnings.push(`estimate ${estimateNames[q]} is not a finite number: the fit failed; check the initial values and the data`);
+        if (!Number.isFinite(estimates[q])) warnings.push(`estimate ${estimateNames[q]} is not a finite number: the fit failed; check the initial values and the data`);
       return {
         settings,
         seed: settings.seed,
         chains: L,
         theta: { mu: Float64Array.from(theta.mu), beta: Float64Array.from(theta.beta), omega: Float64Array.from(theta.omega), a: theta.a, b: theta.b },
         estimateNames,
+        estimates,
         trajectory: trajectory.slice(0, iteration * nEst),
         iterations: iteration,
         explorationEnd: explorationEnd ?? iteration,
@@ -796,6 +891,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
           independent: totTriesInd > 0 ? totAccInd / totTriesInd : NaN,
           randomWalk: totTriesRw > 0 ? totAccRw / totTriesRw : NaN,
           component: compAcc,
+          adaptive: totTriesAd > 0 ? totAccAd / totTriesAd : NaN,
         },
         warnings,
         timingMs: { total: tEnd - tStart, exploration: tExplorationEnd - tStart, averaging: tEnd - tExplorationEnd },

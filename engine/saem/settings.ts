@@ -13,6 +13,8 @@
  * - independentSteps: 2, randomWalkSteps: 2, componentSweeps: 2 (Metropolis-Hastings steps per
  *   subject, chain and iteration: proposal from the population distribution, full random walk
  *   N(phi, kappa Omega), component-wise random walk).
+ * - adaptiveSteps: 2 (random-walk steps shaped by each subject's own conditional covariance,
+ *   learnt from its draws during exploration, then frozen; 0 turns the kernel off).
  * - targetAcceptance: 0.35 (random-walk kernels; their scales adapt during exploration, then freeze).
  * - annealingTau: 0.95 (variances fall at most 5 % per iteration during annealing).
  * - annealingIterations: null = the whole exploration phase.
@@ -20,6 +22,10 @@
  *   estimate on its working scale, the means of the last two windows differ by less than
  *   settleTolerance x their mean within-window SD).
  * - individualDraws: 50 (the last iterations averaged, over every chain, for the individual estimates).
+ * - iterateAveraging: false. When true, the estimate reported is the mean of the iterates over
+ *   the second half of the averaging phase (Polyak-Ruppert averaging; Polyak & Juditsky 1992,
+ *   from memory): with stepExponent < 1 it keeps the 1/sqrt(K) rate when much information is
+ *   missing (weakly identified variances), where plain 1/k steps converge slowly.
  */
 import { SpecError } from '../spec/modelSpec.js';
 
@@ -34,12 +40,14 @@ export interface SaemSettings {
   independentSteps: number;
   randomWalkSteps: number;
   componentSweeps: number;
+  adaptiveSteps: number;
   targetAcceptance: number;
   annealingTau: number;
   annealingIterations: number | null;
   settleWindow: number;
   settleTolerance: number;
   individualDraws: number;
+  iterateAveraging: boolean;
 }
 
 export const DEFAULT_SAEM_SETTINGS: Readonly<SaemSettings> = Object.freeze({
@@ -53,12 +61,14 @@ export const DEFAULT_SAEM_SETTINGS: Readonly<SaemSettings> = Object.freeze({
   independentSteps: 2,
   randomWalkSteps: 2,
   componentSweeps: 2,
+  adaptiveSteps: 2,
   targetAcceptance: 0.35,
   annealingTau: 0.95,
   annealingIterations: null,
   settleWindow: 50,
   settleTolerance: 0.5,
   individualDraws: 50,
+  iterateAveraging: false,
 });
 
 type Check = (v: unknown) => string | null;
@@ -78,12 +88,14 @@ const CHECKS: Record<keyof SaemSettings, Check> = {
   independentSteps: int(0, 50),
   randomWalkSteps: int(0, 50),
   componentSweeps: int(0, 50),
+  adaptiveSteps: int(0, 50),
   targetAcceptance: num(0.05, 0.95),
   annealingTau: num(0, 1, true),
   annealingIterations: (v) => (v === null ? null : int(0, 100_000)(v) && 'must be null or an integer >= 0'),
   settleWindow: int(5, 10_000),
   settleTolerance: num(0, 100, true),
   individualDraws: int(1, 100_000),
+  iterateAveraging: bool,
 };
 
 /** Validate `estimation` and fill the defaults. Throws SpecError with `estimation.<key>` paths. */

@@ -1,0 +1,60 @@
+/**
+ * A linear "structural model" for reference checks of the estimator through the same generic
+ * Predictor interface: prediction = b0 + b1 (t - centre), linear in the parameters, identity
+ * transforms. With it, the population model is a linear mixed model with an exact ML solution.
+ */
+import { createDataset } from '../../../engine/data/dataset.js';
+import type { Dataset } from '../../../engine/data/types.js';
+import type { PkParameterName, StructuralModel } from '../../../engine/models/types.js';
+import type { ModelSpec, ParameterSpec } from '../../../engine/spec/modelSpec.js';
+
+export function linearModel(centre = 0): StructuralModel {
+  return {
+    id: '1cmt',
+    label: `linear in time, centred at ${centre}`,
+    parameterOrder: ['b0', 'b1'] as unknown as PkParameterName[],
+    parameters: [
+      { name: 'b0' as PkParameterName, unit: '', description: 'intercept', defaultInitial: 0, transforms: ['none'] },
+      { name: 'b1' as PkParameterName, unit: '', description: 'slope', defaultInitial: 0, transforms: ['none'] },
+    ],
+    compartments: 0,
+    equation: 'y = b0 + b1 (t - centre)',
+    sketch: 'linear',
+    analytic: true,
+    prepare(_doses, timesH) {
+      const t = Float64Array.from(timesH as ArrayLike<number>);
+      return (params, out) => {
+        const b0 = params[0];
+        const b1 = params[1];
+        for (let k = 0; k < t.length; k++) out[k] = b0 + b1 * (t[k] - centre);
+        return Number.isFinite(b0) && Number.isFinite(b1);
+      };
+    },
+  };
+}
+
+export function linearSpec(params: Record<'b0' | 'b1', Partial<ParameterSpec> & { typical: number }>, a: number, correlated: boolean, estimation: Record<string, unknown> = {}): ModelSpec {
+  const parameters: Record<string, ParameterSpec> = Object.create(null);
+  for (const [k, v] of Object.entries(params)) parameters[k] = { transform: 'none', bsv: null, fixed: false, ...v };
+  return {
+    structure: '1cmt',
+    parameters: parameters as ModelSpec['parameters'],
+    covariates: [],
+    correlations: correlated ? [['b0', 'b1'] as unknown as PkParameterName[]] : [],
+    residual: { model: 'additive', a },
+    estimation,
+  };
+}
+
+/** Orthodont rows (subject, age, distance) as a dataset with level times = age. */
+export function orthodontDataset(csv: string): Dataset {
+  const lines = csv.trim().split(/\r?\n/).slice(1);
+  const bySubject = new Map<string, { timeH: number; valueMgL: number; censored: boolean }[]>();
+  for (const line of lines) {
+    const [subject, age, distance] = line.split(',');
+    const list = bySubject.get(subject) ?? [];
+    list.push({ timeH: Number(age), valueMgL: Number(distance), censored: false });
+    bySubject.set(subject, list);
+  }
+  return createDataset([...bySubject].map(([id, observations]) => ({ id, doses: [], observations })));
+}
