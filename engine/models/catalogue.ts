@@ -13,11 +13,25 @@
  *   (common practice); earlier doses stop counting. Then the dose itself is given at its time.
  * - Bolus and infusion go into the central compartment; oral doses into a depot, F times the
  *   amount, entering at dose time + tlag, absorbed first-order with rate ka.
+ * - Several steady-state doses at one time superpose (linear models); the Michaelis-Menten
+ *   model refuses them at prepare.
+ * The same rules, as text for the UI: MODEL_CONVENTIONS.
  */
 import type { Dose } from '../data/types.js';
 import { makeThreeCompartmentModes, oneCompartmentModes, prepareLinear, twoCompartmentModes } from './linear.js';
 import { prepareMichaelisMenten } from './michaelisMenten.js';
 import type { ParameterInfo, PkParameterName, SolverSettings, StructuralModel, StructureId } from './types.js';
+
+/** The timing and dosing conventions every model follows, as plain text for the UI and the docs. */
+export const MODEL_CONVENTIONS: readonly string[] = Object.freeze([
+  'A level taken at exactly a dose time is the level before that dose (TDM convention: a trough drawn at the dose time is pre-dose).',
+  'Levels before the first dose are 0.',
+  'Bolus and infusion doses go into the central compartment; an infusion runs at amount / duration, and overlapping infusions add.',
+  'Oral doses put F x amount into an absorption depot at dose time + tlag; absorption is first-order with rate ka.',
+  'A steady-state dose (with an interval) stands for an infinite train of that dose before it: every compartment is reset to that steady state (earlier doses stop counting), then the dose itself is given. A level at its time is the steady-state trough.',
+  'Several steady-state doses at one time add their trains (linear models only).',
+  'Michaelis-Menten: steady state is found by iterating one dosing interval to its fixed point; none exists when F x dose / interval reaches Vmax.',
+]);
 
 const info = (
   name: PkParameterName,

@@ -244,6 +244,7 @@ export function prepareLinear(
   // Oral doses of a steady-state train still in their lag time: count, next entry (h), interval (h), amount (mg).
   const pend = new Float64Array(4);
   const cur = new Float64Array(6);
+  const keep = new Float64Array(n + 1);
 
   /** Advance s over the static interval with distinct-length index u. */
   const tableStep = (u: number, id: number): void => {
@@ -279,11 +280,15 @@ export function prepareLinear(
   };
 
   /** Steady-state reset for dose record d at time t (see the module comment). False when the lag spans too many intervals. */
-  const reset = (d: number): boolean => {
+  const reset = (d: number, additive: boolean): boolean => {
     const t = cur[TIME];
     const ka = cur[KA];
     const tlag = cur[TLAG];
     const F = cur[BIO];
+    // Several steady-state doses at one time: their trains superpose (linear system), so the
+    // states add. Only one train can have doses still in their lag time.
+    const pendingBefore = additive ? pend[0] : 0;
+    if (additive) for (let i = 0; i <= n; i++) keep[i] = s[i];
     pend[0] = 0;
     const route = doseRoute[d];
     const amount = doseAmountMg[d];
@@ -318,11 +323,17 @@ export function prepareLinear(
         cur[DT] = u0;
         advance(s, n, lam, cur);
       }
-      if (m - 1 > MAX_PENDING) return false;
-      pend[0] = m - 1;
-      pend[1] = t + tlag - (m - 1) * tau;
-      pend[2] = tau;
-      pend[3] = fd;
+      if (m - 1 > MAX_PENDING || (m > 1 && pendingBefore > 0)) return false;
+      if (m > 1) {
+        pend[0] = m - 1;
+        pend[1] = t + tlag - (m - 1) * tau;
+        pend[2] = tau;
+        pend[3] = fd;
+      }
+    }
+    if (additive) {
+      for (let i = 0; i <= n; i++) s[i] += keep[i];
+      if (pend[0] === 0) pend[0] = pendingBefore;
     }
     return true;
   };
@@ -356,6 +367,7 @@ export function prepareLinear(
     let tc = 0;
     let io = 0;
     let afterStatic = true;
+    let lastResetH = -1;
     for (let is = 0; is < ns && left > 0; ) {
       const ts = timeH[is];
       if (hasOral) {
@@ -413,7 +425,8 @@ export function prepareLinear(
         cur[RATE] = 0;
         nInf = 0;
         cur[TIME] = ts;
-        if (!reset(v)) return fail(out);
+        if (!reset(v, ts === lastResetH)) return fail(out);
+        lastResetH = ts;
       }
       is++;
     }

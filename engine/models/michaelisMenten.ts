@@ -38,6 +38,10 @@ export function prepareMichaelisMenten(doses: readonly Dose[], timesH: ArrayLike
   const { relTol, absTol, maxSteps } = settings;
   if (!(relTol > 0 && absTol > 0 && maxSteps >= 1))
     throw new Error(`solver settings: relTol and absTol must be > 0 and maxSteps >= 1 (got ${relTol}, ${absTol}, ${maxSteps})`);
+  const ssTimes = doses.filter((d) => d.steadyStateIntervalH !== undefined).map((d) => d.timeH);
+  const shared = ssTimes.find((t, i) => ssTimes.indexOf(t) !== i);
+  if (shared !== undefined)
+    throw new Error(`two steady-state doses at ${shared} h: the Michaelis-Menten model cannot superpose dosing trains; give one steady-state record per time (e.g. the regimen actually repeated)`);
   const sc = buildSchedule(doses, timesH);
   const { timeH, kind, value, epoch: evEpoch, oralTimeH, oralAmountMg, oralEpoch, hasOral, doseRoute, doseAmountMg, doseDurationH, doseIntervalH } = sc;
   const ns = sc.n;

@@ -152,6 +152,18 @@ describe('timing conventions and edge cases', () => {
     const alone = predict('1cmt', [bolus(12, 500, 12)], [12, 15, 30], p1);
     Array.from(alone).forEach((v, i) => expect(relErr(withRunning[i], v)).toBeLessThan(1e-14));
   });
+  it('two steady-state doses at one time superpose (linear models)', () => {
+    // Superposition of linear systems (common practice): the two trains add.
+    const times = [10, 10.5, 12, 15, 20, 30];
+    const params = [3, 15, 6, 40, 0.9, 0.6, 0.75];
+    const both = predict('2cmt', [oral(10, 300, 12), inf(10, 500, 1, 8)], times, params);
+    const a = predict('2cmt', [oral(10, 300, 12)], times, params);
+    const b = predict('2cmt', [inf(10, 500, 1, 8)], times, params);
+    both.forEach((v, i) => expect(relErr(v, a[i] + b[i])).toBeLessThan(1e-13));
+  });
+  it('the Michaelis-Menten model refuses two steady-state doses at one time, saying why', () => {
+    expect(() => getStructuralModel('1cmt-mm').prepare([oral(10, 300, 12), inf(10, 500, 1, 8)], [11])).toThrow(/two steady-state doses at 10 h/);
+  });
   it('no doses: every level is 0; no output times: nothing to do', () => {
     expect(Array.from(predict('3cmt', [], [0, 1, 10], [5, 10, 12, 25, 1.5, 80, NaN, NaN, NaN]))).toEqual([0, 0, 0]);
     expect(predict('1cmt', [bolus(0, 100)], [], p1).length).toBe(0);
