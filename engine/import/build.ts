@@ -97,7 +97,7 @@ interface RowCtx {
 
 interface PendingEvent {
   kind: 'dose' | 'level';
-  /** ms on the wall-clock line, or h * MS_H for elapsed hours. */
+  /** ms on the wall-clock line ('wall'), or hours as given ('elapsed', kept exact). */
   t: number;
   basis: 'wall' | 'elapsed';
   sheet: string;
@@ -322,7 +322,7 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
 
     // Gaps that suggest a wrong date; clock changes; the skipped hour.
     for (let i = 1; i < timeline.length; i++) {
-      const gapH = (timeline[i].t - timeline[i - 1].t) / MS_H;
+      const gapH = (timeline[i].t - timeline[i - 1].t) / (timeline[i].basis === 'wall' ? MS_H : 1);
       if (gapH > template.options.maxGapH) {
         const p = timeline[i - 1];
         evProblem(timeline[i], 'warning', `${(gapH / 24).toFixed(1)} days after the previous event of patient ${pat.id} (${p.sheet} row ${p.row}): a wrong date? Check both rows`);
@@ -350,7 +350,7 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
     const doses: Dose[] = [];
     const observations: Observation[] = [];
     for (const e of timeline) {
-      const timeH = (e.t - t0) / MS_H;
+      const timeH = e.basis === 'wall' ? (e.t - t0) / MS_H : e.t;
       if (timeH < 0) {
         evProblem(e, 'error', 'elapsed time is negative');
         rowExcluded(e.sheet, e.row, 'negative time');
@@ -443,7 +443,7 @@ function firstError(problems: ReportProblem[], ctx: RowCtx): string {
 }
 
 function describeT(e: PendingEvent): string {
-  return e.basis === 'wall' ? wallMsToIso(e.t) : `${e.t / MS_H} h`;
+  return e.basis === 'wall' ? wallMsToIso(e.t) : `${e.t} h`;
 }
 
 type ProblemFn = (ctx: RowCtx, col: BoundColumn | undefined, severity: 'error' | 'warning', message: string, value?: string) => void;
@@ -528,7 +528,7 @@ function readEventTime(b: BoundSheet, ctx: RowCtx, kind: 'dose' | 'level', probl
     if (n.value < 0) return void problem(ctx, cElapsed, 'error', 'elapsed time is negative');
     const f = durationFactorToH(cElapsed.mapping.unit ?? 'h');
     const factor = f.ok ? f.value : 1;
-    return { t: n.value * factor * MS_H, basis: 'elapsed', column: cElapsed.label };
+    return { t: factor === 1 ? n.value : n.value * factor, basis: 'elapsed', column: cElapsed.label };
   }
   if (cDateTime && !isBlank(cells[cDateTime.index])) {
     const d = readDate(cells[cDateTime.index], order, date1904);

@@ -82,7 +82,7 @@ export function parseLevelCell(cell: Cell | undefined, sep: DecimalSeparator): P
   if (cell.kind === 'number') return ok({ kind: 'value', value: cell.raw as number });
   const text = cellText(cell);
   if (cell.kind !== 'text') return fail(`"${cell.text}" is not a level`);
-  const m = /^(<|&lt;|≤|<=|=<)\s*(.+)$/.exec(text);
+  const m = /^(<=|=<|<|&lt;|≤)\s*(.+)$/.exec(text);
   if (m) {
     const n = parseNumberText(m[2], sep);
     if (n.ok) return ok({ kind: 'censored', limit: n.value, text });

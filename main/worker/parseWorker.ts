@@ -8,6 +8,8 @@ import { WorkbookError } from '../../engine/import/workbook.js';
 import { TemplateError } from '../../engine/import/roles.js';
 import { validateParseRequest, type ParseResponse } from '../services/importProtocol.js';
 import { DEFAULT_MAX_FILE_BYTES } from './limits.js';
+import * as path from 'node:path';
+import { fileURLToPath } from 'node:url';
 
 interface ElectronParentPort {
   on(event: 'message', listener: (e: { data: unknown }) => void): void;
@@ -38,5 +40,7 @@ export function handleParseMessage(raw: unknown): ParseResponse {
   }
 }
 
+// Listen only when started as the worker (imported by a test runner that has IPC of its own, stay quiet).
+const isEntry = process.argv[1] !== undefined && path.resolve(process.argv[1]) === fileURLToPath(import.meta.url);
 if (parentPort) parentPort.on('message', (e) => send(handleParseMessage(e.data)));
-else if (process.send) process.on('message', (m) => send(handleParseMessage(m)));
+else if (isEntry && process.send) process.on('message', (m) => send(handleParseMessage(m)));
