@@ -152,6 +152,14 @@ def oral(t, a, ss=None):
     return {"time_h": t, "amount_mg": a, "route": "oral", "duration_h": 0, **({"ss_interval_h": ss} if ss else {})}
 
 
+def _alpha_2cmt(cl, v1, q, v2):
+    k10, k12, k21 = cl / v1, q / v1, q / v2
+    s = k10 + k12 + k21
+    return (s + math.sqrt(s * s - 4 * k10 * k21)) / 2
+
+
+ALPHA_2CMT = _alpha_2cmt(3, 15, 6, 40)
+
 MIXED_DOSES = [
     bolus(0, 500),
     inf(8, 1000, 2),
@@ -186,6 +194,14 @@ CASES = [
      "params": [4, 50, 0.8, 3.0, 0.9],
      "doses": [oral(5, 100, 2)],
      "times": [5, 5.5, 6, 7, 8, 9, 12, 20]},
+    {"name": "1cmt oral with ka equal to CL/V", "model": "1cmt",
+     "params": [4, 50, 0.08, 0.0, 1.0],
+     "doses": [oral(0, 500), oral(12, 500)],
+     "times": [0.5, 2, 6, 12, 13, 24, 48, 96]},
+    {"name": "2cmt oral with ka equal to the fast rate alpha", "model": "2cmt",
+     "params": [3, 15, 6, 40, ALPHA_2CMT, 0.2, 0.8],
+     "doses": [oral(0, 400), oral(8, 400, None)],
+     "times": [0.1, 0.5, 1, 3, 8, 9, 16, 30]},
     {"name": "1cmt-mm bolus and overlapping infusions", "model": "1cmt-mm",
      "params": [30, 5, 40, float("nan"), float("nan"), float("nan")],
      "doses": [bolus(0, 300), inf(6, 400, 4), inf(8, 200, 1)],
