@@ -81,8 +81,14 @@ export function regimenDoses(regimen: Regimen, startH: number, count: number): D
 
 const GRID = 16;
 
+/** At most this many draws (evenly spaced) enter the curve bands: enough for 2.5 % tails. */
+const MAX_CURVE_DRAWS = 2000;
+
 export function forecast(input: ForecastInput): Forecast {
-  const { prior, history, etaDraws, nDraws } = input;
+  const { prior, history } = input;
+  const stride = Math.max(1, Math.ceil(input.nDraws / MAX_CURVE_DRAWS));
+  const nDraws = Math.floor(input.nDraws / stride);
+  const etaDraws = stride === 1 ? input.etaDraws : thin(input.etaDraws, prior.nEta, stride, nDraws);
   const d = prior.nEta;
   const nIntervals = input.regimen ? (input.nIntervals ?? 3) : 0;
   const tau = input.regimen?.intervalH ?? 0;
@@ -156,6 +162,12 @@ export function forecast(input: ForecastInput): Forecast {
   const result: Forecast = { curve, futureDoses, intervals };
   if (input.belowMgL !== undefined && lastHistory) result.timeBelow = timeToFallBelow(prior, history, etaDraws, nDraws, input.belowMgL, input.belowHorizonH ?? 120);
   return result;
+}
+
+function thin(eta: Float64Array, d: number, stride: number, n: number): Float64Array {
+  const out = new Float64Array(n * d);
+  for (let k = 0; k < n; k++) for (let i = 0; i < d; i++) out[k * d + i] = eta[k * stride * d + i];
+  return out;
 }
 
 /** Time after the end of the last given dose (no further dose) for the level to fall below `levelMgL`. */

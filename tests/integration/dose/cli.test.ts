@@ -1,0 +1,116 @@
+import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import * as os from 'node:os';
+import * as path from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { runCli } from '../../../main/cli/run.js';
+
+const ROOT = path.resolve(__dirname, '../../..');
+const EXAMPLE_MODEL = path.join(ROOT, 'resources/models/example-vancomycin-1cmt.json');
+const PATIENT = path.join(__dirname, 'fixtures/patient-vanco.json');
+const CAUTION = JSON.parse(readFileSync(path.join(ROOT, 'resources/cautions/dosing.json'), 'utf8')).text as string;
+
+function io(cwd: string) {
+  const out: string[] = [];
+  const err: string[] = [];
+  return { io: { stdout: (t: string) => out.push(t), stderr: (t: string) => err.push(t), cwd }, out: () => out.join(''), err: () => err.join('') };
+}
+
+// A model spec with its source and ranges (invented values, for this test only).
+const SPEC = {
+  name: 'integration-test model (invented values)',
+  source: 'invented for the integration test',
+  structure: '1cmt',
+  parameters: { CL: { typical: 3.5, bsv: 0.35 }, V: { typical: 50, bsv: 0.25 } },
+  covariates: [
+    { parameter: 'CL', covariate: 'crcl_mL_min', relation: 'power', reference: 80, coefficient: 0.75, fixed: true },
+    { parameter: 'V', covariate: 'WT', relation: 'power', reference: 70, coefficient: 1, fixed: true },
+  ],
+  residual: { model: 'combined', a: 1, b: 0.15 },
+  covariateRanges: { crcl_mL_min: [20, 150], WT: [40, 130] },
+};
+
+describe('plateau dose', () => {
+  const dir = mkdtempSync(path.join(os.tmpdir(), 'plateau-dose-'));
+  writeFileSync(path.join(dir, 'model.json'), JSON.stringify(SPEC));
+
+  it('prints the posterior, ranked regimens and the caution, and writes advice.json per the contract', async () => {
+    const t = io(dir);
+    const code = await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', '--out', 'advice.json', '--seed', '4'], t.io);
+    expect(t.err()).toBe('');
+    expect(code).toBe(0);
+    const text = t.out();
+    expect(text.startsWith('CAUTION')).toBe(true);
+    expect(text.trim().endsWith('check local protocol.')).toBe(true);
+    expect(text).toContain('Posterior (2000 draws');
+    expect(text).toContain('Ranked regimens');
+    expect(text).toContain('Rybak');
+    const a = JSON.parse(readFileSync(path.join(dir, 'advice.json'), 'utf8'));
+    for (const k of ['map', 'mean', 'sd', 'q05', 'q95']) expect(a.posterior[k]).toHaveProperty('CL');
+    expect(a.regimens[0]).toHaveProperty('doseMg');
+    expect(a.regimens[0]).toHaveProperty('intervalH');
+    expect(a.regimens[0]).toHaveProperty('durationH');
+    expect(a.regimens[0]).toHaveProperty('pTarget');
+    expect(a.regimens[0]).toHaveProperty('pToxic');
+    expect(a.regimens[0].metrics.auc24).toHaveProperty('q975');
+    expect(Array.isArray(a.warnings)).toBe(true);
+    expect(a.caution).toBe(CAUTION);
+    expect(a.model).toMatchObject({ kind: 'model spec', source: 'invented for the integration test' });
+    expect(a.model.covariatesUsed.WT).toBe('weight_kg (as WT)');
+    expect(a.seed).toBe(4);
+    expect(a.engineVersion).toBe('0.1.0');
+    expect(a.patient.clockOrigin).toBe('2026-03-02T08:00');
+  });
+
+  it('--evaluate returns the one regimen; --json prints the same JSON', async () => {
+    const t = io(dir);
+    const code = await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', '--evaluate', '1250mg q12h 1.5h', '--json'], t.io);
+    expect(code).toBe(0);
+    const a = JSON.parse(t.out());
+    expect(a.regimens).toHaveLength(1);
+    expect(a.regimens[0]).toMatchObject({ doseMg: 1250, intervalH: 12, durationH: 1.5 });
+    expect(a.caution).toBe(CAUTION);
+  });
+
+  it('refuses to advise with an example model (exit 1) and shows the table only on request', async () => {
+    const t = io(dir);
+    expect(await runCli(['dose', '--model', EXAMPLE_MODEL, '--patient', PATIENT, '--target', 'vancomycin-auc24', '--out', 'blocked.json'], t.io)).toBe(1);
+    expect(t.out()).toContain('BLOCKED: NO DOSE ADVICE');
+    expect(t.out()).toContain('CAUTION');
+    expect(t.out()).not.toContain('Ranked regimens');
+    const a = JSON.parse(readFileSync(path.join(dir, 'blocked.json'), 'utf8'));
+    expect(a.status).toBe('blocked');
+    expect(a.regimens).toEqual([]);
+    const t2 = io(dir);
+    expect(await runCli(['dose', '--model', EXAMPLE_MODEL, '--patient', PATIENT, '--target', 'vancomycin-auc24', '--override-blocks'], t2.io)).toBe(0);
+    expect(t2.out()).toContain('BLOCKED (regimens shown on request');
+    expect(t2.out()).toContain('Ranked regimens');
+  });
+
+  it('without --target evaluates the current regimen only', async () => {
+    const t = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--json'], t.io)).toBe(0);
+    const a = JSON.parse(t.out());
+    expect(a.regimens).toHaveLength(1);
+    expect(a.regimens[0]).toMatchObject({ doseMg: 1000, intervalH: 12, durationH: 1 });
+    expect(a.warnings.some((w: { code: string }) => w.code === 'no-target')).toBe(true);
+  });
+
+  it('reports bad input clearly', async () => {
+    writeFileSync(path.join(dir, 'bad.json'), JSON.stringify({ id: 'b', covariates: { weight_lb: 150 }, doses: [{ time_h: 0, amount_mg: 1000, duration_h: 2 }, { time_h: 1, amount_mg: 1000, duration_h: 1 }], levels: [] }));
+    const t = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', 'bad.json', '--target', 'vancomycin-auc24'], t.io)).toBe(1);
+    expect(t.err()).toContain('bad.json');
+    expect(t.err()).toContain('covariates.weight_lb: unknown unit');
+    expect(t.err()).toContain('overlapping');
+    const t2 = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'no-such-target'], t2.io)).toBe(1);
+    expect(t2.err()).toContain('vancomycin-auc24');
+    const t3 = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--evaluate', '1000 q12h'], t3.io)).toBe(2);
+    expect(t3.err()).toContain('cannot read the regimen');
+    writeFileSync(path.join(dir, 'nocov.json'), JSON.stringify({ id: 'n', covariates: { weight_kg: 70 }, doses: [{ time_h: 0, amount_mg: 1000, duration_h: 1 }] }));
+    const t4 = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', 'nocov.json', '--target', 'vancomycin-auc24'], t4.io)).toBe(1);
+    expect(t4.err()).toContain('crcl_mL_min');
+  });
+});

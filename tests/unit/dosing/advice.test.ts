@@ -1,0 +1,225 @@
+import { readdirSync, readFileSync } from 'node:fs';
+import * as path from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { adviseDose, type AdviceOptions } from '../../../engine/dosing/advise.js';
+import { parsePatient } from '../../../engine/dosing/patient.js';
+import { loadPopulationModel, populationModelFromSpec, PopulationModelError } from '../../../engine/dosing/population.js';
+import { PriorError } from '../../../engine/dosing/prior.js';
+import { parseTarget, TargetError } from '../../../engine/dosing/targets.js';
+import { checkRenalChange } from '../../../engine/dosing/warnings.js';
+import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+
+const ROOT = path.resolve(__dirname, '../../..');
+const SPEC = {
+  name: 'unit-test model (invented values)',
+  source: 'invented for unit tests',
+  structure: '1cmt',
+  parameters: { CL: { typical: 3.5, bsv: 0.35 }, V: { typical: 50, bsv: 0.25 } },
+  covariates: [{ parameter: 'CL', covariate: 'crcl_mL_min', relation: 'power', reference: 80, coefficient: 0.75, fixed: true }],
+  residual: { model: 'combined', a: 1, b: 0.15 },
+  covariateRanges: { crcl_mL_min: [20, 150], weight_kg: [40, 130] },
+};
+const PATIENT = {
+  id: 'u1',
+  covariates: { weight_kg: 82, age_y: 64, sex: 'M', scr_mg_dL: 1.1 },
+  doses: [0, 12, 24].map((t) => ({ time_h: t, amount_mg: 1000, duration_h: 1, route: 'iv' })),
+  levels: [
+    { time_h: 23.5, conc_mg_L: 12 },
+    { time_h: 26, conc_mg_L: 30 },
+  ],
+};
+const TARGET = parseTarget(JSON.parse(readFileSync(path.join(ROOT, 'resources/targets/vancomycin-auc24.json'), 'utf8')));
+
+function run(over: Partial<AdviceOptions> & { spec?: object; patient?: object } = {}) {
+  const { spec, patient, ...rest } = over;
+  return adviseDose({
+    population: populationModelFromSpec(parseModelSpec(spec ?? SPEC)),
+    patient: parsePatient(patient ?? PATIENT),
+    target: TARGET,
+    caution: 'CAUTION (test)',
+    seed: 11,
+    engineVersion: 'test',
+    nDraws: 1000,
+    ...rest,
+  });
+}
+
+describe('resources', () => {
+  it('every target preset parses, names its source and says "check local protocol"', () => {
+    const dir = path.join(ROOT, 'resources/targets');
+    const files = readdirSync(dir).filter((f) => f.endsWith('.json'));
+    expect(files.length).toBeGreaterThanOrEqual(3);
+    for (const f of files) {
+      const t = parseTarget(JSON.parse(readFileSync(path.join(dir, f), 'utf8')));
+      expect(t.id).toBe(f.replace(/\.json$/, ''));
+      expect(t.source.length).toBeGreaterThan(20);
+      expect(t.localProtocol).toMatch(/check local protocol/);
+      expect(t.regimen).toBeDefined();
+    }
+  });
+
+  it('the caution text exists once and the example models are labelled not for clinical use', () => {
+    const c = JSON.parse(readFileSync(path.join(ROOT, 'resources/cautions/dosing.json'), 'utf8'));
+    expect(c.text).toMatch(/decision support/);
+    for (const f of readdirSync(path.join(ROOT, 'resources/models'))) {
+      const m = loadPopulationModel(JSON.parse(readFileSync(path.join(ROOT, 'resources/models', f), 'utf8')));
+      expect(`${m.provenance.name} ${m.provenance.source}`).toMatch(/example, not for clinical use/);
+    }
+  });
+
+  it('target files are validated with their paths', () => {
+    expect(() => parseTarget({ id: 'x', label: 'x', source: 's', goals: [{ metric: 'auc', min: 1 }], toxic: [{ metric: 'trough', min: 2 }] })).toThrow(TargetError);
+    try {
+      parseTarget({ id: 'x', label: 'x', source: 's', goals: [{ metric: 'auc24', min: 4, perMic: true }], toxic: [] });
+    } catch (e) {
+      expect((e as TargetError).problems.join()).toContain('micMgL');
+    }
+  });
+});
+
+describe('adviseDose', () => {
+  it('gives the documented advice fields, ranked best first, always with the caution', () => {
+    const a = run();
+    expect(a.status).toBe('advice');
+    expect(a.caution).toBe('CAUTION (test)');
+    for (const k of ['map', 'mean', 'sd', 'q05', 'q95']) expect(Object.keys((a.posterior as unknown as Record<string, object>)[k])).toEqual(['CL', 'V']);
+    expect(a.regimens.length).toBeGreaterThan(10);
+    const score = (r: (typeof a.regimens)[0]) => r.pTarget - (r.pToxic ?? 0);
+    for (let i = 1; i < a.regimens.length; i++) expect(score(a.regimens[i - 1])).toBeGreaterThanOrEqual(score(a.regimens[i]) - 0.005);
+    expect(a.regimens[0].explanation).toMatch(/plausible versions of this patient/);
+    const b = a.regimens[0].metrics.auc24!;
+    expect(b.q025 <= b.q10 && b.q10 <= b.median && b.median <= b.q90 && b.q90 <= b.q975).toBe(true);
+    expect(a.model).toMatchObject({ kind: 'model spec', source: 'invented for unit tests', structure: '1cmt' });
+    expect(a.posterior.diagnostics.method).toBe('mcmc');
+    expect(a.forecast!.intervals).toHaveLength(3);
+    const c = a.forecast!.curve;
+    for (let i = 0; i < c.timesH.length; i++) expect(c.q025[i] <= c.median[i] && c.median[i] <= c.q975[i]).toBe(true);
+  });
+
+  it('is reproducible from the seed and changes with it', () => {
+    const a = JSON.stringify(run());
+    expect(JSON.stringify(run())).toBe(a);
+    expect(JSON.stringify(run({ seed: 12 }))).not.toBe(a);
+  });
+
+  it('draws from the prior when there are no levels, and says so', () => {
+    const a = run({ patient: { ...PATIENT, levels: [] } });
+    expect(a.posterior.diagnostics.method).toBe('prior');
+    expect(a.posterior.map.CL).toBeCloseTo(a.posterior.typical.CL, 10);
+    expect(a.warnings.some((w) => w.code === 'no-levels' && w.severity === 'flag')).toBe(true);
+  });
+
+  it('evaluates one given regimen as the only entry of regimens', () => {
+    const a = run({ evaluate: { doseMg: 1250, intervalH: 12, durationH: 1.5, route: 'infusion' } });
+    expect(a.regimens).toHaveLength(1);
+    expect(a.regimens[0]).toMatchObject({ doseMg: 1250, intervalH: 12, durationH: 1.5 });
+  });
+
+  it('blocks advice for a patient outside the model covariate range, and shows it only on request', () => {
+    const patient = { ...PATIENT, covariates: { ...PATIENT.covariates, scr_mg_dL: 6 } }; // CrCl about 14 mL/min
+    const a = run({ patient });
+    expect(a.status).toBe('blocked');
+    expect(a.regimens).toEqual([]);
+    expect(a.forecast).toBeNull();
+    expect(a.warnings[0]).toMatchObject({ severity: 'block', code: 'covariate-out-of-range' });
+    expect(a.warnings[0].message).toContain('crcl_mL_min');
+    const shown = run({ patient, overrideBlocks: true });
+    expect(shown.status).toBe('blocked-shown-on-request');
+    expect(shown.regimens.length).toBeGreaterThan(0);
+  });
+
+  it('blocks on a level wildly inconsistent with the model and flags a level drawn during an infusion', () => {
+    const a = run({ patient: { ...PATIENT, levels: [{ time_h: 23.5, conc_mg_L: 400 }, { time_h: 24.5, conc_mg_L: 30 }] } });
+    expect(a.warnings.some((w) => w.code === 'level-inconsistent' && w.severity === 'block')).toBe(true);
+    expect(a.warnings.some((w) => w.code === 'level-during-infusion')).toBe(true);
+    expect(a.status).toBe('blocked');
+  });
+
+  it('blocks an example model', () => {
+    const a = run({ spec: { ...SPEC, source: 'example, not for clinical use' } });
+    expect(a.warnings.some((w) => w.code === 'example-model' && w.severity === 'block')).toBe(true);
+  });
+
+  it('refuses a patient without a covariate the model needs, and notes covariates it ignores', () => {
+    expect(() => run({ patient: { ...PATIENT, covariates: { weight_kg: 80 } } })).toThrow(PriorError);
+    try {
+      run({ patient: { ...PATIENT, covariates: { weight_kg: 80 } } });
+    } catch (e) {
+      expect((e as Error).message).toContain('crcl_mL_min');
+    }
+    const a = run();
+    expect(a.warnings.find((w) => w.code === 'covariate-unused')?.message).toContain('age_y');
+  });
+
+  it('refuses to advise without the caution text', () => {
+    expect(() => run({ caution: ' ' })).toThrow(/caution/);
+  });
+
+  it('suggests loading doses rounded to the strength', () => {
+    const a = run({ loadingDose: true });
+    for (const r of a.regimens.slice(0, 5)) {
+      expect(r.loadingDoseMg! % 250).toBe(0);
+      expect(r.loadingDoseMg!).toBeGreaterThanOrEqual(r.doseMg);
+    }
+  });
+
+  it('works with a two-compartment model with parameters without BSV', () => {
+    const m = loadPopulationModel(JSON.parse(readFileSync(path.join(ROOT, 'resources/models/example-aminoglycoside-2cmt.json'), 'utf8')));
+    const t = parseTarget(JSON.parse(readFileSync(path.join(ROOT, 'resources/targets/aminoglycoside-peak-mic.json'), 'utf8')));
+    const p = parsePatient({ id: 'g', covariates: { weight_kg: 70, age_y: 50, sex: 'F', scr_mg_dL: 0.9 }, doses: [{ time_h: 0, amount_mg: 400, duration_h: 0.5 }], levels: [{ time_h: 1, conc_mg_L: 18 }, { time_h: 8, conc_mg_L: 3.5 }] });
+    const a = adviseDose({ population: m, patient: p, target: t, caution: 'c', seed: 1, engineVersion: 't', nDraws: 1000, overrideBlocks: true, belowMgL: 1 });
+    expect(Object.keys(a.posterior.map)).toEqual(['CL', 'V1', 'Q', 'V2']);
+    expect(a.posterior.sd.Q).toBe(0);
+    expect(a.regimens[0].metrics.peakAt).toBeDefined();
+    expect(a.forecast!.timeBelow!.hours.median).toBeGreaterThan(0);
+    expect(a.regimens.every((r) => r.intervalH >= 24)).toBe(true);
+  });
+});
+
+describe('population model from a fit', () => {
+  const fit = {
+    format: 'plateau-fit',
+    engineVersion: '0.1.0',
+    seed: 3,
+    dataHash: 'sha256:abc',
+    spec: { ...SPEC, covariateRanges: undefined, source: undefined, covariates: [{ parameter: 'CL', covariate: 'crcl_mL_min', relation: 'power', reference: 80, coefficient: 0.5 }] },
+    population: [
+      { parameter: 'CL', kind: 'typical', estimate: 4.2, fixed: false },
+      { parameter: 'V', kind: 'typical', estimate: 61, fixed: false },
+      { parameter: 'CL', kind: 'covariate', covariate: 'crcl_mL_min', estimate: 0.81, fixed: false },
+      { parameter: 'CL', kind: 'bsv', estimate: 0.22, fixed: false },
+      { parameter: 'V', kind: 'bsv', estimate: 0.18, fixed: false },
+      { parameter: 'a', kind: 'residual', estimate: 0.7, fixed: false },
+      { parameter: 'b', kind: 'residual', estimate: 0.11, fixed: false },
+    ],
+    individual: [],
+    trajectory: {},
+    timing: {},
+    warnings: [],
+  };
+  it('replaces the spec values by the estimates and records provenance; unknown ranges are warned', () => {
+    const m = loadPopulationModel(fit);
+    expect(m.provenance).toMatchObject({ kind: 'site fit', dataHash: 'sha256:abc', engineVersion: '0.1.0', seed: 3 });
+    expect(m.spec.parameters.CL).toMatchObject({ typical: 4.2, bsv: 0.22 });
+    expect(m.spec.parameters.V).toMatchObject({ typical: 61, bsv: 0.18 });
+    expect(m.spec.covariates[0].coefficient).toBe(0.81);
+    expect(m.spec.residual).toMatchObject({ a: 0.7, b: 0.11 });
+    expect(m.covariateRanges).toBeNull();
+    expect(m.warnings.join()).toContain('covariate ranges');
+    const withRanges = loadPopulationModel({ ...fit, covariateRanges: { crcl_mL_min: [30, 140] } });
+    expect(withRanges.covariateRanges).toEqual({ crcl_mL_min: [30, 140] });
+  });
+  it('rejects entries that do not match the spec', () => {
+    expect(() => loadPopulationModel({ ...fit, population: [...fit.population, { parameter: 'Q', kind: 'typical', estimate: 1 }] })).toThrow(PopulationModelError);
+  });
+});
+
+describe('renal change', () => {
+  // KDIGO 2012 AKI criteria (from memory): a rise >= 0.3 mg/dL within 48 h, or >= 1.5 x baseline.
+  it('flags a creatinine rise and a marked fall, not small changes', () => {
+    expect(checkRenalChange([{ timeH: 0, scrMgDl: 1.0 }, { timeH: 24, scrMgDl: 1.35 }])[0]?.code).toBe('renal-change');
+    expect(checkRenalChange([{ timeH: 0, scrMgDl: 1.0 }, { timeH: 100, scrMgDl: 1.6 }])[0]?.code).toBe('renal-change');
+    expect(checkRenalChange([{ timeH: 0, scrMgDl: 2.1 }, { timeH: 48, scrMgDl: 1.2 }])[0]?.message).toContain('fell');
+    expect(checkRenalChange([{ timeH: 0, scrMgDl: 1.0 }, { timeH: 24, scrMgDl: 1.1 }])).toEqual([]);
+  });
+});

@@ -1,0 +1,72 @@
+import { describe, expect, it } from 'vitest';
+import { formatRegimen, parseRegimen, rankRegimens, RegimenParseError, regimenGrid, type RegimenResult } from '../../../engine/dosing/regimens.js';
+import { bandOf, quantileSorted } from '../../../engine/dosing/summary.js';
+import { createStreams } from '../../../engine/rng/index.js';
+
+describe('parseRegimen (--evaluate)', () => {
+  it('reads dose, interval, infusion duration and a loading dose', () => {
+    expect(parseRegimen('1000mg q12h 1h')).toEqual({ doseMg: 1000, intervalH: 12, durationH: 1, route: 'infusion' });
+    expect(parseRegimen('1 g q24h over 30 min')).toEqual({ doseMg: 1000, intervalH: 24, durationH: 0.5, route: 'infusion' });
+    expect(parseRegimen('load 2000mg then 1250 mg q8h 2h')).toEqual({ doseMg: 1250, intervalH: 8, durationH: 2, route: 'infusion', loadingDoseMg: 2000 });
+    expect(parseRegimen('500 mg every 6 hours bolus')).toEqual({ doseMg: 500, intervalH: 6, durationH: 0, route: 'bolus' });
+    expect(parseRegimen('250mg q12h oral').route).toBe('oral');
+  });
+
+  it('refuses what it cannot read, saying what is missing', () => {
+    expect(() => parseRegimen('1000 q12h 1h')).toThrow(/dose amount/);
+    expect(() => parseRegimen('1000mg 1h')).toThrow(/interval/);
+    expect(() => parseRegimen('1000mg q12h')).toThrow(/duration/);
+    expect(() => parseRegimen('1000mg q12h 13h')).toThrow(/shorter than the interval/);
+    expect(() => parseRegimen('1000mg q12h 1h please')).toThrow(RegimenParseError);
+  });
+
+  it('formats regimens in plain words', () => {
+    expect(formatRegimen(parseRegimen('ld 2g 1000mg q12h 30min'))).toBe('loading dose 2000 mg, then 1000 mg every 12 h over 30 min');
+  });
+});
+
+describe('regimenGrid', () => {
+  it('rounds doses to the strength within min/max and applies the rate and daily limits', () => {
+    const g = regimenGrid({ strengthMg: 250, minDoseMg: 600, maxDoseMg: 1500, intervalsH: [12, 24], durationsH: [1, 2], maxRateMgPerH: 1000, maxDailyDoseMg: 2500 });
+    expect(new Set(g.map((r) => r.doseMg))).toEqual(new Set([750, 1000, 1250, 1500]));
+    for (const r of g) {
+      expect(r.doseMg / r.durationH).toBeLessThanOrEqual(1000);
+      expect((r.doseMg * 24) / r.intervalH).toBeLessThanOrEqual(2500);
+    }
+    // The shortest duration the rate allows: 1250 mg -> 2 h; 1000 mg -> 1 h.
+    expect(g.find((r) => r.doseMg === 1250)?.durationH).toBe(2);
+    expect(g.find((r) => r.doseMg === 1000)?.durationH).toBe(1);
+    expect(g.some((r) => r.doseMg === 1500 && r.intervalH === 12)).toBe(false);
+  });
+});
+
+describe('rankRegimens', () => {
+  const r = (doseMg: number, intervalH: number, pTarget: number, pToxic: number): RegimenResult => ({ doseMg, intervalH, durationH: 1, route: 'infusion', dailyDoseMg: (doseMg * 24) / intervalH, pTarget, pToxic, metrics: {}, failedDraws: 0 });
+  it('puts the highest P(target) - P(toxic) first, ties to lower toxicity then the current interval', () => {
+    const ranked = rankRegimens([r(500, 12, 0.5, 0.1), r(1000, 12, 0.8, 0.3), r(750, 12, 0.7, 0.05), r(1500, 24, 0.7, 0.05)], 12);
+    expect(ranked.map((x) => [x.doseMg, x.intervalH])).toEqual([
+      [750, 12],
+      [1500, 24],
+      [1000, 12],
+      [500, 12],
+    ]);
+  });
+});
+
+describe('bandOf', () => {
+  it('gives the same quantiles as a full sort (type 7), ties and NaNs included', () => {
+    const rng = createStreams(3).stream('band');
+    for (const n of [1, 2, 7, 100, 2001]) {
+      const v = new Float64Array(n);
+      for (let i = 0; i < n; i++) v[i] = i % 5 === 0 ? 1 : Math.exp(rng.normal());
+      if (n > 10) v[3] = NaN;
+      const finite = Float64Array.from(Array.from(v).filter(Number.isFinite)).sort();
+      const b = bandOf(v, new Float64Array(n));
+      expect(b.median).toBe(quantileSorted(finite, 0.5));
+      expect(b.q025).toBe(quantileSorted(finite, 0.025));
+      expect(b.q10).toBe(quantileSorted(finite, 0.1));
+      expect(b.q90).toBe(quantileSorted(finite, 0.9));
+      expect(b.q975).toBe(quantileSorted(finite, 0.975));
+    }
+  });
+});
