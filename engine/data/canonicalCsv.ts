@@ -32,71 +32,80 @@ export interface CsvRecord {
  */
 export function parseCsvRecords(text: string, problems: DataProblem[]): CsvRecord[] {
   const records: CsvRecord[] = [];
+  const n = text.length;
   let i = text.charCodeAt(0) === 0xfeff ? 1 : 0;
   let line = 1;
-  const n = text.length;
+  const COMMA = 44, LF = 10, CR = 13, QUOTE = 34;
   while (i < n) {
     const start = line;
     const fields: string[] = [];
     const quoted: boolean[] = [];
-    let field = '';
-    let wasQuoted = false;
-    let done = false;
     let bad = false;
-    while (!done) {
-      wasQuoted = false;
-      if (i < n && text[i] === '"') {
+    for (;;) {
+      let field: string;
+      let wasQuoted = false;
+      if (text.charCodeAt(i) === QUOTE) {
         wasQuoted = true;
         i++;
-        let closed = false;
-        while (i < n) {
-          const c = text[i];
-          if (c === '"') {
-            if (text[i + 1] === '"') {
-              field += '"';
-              i += 2;
-              continue;
-            }
-            i++;
-            closed = true;
+        field = '';
+        for (;;) {
+          const q = text.indexOf('"', i);
+          if (q < 0) {
+            problems.push({ row: start, message: 'a quoted field is never closed (a " is missing); check the quotes on this line' });
+            return records;
+          }
+          const chunk = text.slice(i, q);
+          for (let k = chunk.indexOf('\n'); k >= 0; k = chunk.indexOf('\n', k + 1)) line++;
+          field += chunk;
+          if (text.charCodeAt(q + 1) === QUOTE) {
+            field += '"';
+            i = q + 2;
+          } else {
+            i = q + 1;
             break;
           }
-          if (c === '\n') line++;
-          field += c;
-          i++;
-        }
-        if (!closed) {
-          problems.push({ row: start, message: 'a quoted field is never closed (a " is missing); check the quotes on this line' });
-          return records;
         }
         // After a closing quote only a separator or the end of the record may follow.
-        let junk = '';
-        while (i < n && text[i] !== ',' && text[i] !== '\n' && text[i] !== '\r') junk += text[i++];
+        let j = i;
+        while (j < n) {
+          const c = text.charCodeAt(j);
+          if (c === COMMA || c === LF || c === CR) break;
+          j++;
+        }
+        const junk = text.slice(i, j);
         if (junk.trim() !== '' && !bad) {
           bad = true;
           problems.push({ row: start, message: `text ${JSON.stringify(junk)} after a closing quote; quote the whole field` });
         }
+        i = j;
       } else {
-        while (i < n && text[i] !== ',' && text[i] !== '\n' && text[i] !== '\r') field += text[i++];
-      }
-      if (i >= n) done = true;
-      else if (text[i] === ',') i++;
-      else {
-        if (text[i] === '\r' && text[i + 1] === '\n') i++;
-        i++;
-        line++;
-        done = true;
+        let j = i;
+        while (j < n) {
+          const c = text.charCodeAt(j);
+          if (c === COMMA || c === LF || c === CR) break;
+          j++;
+        }
+        field = text.slice(i, j);
+        i = j;
       }
       fields.push(field);
       quoted.push(wasQuoted);
-      field = '';
-      if (done) break;
-      if (i >= n) {
-        // A trailing comma at the very end of the text: one more empty field.
-        fields.push('');
-        quoted.push(false);
-        done = true;
+      if (i >= n) break;
+      const c = text.charCodeAt(i);
+      if (c === COMMA) {
+        i++;
+        if (i >= n) {
+          // A trailing comma at the very end of the text: one more empty field.
+          fields.push('');
+          quoted.push(false);
+          break;
+        }
+        continue;
       }
+      // End of record: LF, CR LF, or a lone CR.
+      i += c === CR && text.charCodeAt(i + 1) === LF ? 2 : 1;
+      line++;
+      break;
     }
     // Blank lines, and rows of empty cells that spreadsheets pad files with, are not records.
     if (fields.every((f) => f.trim() === '')) continue;
