@@ -168,7 +168,7 @@ export function normalQuantile(p: number): number {
   const x = as241(p);
   // One Halley step on Phi(x) - p, from the side whose tail is accurate.
   const e = x <= 0 ? normalCdf(x) - p : 1 - p - normalCdf(-x);
-  const u = x <= 0 ? e * SQRT_2PI / expHalfSquare(x) : -e * SQRT_2PI / expHalfSquare(x);
+  const u = (e * SQRT_2PI) / expHalfSquare(x);
   if (!Number.isFinite(u)) return x;
   return x - u / (1 + 0.5 * x * u);
 }
