@@ -194,13 +194,19 @@ export function logAbsDetFromLu(lu: Float64Array, n: number, piv: Int32Array): {
 
 /**
  * Inverse of a general square matrix by LU with partial pivoting. `out` must not alias `a`.
+ * `work` (n*n + 2n) and `piv` (n) are scratch, allocated when absent.
  * Returns false when A is singular to working precision.
  */
-export function inverse(a: Float64Array, n: number, out: Float64Array, work: Float64Array = new Float64Array(n * n + 2 * n)): boolean {
+export function inverse(
+  a: Float64Array,
+  n: number,
+  out: Float64Array,
+  work: Float64Array = new Float64Array(n * n + 2 * n),
+  piv: Int32Array = new Int32Array(n),
+): boolean {
   const lu = work.subarray(0, n * n);
   const col = work.subarray(n * n, n * n + n);
   const x = work.subarray(n * n + n, n * n + 2 * n);
-  const piv = new Int32Array(n);
   if (!luDecompose(a, n, lu, piv)) return false;
   for (let j = 0; j < n; j++) {
     col.fill(0);
