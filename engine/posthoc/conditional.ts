@@ -1,0 +1,345 @@
+/**
+ * Conditional distribution of each subject's random effects at the population estimate,
+ * p(eta_i | y_i; theta_hat), by Metropolis-Hastings (Robert & Casella, Monte Carlo Statistical
+ * Methods, 2nd ed. 2004, ch. 7, from memory) with two moves per iteration, both scaled by the
+ * Laplace covariance C_i at the mode: an independent multivariate Student-t proposal centred at
+ * the mode, and a random walk N(eta, s^2 C_i) with s adapted during warm-up towards 30 %
+ * acceptance (start 2.38 / sqrt(d), Gelman, Roberts & Gilks 1996). The chain runs in batches
+ * until the running means and SDs settle (compared with their values at half the length) or
+ * the cap is reached; a thinned reservoir of draws is kept for quantiles, Louis' formula and
+ * dosing. Shrinkage: Savic & Karlsson 2009 (1 - SD(eta_mode) / omega and the variance
+ * version); per subject, var(eta_i | y_i) / omega^2 (Xu et al. 2012, from memory).
+ */
+import { cholesky } from '../linalg/index.js';
+import { createStreams, type RngStream } from '../rng/index.js';
+import type { SubjectDensity } from './density.js';
+import { logGamma, quantileSorted } from './distributions.js';
+import { list, type ModeResult } from './modes.js';
+
+export interface ConditionalOptions {
+  seed: number;
+  /** Warm-up iterations (scale adaptation; not used for the summaries). */
+  warmup: number;
+  /** Iterations per batch between settle checks. */
+  batch: number;
+  /** Minimum batches after warm-up. */
+  minBatches: number;
+  /** Cap on iterations after warm-up. */
+  maxIterations: number;
+  /** Settled when every running mean moved by less than tol x SD and every SD by less than tol (relative). */
+  tolerance: number;
+  /** Draws kept per subject (evenly thinned). */
+  keepDraws: number;
+  /** Degrees of freedom of the independent proposal. */
+  proposalDf: number;
+}
+
+export const DEFAULT_CONDITIONAL: Readonly<ConditionalOptions> = Object.freeze({
+  seed: 1,
+  warmup: 100,
+  batch: 100,
+  minBatches: 4,
+  maxIterations: 5000,
+  tolerance: 0.1,
+  keepDraws: 200,
+  proposalDf: 5,
+});
+
+export interface ConditionalResult {
+  nEta: number;
+  /** Conditional mean of eta, N x nEta. */
+  mean: Float64Array;
+  /** Conditional covariance of eta, N x nEta x nEta. */
+  covariance: Float64Array;
+  /** Natural-scale conditional mean and SD of each parameter, N x nParams. */
+  meanNatural: Float64Array;
+  sdNatural: Float64Array;
+  /** Natural-scale 2.5 %, 50 %, 97.5 % quantiles, N x nParams each. */
+  q025: Float64Array;
+  q50: Float64Array;
+  q975: Float64Array;
+  /** Kept draws of eta, N x keepDraws x nEta (the first nKept[i] of subject i are valid). */
+  draws: Float64Array;
+  keepDraws: number;
+  nKept: Int32Array;
+  /** Iterations after warm-up. */
+  iterations: Int32Array;
+  settled: Uint8Array;
+  /** Acceptance rate of the random-walk and independent moves, per subject. */
+  acceptanceRandomWalk: Float64Array;
+  acceptanceIndependent: Float64Array;
+  warnings: string[];
+}
+
+/** Multivariate Student-t draw: x = m + L z sqrt(df / chi2_df); returns log q(x) up to the normalising constant shared by all draws. */
+export function drawStudentT(rng: RngStream, m: ArrayLike<number>, chol: Float64Array, d: number, df: number, z: Float64Array, out: Float64Array): number {
+  let chi = 0;
+  for (let k = 0; k < df; k++) {
+    const g = rng.normal();
+    chi += g * g;
+  }
+  for (let k = 0; k < d; k++) z[k] = rng.normal();
+  const w = Math.sqrt(df / chi);
+  let q = 0;
+  for (let r = 0; r < d; r++) {
+    let v = 0;
+    for (let c = 0; c <= r; c++) v += chol[r * d + c] * z[c];
+    out[r] = m[r] + w * v;
+    q += z[r] * z[r] * w * w;
+  }
+  return -0.5 * (df + d) * Math.log1p(q / df);
+}
+
+/** log q(x) of the Student-t with location m and scale L L' (same constant as drawStudentT); z is scratch. */
+export function logStudentTKernel(x: ArrayLike<number>, m: ArrayLike<number>, chol: Float64Array, d: number, df: number, z: Float64Array): number {
+  let q = 0;
+  for (let r = 0; r < d; r++) {
+    let s = x[r] - m[r];
+    for (let c = 0; c < r; c++) s -= chol[r * d + c] * z[c];
+    z[r] = s / chol[r * d + r];
+    q += z[r] * z[r];
+  }
+  return -0.5 * (df + d) * Math.log1p(q / df);
+}
+
+/** Normalising constant of the multivariate t density with scale L L'. */
+export function logStudentTConstant(chol: Float64Array, d: number, df: number): number {
+  let logDet = 0;
+  for (let k = 0; k < d; k++) logDet += Math.log(chol[k * d + k]);
+  return logGamma((df + d) / 2) - logGamma(df / 2) - 0.5 * d * Math.log(df * Math.PI) - logDet;
+}
+
+export function conditionalDistribution(density: SubjectDensity, modes: ModeResult, options: Partial<ConditionalOptions> = {}): ConditionalResult {
+  const o = { ...DEFAULT_CONDITIONAL, ...options };
+  const model = density.model;
+  const N = model.nSubjects;
+  const d = density.nEta;
+  const p = model.nParams;
+  const K = o.keepDraws;
+  const res: ConditionalResult = {
+    nEta: d,
+    mean: new Float64Array(N * d),
+    covariance: new Float64Array(N * d * d),
+    meanNatural: new Float64Array(N * p),
+    sdNatural: new Float64Array(N * p),
+    q025: new Float64Array(N * p),
+    q50: new Float64Array(N * p),
+    q975: new Float64Array(N * p),
+    draws: new Float64Array(N * K * d),
+    keepDraws: K,
+    nKept: new Int32Array(N),
+    iterations: new Int32Array(N),
+    settled: new Uint8Array(N),
+    acceptanceRandomWalk: new Float64Array(N),
+    acceptanceIndependent: new Float64Array(N),
+    warnings: [],
+  };
+  const root = createStreams(o.seed);
+  let maxObs = 0;
+  for (const s of model.subjects) maxObs = Math.max(maxObs, s.nObs);
+  const f = new Float64Array(maxObs);
+  const cur = new Float64Array(d);
+  const prop = new Float64Array(d);
+  const z = new Float64Array(d);
+  const chol = new Float64Array(d * d);
+  const sum = new Float64Array(d);
+  const sumSq = new Float64Array(d * d);
+  const maxChecks = Math.ceil(o.maxIterations / o.batch) + 1;
+  const checkMean = new Float64Array(maxChecks * d);
+  const checkSd = new Float64Array(maxChecks * d);
+  const phiRow = new Float64Array(p);
+  const natRow = new Float64Array(p);
+  const natSum = new Float64Array(p);
+  const natSq = new Float64Array(p);
+  const sortBuf = new Float64Array(K);
+  const unsettled: string[] = [];
+  const mode = new Float64Array(d);
+
+  for (let i = 0; i < N; i++) {
+    const rng = root.stream('posthoc', 'conditional', i);
+    const fi = f.subarray(0, model.subjects[i].nObs);
+    for (let k = 0; k < d; k++) mode[k] = modes.eta[i * d + k];
+    const natBase = i * p;
+    if (d === 0) {
+      density.phiOf(i, cur, phiRow);
+      model.toNatural(phiRow, natRow);
+      for (let j = 0; j < p; j++) {
+        res.meanNatural[natBase + j] = res.q025[natBase + j] = res.q50[natBase + j] = res.q975[natBase + j] = natRow[j];
+      }
+      res.settled[i] = 1;
+      continue;
+    }
+    chol.set(modes.laplaceCovariance.subarray(i * d * d, (i + 1) * d * d));
+    if (!cholesky(chol, d, chol)) {
+      chol.set(density.theta.omega);
+      cholesky(chol, d, chol);
+    }
+    cur.set(mode);
+    let lp = density.logJoint(i, cur, fi);
+    let lqCur = logStudentTKernel(cur, mode, chol, d, o.proposalDf, z);
+    let scale = 2.38 / Math.sqrt(d);
+    let accRw = 0, accInd = 0, n = 0;
+    sum.fill(0);
+    sumSq.fill(0);
+    let stride = 1;
+    let kept = 0;
+    let checks = 0;
+    let settled = false;
+    const drawBase = i * K * d;
+    const total = o.warmup + o.maxIterations;
+    for (let it = 0; it < total; it++) {
+      // Independent Student-t move from the Laplace approximation.
+      const lqProp = drawStudentT(rng, mode, chol, d, o.proposalDf, z, prop);
+      const lpProp = density.logJoint(i, prop, fi);
+      if (lpProp > -Infinity && Math.log(rng.uniform()) < lpProp - lp + lqCur - lqProp) {
+        cur.set(prop);
+        lp = lpProp;
+        lqCur = lqProp;
+        if (it >= o.warmup) accInd++;
+      }
+      // Random walk N(eta, s^2 C).
+      for (let k = 0; k < d; k++) z[k] = rng.normal();
+      for (let r = 0; r < d; r++) {
+        let v = 0;
+        for (let c = 0; c <= r; c++) v += chol[r * d + c] * z[c];
+        prop[r] = cur[r] + scale * v;
+      }
+      const lpRw = density.logJoint(i, prop, fi);
+      const accepted = lpRw > -Infinity && Math.log(rng.uniform()) < lpRw - lp;
+      if (accepted) {
+        cur.set(prop);
+        lp = lpRw;
+        lqCur = logStudentTKernel(cur, mode, chol, d, o.proposalDf, z);
+      }
+      if (it < o.warmup) {
+        scale *= accepted ? 1.05 : 0.98;
+        continue;
+      }
+      if (accepted) accRw++;
+      n++;
+      for (let r = 0; r < d; r++) {
+        sum[r] += cur[r];
+        for (let c = 0; c <= r; c++) sumSq[r * d + c] += cur[r] * cur[c];
+      }
+      // Reservoir with doubling stride: keeps at most K evenly spaced draws.
+      if ((n - 1) % stride === 0) {
+        if (kept === K) {
+          for (let q = 0; q < K / 2; q++) for (let k = 0; k < d; k++) res.draws[drawBase + q * d + k] = res.draws[drawBase + 2 * q * d + k];
+          kept = K >> 1;
+          stride *= 2;
+        }
+        if ((n - 1) % stride === 0) {
+          for (let k = 0; k < d; k++) res.draws[drawBase + kept * d + k] = cur[k];
+          kept++;
+        }
+      }
+      if (n % o.batch === 0) {
+        for (let r = 0; r < d; r++) {
+          const m = sum[r] / n;
+          checkMean[checks * d + r] = m;
+          checkSd[checks * d + r] = Math.sqrt(Math.max(0, sumSq[r * d + r] / n - m * m));
+        }
+        checks++;
+        if (checks >= o.minBatches) {
+          const h = (checks >> 1) - 1;
+          let ok = true;
+          for (let r = 0; r < d && ok; r++) {
+            const sdNow = checkSd[(checks - 1) * d + r];
+            if (Math.abs(checkMean[(checks - 1) * d + r] - checkMean[h * d + r]) > o.tolerance * sdNow) ok = false;
+            if (Math.abs(sdNow / checkSd[h * d + r] - 1) > o.tolerance) ok = false;
+          }
+          if (ok) {
+            settled = true;
+            break;
+          }
+        }
+      }
+    }
+    res.iterations[i] = n;
+    res.settled[i] = settled ? 1 : 0;
+    if (!settled) unsettled.push(model.subjects[i].id);
+    res.nKept[i] = kept;
+    res.acceptanceRandomWalk[i] = n > 0 ? accRw / n : NaN;
+    res.acceptanceIndependent[i] = n > 0 ? accInd / n : NaN;
+    for (let r = 0; r < d; r++) {
+      const m = sum[r] / n;
+      res.mean[i * d + r] = m;
+      for (let c = 0; c <= r; c++) {
+        const v = sumSq[r * d + c] / n - m * (sum[c] / n);
+        res.covariance[i * d * d + r * d + c] = res.covariance[i * d * d + c * d + r] = v * n / Math.max(1, n - 1);
+      }
+    }
+    // Natural-scale summaries from the kept draws.
+    natSum.fill(0);
+    natSq.fill(0);
+    for (let q = 0; q < kept; q++) {
+      density.phiOf(i, res.draws.subarray(drawBase + q * d, drawBase + (q + 1) * d), phiRow);
+      model.toNatural(phiRow, natRow);
+      for (let j = 0; j < p; j++) (natSum[j] += natRow[j]), (natSq[j] += natRow[j] * natRow[j]);
+    }
+    for (let j = 0; j < p; j++) {
+      const m = natSum[j] / kept;
+      res.meanNatural[natBase + j] = m;
+      res.sdNatural[natBase + j] = Math.sqrt(Math.max(0, (natSq[j] / kept - m * m) * kept / Math.max(1, kept - 1)));
+      const k = model.parameters[j].etaIndex;
+      if (k < 0) {
+        density.phiOf(i, res.draws.subarray(drawBase, drawBase + d), phiRow);
+        model.toNatural(phiRow, natRow);
+        res.q025[natBase + j] = res.q50[natBase + j] = res.q975[natBase + j] = natRow[j];
+        res.sdNatural[natBase + j] = 0;
+        continue;
+      }
+      // The transforms are monotone: quantiles of psi are psi of the quantiles of eta.
+      for (let q = 0; q < kept; q++) sortBuf[q] = res.draws[drawBase + q * d + k];
+      const view = sortBuf.subarray(0, kept).sort();
+      for (const [target, prob] of [[res.q025, 0.025], [res.q50, 0.5], [res.q975, 0.975]] as const) {
+        const e = quantileSorted(view, kept, prob);
+        phiRow[j] = density.meanPhi[i * p + j] + e;
+        model.toNatural(phiRow, natRow);
+        target[natBase + j] = natRow[j];
+      }
+    }
+  }
+  if (unsettled.length)
+    res.warnings.push(
+      `conditional distribution: the running means and SDs of subject(s) ${list(unsettled)} had not settled after ${o.maxIterations} iterations; their conditional means, SDs and quantiles are less precise (raise the cap)`,
+    );
+  return res;
+}
+
+export interface Shrinkage {
+  /** Per random effect: 1 - SD(eta_mode) / omega (Savic & Karlsson 2009). */
+  etaSd: number[];
+  /** Per random effect: 1 - var(eta_mode) / omega^2. */
+  etaVariance: number[];
+  /** Same with the conditional means instead of the modes. */
+  etaSdConditionalMean: number[];
+  /** Per subject and random effect: var(eta_i | y_i) / omega^2, N x nEta. */
+  individual: Float64Array;
+}
+
+function sampleSd(x: ArrayLike<number>, n: number, stride: number, offset: number): number {
+  let s = 0, s2 = 0;
+  for (let i = 0; i < n; i++) {
+    const v = x[i * stride + offset];
+    s += v;
+    s2 += v * v;
+  }
+  const m = s / n;
+  return Math.sqrt(Math.max(0, (s2 - n * m * m) / Math.max(1, n - 1)));
+}
+
+export function etaShrinkage(density: SubjectDensity, modes: ModeResult, conditional: ConditionalResult): Shrinkage {
+  const N = density.model.nSubjects;
+  const d = density.nEta;
+  const out: Shrinkage = { etaSd: [], etaVariance: [], etaSdConditionalMean: [], individual: new Float64Array(N * d) };
+  for (let k = 0; k < d; k++) {
+    const omega = Math.sqrt(density.theta.omega[k * d + k]);
+    const sdMode = sampleSd(modes.eta, N, d, k);
+    out.etaSd.push(1 - sdMode / omega);
+    out.etaVariance.push(1 - (sdMode * sdMode) / (omega * omega));
+    out.etaSdConditionalMean.push(1 - sampleSd(conditional.mean, N, d, k) / omega);
+    for (let i = 0; i < N; i++) out.individual[i * d + k] = conditional.covariance[i * d * d + k * d + k] / (omega * omega);
+  }
+  return out;
+}

@@ -1,0 +1,370 @@
+/**
+ * Diagnostics data at the estimate.
+ * - PRED: prediction at the population mean (eta = 0, covariates included); IPRED: at the
+ *   conditional mode; IWRES = (y - IPRED) / g(IPRED) (log-additive: on the log scale).
+ *   epsilon-shrinkage = 1 - SD(IWRES) (Savic & Karlsson 2009).
+ * - NPDE by simulation with decorrelation (Brendel et al. 2006, Pharm Res 23:2036-2049; Comets,
+ *   Brendel & Mentre 2008; from memory): K datasets simulated from the model; per subject the
+ *   observed and simulated vectors are decorrelated with the Cholesky factor of the simulated
+ *   covariance, pde = share of simulated decorrelated values below the observed one (kept in
+ *   [1/K, 1 - 1/K]), npde = Phi^-1(pde). Levels below the LLOQ: pde drawn uniformly on
+ *   [0, P(Y < LLOQ)] and the level imputed from the simulated distribution at that pde before
+ *   decorrelation (Nguyen, Comets & Mentre 2012, J Pharmacokinet Pharmacodyn 39:499-518, from memory).
+ * - VPC: observation times cut into bins of about equal counts; per bin the observed 5th, 50th
+ *   and 95th percentiles against the 90 % prediction interval of each percentile over the K
+ *   simulated replicates, and the share below the LLOQ; censored values rank below every
+ *   quantified one and a percentile that falls among them is reported as null (below the LLOQ).
+ *   Prediction-corrected option (Bergstrand et al. 2011, AAPS J 13:143-151): Y x PRED_bin / PRED_ij,
+ *   PRED_bin the median PRED of the bin.
+ */
+import { cholesky } from '../linalg/index.js';
+import { createStreams } from '../rng/index.js';
+import { normalQuantile } from '../rng/index.js';
+import { residualSd } from '../stats/residual.js';
+import type { SubjectDensity } from './density.js';
+import { quantileSorted } from './distributions.js';
+import { list, type ModeResult } from './modes.js';
+import { npdeTests, type NpdeTests } from './normality.js';
+
+export interface DiagnosticsOptions {
+  seed: number;
+  /** Simulated replicates (NPDE and VPC); default from the dataset size. */
+  replicates?: number;
+  /** Upper bound on the number of VPC bins. */
+  vpcBins: number;
+  /** Coverage of the prediction intervals of the VPC percentiles. */
+  piLevel: number;
+}
+
+export const DEFAULT_DIAGNOSTICS: Readonly<DiagnosticsOptions> = Object.freeze({ seed: 1, vpcBins: 8, piLevel: 0.9 });
+
+export interface ObservationDiagnostics {
+  subject: string;
+  timeH: number;
+  /** Level (mg/L); for censored levels the LLOQ. */
+  dv: number;
+  censored: boolean;
+  pred: number | null;
+  ipred: number | null;
+  iwres: number | null;
+  npde: number | null;
+  /** For censored levels: the imputed level used in the NPDE. */
+  imputed?: number;
+}
+
+export interface PercentileBand {
+  lo: number | null;
+  median: number | null;
+  hi: number | null;
+}
+
+export interface VpcBin {
+  timeLowH: number;
+  timeHighH: number;
+  /** Median observation time in the bin. */
+  timeMidH: number;
+  n: number;
+  observed: { p5: number | null; p50: number | null; p95: number | null };
+  simulated: { p5: PercentileBand; p50: PercentileBand; p95: PercentileBand };
+  censoredFraction: { observed: number; simulated: PercentileBand };
+}
+
+export interface VpcData {
+  predictionCorrected: boolean;
+  replicates: number;
+  piLevel: number;
+  bins: VpcBin[];
+}
+
+export interface DiagnosticsResult {
+  observations: ObservationDiagnostics[];
+  epsilonShrinkage: number | null;
+  npde: { replicates: number; censoredMethod: string; tests: NpdeTests | null };
+  vpc: VpcData;
+  pcVpc: VpcData;
+  warnings: string[];
+}
+
+/** Default replicates: 1000 for small datasets, fewer for large ones (at least 200). */
+export function defaultReplicates(nObsTotal: number): number {
+  return Math.max(200, Math.min(1000, Math.round(1e6 / Math.max(1, nObsTotal) / 100) * 100));
+}
+
+const num = (x: number): number | null => (Number.isFinite(x) ? x : null);
+
+export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, options: Partial<DiagnosticsOptions> = {}): DiagnosticsResult {
+  const o = { ...DEFAULT_DIAGNOSTICS, ...options };
+  const model = density.model;
+  const theta = density.theta;
+  const rm = model.residualModel;
+  const N = model.nSubjects;
+  const d = density.nEta;
+  const p = model.nParams;
+  const K = o.replicates ?? defaultReplicates(model.nObsTotal);
+  const warnings: string[] = [];
+  const nObs = model.nObsTotal;
+  const offset = new Int32Array(N + 1);
+  for (let i = 0; i < N; i++) offset[i + 1] = offset[i] + model.subjects[i].nObs;
+  const pred = new Float64Array(nObs);
+  const ipred = new Float64Array(nObs);
+  const iwres = new Float64Array(nObs).fill(NaN);
+  const npde = new Float64Array(nObs).fill(NaN);
+  const imputed = new Float64Array(nObs).fill(NaN);
+  // Simulations: obs-major per subject, sims[offset*K + k*n + o].
+  const sims = new Float64Array(nObs * K);
+  const zero = new Float64Array(d);
+  const etaDraw = new Float64Array(d);
+  const z = new Float64Array(d);
+  const phi = new Float64Array(p);
+  const chol = new Float64Array(d * d);
+  if (d > 0) cholesky(theta.omega, d, chol);
+  const root = createStreams(o.seed);
+  let failedSims = 0;
+  let singular: string[] = [];
+  let maxObs = 0;
+  for (const s of model.subjects) maxObs = Math.max(maxObs, s.nObs);
+  const f = new Float64Array(maxObs);
+  const cov = new Float64Array(maxObs * maxObs);
+  const L = new Float64Array(maxObs * maxObs);
+  const meanY = new Float64Array(maxObs);
+  const yObs = new Float64Array(maxObs);
+  const dec = new Float64Array(maxObs);
+  const decSims = new Float64Array(maxObs * K);
+  const col = new Float64Array(K);
+
+  for (let i = 0; i < N; i++) {
+    const s = model.subjects[i];
+    const n = s.nObs;
+    if (n === 0) continue;
+    const fi = f.subarray(0, n);
+    const base = offset[i];
+    // PRED, IPRED, IWRES.
+    density.phiOf(i, zero, phi);
+    const okPred = model.predict(i, phi, fi);
+    for (let q = 0; q < n; q++) pred[base + q] = okPred ? fi[q] : NaN;
+    const okIpred = model.predict(i, modes.phi.subarray(i * p, (i + 1) * p), fi);
+    for (let q = 0; q < n; q++) {
+      const ip = okIpred ? fi[q] : NaN;
+      ipred[base + q] = ip;
+      if (s.censored[q] || !Number.isFinite(ip)) continue;
+      if (rm === 'log-additive') iwres[base + q] = ip > 0 && s.y[q] > 0 ? (Math.log(s.y[q]) - Math.log(ip)) / theta.a : NaN;
+      else iwres[base + q] = (s.y[q] - ip) / residualSd(rm, theta.a, theta.b, ip);
+    }
+    // Simulate K replicates of the subject.
+    const rng = root.stream('posthoc', 'simulate', i);
+    const simBase = base * K;
+    for (let k = 0; k < K; k++) {
+      let ok = false;
+      for (let attempt = 0; attempt < 10 && !ok; attempt++) {
+        for (let c = 0; c < d; c++) z[c] = rng.normal();
+        for (let r = 0; r < d; r++) {
+          let v = 0;
+          for (let c = 0; c <= r; c++) v += chol[r * d + c] * z[c];
+          etaDraw[r] = v;
+        }
+        density.phiOf(i, etaDraw, phi);
+        ok = model.predict(i, phi, fi);
+      }
+      for (let q = 0; q < n; q++) {
+        let y = NaN;
+        if (ok) {
+          const e = rng.normal();
+          y = rm === 'log-additive' ? fi[q] * Math.exp(theta.a * e) : fi[q] + residualSd(rm, theta.a, theta.b, fi[q]) * e;
+        }
+        sims[simBase + k * n + q] = y;
+      }
+      if (!ok) failedSims++;
+    }
+    // NPDE: impute censored levels (Nguyen et al. 2012), then decorrelate.
+    for (let q = 0; q < n; q++) {
+      yObs[q] = s.y[q];
+      if (!s.censored[q]) continue;
+      let below = 0, valid = 0;
+      for (let k = 0; k < K; k++) {
+        const v = sims[simBase + k * n + q];
+        if (v === v) (valid++, v < s.lloqMgL[q] && below++);
+      }
+      const pLoq = valid > 0 ? below / valid : 0;
+      const u = rng.uniform() * pLoq;
+      let m = 0;
+      for (let k = 0; k < K; k++) {
+        const v = sims[simBase + k * n + q];
+        if (v === v) col[m++] = v;
+      }
+      const sorted = col.subarray(0, m).sort();
+      yObs[q] = m > 0 ? quantileSorted(sorted, m, Math.max(0, Math.min(1, u))) : s.lloqMgL[q];
+      imputed[base + q] = yObs[q];
+    }
+    let nValid = 0;
+    meanY.fill(0);
+    for (let k = 0; k < K; k++) {
+      if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
+      nValid++;
+      for (let q = 0; q < n; q++) meanY[q] += sims[simBase + k * n + q];
+    }
+    for (let q = 0; q < n; q++) meanY[q] /= nValid;
+    cov.fill(0);
+    for (let k = 0; k < K; k++) {
+      if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
+      for (let r = 0; r < n; r++) {
+        const dr = sims[simBase + k * n + r] - meanY[r];
+        for (let c = 0; c <= r; c++) cov[r * n + c] += dr * (sims[simBase + k * n + c] - meanY[c]);
+      }
+    }
+    for (let r = 0; r < n; r++) for (let c = 0; c <= r; c++) cov[r * n + c] = cov[c * n + r] = cov[r * n + c] / Math.max(1, nValid - 1);
+    let decorrelated = cholesky(cov, n, L);
+    if (!decorrelated) {
+      // Without decorrelation (a level with no variability, e.g. a zero prediction under
+      // proportional error): standardise each level by its own SD instead.
+      singular.push(s.id);
+      L.fill(0);
+      for (let q = 0; q < n; q++) L[q * n + q] = Math.sqrt(Math.max(cov[q * n + q], 1e-300));
+    }
+    const solve = (x: Float64Array, xOff: number, out: Float64Array, outOff: number) => {
+      for (let r = 0; r < n; r++) {
+        let v = x[xOff + r] - meanY[r];
+        for (let c = 0; c < r; c++) v -= L[r * n + c] * out[outOff + c];
+        out[outOff + r] = v / L[r * n + r];
+      }
+    };
+    solve(yObs, 0, dec, 0);
+    for (let k = 0; k < K; k++) solve(sims, simBase + k * n, decSims, k * n);
+    for (let q = 0; q < n; q++) {
+      let below = 0, valid = 0;
+      for (let k = 0; k < K; k++) {
+        const v = decSims[k * n + q];
+        if (v === v) (valid++, v < dec[q] && below++);
+      }
+      if (valid === 0) continue;
+      const pde = Math.min(1 - 1 / valid, Math.max(1 / valid, below / valid));
+      npde[base + q] = normalQuantile(pde);
+    }
+  }
+  if (failedSims) warnings.push(`simulation: ${failedSims} simulated subject profile(s) had no valid prediction after 10 draws and are left out of the NPDE and VPC`);
+  if (singular.length) warnings.push(`NPDE: the simulated covariance of subject(s) ${list(singular)} is singular; their levels are standardised without decorrelation`);
+
+  let sIw = 0, sIw2 = 0, nIw = 0;
+  for (let q = 0; q < nObs; q++) if (Number.isFinite(iwres[q])) (nIw++, (sIw += iwres[q]), (sIw2 += iwres[q] * iwres[q]));
+  const sdIw = nIw > 1 ? Math.sqrt((sIw2 - (sIw * sIw) / nIw) / (nIw - 1)) : NaN;
+
+  const observations: ObservationDiagnostics[] = [];
+  for (let i = 0; i < N; i++) {
+    const s = model.subjects[i];
+    for (let q = 0; q < s.nObs; q++) {
+      const g = offset[i] + q;
+      const rec: ObservationDiagnostics = { subject: s.id, timeH: s.timesH[q], dv: s.y[q], censored: s.censored[q] === 1, pred: num(pred[g]), ipred: num(ipred[g]), iwres: num(iwres[g]), npde: num(npde[g]) };
+      if (Number.isFinite(imputed[g])) rec.imputed = imputed[g];
+      observations.push(rec);
+    }
+  }
+  const tests = nObs >= 3 ? npdeTests(npde) : null;
+  const vpcInput = { model, offset, sims, K, pred, piLevel: o.piLevel, maxBins: o.vpcBins };
+  return {
+    observations,
+    epsilonShrinkage: num(1 - sdIw),
+    npde: { replicates: K, censoredMethod: 'censored levels: pde drawn on [0, P(Y < LLOQ)] and the level imputed from the simulated distribution (Nguyen, Comets & Mentre 2012)', tests },
+    vpc: vpcData(vpcInput, false),
+    pcVpc: vpcData(vpcInput, true),
+    warnings,
+  };
+}
+
+/** Bin edges over sorted times with about equal counts; identical times stay in one bin. */
+export function binEdges(sortedTimes: ArrayLike<number>, n: number, maxBins: number): number[] {
+  const edges: number[] = [sortedTimes[0]];
+  for (let b = 1; b < maxBins; b++) {
+    const t = sortedTimes[Math.min(n - 1, Math.floor((b * n) / maxBins))];
+    if (t > edges[edges.length - 1]) edges.push(t);
+  }
+  edges.push(Infinity);
+  return edges;
+}
+
+interface VpcInput {
+  model: SubjectDensity['model'];
+  offset: Int32Array;
+  sims: Float64Array;
+  K: number;
+  pred: Float64Array;
+  piLevel: number;
+  maxBins: number;
+}
+
+function percentileOf(values: Float64Array, n: number, nCensored: number, q: number): number {
+  // values: sorted, censored ones first as -Infinity.
+  const v = quantileSorted(values, n, q);
+  return nCensored > 0 && (q * (n - 1) < nCensored) ? NaN : v;
+}
+
+function band(x: Float64Array, m: number, level: number): PercentileBand {
+  let k = 0;
+  const buf = new Float64Array(m);
+  for (let i = 0; i < m; i++) if (x[i] === x[i]) buf[k++] = x[i];
+  if (k === 0) return { lo: null, median: null, hi: null };
+  const s = buf.subarray(0, k).sort();
+  return { lo: num(quantileSorted(s, k, (1 - level) / 2)), median: num(quantileSorted(s, k, 0.5)), hi: num(quantileSorted(s, k, (1 + level) / 2)) };
+}
+
+function vpcData(input: VpcInput, corrected: boolean): VpcData {
+  const { model, offset, sims, K, pred, piLevel, maxBins } = input;
+  const nObs = model.nObsTotal;
+  const times = new Float64Array(nObs);
+  const subjOf = new Int32Array(nObs);
+  for (let i = 0; i < model.nSubjects; i++)
+    for (let q = 0; q < model.subjects[i].nObs; q++) {
+      times[offset[i] + q] = model.subjects[i].timesH[q];
+      subjOf[offset[i] + q] = i;
+    }
+  const order = Array.from({ length: nObs }, (_, g) => g).sort((x, y) => times[x] - times[y]);
+  const sortedTimes = Float64Array.from(order, (g) => times[g]);
+  const edges = nObs > 0 ? binEdges(sortedTimes, nObs, maxBins) : [];
+  const bins: VpcBin[] = [];
+  for (let b = 0; b + 1 < edges.length; b++) {
+    const members = order.filter((g) => times[g] >= edges[b] && times[g] < edges[b + 1]);
+    const n = members.length;
+    if (n === 0) continue;
+    const predSorted = Float64Array.from(members, (g) => pred[g]).filter((x) => Number.isFinite(x)).sort();
+    const predBin = quantileSorted(predSorted, predSorted.length, 0.5);
+    const factor = (g: number) => (corrected && pred[g] > 0 && predBin > 0 ? predBin / pred[g] : 1);
+    const obs = new Float64Array(n);
+    let nc = 0;
+    members.forEach((g, m) => {
+      const i = subjOf[g];
+      const q = g - offset[i];
+      const s = model.subjects[i];
+      if (s.censored[q]) (nc++, (obs[m] = -Infinity));
+      else obs[m] = s.y[q] * factor(g);
+    });
+    obs.sort();
+    const simP = [new Float64Array(K), new Float64Array(K), new Float64Array(K)];
+    const simC = new Float64Array(K);
+    const buf = new Float64Array(n);
+    for (let k = 0; k < K; k++) {
+      let c = 0, valid = 0;
+      members.forEach((g) => {
+        const i = subjOf[g];
+        const q = g - offset[i];
+        const s = model.subjects[i];
+        const v = sims[offset[i] * K + k * s.nObs + q];
+        if (!(v === v)) return;
+        const lloq = s.lloqMgL[q];
+        if (lloq > 0 && v < lloq) (c++, (buf[valid++] = -Infinity));
+        else buf[valid++] = v * factor(g);
+      });
+      const sv = buf.subarray(0, valid).sort();
+      simC[k] = valid > 0 ? c / valid : NaN;
+      [0.05, 0.5, 0.95].forEach((pq, j) => (simP[j][k] = valid > 0 ? percentileOf(sv, valid, c, pq) : NaN));
+    }
+    const mid = members.map((g) => times[g]).sort((x, y) => x - y);
+    bins.push({
+      timeLowH: members.length ? times[members[0]] : edges[b],
+      timeHighH: times[members[n - 1]],
+      timeMidH: quantileSorted(mid, n, 0.5),
+      n,
+      observed: { p5: num(percentileOf(obs, n, nc, 0.05)), p50: num(percentileOf(obs, n, nc, 0.5)), p95: num(percentileOf(obs, n, nc, 0.95)) },
+      simulated: { p5: band(simP[0], K, piLevel), p50: band(simP[1], K, piLevel), p95: band(simP[2], K, piLevel) },
+      censoredFraction: { observed: nc / n, simulated: band(simC, K, piLevel) },
+    });
+  }
+  return { predictionCorrected: corrected, replicates: K, piLevel, bins };
+}

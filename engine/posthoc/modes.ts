@@ -1,0 +1,129 @@
+/**
+ * Conditional modes (MAP / empirical Bayes estimates) of each subject's random effects at the
+ * population estimate: argmax_eta log p(y_i | eta) + log N(eta; 0, Omega), by BFGS from the
+ * better of two starts (the estimator's conditional mean and eta = 0), and the Laplace
+ * covariance (minus the inverse Hessian of the log joint density at the mode), which the
+ * conditional sampler uses as its proposal scale.
+ */
+import { choleskyInverse, cholesky } from '../linalg/index.js';
+import type { SubjectDensity } from './density.js';
+import { centralHessian, createBfgs } from './optimize.js';
+
+export interface ModeResult {
+  nEta: number;
+  /** N x nEta. */
+  eta: Float64Array;
+  /** N x nParams, transformed scale. */
+  phi: Float64Array;
+  /** N x nParams, natural scale. */
+  natural: Float64Array;
+  /** N x nEta x nEta: Laplace covariance at the mode (the prior Omega where the Hessian failed). */
+  laplaceCovariance: Float64Array;
+  /** 1 where the Hessian at the mode was negative definite. */
+  laplaceOk: Uint8Array;
+  /** 1 where the optimiser converged. */
+  converged: Uint8Array;
+  /** log p(y_i, eta_mode). */
+  logJoint: Float64Array;
+  /** Laplace approximation of log p(y_i). */
+  logMarginalLaplace: Float64Array;
+  warnings: string[];
+}
+
+export interface ModeOptions {
+  /** Starting random effects, N x nEta (e.g. the estimator's conditional means); zeros otherwise. */
+  start?: Float64Array;
+}
+
+const LOG_2PI = Math.log(2 * Math.PI);
+
+export function conditionalModes(density: SubjectDensity, options: ModeOptions = {}): ModeResult {
+  const model = density.model;
+  const N = model.nSubjects;
+  const d = density.nEta;
+  const p = model.nParams;
+  const out: ModeResult = {
+    nEta: d,
+    eta: new Float64Array(N * d),
+    phi: new Float64Array(N * p),
+    natural: new Float64Array(N * p),
+    laplaceCovariance: new Float64Array(N * d * d),
+    laplaceOk: new Uint8Array(N),
+    converged: new Uint8Array(N),
+    logJoint: new Float64Array(N),
+    logMarginalLaplace: new Float64Array(N),
+    warnings: [],
+  };
+  let maxObs = 0;
+  for (const s of model.subjects) maxObs = Math.max(maxObs, s.nObs);
+  const f = new Float64Array(maxObs);
+  const bfgs = createBfgs(d);
+  const x = new Float64Array(d);
+  const best = new Float64Array(d);
+  const hess = new Float64Array(d * d);
+  const chol = new Float64Array(d * d);
+  const cov = new Float64Array(d * d);
+  const phiRow = new Float64Array(p);
+  const natRow = new Float64Array(p);
+  const unsettled: string[] = [];
+  const flat: string[] = [];
+  for (let i = 0; i < N; i++) {
+    const fi = f.subarray(0, model.subjects[i].nObs);
+    const objective = (e: Float64Array) => -density.logJoint(i, e, fi);
+    let bestF = Infinity;
+    let conv = false;
+    for (let start = 0; start < 2; start++) {
+      if (start === 0) {
+        if (!options.start) continue;
+        for (let k = 0; k < d; k++) x[k] = options.start[i * d + k];
+      } else x.fill(0);
+      const r = d > 0 ? bfgs.minimise(objective, x) : { fx: objective(x), converged: true };
+      if (r.fx < bestF) {
+        bestF = r.fx;
+        best.set(x);
+        conv = r.converged;
+      }
+    }
+    out.eta.set(best, i * d);
+    out.converged[i] = conv ? 1 : 0;
+    out.logJoint[i] = -bestF;
+    if (!conv) unsettled.push(model.subjects[i].id);
+    density.phiOf(i, best, phiRow);
+    out.phi.set(phiRow, i * p);
+    model.toNatural(phiRow, natRow);
+    out.natural.set(natRow, i * p);
+    // Laplace covariance: inverse of the Hessian of -log p(y, eta) at the mode.
+    let ok = false;
+    if (d > 0 && Number.isFinite(bestF)) {
+      x.set(best);
+      centralHessian(objective, x, hess, 1e-4);
+      for (let q = 0; q < d * d; q++) hess[q] = 0.5 * (hess[q] + hess[(q % d) * d + ((q / d) | 0)]);
+      if (cholesky(hess, d, chol)) {
+        choleskyInverse(chol, d, cov);
+        ok = true;
+        let logDetH = 0;
+        for (let k = 0; k < d; k++) logDetH += 2 * Math.log(chol[k * d + k]);
+        out.logMarginalLaplace[i] = -bestF + 0.5 * d * LOG_2PI - 0.5 * logDetH;
+      }
+    } else if (d === 0) {
+      ok = true;
+      out.logMarginalLaplace[i] = -bestF;
+    }
+    if (!ok) {
+      flat.push(model.subjects[i].id);
+      cov.set(density.theta.omega);
+      out.logMarginalLaplace[i] = NaN;
+    }
+    out.laplaceOk[i] = ok ? 1 : 0;
+    out.laplaceCovariance.set(d > 0 ? cov : [], i * d * d);
+  }
+  if (unsettled.length)
+    out.warnings.push(`conditional mode: the optimiser did not converge for subject(s) ${list(unsettled)}; their modes (and IPRED, IWRES) are the best point found`);
+  if (flat.length)
+    out.warnings.push(`conditional mode: the log density is not concave at the mode of subject(s) ${list(flat)}; their sampler uses Omega as its proposal scale and the linearisation skips them`);
+  return out;
+}
+
+export function list(ids: readonly string[]): string {
+  return ids.length <= 10 ? ids.join(', ') : `${ids.slice(0, 10).join(', ')} and ${ids.length - 10} more`;
+}
