@@ -152,7 +152,7 @@ export function adviseDose(o: AdviceOptions): Advice {
   const map = findMap(obj, prior);
   const draws = obj.nLevels === 0 ? drawPrior(prior, root.stream('dosing', 'prior-draws'), nDrawsWanted) : samplePosterior(obj, prior, map, root.stream('dosing', 'posterior'), { nDraws: nDrawsWanted });
   const nDraws = draws.nDraws;
-  warnings.push(...checkLevelTiming(patient.doses, patient.levels, prior.nEta));
+  warnings.push(...checkLevelTiming(patient.doses, patient.levels, prior.nEta, patient.levelKinds));
   if (obj.nLevels > 0) warnings.push(...checkSampler(map, draws.diagnostics, prior.etaNames));
   const ppc = checkPredictive(prior, obj, map, root.stream('dosing', 'predictive-check'));
   warnings.push(...ppc.warnings);

@@ -97,7 +97,7 @@ export function forecast(input: ForecastInput): Forecast {
   const doses = [...history, ...futureDoses];
   const lastHistory = history.length ? history[history.length - 1] : undefined;
   const endH = input.regimen ? input.startH + nIntervals * tau + 12 : Math.max(input.startH, (lastHistory ? lastHistory.timeH : 0) + 24);
-  const nPoints = input.nPoints ?? 241;
+  const nPoints = input.nPoints ?? 145;
   const times: number[] = [];
   for (let i = 0; i < nPoints; i++) times.push((endH * i) / (nPoints - 1));
   // Per-interval nodes: Simpson grids on [start, end of infusion] and [end of infusion, next dose].

@@ -29,6 +29,8 @@ export interface Patient {
   doses: Dose[];
   /** Sorted by time. */
   levels: Observation[];
+  /** What each level was meant to be ("trough", "peak"), aligned with `levels`; for timing checks. */
+  levelKinds: Array<LevelKind | undefined>;
   renal: RenalRecord[];
   /** Clock time of t = 0 when clock times were given (ISO local, no zone). */
   clockOrigin?: string;
@@ -36,6 +38,8 @@ export interface Patient {
   nextDoseH?: number;
   notes: PatientNote[];
 }
+
+export type LevelKind = 'trough' | 'peak';
 
 export class PatientError extends Error {
   readonly problems: readonly string[];
@@ -199,9 +203,14 @@ export function parsePatient(json: unknown): Patient {
 
   // Levels
   const levels: Observation[] = [];
+  const kindByRow = new Map<number, LevelKind>();
   (rawLevels ?? []).forEach((r, i) => {
     const at = `levels[${i}]`;
     if (!isRecord(r)) return void problems.push(`${at}: must be an object {time_h, conc_mg_L, censored}`);
+    if (r.kind !== undefined) {
+      if (r.kind === 'trough' || r.kind === 'peak') kindByRow.set(i + 1, r.kind);
+      else if (r.kind !== 'random') problems.push(`${at}.kind: must be "trough", "peak" or "random"`);
+    }
     const t = readTime(r, at);
     let conc = NaN;
     if (finite(r.conc_mg_L)) conc = r.conc_mg_L;
@@ -228,6 +237,7 @@ export function parsePatient(json: unknown): Patient {
     }
   });
   levels.sort((x, y) => x.timeH - y.timeH);
+  const levelKinds = levels.map((o) => kindByRow.get(o.sourceRow ?? 0));
   for (const o of levels) {
     const at = `levels[${(o.sourceRow ?? 0) - 1}]`;
     if (finite(o.timeH) && doses.length && o.timeH < firstDoseH && !doses[0].steadyStateIntervalH)
@@ -310,7 +320,7 @@ export function parsePatient(json: unknown): Patient {
   }
 
   if (problems.length) throw new PatientError(problems);
-  return { id, covariates, derived, doses, levels, renal, ...(clockOrigin ? { clockOrigin } : {}), ...(nextDoseH !== undefined ? { nextDoseH } : {}), notes };
+  return { id, covariates, derived, doses, levels, levelKinds, renal, ...(clockOrigin ? { clockOrigin } : {}), ...(nextDoseH !== undefined ? { nextDoseH } : {}), notes };
 }
 
 export function fmtH(h: number): string {

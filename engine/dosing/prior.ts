@@ -1,12 +1,12 @@
 /**
  * One patient's prior from the population model: phi = mu + beta . x + eta, eta ~ N(0, Omega),
- * psi = h(phi) (DESIGN.md §4, the model-spec semantics: power log(c / ref), linear c - ref,
- * categorical one shift per non-reference level). Built once per patient; `toModelVector` is
+ * psi = h(phi), with the shared spec semantics of engine/spec/individual.ts. Built once per patient; `toModelVector` is
  * the hot-loop map from eta to the structural model's parameter vector.
  */
 import type { CovariateValue } from '../data/types.js';
 import { cholesky, inverseSpd, logDetFromCholesky } from '../linalg/index.js';
 import type { PkParameterName, StructuralModel, Transform } from '../models/types.js';
+import { covariateShift, CovariateValueError, transformForward, transformInverse } from '../spec/individual.js';
 import type { ResidualModelId } from '../spec/modelSpec.js';
 import type { PopulationModel } from './population.js';
 
@@ -39,16 +39,6 @@ export interface PatientPrior {
   typical: Record<string, number>;
 }
 
-export function transformToNatural(t: Transform, phi: number): number {
-  return t === 'log' ? Math.exp(phi) : t === 'logit' ? 1 / (1 + Math.exp(-phi)) : phi;
-}
-
-export function transformToPhi(t: Transform, psi: number): number {
-  if (t === 'log') return psi > 0 ? Math.log(psi) : NaN;
-  if (t === 'logit') return psi > 0 && psi < 1 ? Math.log(psi / (1 - psi)) : NaN;
-  return psi;
-}
-
 export class PriorError extends Error {
   readonly problems: readonly string[];
   constructor(problems: readonly string[]) {
@@ -75,7 +65,7 @@ export function buildPatientPrior(population: PopulationModel, covariates: Reado
       problems.push(`parameters.${name}: not a parameter of ${model.id}`);
       continue;
     }
-    const p: PriorParameter = { name: name as PkParameterName, transform: ps.transform, modelIndex, etaIndex: ps.bsv !== null ? etaNames.length : -1, phiMean: transformToPhi(ps.transform, ps.typical) };
+    const p: PriorParameter = { name: name as PkParameterName, transform: ps.transform, modelIndex, etaIndex: ps.bsv !== null ? etaNames.length : -1, phiMean: transformForward(ps.transform, ps.typical) };
     if (ps.bsv !== null) etaNames.push(p.name);
     parameters.push(p);
     byName.set(name, p);
@@ -89,19 +79,19 @@ export function buildPatientPrior(population: PopulationModel, covariates: Reado
       continue;
     }
     if (c.relation === 'categorical') {
+      // An unlisted level would silently take the reference value: refuse it instead.
       const level = String(v);
       const coefs = c.coefficients ?? {};
-      if (level === String(c.reference)) continue;
-      if (!Object.prototype.hasOwnProperty.call(coefs, level)) {
+      if (level !== String(c.reference) && !Object.prototype.hasOwnProperty.call(coefs, level)) {
         problems.push(`covariate ${c.covariate} (on ${c.parameter}): level "${level}" is not one the model knows (reference "${c.reference}", others: ${Object.keys(coefs).join(', ') || 'none'})`);
         continue;
       }
-      p.phiMean += coefs[level];
-    } else if (typeof v !== 'number' || (c.relation === 'power' && !(v > 0))) {
-      problems.push(`covariate ${c.covariate} (on ${c.parameter}): ${JSON.stringify(v)} cannot enter a ${c.relation} relation (a number${c.relation === 'power' ? ' > 0' : ''} is needed)`);
-    } else {
-      const x = c.relation === 'power' ? Math.log(v / (c.reference as number)) : v - (c.reference as number);
-      p.phiMean += (c.coefficient ?? 0) * x;
+    }
+    try {
+      p.phiMean += covariateShift(c, v);
+    } catch (e) {
+      if (e instanceof CovariateValueError) problems.push(e.reason);
+      else throw e;
     }
   }
   const nEta = etaNames.length;
@@ -136,14 +126,14 @@ export function buildPatientPrior(population: PopulationModel, covariates: Reado
     for (let j = 0; j < parameters.length; j++) {
       const p = parameters[j];
       const phi = p.etaIndex >= 0 ? p.phiMean + eta[p.etaIndex] : p.phiMean;
-      const v = transformToNatural(p.transform, phi);
+      const v = transformInverse(p.transform, phi);
       if (!Number.isFinite(v)) return false;
       out[p.modelIndex] = v;
     }
     return true;
   };
   const typical: Record<string, number> = Object.create(null);
-  for (const p of parameters) typical[p.name] = transformToNatural(p.transform, p.phiMean);
+  for (const p of parameters) typical[p.name] = transformInverse(p.transform, p.phiMean);
   const res = spec.residual;
   return {
     model, parameters, nEta, etaNames, omega, omegaChol, omegaInv,

@@ -199,24 +199,43 @@ export function evaluateRegimens(input: EvaluationInput, regimens: readonly Regi
       for (let p = 0; p < nP; p++) ws.params[p] = draws[d * nP + p];
       ok[d] = unit.curve(ws.params, c.subarray(d * nT, (d + 1) * nT)) ? 1 : 0;
     }
+    // Unit-dose metrics and their bands: every dose-proportional metric of dose D is D times
+    // the unit value, so its quantiles are D times the unit quantiles (order is preserved).
+    const unitMetrics = new Float64Array(nDraws * nM);
+    for (let d = 0; d < nDraws; d++) {
+      if (!ok[d]) {
+        for (let j = 0; j < nM; j++) unitMetrics[d * nM + j] = NaN;
+        continue;
+      }
+      for (let p = 0; p < nP; p++) ws.params[p] = draws[d * nP + p];
+      unit.metricsFromCurve(c, d * nT, 1, ws.params, unitMetrics, d * nM);
+    }
+    const unitBands: Array<Band | undefined> = METRIC_IDS.map((id, j) => {
+      if (id === 'ftAbove') return undefined;
+      for (let d = 0; d < nDraws; d++) ws.column[d] = unitMetrics[d * nM + j];
+      return bandOf(ws.column, ws.scratch);
+    });
+    const ftIndex = METRIC_IDS.indexOf('ftAbove');
+    const one = new Float64Array(nM);
     for (const i of idx) {
       const r = regimens[i];
+      const D = r.doseMg;
       for (let d = 0; d < nDraws; d++) {
-        if (!ok[d]) {
-          for (let j = 0; j < nM; j++) ws.metrics[d * nM + j] = NaN;
-          continue;
+        for (let j = 0; j < nM; j++) ws.metrics[d * nM + j] = unitMetrics[d * nM + j] * D;
+        if (ok[d] && Number.isFinite(threshold)) {
+          for (let p = 0; p < nP; p++) ws.params[p] = draws[d * nP + p];
+          unit.metricsFromCurve(c, d * nT, D, ws.params, one, 0);
+          ws.metrics[d * nM + ftIndex] = one[ftIndex];
         }
-        for (let p = 0; p < nP; p++) ws.params[p] = draws[d * nP + p];
-        unit.metricsFromCurve(c, d * nT, r.doseMg, ws.params, ws.metrics, d * nM);
       }
-      out[i] = summarise(input, r, ws);
+      out[i] = summarise(input, r, ws, { bands: unitBands, scale: D });
     }
   }
   return out;
 }
 
 /** Probabilities and bands from the metrics in the workspace (NaN rows = failed draws). */
-function summarise(input: EvaluationInput, regimen: Regimen, w: EvaluationWorkspace): RegimenResult {
+function summarise(input: EvaluationInput, regimen: Regimen, w: EvaluationWorkspace, scaled?: { bands: Array<Band | undefined>; scale: number }): RegimenResult {
   const { nDraws, target } = input;
   const needed = metricsNeeded(target);
   const threshold = thresholdFor(target);
@@ -247,6 +266,12 @@ function summarise(input: EvaluationInput, regimen: Regimen, w: EvaluationWorksp
   METRIC_IDS.forEach((id, j) => {
     if (id === 'ftAbove' && !Number.isFinite(threshold)) return;
     if (id === 'peakAt' && !needed.has('peakAt') && target.peakDelayH === undefined) return;
+    const unitBand = scaled?.bands[j];
+    if (unitBand && scaled) {
+      const k = scaled.scale;
+      metrics[id] = roundBand({ median: unitBand.median * k, mean: unitBand.mean * k, q025: unitBand.q025 * k, q10: unitBand.q10 * k, q90: unitBand.q90 * k, q975: unitBand.q975 * k });
+      return;
+    }
     for (let d = 0; d < nDraws; d++) w.column[d] = m[d * nM + j];
     metrics[id] = roundBand(bandOf(w.column, w.scratch));
   });

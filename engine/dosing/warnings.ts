@@ -6,7 +6,7 @@
 import type { Dose, Observation } from '../data/types.js';
 import type { RngStream } from '../rng/index.js';
 import { residualSd } from '../stats/residual.js';
-import type { PatientNote, RenalRecord } from './patient.js';
+import type { LevelKind, PatientNote, RenalRecord } from './patient.js';
 import type { LevelObjective, MapResult, SamplerDiagnostics } from './posterior.js';
 import type { PatientPrior } from './prior.js';
 
@@ -34,7 +34,7 @@ export function checkCovariateRanges(values: ReadonlyMap<string, unknown>, range
 }
 
 /** Timing of levels against the dose history. */
-export function checkLevelTiming(doses: readonly Dose[], levels: readonly Observation[], nEta: number): AdviceWarning[] {
+export function checkLevelTiming(doses: readonly Dose[], levels: readonly Observation[], nEta: number, kinds: ReadonlyArray<LevelKind | undefined> = []): AdviceWarning[] {
   const out: AdviceWarning[] = [];
   if (levels.length === 0) {
     out.push({ severity: 'flag', code: 'no-levels', message: 'no measured levels: the advice rests on the population model alone; take levels as the protocol requires' });
@@ -49,6 +49,19 @@ export function checkLevelTiming(doses: readonly Dose[], levels: readonly Observ
     if (during) out.push({ severity: 'flag', code: 'level-during-infusion', message: `${at} was drawn during the infusion started at ${fmt(during.timeH)} h: check the sample time, and that it was not drawn from the infusion line` });
     if (doses.some((d) => d.timeH === o.timeH)) out.push({ severity: 'note', code: 'level-at-dose-time', message: `${at} is at a dose time: taken as drawn just before that dose (trough)` });
     const last = [...doses].reverse().find((d) => d.timeH < o.timeH);
+    const next = doses.find((d) => d.timeH >= o.timeH);
+    const kind = kinds[levels.indexOf(o)];
+    // A trough is drawn shortly before the next dose; a peak after the end of an infusion
+    // (common practice: within about 2 h before the dose, within about 3 h after the end).
+    if (kind === 'trough' && next && next.timeH - o.timeH > 2)
+      out.push({ severity: 'flag', code: 'trough-timing', message: `${at} is marked as a trough but was drawn ${fmt(next.timeH - o.timeH)} h before the next dose: check the time (it is used at the time given)` });
+    if (kind === 'trough' && last && !next && o.timeH - (last.timeH + last.durationH) < 2)
+      out.push({ severity: 'flag', code: 'trough-timing', message: `${at} is marked as a trough but was drawn ${fmt(o.timeH - last.timeH)} h after a dose start: check the time and whether the next dose is missing from the history` });
+    if (kind === 'peak') {
+      if (!last) out.push({ severity: 'flag', code: 'peak-timing', message: `${at} is marked as a peak but no dose precedes it` });
+      else if (o.timeH < last.timeH + last.durationH) out.push({ severity: 'flag', code: 'peak-timing', message: `${at} is marked as a peak but was drawn before the end of the infusion (${fmt(last.timeH + last.durationH)} h): check the time` });
+      else if (o.timeH - (last.timeH + last.durationH) > 3) out.push({ severity: 'flag', code: 'peak-timing', message: `${at} is marked as a peak but was drawn ${fmt(o.timeH - last.timeH - last.durationH)} h after the end of the infusion: check the time, or whether a dose is missing` });
+    }
     if (last && o.timeH - last.timeH > 7 * 24) out.push({ severity: 'flag', code: 'level-long-after-dose', message: `${at} is more than 7 days after the previous dose: check the dose history is complete` });
   }
   return out;

@@ -6,7 +6,7 @@ import { parsePatient } from '../../../engine/dosing/patient.js';
 import { loadPopulationModel, populationModelFromSpec, PopulationModelError } from '../../../engine/dosing/population.js';
 import { PriorError } from '../../../engine/dosing/prior.js';
 import { parseTarget, TargetError } from '../../../engine/dosing/targets.js';
-import { checkRenalChange } from '../../../engine/dosing/warnings.js';
+import { checkLevelTiming, checkRenalChange } from '../../../engine/dosing/warnings.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 
 const ROOT = path.resolve(__dirname, '../../..');
@@ -221,5 +221,27 @@ describe('renal change', () => {
     expect(checkRenalChange([{ timeH: 0, scrMgDl: 1.0 }, { timeH: 100, scrMgDl: 1.6 }])[0]?.code).toBe('renal-change');
     expect(checkRenalChange([{ timeH: 0, scrMgDl: 2.1 }, { timeH: 48, scrMgDl: 1.2 }])[0]?.message).toContain('fell');
     expect(checkRenalChange([{ timeH: 0, scrMgDl: 1.0 }, { timeH: 24, scrMgDl: 1.1 }])).toEqual([]);
+  });
+});
+
+describe('level timing', () => {
+  it('flags troughs not drawn shortly before a dose and peaks drawn during or long after an infusion', () => {
+    const p = parsePatient({
+      ...PATIENT,
+      levels: [
+        { time_h: 18, conc_mg_L: 12, kind: 'trough' },
+        { time_h: 23.5, conc_mg_L: 12, kind: 'trough' },
+        { time_h: 24.5, conc_mg_L: 30, kind: 'peak' },
+        { time_h: 30, conc_mg_L: 20, kind: 'peak' },
+        { time_h: 26, conc_mg_L: 25, kind: 'peak' },
+      ],
+    });
+    const w = checkLevelTiming(p.doses, p.levels, 2, p.levelKinds);
+    const codes = (t: number) => w.filter((x) => x.message.includes(`level at ${t} h`)).map((x) => x.code);
+    expect(codes(18)).toEqual(['trough-timing']);
+    expect(codes(23.5)).toEqual([]);
+    expect(codes(24.5)).toEqual(['level-during-infusion', 'peak-timing']);
+    expect(codes(30)).toEqual(['peak-timing']);
+    expect(codes(26)).toEqual([]);
   });
 });

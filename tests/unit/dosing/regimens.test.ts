@@ -1,7 +1,9 @@
 import { describe, expect, it } from 'vitest';
-import { formatRegimen, parseRegimen, rankRegimens, RegimenParseError, regimenGrid, type RegimenResult } from '../../../engine/dosing/regimens.js';
+import { evaluateRegimen, evaluateRegimens, formatRegimen, parseRegimen, rankRegimens, RegimenParseError, regimenGrid, type RegimenResult } from '../../../engine/dosing/regimens.js';
 import { bandOf, quantileSorted } from '../../../engine/dosing/summary.js';
 import { createStreams } from '../../../engine/rng/index.js';
+import { getStructuralModel } from '../../../engine/models/catalogue.js';
+import { parseTarget } from '../../../engine/dosing/targets.js';
 
 describe('parseRegimen (--evaluate)', () => {
   it('reads dose, interval, infusion duration and a loading dose', () => {
@@ -68,5 +70,36 @@ describe('bandOf', () => {
       expect(b.q90).toBe(quantileSorted(finite, 0.9));
       expect(b.q975).toBe(quantileSorted(finite, 0.975));
     }
+  });
+});
+
+describe('evaluateRegimens', () => {
+  it('the unit-dose superposition path gives the same table as evaluating each regimen directly', () => {
+    const model = getStructuralModel('2cmt');
+    const rng = createStreams(9).stream('draws');
+    const nDraws = 300;
+    const nP = model.parameterOrder.length;
+    const draws = new Float64Array(nDraws * nP);
+    for (let d = 0; d < nDraws; d++) {
+      const typical = [4, 20, 5, 40];
+      typical.forEach((t, j) => (draws[d * nP + j] = t * Math.exp(0.3 * rng.normal())));
+      draws[d * nP + 4] = NaN;
+      draws[d * nP + 5] = 0;
+      draws[d * nP + 6] = 1;
+    }
+    const target = parseTarget({ id: 't', label: 't', source: 'test', micMgL: 4, peakDelayH: 0.5, goals: [{ metric: 'ftAbove', min: 60 }, { metric: 'auc24', min: 300 }], toxic: [{ metric: 'trough', max: 10 }] });
+    const regimens = regimenGrid({ strengthMg: 500, minDoseMg: 500, maxDoseMg: 2000, intervalsH: [8, 12], durationsH: [0.5, 3] });
+    const input = { model, draws, nDraws, target };
+    const fast = evaluateRegimens(input, regimens);
+    regimens.forEach((r, i) => {
+      const direct = evaluateRegimen(input, r);
+      expect(fast[i].pTarget).toBeCloseTo(direct.pTarget, 12);
+      expect(fast[i].pToxic).toBeCloseTo(direct.pToxic as number, 12);
+      for (const id of ['auc24', 'trough', 'peak', 'peakAt', 'ftAbove'] as const) {
+        const a = fast[i].metrics[id]!;
+        const b = direct.metrics[id]!;
+        for (const k of ['median', 'q025', 'q975'] as const) expect(Math.abs(a[k] - b[k])).toBeLessThanOrEqual(1e-3 * Math.abs(b[k]) + 1e-9);
+      }
+    });
   });
 });
