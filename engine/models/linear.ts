@@ -189,6 +189,315 @@ export function makeThreeCompartmentModes(): ModeFunction {
 }
 
 /**
+ * Everything one prepared predictor needs, in one record of fixed shape. The walk is a
+ * module-level function over this record rather than a closure per predictor: V8 shares
+ * optimised code between closures of one source, and code specialised to one closure's
+ * captured values slows down (about 2x measured) as soon as a second predictor exists.
+ */
+class LinearWork {
+  readonly n: number;
+  readonly nDisposition: number;
+  readonly modes: ModeFunction;
+  readonly lam: Float64Array;
+  readonly w: Float64Array;
+  /** Modal state: modes 0..n-1 (mg), depot at n (mg). */
+  readonly s: Float64Array;
+  readonly keep: Float64Array;
+  readonly sc: Schedule;
+  /** Distinct-length index of the interval ending at each static point (-1: zero length). */
+  readonly uniqueOf: Int32Array;
+  /** Running infusion rate after each static point (mg/h). */
+  readonly rateAfter: Float64Array;
+  readonly lengthH: Float64Array;
+  readonly stamp: Int32Array;
+  readonly evalCount: Int32Array;
+  /** Per distinct length u and mode i: e^{-lambda_i dt}, (1 - e^{-lambda_i dt}) / lambda_i, ka (e^{-lambda_i dt} - e^{-ka dt}) / (ka - lambda_i). */
+  readonly tabE: Float64Array;
+  readonly tabG: Float64Array;
+  readonly tabB: Float64Array;
+  /** Per distinct length: e^{-ka dt}. */
+  readonly tabA: Float64Array;
+  /** Oral doses of a steady-state train still in their lag time: count, next entry (h), interval (h), amount (mg). */
+  readonly pend: Float64Array;
+  /** Scratch cells KA, TLAG, BIO, RATE, DT, TIME. */
+  readonly cur: Float64Array;
+
+  constructor(nModes: number, nDisposition: number, modes: ModeFunction, sc: Schedule) {
+    const n = nModes;
+    this.n = n;
+    this.nDisposition = nDisposition;
+    this.modes = modes;
+    this.lam = new Float64Array(n);
+    this.w = new Float64Array(n);
+    this.s = new Float64Array(n + 1);
+    this.keep = new Float64Array(n + 1);
+    this.sc = sc;
+    const { timeH, kind, value, epoch: evEpoch } = sc;
+    const ns = sc.n;
+    // Interval lengths between consecutive static points repeat (regular dosing, equal infusion
+    // durations): each distinct length gets its transition factors computed once per evaluation,
+    // on first use (stamped with the evaluation count), and is reused for every repeat.
+    this.uniqueOf = new Int32Array(ns);
+    const lengths: number[] = [];
+    const seen = new Map<number, number>();
+    for (let k = 0; k < ns; k++) {
+      const dt = timeH[k] - (k > 0 ? timeH[k - 1] : 0);
+      if (!(dt > 0)) {
+        this.uniqueOf[k] = -1;
+        continue;
+      }
+      let u = seen.get(dt);
+      if (u === undefined) {
+        u = lengths.length;
+        seen.set(dt, u);
+        lengths.push(dt);
+      }
+      this.uniqueOf[k] = u;
+    }
+    // The running infusion rate does not depend on the parameters: starts add, stops subtract
+    // unless a later steady-state reset has cut their infusion.
+    this.rateAfter = new Float64Array(ns);
+    let rate = 0;
+    let nInf = 0;
+    let epoch = 0;
+    for (let k = 0; k < ns; k++) {
+      const kd = kind[k];
+      if (kd === EV_INF_START) {
+        rate += value[k];
+        nInf++;
+      } else if (kd === EV_INF_STOP && evEpoch[k] >= epoch) {
+        nInf--;
+        rate = nInf === 0 ? 0 : rate - value[k];
+      } else if (kd === EV_RESET) {
+        epoch = evEpoch[k];
+        rate = 0;
+        nInf = 0;
+      }
+      this.rateAfter[k] = rate;
+    }
+    const nu = lengths.length;
+    this.lengthH = Float64Array.from(lengths);
+    this.stamp = new Int32Array(nu);
+    this.evalCount = new Int32Array(1);
+    this.tabE = new Float64Array(nu * n);
+    this.tabG = new Float64Array(nu * n);
+    this.tabB = new Float64Array(nu * n);
+    this.tabA = new Float64Array(nu);
+    this.pend = new Float64Array(4);
+    this.cur = new Float64Array(6);
+  }
+}
+
+/** Transition factors of distinct interval length u for the current parameters (wk.lam, cur[KA]). */
+function fillTable(wk: LinearWork, u: number): void {
+  const n = wk.n;
+  const lam = wk.lam;
+  const hasOral = wk.sc.hasOral;
+  const ka = wk.cur[KA];
+  const dt = wk.lengthH[u];
+  const ea = hasOral ? Math.exp(-ka * dt) : 0;
+  const b = u * n;
+  wk.tabA[u] = ea;
+  for (let i = 0; i < n; i++) {
+    const l = lam[i];
+    const x = l * dt;
+    const e = Math.exp(-x);
+    wk.tabE[b + i] = e;
+    wk.tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
+    if (hasOral) {
+      const d = (ka - l) * dt;
+      wk.tabB[b + i] =
+        ka * (d > 0.5 || d < -0.5 ? (e - ea) / (ka - l) : d >= 0 ? (d === 0 ? e * dt : (e * dt * -Math.expm1(-d)) / d) : (ea * dt * -Math.expm1(d)) / -d);
+    }
+  }
+}
+
+/**
+ * Advance wk.s over the static interval with distinct-length index u; factors are computed on
+ * first use in evaluation `id`. Kept small so that it inlines into the walk.
+ */
+function tableStep(wk: LinearWork, u: number, id: number): void {
+  if (wk.stamp[u] !== id) {
+    wk.stamp[u] = id;
+    fillTable(wk, u);
+  }
+  const n = wk.n;
+  const s = wk.s;
+  const tabE = wk.tabE;
+  const b = u * n;
+  const rate = wk.cur[RATE];
+  const a = s[n];
+  if (a === 0) {
+    if (rate === 0) for (let i = 0; i < n; i++) s[i] *= tabE[b + i];
+    else {
+      const tabG = wk.tabG;
+      for (let i = 0; i < n; i++) s[i] = tabE[b + i] * s[i] + rate * tabG[b + i];
+    }
+  } else {
+    const tabG = wk.tabG;
+    const tabB = wk.tabB;
+    for (let i = 0; i < n; i++) s[i] = tabE[b + i] * s[i] + rate * tabG[b + i] + a * tabB[b + i];
+    s[n] = a * wk.tabA[u];
+  }
+}
+
+/**
+ * Steady-state reset for dose record d at time cur[TIME] (see the module comment). With
+ * `additive` (another steady-state dose at the same time) the trains superpose. False when the
+ * lag spans too many intervals or two trains both have doses in their lag time.
+ */
+function reset(wk: LinearWork, d: number, additive: boolean): boolean {
+  const { n, s, lam, cur, pend, keep } = wk;
+  const { doseRoute, doseAmountMg, doseDurationH, doseIntervalH } = wk.sc;
+  const t = cur[TIME];
+  const ka = cur[KA];
+  const tlag = cur[TLAG];
+  const F = cur[BIO];
+  const pendingBefore = additive ? pend[0] : 0;
+  if (additive) for (let i = 0; i <= n; i++) keep[i] = s[i];
+  pend[0] = 0;
+  const route = doseRoute[d];
+  const amount = doseAmountMg[d];
+  const tau = doseIntervalH[d];
+  if (route === ROUTE_BOLUS) {
+    for (let i = 0; i < n; i++) s[i] = amount / Math.expm1(lam[i] * tau);
+    s[n] = 0;
+  } else if (route === ROUTE_INFUSION) {
+    const dur = doseDurationH[d];
+    for (let i = 0; i < n; i++) {
+      const l = lam[i];
+      s[i] = ((amount / dur) * -Math.expm1(-l * dur) * Math.exp(-l * (tau - dur))) / (l * -Math.expm1(-l * tau));
+    }
+    s[n] = 0;
+  } else {
+    const fd = F * amount;
+    const ea = Math.exp(-ka * tau);
+    const aAfter = fd / -Math.expm1(-ka * tau);
+    for (let i = 0; i < n; i++) {
+      const l = lam[i];
+      const e = Math.exp(-l * tau);
+      const dk = (ka - l) * tau;
+      const dd = dk > 0.5 || dk < -0.5 ? (e - ea) / (ka - l) : dk >= 0 ? (dk === 0 ? e * tau : (e * tau * -Math.expm1(-dk)) / dk) : (ea * tau * -Math.expm1(dk)) / -dk;
+      s[i] = (ka * dd * aAfter) / -Math.expm1(-l * tau);
+    }
+    s[n] = aAfter;
+    // The latest train dose already in the depot is the m-th before this one, entered u0 hours ago.
+    const m = Math.max(1, Math.ceil(tlag / tau));
+    const u0 = m * tau - tlag;
+    if (u0 > 0) {
+      cur[RATE] = 0;
+      cur[DT] = u0;
+      advance(s, n, lam, cur);
+    }
+    if (m - 1 > MAX_PENDING || (m > 1 && pendingBefore > 0)) return false;
+    if (m > 1) {
+      pend[0] = m - 1;
+      pend[1] = t + tlag - (m - 1) * tau;
+      pend[2] = tau;
+      pend[3] = fd;
+    }
+  }
+  if (additive) {
+    for (let i = 0; i <= n; i++) s[i] += keep[i];
+    if (pend[0] === 0) pend[0] = pendingBefore;
+  }
+  return true;
+}
+
+function fail(out: Float64Array): boolean {
+  out.fill(NaN);
+  return false;
+}
+
+/** One evaluation of the prepared predictor (see Predictor). */
+function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
+  const { n, s, lam, w, cur, pend, uniqueOf, rateAfter, sc } = wk;
+  if (!wk.modes(params, lam, w)) return fail(out);
+  const { timeH, kind, value, epoch: evEpoch, oralTimeH, oralAmountMg, oralEpoch, hasOral } = sc;
+  const ns = sc.n;
+  const no = sc.nOral;
+  let ka = 0;
+  let tlag = 0;
+  let F = 1;
+  if (hasOral) {
+    const nd = wk.nDisposition;
+    ka = params[nd];
+    tlag = params[nd + 1];
+    F = params[nd + 2];
+    if (!(positive(ka) && tlag >= 0 && tlag < Infinity && positive(F))) return fail(out);
+  }
+  cur[KA] = ka;
+  cur[TLAG] = tlag;
+  cur[BIO] = F;
+  cur[RATE] = 0;
+  for (let i = 0; i <= n; i++) s[i] = 0;
+  const counter = wk.evalCount;
+  const id = (counter[0] = counter[0] === 0x7fffffff ? 1 : counter[0] + 1);
+  pend[0] = 0;
+  let epoch = 0;
+  let left = sc.nOutputs;
+  let tc = 0;
+  let io = 0;
+  let afterStatic = true;
+  let lastResetH = -1;
+  for (let is = 0; is < ns && left > 0; ) {
+    const ts = timeH[is];
+    if (hasOral) {
+      // Oral entries (and pending train doses) strictly before the next static point come first.
+      const to = io < no ? oralTimeH[io] + tlag : Infinity;
+      const tp = pend[0] > 0 ? pend[1] : Infinity;
+      if (to < ts || tp < ts) {
+        const t = to <= tp ? to : tp;
+        if (t > tc) {
+          cur[DT] = t - tc;
+          advance(s, n, lam, cur);
+        }
+        tc = t;
+        afterStatic = false;
+        if (to <= tp) {
+          if (oralEpoch[io] >= epoch) s[n] += F * oralAmountMg[io];
+          io++;
+        } else {
+          s[n] += pend[3];
+          pend[0]--;
+          pend[1] += pend[2];
+        }
+        continue;
+      }
+    }
+    if (afterStatic) {
+      const u = uniqueOf[is];
+      if (u >= 0) tableStep(wk, u, id);
+    } else if (ts > tc) {
+      cur[DT] = ts - tc;
+      advance(s, n, lam, cur);
+    }
+    tc = ts;
+    afterStatic = true;
+    const k = kind[is];
+    const v = value[is];
+    if (k === EV_OUTPUT) {
+      let c = 0;
+      for (let i = 0; i < n; i++) c += w[i] * s[i];
+      // Mode sums can round to a few ulps below 0 next to a zero level; a level is never negative.
+      out[v] = c < 0 ? 0 : c;
+      left--;
+    } else if (k === EV_BOLUS) {
+      for (let i = 0; i < n; i++) s[i] += v;
+    } else if (k === EV_RESET) {
+      epoch = evEpoch[is];
+      cur[RATE] = 0;
+      cur[TIME] = ts;
+      if (!reset(wk, v, ts === lastResetH)) return fail(out);
+      lastResetH = ts;
+    }
+    cur[RATE] = rateAfter[is];
+    is++;
+  }
+  return true;
+}
+
+/**
  * Build the predictor of a linear model with `nModes` modes and `nDisposition` disposition
  * parameters (ka, tlag, F follow them in the vector).
  */
@@ -200,236 +509,6 @@ export function prepareLinear(
   timesH: ArrayLike<number>,
   _solver?: Partial<SolverSettings>,
 ): Predictor {
-  const sc: Schedule = buildSchedule(doses, timesH);
-  const n = nModes;
-  const lam = new Float64Array(n);
-  const w = new Float64Array(n);
-  const s = new Float64Array(n + 1);
-  const { timeH, kind, value, epoch: evEpoch, oralTimeH, oralAmountMg, oralEpoch, hasOral } = sc;
-  const ns = sc.n;
-  const no = sc.nOral;
-  const nOut = sc.nOutputs;
-  const { doseRoute, doseAmountMg, doseDurationH, doseIntervalH } = sc;
-
-  // Interval lengths between consecutive static points repeat (regular dosing, equal infusion
-  // durations): each distinct length gets its transition factors computed once per evaluation,
-  // on first use (stamped with the evaluation count), and is reused for every repeat.
-  const uniqueOf = new Int32Array(ns);
-  const lengths: number[] = [];
-  {
-    const seen = new Map<number, number>();
-    for (let k = 0; k < ns; k++) {
-      const dt = timeH[k] - (k > 0 ? timeH[k - 1] : 0);
-      if (!(dt > 0)) {
-        uniqueOf[k] = -1;
-        continue;
-      }
-      let u = seen.get(dt);
-      if (u === undefined) {
-        u = lengths.length;
-        seen.set(dt, u);
-        lengths.push(dt);
-      }
-      uniqueOf[k] = u;
-    }
-  }
-  const nu = lengths.length;
-  const lengthH = Float64Array.from(lengths);
-  const stamp = new Int32Array(nu);
-  const evalCount = new Int32Array(1);
-  const tabE = new Float64Array(nu * n); // e^{-lambda_i dt}
-  const tabG = new Float64Array(nu * n); // (1 - e^{-lambda_i dt}) / lambda_i (infusion)
-  const tabB = new Float64Array(nu * n); // ka (e^{-lambda_i dt} - e^{-ka dt}) / (ka - lambda_i) (depot)
-  const tabA = new Float64Array(nu); // e^{-ka dt}
-  // Oral doses of a steady-state train still in their lag time: count, next entry (h), interval (h), amount (mg).
-  const pend = new Float64Array(4);
-  const cur = new Float64Array(6);
-  const keep = new Float64Array(n + 1);
-
-  /** Advance s over the static interval with distinct-length index u. */
-  const tableStep = (u: number, id: number): void => {
-    const b = u * n;
-    const rate = cur[RATE];
-    if (stamp[u] !== id) {
-      stamp[u] = id;
-      const ka = cur[KA];
-      const dt = lengthH[u];
-      const ea = hasOral ? Math.exp(-ka * dt) : 0;
-      tabA[u] = ea;
-      for (let i = 0; i < n; i++) {
-        const l = lam[i];
-        const x = l * dt;
-        const e = Math.exp(-x);
-        tabE[b + i] = e;
-        tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
-        if (hasOral) {
-          const d = (ka - l) * dt;
-          tabB[b + i] =
-            ka * (d > 0.5 || d < -0.5 ? (e - ea) / (ka - l) : d >= 0 ? (d === 0 ? e * dt : (e * dt * -Math.expm1(-d)) / d) : (ea * dt * -Math.expm1(d)) / -d);
-        }
-      }
-    }
-    const a = s[n];
-    if (a === 0) {
-      if (rate === 0) for (let i = 0; i < n; i++) s[i] *= tabE[b + i];
-      else for (let i = 0; i < n; i++) s[i] = tabE[b + i] * s[i] + rate * tabG[b + i];
-    } else {
-      for (let i = 0; i < n; i++) s[i] = tabE[b + i] * s[i] + rate * tabG[b + i] + a * tabB[b + i];
-      s[n] = a * tabA[u];
-    }
-  };
-
-  /** Steady-state reset for dose record d at time t (see the module comment). False when the lag spans too many intervals. */
-  const reset = (d: number, additive: boolean): boolean => {
-    const t = cur[TIME];
-    const ka = cur[KA];
-    const tlag = cur[TLAG];
-    const F = cur[BIO];
-    // Several steady-state doses at one time: their trains superpose (linear system), so the
-    // states add. Only one train can have doses still in their lag time.
-    const pendingBefore = additive ? pend[0] : 0;
-    if (additive) for (let i = 0; i <= n; i++) keep[i] = s[i];
-    pend[0] = 0;
-    const route = doseRoute[d];
-    const amount = doseAmountMg[d];
-    const tau = doseIntervalH[d];
-    if (route === ROUTE_BOLUS) {
-      for (let i = 0; i < n; i++) s[i] = amount / Math.expm1(lam[i] * tau);
-      s[n] = 0;
-    } else if (route === ROUTE_INFUSION) {
-      const dur = doseDurationH[d];
-      for (let i = 0; i < n; i++) {
-        const l = lam[i];
-        s[i] = ((amount / dur) * -Math.expm1(-l * dur) * Math.exp(-l * (tau - dur))) / (l * -Math.expm1(-l * tau));
-      }
-      s[n] = 0;
-    } else {
-      const fd = F * amount;
-      const ea = Math.exp(-ka * tau);
-      const aAfter = fd / -Math.expm1(-ka * tau);
-      for (let i = 0; i < n; i++) {
-        const l = lam[i];
-        const e = Math.exp(-l * tau);
-        const dk = (ka - l) * tau;
-        const dd = dk > 0.5 || dk < -0.5 ? (e - ea) / (ka - l) : dk >= 0 ? (dk === 0 ? e * tau : (e * tau * -Math.expm1(-dk)) / dk) : (ea * tau * -Math.expm1(dk)) / -dk;
-        s[i] = (ka * dd * aAfter) / -Math.expm1(-l * tau);
-      }
-      s[n] = aAfter;
-      // The latest train dose already in the depot is the m-th before this one, entered u0 hours ago.
-      const m = Math.max(1, Math.ceil(tlag / tau));
-      const u0 = m * tau - tlag;
-      if (u0 > 0) {
-        cur[RATE] = 0;
-        cur[DT] = u0;
-        advance(s, n, lam, cur);
-      }
-      if (m - 1 > MAX_PENDING || (m > 1 && pendingBefore > 0)) return false;
-      if (m > 1) {
-        pend[0] = m - 1;
-        pend[1] = t + tlag - (m - 1) * tau;
-        pend[2] = tau;
-        pend[3] = fd;
-      }
-    }
-    if (additive) {
-      for (let i = 0; i <= n; i++) s[i] += keep[i];
-      if (pend[0] === 0) pend[0] = pendingBefore;
-    }
-    return true;
-  };
-
-  const fail = (out: Float64Array): boolean => {
-    out.fill(NaN);
-    return false;
-  };
-
-  return (params: Float64Array, out: Float64Array): boolean => {
-    if (!modes(params, lam, w)) return fail(out);
-    let ka = 0;
-    let tlag = 0;
-    let F = 1;
-    if (hasOral) {
-      ka = params[nDisposition];
-      tlag = params[nDisposition + 1];
-      F = params[nDisposition + 2];
-      if (!(positive(ka) && tlag >= 0 && tlag < Infinity && positive(F))) return fail(out);
-    }
-    cur[KA] = ka;
-    cur[TLAG] = tlag;
-    cur[BIO] = F;
-    cur[RATE] = 0;
-    for (let i = 0; i <= n; i++) s[i] = 0;
-    const id = (evalCount[0] = evalCount[0] === 0x7fffffff ? 1 : evalCount[0] + 1);
-    pend[0] = 0;
-    let nInf = 0;
-    let epoch = 0;
-    let left = nOut;
-    let tc = 0;
-    let io = 0;
-    let afterStatic = true;
-    let lastResetH = -1;
-    for (let is = 0; is < ns && left > 0; ) {
-      const ts = timeH[is];
-      if (hasOral) {
-        // Oral entries (and pending train doses) strictly before the next static point come first.
-        const to = io < no ? oralTimeH[io] + tlag : Infinity;
-        const tp = pend[0] > 0 ? pend[1] : Infinity;
-        if (to < ts || tp < ts) {
-          const t = to <= tp ? to : tp;
-          if (t > tc) {
-            cur[DT] = t - tc;
-            advance(s, n, lam, cur);
-          }
-          tc = t;
-          afterStatic = false;
-          if (to <= tp) {
-            if (oralEpoch[io] >= epoch) s[n] += F * oralAmountMg[io];
-            io++;
-          } else {
-            s[n] += pend[3];
-            pend[0]--;
-            pend[1] += pend[2];
-          }
-          continue;
-        }
-      }
-      if (afterStatic) {
-        const u = uniqueOf[is];
-        if (u >= 0) tableStep(u, id);
-      } else if (ts > tc) {
-        cur[DT] = ts - tc;
-        advance(s, n, lam, cur);
-      }
-      tc = ts;
-      afterStatic = true;
-      const k = kind[is];
-      const v = value[is];
-      if (k === EV_OUTPUT) {
-        let c = 0;
-        for (let i = 0; i < n; i++) c += w[i] * s[i];
-        // Mode sums can round to a few ulps below 0 next to a zero level; a level is never negative.
-        out[v] = c < 0 ? 0 : c;
-        left--;
-      } else if (k === EV_BOLUS) {
-        for (let i = 0; i < n; i++) s[i] += v;
-      } else if (k === EV_INF_START) {
-        cur[RATE] += v;
-        nInf++;
-      } else if (k === EV_INF_STOP) {
-        if (evEpoch[is] >= epoch) {
-          nInf--;
-          cur[RATE] = nInf === 0 ? 0 : cur[RATE] - v;
-        }
-      } else if (k === EV_RESET) {
-        epoch = evEpoch[is];
-        cur[RATE] = 0;
-        nInf = 0;
-        cur[TIME] = ts;
-        if (!reset(v, ts === lastResetH)) return fail(out);
-        lastResetH = ts;
-      }
-      is++;
-    }
-    return true;
-  };
+  const wk = new LinearWork(nModes, nDisposition, modes, buildSchedule(doses, timesH));
+  return (params: Float64Array, out: Float64Array): boolean => evaluate(wk, params, out);
 }
