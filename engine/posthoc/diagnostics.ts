@@ -8,8 +8,9 @@
  *   observed and simulated vectors are decorrelated with the Cholesky factor of the simulated
  *   covariance, pde = share of simulated decorrelated values below the observed one (kept in
  *   [1/K, 1 - 1/K]), npde = Phi^-1(pde). Levels below the LLOQ: pde drawn uniformly on
- *   [0, P(Y < LLOQ)] and the level imputed from the simulated distribution at that pde before
- *   decorrelation (Nguyen, Comets & Mentre 2012, J Pharmacokinet Pharmacodyn 39:499-518, from memory).
+ *   [0, P(Y < LLOQ | the subject's earlier levels)] in the decorrelated sequence and the level
+ *   imputed at that pde (after Nguyen, Comets & Mentre 2012, J Pharmacokinet Pharmacodyn
+ *   39:499-518, from memory, who impute from the marginal distribution before decorrelating).
  * - VPC: observation times cut into bins of about equal counts; per bin the observed 5th, 50th
  *   and 95th percentiles against the 90 % prediction interval of each percentile over the K
  *   simulated replicates, and the share below the LLOQ; censored values rank below every
@@ -127,7 +128,6 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
   const cov = new Float64Array(maxObs * maxObs);
   const L = new Float64Array(maxObs * maxObs);
   const meanY = new Float64Array(maxObs);
-  const yObs = new Float64Array(maxObs);
   const dec = new Float64Array(maxObs);
   const decSims = new Float64Array(maxObs * K);
   const col = new Float64Array(K);
@@ -175,26 +175,7 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
       }
       if (!ok) failedSims++;
     }
-    // NPDE: impute censored levels (Nguyen et al. 2012), then decorrelate.
-    for (let q = 0; q < n; q++) {
-      yObs[q] = s.y[q];
-      if (!s.censored[q]) continue;
-      let below = 0, valid = 0;
-      for (let k = 0; k < K; k++) {
-        const v = sims[simBase + k * n + q];
-        if (v === v) (valid++, v < s.lloqMgL[q] && below++);
-      }
-      const pLoq = valid > 0 ? below / valid : 0;
-      const u = rng.uniform() * pLoq;
-      let m = 0;
-      for (let k = 0; k < K; k++) {
-        const v = sims[simBase + k * n + q];
-        if (v === v) col[m++] = v;
-      }
-      const sorted = col.subarray(0, m).sort();
-      yObs[q] = m > 0 ? quantileSorted(sorted, m, Math.max(0, Math.min(1, u))) : s.lloqMgL[q];
-      imputed[base + q] = yObs[q];
-    }
+    // NPDE: decorrelate with the simulated mean and covariance.
     let nValid = 0;
     meanY.fill(0);
     for (let k = 0; k < K; k++) {
@@ -202,6 +183,7 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
       nValid++;
       for (let q = 0; q < n; q++) meanY[q] += sims[simBase + k * n + q];
     }
+    if (nValid < 2) continue;
     for (let q = 0; q < n; q++) meanY[q] /= nValid;
     cov.fill(0);
     for (let k = 0; k < K; k++) {
@@ -211,33 +193,49 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
         for (let c = 0; c <= r; c++) cov[r * n + c] += dr * (sims[simBase + k * n + c] - meanY[c]);
       }
     }
-    for (let r = 0; r < n; r++) for (let c = 0; c <= r; c++) cov[r * n + c] = cov[c * n + r] = cov[r * n + c] / Math.max(1, nValid - 1);
-    let decorrelated = cholesky(cov, n, L);
-    if (!decorrelated) {
-      // Without decorrelation (a level with no variability, e.g. a zero prediction under
-      // proportional error): standardise each level by its own SD instead.
+    for (let r = 0; r < n; r++) for (let c = 0; c <= r; c++) cov[r * n + c] = cov[c * n + r] = cov[r * n + c] / (nValid - 1);
+    if (!cholesky(cov, n, L)) {
+      // A level without variability (e.g. a zero prediction under proportional error):
+      // standardise each level by its own SD instead of decorrelating.
       singular.push(s.id);
       L.fill(0);
       for (let q = 0; q < n; q++) L[q * n + q] = Math.sqrt(Math.max(cov[q * n + q], 1e-300));
     }
-    const solve = (x: Float64Array, xOff: number, out: Float64Array, outOff: number) => {
+    let m = 0;
+    for (let k = 0; k < K; k++) {
+      const off = simBase + k * n;
+      if (!(sims[off] === sims[off])) continue;
       for (let r = 0; r < n; r++) {
-        let v = x[xOff + r] - meanY[r];
-        for (let c = 0; c < r; c++) v -= L[r * n + c] * out[outOff + c];
-        out[outOff + r] = v / L[r * n + r];
+        let v = sims[off + r] - meanY[r];
+        for (let c = 0; c < r; c++) v -= L[r * n + c] * decSims[m * n + c];
+        decSims[m * n + r] = v / L[r * n + r];
       }
-    };
-    solve(yObs, 0, dec, 0);
-    for (let k = 0; k < K; k++) solve(sims, simBase + k * n, decSims, k * n);
-    for (let q = 0; q < n; q++) {
-      let below = 0, valid = 0;
-      for (let k = 0; k < K; k++) {
-        const v = decSims[k * n + q];
-        if (v === v) (valid++, v < dec[q] && below++);
+      m++;
+    }
+    // The Cholesky factor conditions each level on the earlier ones, so a censored level is
+    // imputed in that sequence: pde ~ U(0, P(Y < LLOQ | earlier levels)), then the level that
+    // gives it (after Nguyen, Comets & Mentre 2012, who draw from the marginal distribution).
+    for (let r = 0; r < n; r++) {
+      let shift = meanY[r];
+      for (let c = 0; c < r; c++) shift += L[r * n + c] * dec[c];
+      for (let k = 0; k < m; k++) col[k] = decSims[k * n + r];
+      const sorted = col.subarray(0, m).sort();
+      let pde: number;
+      if (s.censored[r]) {
+        const upper = (s.lloqMgL[r] - shift) / L[r * n + r];
+        let below = 0;
+        while (below < m && sorted[below] < upper) below++;
+        pde = rng.uniform() * (below / m);
+        dec[r] = quantileSorted(sorted, m, pde);
+        if (dec[r] > upper) dec[r] = upper;
+        imputed[base + r] = shift + L[r * n + r] * dec[r];
+      } else {
+        dec[r] = (s.y[r] - shift) / L[r * n + r];
+        let below = 0;
+        while (below < m && sorted[below] < dec[r]) below++;
+        pde = below / m;
       }
-      if (valid === 0) continue;
-      const pde = Math.min(1 - 1 / valid, Math.max(1 / valid, below / valid));
-      npde[base + q] = normalQuantile(pde);
+      npde[base + r] = normalQuantile(Math.min(1 - 1 / m, Math.max(1 / m, pde)));
     }
   }
   if (failedSims) warnings.push(`simulation: ${failedSims} simulated subject profile(s) had no valid prediction after 10 draws and are left out of the NPDE and VPC`);
@@ -262,7 +260,7 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
   return {
     observations,
     epsilonShrinkage: num(1 - sdIw),
-    npde: { replicates: K, censoredMethod: 'censored levels: pde drawn on [0, P(Y < LLOQ)] and the level imputed from the simulated distribution (Nguyen, Comets & Mentre 2012)', tests },
+    npde: { replicates: K, censoredMethod: 'censored levels: pde drawn uniformly on [0, P(Y < LLOQ | earlier levels of the subject)] in the decorrelated (Cholesky) sequence and the level imputed at that pde (after Nguyen, Comets & Mentre 2012)', tests },
     vpc: vpcData(vpcInput, false),
     pcVpc: vpcData(vpcInput, true),
     warnings,
