@@ -57,6 +57,11 @@ export interface SaemOptions {
   signal?: AbortSignalLike;
   /** Milliseconds clock for timing (default Date.now). */
   now?: () => number;
+  /**
+   * Keep the population parameters at their initial values (no M-step): the kernels then sample
+   * p(phi_i | y_i; theta) at that theta (for checks of the sampler and for post-fit draws).
+   */
+  freezePopulation?: boolean;
 }
 
 export interface SaemResult {
@@ -633,7 +638,21 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     for (let q = 0; q < R * nEta; q++) szpBar[q] += gamma * (szp[q] - szpBar[q]);
     for (let q = 0; q < nEta * nEta; q++) sppBar[q] += gamma * (spp[q] - sppBar[q]);
     sresBar += gamma * (sres - sresBar);
+    mStepClosedForm(annealing);
+    if (nNum > 0) {
+      const a0 = theta.a;
+      const b0 = theta.b;
+      numericalStep(gamma);
+      if (annealing && rm === 'combined') {
+        theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * a0);
+        theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * b0);
+      }
+    }
+    refreshChains();
+  }
 
+  /** The closed-form part of the M-step from the current approximations szpBar, sppBar, sresBar. */
+  function mStepClosedForm(annealing: boolean): void {
     if (nEta > 0) {
       // GLS for the coefficients of parameters with BSV, weights W = Omega_{k-1}^-1.
       for (let m = 0; m < nCoef; m++) coefValue[m] = coefMu[m] >= 0 ? theta.mu[coefMu[m]] : theta.beta[coefBeta[m]];
@@ -716,17 +735,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         if (v > 0 && Number.isFinite(v)) theta.a = Math.sqrt(v);
       }
     }
-    if (nNum > 0) {
-      const a0 = theta.a;
-      const b0 = theta.b;
-      numericalStep(gamma);
-      if (annealing && rm === 'combined') {
-        theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * a0);
-        theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * b0);
-      }
-    }
+  }
 
-    // The chains keep their phi; refresh means, non-BSV components and cached log-likelihoods.
+  /** The chains keep their phi; refresh means, non-BSV components and cached log-likelihoods. */
+  function refreshChains(): void {
     refreshMeans();
     for (let i = 0; i < N; i++)
       for (let c = 0; c < L; c++) {
@@ -779,6 +791,59 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     return true;
   }
 
+  // The last settleWindow exploration iterations (judged stationary by the settle test) open
+  // the averaging phase: its statistics start as their mean and gamma_k = 1/(k - K1 + W), so the
+  // average runs over every draw from iteration K1 - W + 1 on. Starting from one noisy iterate
+  // instead costs a great deal when much information is missing (EM contracts slowly).
+  const W = settings.settleWindow;
+  const ringSzp = new Float64Array(W * R * nEta);
+  const ringSpp = new Float64Array(W * nEta * nEta);
+  const ringSres = new Float64Array(W);
+  const ringNum = new Float64Array(W * nNum);
+  let warmCount = 0;
+  function storeWindowStatistics(k: number): void {
+    const slot = (k - 1) % W;
+    ringSzp.set(szp, slot * R * nEta);
+    ringSpp.set(spp, slot * nEta * nEta);
+    ringSres[slot] = sres;
+  }
+  function storeWindowNumerical(k: number): void {
+    const slot = (k - 1) % W;
+    for (let m = 0; m < nNum; m++) {
+      const nc = numComps[m];
+      ringNum[slot * nNum + m] = nc.kind === 'mu' ? theta.mu[nc.index] : nc.kind === 'beta' ? theta.beta[nc.index] : nc.kind === 'loga' ? Math.log(theta.a) : Math.log(theta.b);
+    }
+  }
+  function warmStart(k: number): void {
+    const n = Math.min(W, k);
+    warmCount = n;
+    szpBar.fill(0);
+    sppBar.fill(0);
+    sresBar = 0;
+    for (let slot = 0; slot < n; slot++) {
+      for (let q = 0; q < R * nEta; q++) szpBar[q] += ringSzp[slot * R * nEta + q] / n;
+      for (let q = 0; q < nEta * nEta; q++) sppBar[q] += ringSpp[slot * nEta * nEta + q] / n;
+      sresBar += ringSres[slot] / n;
+    }
+    for (let m = 0; m < nNum; m++) {
+      let v = 0;
+      for (let slot = 0; slot < n; slot++) v += ringNum[slot * nNum + m] / n;
+      const nc = numComps[m];
+      if (nc.kind === 'mu') theta.mu[nc.index] = v;
+      else if (nc.kind === 'beta') theta.beta[nc.index] = v;
+      else if (nc.kind === 'loga') theta.a = Math.exp(v);
+      else theta.b = Math.exp(v);
+    }
+    // M-step from the window means (gamma 0 keeps the statistics as set).
+    sres = sresBar;
+    szp.set(szpBar);
+    spp.set(sppBar);
+    mStepClosedForm(false);
+    refreshChains();
+    writeEstimates(current);
+    trajectory.set(current, (k - 1) * nEst);
+  }
+
   const avgMu = new Float64Array(p);
   const avgBeta = new Float64Array(T);
   const avgOmega = new Float64Array(nEta * nEta);
@@ -788,7 +853,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   let explorationEnd: number | null = null;
   let explorationSettled = false;
   let tExplorationEnd = tStart;
-  const annealingIterations = settings.annealingIterations ?? Infinity;
+  const annealingIterations = settings.annealingIterations ?? Math.floor(settings.explorationMinIterations / 2);
 
   const run: SaemRun = {
     settings,
@@ -815,8 +880,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       iteration++;
       simulate(exploring);
       computeStatistics();
-      const gamma = exploring ? 1 : Math.pow(iteration - (explorationEnd as number), -settings.stepExponent);
-      mStep(gamma, exploring && iteration <= annealingIterations);
+      if (exploring) storeWindowStatistics(iteration);
+      const gamma = exploring ? 1 : Math.pow(iteration - (explorationEnd as number) + warmCount, -settings.stepExponent);
+      if (!options.freezePopulation) mStep(gamma, exploring && iteration <= annealingIterations);
+      if (exploring) storeWindowNumerical(iteration);
       writeEstimates(current);
       trajectory.set(current, (iteration - 1) * nEst);
       if (!exploring) {
@@ -845,6 +912,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         if (settings.autoEndExploration && iteration >= settings.explorationMinIterations && settled(iteration)) explorationSettled = true;
         if (explorationSettled || iteration >= settings.explorationMaxIterations) {
           explorationEnd = iteration;
+          if (!options.freezePopulation) warmStart(iteration);
           tExplorationEnd = now();
         }
       }

@@ -17,7 +17,8 @@
  *   learnt from its draws during exploration, then frozen; 0 turns the kernel off).
  * - targetAcceptance: 0.35 (random-walk kernels; their scales adapt during exploration, then freeze).
  * - annealingTau: 0.95 (variances fall at most 5 % per iteration during annealing).
- * - annealingIterations: null = the whole exploration phase.
+ * - annealingIterations: null = the first half of explorationMinIterations (annealing inflates
+ *   the draws; kept on through exploration it would bias the window that opens averaging).
  * - settleWindow: 50 iterations; settleTolerance: 0.5 (exploration has settled when, for every
  *   estimate on its working scale, the means of the last two windows differ by less than
  *   settleTolerance x their mean within-window SD).
