@@ -1,0 +1,184 @@
+/**
+ * Unit checks of the post-fit building blocks: the optimiser, the working-scale parameter
+ * vector, the information summary (failures reported, never a silent NaN), the conditional
+ * sampler on a case with a closed-form posterior, importance-sampling diagnostics and the
+ * repeated-fit verdict.
+ */
+import { describe, expect, it } from 'vitest';
+import { createDataset } from '../../../engine/data/dataset.js';
+import type { Dose } from '../../../engine/data/types.js';
+import type { StructuralModel } from '../../../engine/models/types.js';
+import { conditionalDistribution } from '../../../engine/posthoc/conditional.js';
+import { buildDensity } from '../../../engine/posthoc/density.js';
+import { standardErrors } from '../../../engine/posthoc/fisher.js';
+import { importanceSamplingLikelihood } from '../../../engine/posthoc/likelihood.js';
+import { buildLinearisation, linearisedMinus2LL } from '../../../engine/posthoc/linearised.js';
+import { conditionalModes } from '../../../engine/posthoc/modes.js';
+import { createBfgs } from '../../../engine/posthoc/optimize.js';
+import { fromWorking, parameterLayout, thetaFromPopulation, toWorking } from '../../../engine/posthoc/parameters.js';
+import { summariseRuns } from '../../../engine/posthoc/robustness.js';
+import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { compileModel } from '../../../engine/stats/model.js';
+
+/**
+ * A structural model that is linear in its parameter: the level is CL itself at every time
+ * (transform none), so y_ij = mu + eta_i + eps_ij, the random-intercept model whose marginal
+ * likelihood and posterior are Gaussian in closed form (e.g. Pinheiro & Bates 2000, ch. 2).
+ */
+const interceptModel: StructuralModel = {
+  id: '1cmt',
+  label: 'level = CL (test model)',
+  parameterOrder: ['CL', 'V'],
+  parameters: [
+    { name: 'CL', unit: 'mg/L', description: 'level', defaultInitial: 1, transforms: ['none', 'log'] },
+    { name: 'V', unit: 'L', description: 'unused', defaultInitial: 1, transforms: ['log', 'none'], defaultWhenAbsent: 1 },
+  ],
+  compartments: 1,
+  equation: 'C = CL',
+  sketch: '',
+  analytic: true,
+  prepare(_doses: readonly Dose[], times: ArrayLike<number>) {
+    const n = times.length;
+    return (p: Float64Array, out: Float64Array) => {
+      for (let k = 0; k < n; k++) out[k] = p[0];
+      return true;
+    };
+  },
+};
+
+function interceptData(values: number[][]) {
+  return createDataset(values.map((ys, i) => ({ id: `S${i + 1}`, doses: [{ timeH: 0, amountMg: 1, route: 'bolus' as const, durationH: 0 }], observations: ys.map((y, k) => ({ timeH: k + 1, valueMgL: y, censored: false })) })));
+}
+const interceptSpec = parseModelSpec({ structure: '1cmt', parameters: { CL: { typical: 10, transform: 'none', bsv: 2 }, V: { typical: 1, bsv: null, fixed: true } }, residual: { model: 'additive', a: 1 } });
+
+describe('BFGS', () => {
+  it('finds the minimum of the Rosenbrock function (Nocedal & Wright 2006, eq. 2.22: minimum at (1, 1))', () => {
+    const x = Float64Array.from([-1.2, 1]);
+    const r = createBfgs(2).minimise((v) => 100 * (v[1] - v[0] * v[0]) ** 2 + (1 - v[0]) ** 2, x, { maxIterations: 500 });
+    expect(r.converged).toBe(true);
+    expect(x[0]).toBeCloseTo(1, 4);
+    expect(x[1]).toBeCloseTo(1, 4);
+  });
+  it('treats a non-finite objective as +Infinity and reports no convergence from an impossible start', () => {
+    const x = Float64Array.from([0]);
+    const r = createBfgs(1).minimise(() => NaN, x);
+    expect(r.converged).toBe(false);
+    expect(r.fx).toBe(Infinity);
+  });
+});
+
+describe('working-scale parameters', () => {
+  it('round-trip through the record order (typical, bsv, correlation, residual)', () => {
+    const spec = parseModelSpec({
+      structure: '1cmt',
+      parameters: { CL: { typical: 3, bsv: 0.3 }, V: { typical: 30, bsv: 0.2 }, ka: { typical: 1, bsv: null } },
+      correlations: [['CL', 'V']],
+      correlationValues: { 'CL,V': 0.4 },
+      residual: { model: 'combined', a: 0.1, b: 0.2 },
+    });
+    const data = createDataset([
+      { id: 'a', doses: [{ timeH: 0, amountMg: 100, route: 'oral', durationH: 0 }], observations: [{ timeH: 1, valueMgL: 1, censored: false }] },
+      { id: 'b', doses: [{ timeH: 0, amountMg: 100, route: 'oral', durationH: 0 }], observations: [{ timeH: 2, valueMgL: 1, censored: false }] },
+    ]);
+    const model = compileModel(spec, data);
+    const layout = parameterLayout(model);
+    expect(layout.entries.map((e) => e.kind)).toEqual(['typical', 'typical', 'typical', 'bsv', 'bsv', 'correlation', 'residual', 'residual']);
+    const w = toWorking(model, layout, model.initial);
+    const back = fromWorking(model, layout, w);
+    for (let q = 0; q < 4; q++) expect(back.omega[q]).toBeCloseTo(model.initial.omega[q], 12);
+    expect(back.a).toBeCloseTo(0.1, 12);
+    const population = [
+      { parameter: 'CL', kind: 'typical', estimate: 3 }, { parameter: 'V', kind: 'typical', estimate: 30 }, { parameter: 'ka', kind: 'typical', estimate: 1 },
+      { parameter: 'CL', kind: 'bsv', estimate: 0.3 }, { parameter: 'V', kind: 'bsv', estimate: 0.2 }, { parameter: 'CL,V', kind: 'correlation', estimate: 0.4 },
+      { parameter: 'a', kind: 'residual', estimate: 0.1 }, { parameter: 'b', kind: 'residual', estimate: 0.2 },
+    ];
+    const th = thetaFromPopulation(model, population);
+    expect(th.omega[1]).toBeCloseTo(0.4 * 0.3 * 0.2, 12);
+    expect(() => thetaFromPopulation(model, population.slice(1))).toThrow(/lists 7 population estimates but the model has 8/);
+  });
+});
+
+describe('information summary', () => {
+  const model = compileModel(interceptSpec, interceptData([[9, 10], [12, 11], [8, 9]]), { structuralModel: interceptModel });
+  const layout = parameterLayout(model);
+  it('a singular information gives no SEs and says why (no NaN)', () => {
+    const info = { method: 'linearisation' as const, size: 3, matrix: Float64Array.from([1, 1, 0, 1, 1, 0, 0, 0, 1]), warnings: [] };
+    const se = standardErrors(model, layout, model.initial, info);
+    expect(se.ok).toBe(false);
+    expect(se.se.every((v) => v === null)).toBe(true);
+    expect(se.warnings.join(' ')).toMatch(/not positive definite.*not identifiable/);
+  });
+  it('a near-singular information gives SEs with a warning', () => {
+    const info = { method: 'linearisation' as const, size: 3, matrix: Float64Array.from([1, 0.99999999995, 0, 0.99999999995, 1, 0, 0, 0, 1]), warnings: [] };
+    const se = standardErrors(model, layout, model.initial, info);
+    expect(se.ok).toBe(true);
+    expect(se.conditionNumber!).toBeGreaterThan(1e8);
+    expect(se.warnings.join(' ')).toMatch(/near-singular/);
+  });
+  it('non-finite information is reported', () => {
+    const se = standardErrors(model, layout, model.initial, { method: 'linearisation', size: 3, matrix: Float64Array.from([NaN, 0, 0, 0, 1, 0, 0, 0, 1]), warnings: [] });
+    expect(se.ok).toBe(false);
+    expect(se.warnings.join(' ')).toMatch(/non-finite/);
+  });
+});
+
+describe('random-intercept model: closed-form posterior and marginal likelihood', () => {
+  // y_i | eta ~ N(mu + eta, a^2 I), eta ~ N(0, w^2): posterior N(m_i, v), v = 1 / (n/a^2 + 1/w^2),
+  // m_i = v sum(y - mu) / a^2; marginal y_i ~ N(mu 1, a^2 I + w^2 11') (normal-normal conjugacy).
+  const ys = [[9, 10, 11], [12, 11, 13], [8, 9, 7], [10, 10, 12]];
+  const model = compileModel(interceptSpec, interceptData(ys), { structuralModel: interceptModel });
+  const theta = model.initial; // mu 10, w 2, a 1
+  const density = buildDensity(model, theta)!;
+  const modes = conditionalModes(density);
+  const cond = conditionalDistribution(density, modes, { seed: 3, keepDraws: 200 });
+  const v = 1 / (3 / 1 + 1 / 4);
+  it('modes, Laplace covariance, conditional means and SDs match the conjugate posterior', () => {
+    ys.forEach((y, i) => {
+      const m = (v * y.reduce((s, x) => s + x - 10, 0)) / 1;
+      expect(modes.eta[i]).toBeCloseTo(m, 5);
+      expect(modes.laplaceCovariance[i]).toBeCloseTo(v, 4);
+      expect(Math.abs(cond.mean[i] - m)).toBeLessThan(0.1 * Math.sqrt(v));
+      expect(Math.abs(Math.sqrt(cond.covariance[i]) / Math.sqrt(v) - 1)).toBeLessThan(0.15);
+      expect(cond.settled[i]).toBe(1);
+    });
+  });
+  it('importance sampling and the linearised likelihood give the exact marginal -2LL (the model is linear)', () => {
+    let exact = 0;
+    for (const y of ys) {
+      // det(a^2 I + w^2 11') = a^(2(n-1)) (a^2 + n w^2); quadratic form by Sherman-Morrison.
+      const n = y.length;
+      const r = y.map((x) => x - 10);
+      const s = r.reduce((a, b) => a + b, 0);
+      const q = r.reduce((a, b) => a + b * b, 0) - (4 * s * s) / (1 + n * 4);
+      exact += n * Math.log(2 * Math.PI) + Math.log(1 + n * 4) + q;
+    }
+    const is = importanceSamplingLikelihood(density, cond, modes, { seed: 1, samplesPerSubject: 5000 });
+    expect(Math.abs(is.minus2LL - exact)).toBeLessThan(4 * is.mcError + 1e-6);
+    expect(Math.abs(linearisedMinus2LL(buildLinearisation(model, modes), theta) - exact)).toBeLessThan(1e-6);
+  });
+  it('a capped sampler reports the subjects that did not settle', () => {
+    const c = conditionalDistribution(density, modes, { seed: 3, batch: 10, minBatches: 4, maxIterations: 30 });
+    expect(Array.from(c.settled).every((s) => s === 0)).toBe(true);
+    expect(c.warnings.join(' ')).toMatch(/had not settled after 30 iterations/);
+  });
+  it('degenerate importance weights are reported with the effective sample size', () => {
+    const is = importanceSamplingLikelihood(density, cond, modes, { seed: 1, samplesPerSubject: 200, minEssFraction: 1 });
+    expect(is.warnings.join(' ')).toMatch(/weights degenerate .*ESS/);
+    for (const e of is.ess) expect(e).toBeGreaterThan(1);
+  });
+});
+
+describe('repeated fits: verdict', () => {
+  const run = (seed: number, est: number[], ll: number) => ({ seed, estimates: est, minus2LL: ll, mcError: 0.05, initial: {}, warnings: [] });
+  it('stable when the runs agree within one SE and -2LL within the Monte Carlo error', () => {
+    const s = summariseRuns(['CL', 'V'], [run(1, [1, 10], 100), run(2, [1.01, 10.2], 100.1), run(3, [0.99, 9.9], 100.05)], [0.1, 1]);
+    expect(s.stable).toBe(true);
+    expect(s.verdict).toMatch(/^stable/);
+  });
+  it('unstable names the parameters that move and -2LL', () => {
+    const s = summariseRuns(['CL', 'V'], [run(1, [1, 10], 100), run(2, [1.3, 10.2], 103), run(3, [0.99, 9.9], 100.05)], [0.1, 1]);
+    expect(s.stable).toBe(false);
+    expect(s.unstable).toEqual(['CL', '-2LL']);
+    expect(s.verdict).toMatch(/^unstable: CL, -2LL/);
+  });
+});
