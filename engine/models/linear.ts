@@ -43,6 +43,8 @@ function oneMinusExpOver(x: number): number {
 /**
  * (e^{-l dt} - e^{-ka dt}) / (ka - l), given el = e^{-l dt} and ea = e^{-ka dt}. When
  * |ka - l| dt is small the difference quotient is rewritten as e^{-min dt} dt (1 - e^{-d})/d.
+ * The reference form: the hot paths below write the same expression out inline (a call that
+ * returns a double may box it), so change them together.
  */
 export function expDivDiff(l: number, ka: number, dt: number, el: number, ea: number): number {
   const d = (ka - l) * dt;
@@ -112,6 +114,7 @@ export const twoCompartmentModes: ModeFunction = (p, lam, w) => {
   const k12 = q / v1;
   const k21 = q / v2;
   // Discriminant as a sum of squares (no cancellation): (k10 + k12 - k21)^2 + 4 k12 k21.
+  // Residues lose accuracy only as alpha -> beta, which needs Q -> 0 with CL/V1 = Q/V2.
   const u = k10 + k12 - k21;
   const root = Math.sqrt(u * u + 4 * k12 * k21);
   const alpha = 0.5 * (k10 + k12 + k21 + root);

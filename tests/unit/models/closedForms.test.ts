@@ -130,6 +130,24 @@ describe('absorption rate close to an elimination rate', () => {
   });
 });
 
+describe('model identities', () => {
+  it('3cmt with equal peripheral rate constants equals the 2cmt with the peripherals lumped', () => {
+    // Two peripheral compartments with Q2/V2 = Q3/V3 behave as one with Q = Q2 + Q3, V = V2 + V3 (exact lumping of linear compartments, common practice).
+    const doses = [bolus(0, 500), inf(6, 600, 2), oral(12, 300)];
+    const times = [0.5, 2, 6, 7, 8, 12, 13, 24, 72];
+    const three = predict('3cmt', doses, times, [5, 10, 12, 24, 3, 6, 1.2, 0.3, 0.8]);
+    const two = predict('2cmt', doses, times, [5, 10, 15, 30, 1.2, 0.3, 0.8]);
+    times.forEach((_, i) => expect(relErr(three[i], two[i])).toBeLessThan(1e-9));
+  });
+  it('2cmt with a negligible peripheral compartment approaches the 1cmt', () => {
+    const doses = [bolus(0, 500), oral(12, 300)];
+    const times = [0.5, 2, 12, 13, 24];
+    const two = predict('2cmt', doses, times, [4, 50, 1e-9, 1e-6, 1.2, 0.3, 0.8]);
+    const one = predict('1cmt', doses, times, [4, 50, 1.2, 0.3, 0.8]);
+    times.forEach((_, i) => expect(relErr(two[i], one[i])).toBeLessThan(1e-6));
+  });
+});
+
 describe('timing conventions and edge cases', () => {
   const p1 = [4, 50, 1, 0, 1];
   it('a level at exactly a bolus time is the pre-dose level (TDM convention, common practice)', () => {
