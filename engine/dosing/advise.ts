@@ -104,6 +104,15 @@ function currentTauOf(patient: Patient): number | undefined {
   return d.length >= 2 ? d[d.length - 1].timeH - d[d.length - 2].timeH : d[0].steadyStateIntervalH;
 }
 
+const NONLINEAR_TABLE_DRAWS = 500;
+
+/** n evenly spaced rows of a rows x cols matrix. */
+function thinRows(m: Float64Array, cols: number, rows: number, n: number): Float64Array {
+  const out = new Float64Array(n * cols);
+  for (let k = 0; k < n; k++) out.set(m.subarray(Math.floor((k * rows) / n) * cols, (Math.floor((k * rows) / n) + 1) * cols), k * cols);
+  return out;
+}
+
 const NO_TARGET: TargetSpec = { id: 'none', label: 'no target', source: 'none', sourceStatus: 'from memory', localProtocol: 'check local protocol', goals: [], toxic: [] };
 
 function roundTo(x: number, step: number): number {
@@ -121,6 +130,7 @@ export function adviseDose(o: AdviceOptions): Advice {
   if (/not for clinical use/i.test(prov)) warnings.push({ severity: 'block', code: 'example-model', message: 'the model is labelled "example, not for clinical use": its values are invented' });
   warnings.push(...fromPatientNotes(patient.notes));
 
+  if (patient.doses.some((d) => d.route === 'oral') && !('ka' in population.spec.parameters)) throw new AdviceError('the patient has oral doses but the model spec has no absorption rate ka; use a model with oral absorption');
   // Model covariates, resolved against the patient's names.
   const covValues = new Map<string, CovariateValue>();
   const covariatesUsed: Record<string, string> = Object.create(null);
@@ -142,8 +152,6 @@ export function adviseDose(o: AdviceOptions): Advice {
   if (unused.length) warnings.push({ severity: 'note', code: 'covariate-unused', message: `covariates not used by the model: ${unused.join(', ')}` });
   const prior: PatientPrior = buildPatientPrior(population, covValues, model);
   warnings.push(...checkCovariateRanges(covValues, population.covariateRanges));
-  if (patient.doses.some((d) => d.route === 'oral') && !model.parameterOrder.includes('ka')) throw new AdviceError('the patient has oral doses but the model has no absorption');
-  if (patient.doses.some((d) => d.route === 'oral') && !('ka' in population.spec.parameters)) throw new AdviceError('the patient has oral doses but the model spec has no absorption rate ka; use a model with oral absorption');
 
   // Posterior.
   const root = createStreams(o.seed);
@@ -224,10 +232,17 @@ export function adviseDose(o: AdviceOptions): Advice {
   const continuation: Regimen | undefined = o.target ? undefined : { doseMg: last.amountMg, intervalH: currentTauOf(patient) ?? 12, durationH: last.durationH, route: last.route };
   const single = o.evaluate ?? continuation;
   const candidates = single ? [single] : regimenGrid(settings, route);
-  const evalInput = { model, draws: paramDraws, nDraws, target };
+  // The ODE-solved models cost far more per draw: their regimen table uses evenly spaced draws.
+  const tableDraws = model.analytic ? nDraws : Math.min(nDraws, NONLINEAR_TABLE_DRAWS);
+  const tableParams = tableDraws === nDraws ? paramDraws : thinRows(paramDraws, nP, nDraws, tableDraws);
+  if (tableDraws < nDraws) warnings.push({ severity: 'note', code: 'table-draws', message: `the model is solved numerically: regimen probabilities use ${tableDraws} of the ${nDraws} draws (Monte Carlo error up to about ${Math.round(50 / Math.sqrt(tableDraws))} percentage points)` });
+  const evalInput = { model, draws: tableParams, nDraws: tableDraws, target };
   let results = evaluateRegimens(evalInput, candidates);
   if (o.loadingDose && !single) results = results.map((r) => ({ ...r, loadingDoseMg: loadingDoseFor(model, r, mapVector, settings) }));
   const ranked = single ? results : rankRegimens(results, currentTauOf(patient));
+  const failing = results.filter((r) => r.failedDraws > 0);
+  if (failing.length)
+    warnings.push({ severity: 'flag', code: 'regimen-draws-failed', message: `${failing.length} candidate regimen(s) have draws with no steady state or a model failure (e.g. elimination saturated): those draws count as toxic` });
   const nExplain = o.explainTop ?? 3;
   ranked.forEach((r, i) => {
     if (i < nExplain && target.goals.length) r.explanation = explainRegimen(r, target, single ? undefined : i + 1);

@@ -25,7 +25,7 @@ export interface RegimenResult {
   pToxic: number | null;
   /** Steady-state metrics with their bands; ftAbove only when a threshold is known. */
   metrics: Partial<Record<MetricId, Band>>;
-  /** Draws for which the model failed (excluded from the probabilities' denominators). */
+  /** Draws the model could not evaluate: counted as not attained and as toxic. */
   failedDraws: number;
   explanation?: string;
 }
@@ -282,8 +282,10 @@ function summarise(input: EvaluationInput, regimen: Regimen, w: EvaluationWorksp
     route: regimen.route,
     ...(regimen.loadingDoseMg !== undefined ? { loadingDoseMg: regimen.loadingDoseMg } : {}),
     dailyDoseMg: sig((regimen.doseMg * 24) / regimen.intervalH, 6),
-    pTarget: ok && goals.length ? hit / ok : NaN,
-    pToxic: toxic.length ? (ok ? tox / ok : NaN) : null,
+    // A draw the model cannot evaluate (e.g. saturated elimination with no steady state) counts
+    // as not attained and as toxic: the conservative reading of an accumulating exposure.
+    pTarget: nDraws && goals.length ? hit / nDraws : NaN,
+    pToxic: toxic.length ? (nDraws ? (tox + nDraws - ok) / nDraws : NaN) : null,
     metrics,
     failedDraws: nDraws - ok,
   };
@@ -332,7 +334,7 @@ export function explainRegimen(r: RegimenResult, target: TargetSpec, rank?: numb
     parts.push(`Predicted ${METRIC_LABELS[id].label}: ${fmt(b.median)} ${METRIC_LABELS[id].unit} (80 % interval ${fmt(b.q10)}-${fmt(b.q90)}).`);
   }
   if (r.loadingDoseMg !== undefined) parts.push(`The loading dose of ${r.loadingDoseMg} mg brings the first peak close to the steady-state peak.`);
-  if (r.failedDraws > 0) parts.push(`(${r.failedDraws} draws could not be evaluated and were left out.)`);
+  if (r.failedDraws > 0) parts.push(`(${r.failedDraws} draws reach no steady state or could not be evaluated; they count as toxic.)`);
   return parts.join(' ');
 }
 

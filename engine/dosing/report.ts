@@ -14,14 +14,15 @@ const pct = (p: number | null) => (p === null ? '-' : Number.isFinite(p) ? `${Ma
 const pad = (s: string, n: number) => (s.length >= n ? s : s + ' '.repeat(n - s.length));
 
 function wrap(text: string, width = 96, indent = ''): string {
-  const words = text.split(/\s+/);
+  const lead = /^\s*/.exec(text)?.[0] ?? '';
+  const words = text.trim().split(/\s+/);
   const lines: string[] = [];
-  let line = '';
+  let line = lead;
   for (const w of words) {
-    if (line && line.length + 1 + w.length > width) {
+    if (line.trim() && line.length + 1 + w.length > width) {
       lines.push(line);
       line = indent + w;
-    } else line = line ? `${line} ${w}` : w;
+    } else line = line.trim() ? `${line} ${w}` : line + w;
   }
   if (line) lines.push(line);
   return lines.join('\n');

@@ -245,3 +245,28 @@ describe('level timing', () => {
     expect(codes(26)).toEqual([]);
   });
 });
+
+describe('other structures', () => {
+  const target = parseTarget({ id: 't', label: 't', source: 'test', goals: [{ metric: 'trough', min: 10, max: 20 }], toxic: [{ metric: 'peak', max: 25 }], regimen: { strengthMg: 100, minDoseMg: 100, maxDoseMg: 400, intervalsH: [8, 12], durationsH: [1] } });
+  it('Michaelis-Menten: draws with no steady state count as toxic, and the table uses thinned draws', () => {
+    const mm = populationModelFromSpec(parseModelSpec({ source: 'invented for the test', structure: '1cmt-mm', parameters: { Vmax: { typical: 20, bsv: 0.3 }, Km: { typical: 4, bsv: null }, V: { typical: 50, bsv: 0.2 } }, residual: { model: 'proportional', b: 0.1 }, covariateRanges: {} }));
+    const p = parsePatient({ id: 'mm', covariates: {}, doses: [0, 12].map((t) => ({ time_h: t, amount_mg: 300, duration_h: 1 })), levels: [{ time_h: 11.9, conc_mg_L: 4 }] });
+    const a = adviseDose({ population: mm, patient: p, target, caution: 'c', seed: 1, engineVersion: 't', nDraws: 600 });
+    expect(a.warnings.some((w) => w.code === 'table-draws')).toBe(true);
+    // 400 mg q8h (50 mg/h) exceeds Vmax (about 20 mg/h) for most draws: no steady state.
+    const heavy = a.regimens.find((r) => r.doseMg === 400 && r.intervalH === 8)!;
+    expect(heavy.failedDraws).toBeGreaterThan(0);
+    expect(heavy.pToxic!).toBeGreaterThanOrEqual(heavy.failedDraws / 500);
+    expect(a.warnings.some((w) => w.code === 'regimen-draws-failed')).toBe(true);
+  });
+  it('oral doses: a model with absorption gives oral regimens; without ka it is refused', () => {
+    const oral = populationModelFromSpec(parseModelSpec({ source: 'invented for the test', structure: '1cmt', parameters: { CL: { typical: 4, bsv: 0.3 }, V: { typical: 40, bsv: 0.2 }, ka: { typical: 1.2, bsv: 0.3 }, F: { typical: 0.7, bsv: null, transform: 'logit' } }, residual: { model: 'combined', a: 0.2, b: 0.1 }, covariateRanges: {} }));
+    const po = parsePatient({ id: 'o', covariates: {}, doses: [0, 12].map((t) => ({ time_h: t, amount_mg: 300, route: 'oral' })), levels: [{ time_h: 14, conc_mg_L: 5 }] });
+    const a = adviseDose({ population: oral, patient: po, target, caution: 'c', seed: 1, engineVersion: 't', nDraws: 500 });
+    expect(a.regimens.every((r) => r.route === 'oral' && r.durationH === 0)).toBe(true);
+    // AUC24 of an oral regimen at steady state = F x daily dose / CL (superposition).
+    const r = a.regimens[0];
+    expect(r.metrics.auc24!.median).toBeGreaterThan(0);
+    expect(() => adviseDose({ population: populationModelFromSpec(parseModelSpec({ ...SPEC, covariates: [] })), patient: po, target, caution: 'c', seed: 1, engineVersion: 't', nDraws: 200 })).toThrow(/absorption/);
+  });
+});
