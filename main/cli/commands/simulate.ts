@@ -51,7 +51,7 @@ export const command: CliCommand = {
     }
     const seed = numberFlag(args, 'seed', { integer: true, usage });
     const variability = booleanFlag(args, 'variability');
-    if (seed !== undefined && !variability) throw new UsageError('--seed only matters with --variability (typical predictions have no randomness)', usage);
+    if (seed !== undefined && !variability) io.stderr('plateau: note: --seed has no effect without --variability (typical predictions have no randomness)\n');
     const out = stringFlag(args, 'out');
     const format = out === undefined ? 'csv' : path.extname(out).toLowerCase();
     if (format !== 'csv' && format !== '.csv' && format !== '.json') throw new UsageError(`--out must end in .csv or .json, got "${out}"`, usage);

@@ -100,6 +100,10 @@ describe('plateau simulate (in-process)', () => {
     const typical = captureIo(dir);
     await runCli(['simulate', '--model', 'spec.json', '--data', 'data.csv'], typical);
     expect(a).not.toBe(typical.out);
+    const seeded = captureIo(dir);
+    expect(await runCli(['simulate', '--model', 'spec.json', '--data', 'data.csv', '--seed', '5'], seeded)).toBe(0);
+    expect(seeded.out).toBe(typical.out);
+    expect(seeded.err).toContain('no effect without --variability');
   });
 
   it('bad input: clear errors naming subject and field, exit 1 or 2', async () => {
