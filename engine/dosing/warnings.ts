@@ -26,6 +26,10 @@ export function checkCovariateRanges(values: ReadonlyMap<string, unknown>, range
   const out: AdviceWarning[] = [];
   for (const [name, [lo, hi]] of Object.entries(ranges)) {
     const v = values.get(name);
+    if (v === undefined) {
+      out.push({ severity: 'note', code: 'covariate-range-unchecked', message: `the model was built on ${name} ${fmt(lo)}-${fmt(hi)}; the patient file has no ${name}, so that range is not checked` });
+      continue;
+    }
     if (typeof v !== 'number') continue;
     if (v < lo || v > hi)
       out.push({ severity: 'block', code: 'covariate-out-of-range', message: `${name} = ${fmt(v)} lies outside the range the model was built on (${fmt(lo)}-${fmt(hi)}): the model extrapolates for this patient` });

@@ -1,0 +1,51 @@
+/**
+ * A site fit feeds dose advice: plateau fit on the Theoph data (R datasets::Theoph, exported by
+ * tests/reference/theoph/export_theoph.R), then plateau dose with its fit.json as the prior.
+ * Mechanics only: the patient is invented, and Theoph doses are mg/kg.
+ */
+import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import * as os from 'node:os';
+import * as path from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { runCli } from '../../../main/cli/run.js';
+
+const theophCsv = path.resolve(__dirname, '../../reference/theoph/theoph.csv');
+
+function io(cwd: string) {
+  const out: string[] = [];
+  const err: string[] = [];
+  return { io: { stdout: (t: string) => out.push(t), stderr: (t: string) => err.push(t), cwd }, out: () => out.join(''), err: () => err.join('') };
+}
+
+describe('plateau dose with a fit.json', () => {
+  it('uses the fitted estimates, records the fit provenance and warns that ranges are unknown', async () => {
+    const dir = mkdtempSync(path.join(os.tmpdir(), 'plateau-dose-fit-'));
+    const spec = {
+      name: 'Theoph one-compartment (test)',
+      structure: '1cmt',
+      parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
+      covariates: [{ parameter: 'CL', covariate: 'weight_kg', relation: 'power', reference: 70, coefficient: 0.75, fixed: true }],
+      residual: { model: 'additive', a: 1 },
+      estimation: { explorationMinIterations: 60, explorationMaxIterations: 100, averagingIterations: 50 },
+    };
+    writeFileSync(path.join(dir, 'spec.json'), JSON.stringify(spec));
+    const f = io(dir);
+    expect(await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '3', '--out', 'fit.json'], f.io)).toBe(0);
+    const fit = JSON.parse(readFileSync(path.join(dir, 'fit.json'), 'utf8'));
+    const clFit = fit.population.find((e: { kind: string; parameter: string }) => e.kind === 'typical' && e.parameter === 'CL').estimate;
+
+    writeFileSync(
+      path.join(dir, 'patient.json'),
+      JSON.stringify({ id: 'oral-1 (invented)', covariates: { weight_kg: 70 }, doses: [0, 12].map((t) => ({ time_h: t, amount_mg: 4, route: 'oral' })), levels: [{ time_h: 14, conc_mg_L: 7.5 }] }),
+    );
+    const t = io(dir);
+    const code = await runCli(['dose', '--model', 'fit.json', '--patient', 'patient.json', '--json', '--seed', '2'], t.io);
+    expect(code).toBe(0);
+    const a = JSON.parse(t.out());
+    expect(a.model).toMatchObject({ kind: 'site fit', dataHash: fit.dataHash, engineVersion: fit.engineVersion, seed: 3 });
+    // weight 70 = the reference, so the typical CL for this patient is the fitted typical CL.
+    expect(a.posterior.typical.CL).toBeCloseTo(clFit, 4);
+    expect(a.warnings.some((w: { code: string; message: string }) => w.code === 'ranges-unknown')).toBe(true);
+    expect(a.regimens[0].route).toBe('oral');
+  }, 120_000);
+});
