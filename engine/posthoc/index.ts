@@ -275,8 +275,21 @@ export function posthocRecordFields(model: CompiledModel, r: PosthocResult, seed
   };
 }
 
+type Individual = PosthocRecordFields['individual'][number];
+
+/** A fit record with the post-fit fields merged in. */
+export type WithPosthoc<R extends { population: object[]; individual: { subject: string }[]; warnings: string[] }> = Omit<R, 'population' | 'individual'> & {
+  population: (R['population'][number] & { se: number | null; rsePercent: number | null })[];
+  individual: (R['individual'][number] & Pick<Individual, 'mode' | 'mean' | 'sd' | 'shrinkage' | 'quantiles' | 'settled' | 'draws'>)[];
+  uncertainty: PosthocRecordFields['uncertainty'];
+  likelihood: PosthocRecordFields['likelihood'];
+  shrinkage: PosthocRecordFields['shrinkage'];
+  diagnostics: PosthocRecordFields['diagnostics'];
+  posthoc: PosthocRecordFields['posthoc'];
+};
+
 /** A fit record (any object with population and individual lists) with the post-fit fields merged in. */
-export function mergePosthoc<R extends { population: object[]; individual: { subject: string }[]; warnings: string[] }>(record: R, fields: PosthocRecordFields) {
+export function mergePosthoc<R extends { population: object[]; individual: { subject: string }[]; warnings: string[] }>(record: R, fields: PosthocRecordFields): WithPosthoc<R> {
   const population = record.population.map((e, q) => ({ ...e, se: fields.se[q] ?? null, rsePercent: fields.rsePercent[q] ?? null }));
   const individual = record.individual.map((s, i) => {
     const f = fields.individual[i];
@@ -292,5 +305,5 @@ export function mergePosthoc<R extends { population: object[]; individual: { sub
     diagnostics: fields.diagnostics,
     posthoc: fields.posthoc,
     warnings: [...record.warnings, ...fields.posthoc.warnings],
-  };
+  } as WithPosthoc<R>;
 }

@@ -1,0 +1,87 @@
+/**
+ * The post-fit steps for a finished fit (engine/posthoc): standard errors, likelihood,
+ * per-subject conditional distributions, diagnostics, and optionally the repeated-fit check,
+ * merged into the fit record. One entry point for the CLI, the worker and the tests.
+ */
+import { mergePosthoc, posthocRecordFields, PosthocError, runPosthoc, thetaFromPopulation, type PosthocOptions, type WithPosthoc } from '../../engine/posthoc/index.js';
+import { runRepeatedFits, type RepeatOptions, type RepeatSummary } from '../../engine/posthoc/robustness.js';
+import { transformInverseValue } from '../../engine/stats/model.js';
+import type { FitOutcome } from './fitService.js';
+
+export interface FitPosthocOptions {
+  /** Seed of the post-fit random streams (default: the fit's seed). */
+  seed?: number;
+  /** Run the fit this many times in all (>= 2) from different seeds and initial values. */
+  repeat?: number;
+  posthoc?: Partial<PosthocOptions>;
+  repeatOptions?: Partial<RepeatOptions>;
+  onStatus?: (message: string) => void | Promise<void>;
+}
+
+export type PosthocFitRecord = WithPosthoc<FitOutcome['record']> & { robustness?: RepeatSummary };
+
+export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions = {}): Promise<PosthocFitRecord> {
+  const { model, record } = outcome;
+  const seed = options.seed ?? record.seed;
+  const theta = thetaFromPopulation(model, record.population);
+  const p = model.nParams;
+  const startPhi = new Float64Array(model.nSubjects * p);
+  record.individual.forEach((s, i) => model.parameters.forEach((par, j) => (startPhi[i * p + j] = transformInverseValue(par.transform, s.parameters[par.name]))));
+  await options.onStatus?.('post-fit: conditional modes and distributions, standard errors, likelihood, diagnostics');
+  let merged: PosthocFitRecord;
+  try {
+    const r = runPosthoc(model, theta, { seed, startPhi, ...(options.posthoc ?? {}) });
+    merged = mergePosthoc(record, posthocRecordFields(model, r, seed));
+  } catch (e) {
+    if (!(e instanceof PosthocError)) throw e;
+    return { ...record, warnings: [...record.warnings, `post-fit steps not run: ${e.message}`] } as unknown as PosthocFitRecord;
+  }
+  if (options.repeat !== undefined) {
+    merged.robustness = await runRepeatedFits(outcome.spec, outcome.dataset, {
+      runs: options.repeat,
+      seed: record.seed,
+      se: merged.population.map((e) => e.se),
+      settings: record.settings,
+      ...(options.repeatOptions ?? {}),
+      onRun: (run, of) => options.onStatus?.(`repeated fit ${run} of ${of}`),
+    });
+    if (!merged.robustness.stable) merged.warnings.push(`robustness: ${merged.robustness.verdict}`);
+  }
+  return merged;
+}
+
+const fmt = (x: number | null | undefined, digits = 5): string =>
+  x === null || x === undefined || !Number.isFinite(x) ? '-' : Math.abs(x) >= 1e4 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(3) : x.toPrecision(digits);
+
+/** Plain-text summary of the post-fit additions for the terminal. */
+export function formatPosthocSummary(record: PosthocFitRecord): string {
+  const lines: string[] = [];
+  if (!('likelihood' in record) || !record.likelihood) return '';
+  lines.push('');
+  lines.push(`Standard errors (${record.uncertainty.method}):`);
+  for (const e of record.population) {
+    const label = e.kind === 'typical' ? `${e.parameter} (typical)` : e.kind === 'bsv' ? `BSV ${e.parameter} (omega)` : e.kind === 'covariate' ? `${e.parameter} ~ ${e.covariate}` : e.kind === 'correlation' ? `correlation ${e.parameter}` : `residual ${e.parameter}`;
+    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)}  SE ${fmt(e.se, 3).padStart(10)}  RSE ${e.rsePercent === null ? '-' : `${e.rsePercent.toFixed(1)}%`}`);
+  }
+  if (record.uncertainty.conditionNumber !== null) lines.push(`  condition number of the information: ${fmt(record.uncertainty.conditionNumber, 3)}`);
+  const l = record.likelihood;
+  lines.push('');
+  lines.push(`Likelihood (${l.method}):`);
+  lines.push(`  -2LL ${fmt(l.minus2LL, 7)} (Monte Carlo SE ${fmt(l.mcError, 2)}; smallest ESS ${fmt(l.essMin, 3)})`);
+  lines.push(`  AIC ${fmt(l.aic, 7)}   BIC (log N) ${fmt(l.bic, 7)}   BICc (log N / log n_obs) ${fmt(l.bicc, 7)}   ${l.nParameters} parameters`);
+  lines.push(`  linearised -2LL ${fmt(l.linearised.minus2LL, 7)}   Laplace -2LL ${fmt(l.laplaceMinus2LL, 7)}`);
+  const sh = Object.entries(record.shrinkage.eta).map(([k, v]) => `${k} ${v.sd === null ? '-' : `${(100 * v.sd).toFixed(0)}%`}`);
+  lines.push('');
+  lines.push(`Shrinkage: eta ${sh.join(', ')}; epsilon ${record.shrinkage.epsilon === null ? '-' : `${(100 * record.shrinkage.epsilon).toFixed(0)}%`}`);
+  const t = record.diagnostics?.npde.tests;
+  if (t) lines.push(`NPDE: mean ${fmt(t.mean, 3)} (p ${fmt(t.meanTest.pValue, 2)}), variance ${fmt(t.variance, 3)} (p ${fmt(t.varianceTest.pValue, 2)}), normality p ${fmt(t.normalityTest.pValue, 2)}, global p ${fmt(t.globalTest.pValue, 2)}`);
+  if (record.robustness) {
+    lines.push('');
+    lines.push(`Robustness (${record.robustness.runs.length} runs): ${record.robustness.verdict}`);
+    for (const q of record.robustness.parameters) lines.push(`  ${q.label.padEnd(28)} range ${fmt(q.range, 3).padStart(10)}  SE ${fmt(q.se, 3).padStart(10)}${q.stable === false ? '  UNSTABLE' : ''}`);
+    const m = record.robustness.minus2LL;
+    if (m.range !== null) lines.push(`  -2LL range ${fmt(m.range, 3)} (Monte Carlo error ${fmt(m.mcError, 2)})`);
+    lines.push(`  rule: ${record.robustness.rule}`);
+  }
+  return lines.join('\n');
+}
