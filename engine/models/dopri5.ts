@@ -106,7 +106,9 @@ export abstract class Dopri5 {
       let err = 0;
       for (let i = 0; i < n; i++) {
         const e = h * (E1 * k1[i] + E3 * k3[i] + E4 * k4[i] + E5 * k5[i] + E6 * k6[i] + E7 * k7[i]);
-        const sc = absTol + relTol * Math.max(Math.abs(y[i]), Math.abs(yn[i]));
+        const ay = Math.abs(y[i]);
+        const an = Math.abs(yn[i]);
+        const sc = absTol + relTol * (ay > an ? ay : an);
         const r = e / sc;
         err += r * r;
       }
@@ -114,7 +116,12 @@ export abstract class Dopri5 {
       steps++;
       if (!(err === err) || !(h > 0)) return -1;
       // Safety 0.9, growth between 0.2 and 5 per step (Hairer II.4).
-      const fac = err === 0 ? 5 : Math.min(5, Math.max(0.2, 0.9 * Math.pow(err, -0.2)));
+      let fac = 5;
+      if (err > 0) {
+        fac = 0.9 * Math.exp(-0.2 * Math.log(err));
+        if (fac > 5) fac = 5;
+        else if (fac < 0.2) fac = 0.2;
+      }
       if (err <= 1) {
         done = last ? dt : done + h;
         for (let i = 0; i < n; i++) {
