@@ -81,8 +81,8 @@ export function regimenDoses(regimen: Regimen, startH: number, count: number): D
 
 const GRID = 16;
 
-/** At most this many draws (evenly spaced) enter the curve bands: enough for 2.5 % tails. */
-const MAX_CURVE_DRAWS = 2000;
+/** At most this many draws (evenly spaced) enter the curve and interval bands (25 beyond each 2.5 % tail). */
+const MAX_CURVE_DRAWS = 1000;
 
 export function forecast(input: ForecastInput): Forecast {
   const { prior, history } = input;

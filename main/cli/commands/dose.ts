@@ -8,7 +8,8 @@ import { UsageError, type CliCommand } from '../types.js';
 
 const usage = `Usage: plateau dose --model <fit.json|model.json> --patient <patient.json> [--target <preset|target.json>]
                     [--out advice.json] [--seed N] [--evaluate "1000mg q12h 1h"] [--draws N]
-                    [--mic X] [--loading-dose] [--below X] [--override-blocks] [--json]
+                    [--mic X] [--peak-after H] [--next-dose-h H] [--loading-dose] [--below X]
+                    [--override-blocks] [--json]
 
 Combines a population model with one patient's doses and levels: the patient's posterior (MAP
 and MCMC draws), forecast metrics with credible bands, and candidate regimens ranked by the
@@ -25,6 +26,8 @@ probability of reaching the target and of toxic exposure. Always printed with th
                         "load 2000mg 1000mg q12h 2h", "500mg q8h bolus"
   --draws N             posterior draws (default 2000)
   --mic X               MIC (mg/L) for the target's per-MIC bounds (overrides the preset's)
+  --peak-after H        also report the level H hours after the end of infusion (peakAt)
+  --next-dose-h H       start of the next dose, hours from the first dose (overrides the file)
   --loading-dose        suggest a loading dose with every candidate
   --below X             report when the level falls below X mg/L after the last given dose
   --override-blocks     show the regimens even when a check blocks the advice (marked as blocked)
@@ -42,6 +45,8 @@ const specs = {
   mic: { type: 'string' },
   'loading-dose': { type: 'boolean' },
   below: { type: 'string' },
+  'peak-after': { type: 'string' },
+  'next-dose-h': { type: 'string' },
   'override-blocks': { type: 'boolean' },
   json: { type: 'boolean' },
 } as const;
@@ -59,6 +64,9 @@ export const command: CliCommand = {
     if (mic !== undefined && !(mic > 0)) throw new UsageError('--mic must be > 0 (mg/L)', usage);
     const below = numberFlag(args, 'below', { usage });
     if (below !== undefined && !(below > 0)) throw new UsageError('--below must be > 0 (mg/L)', usage);
+    const peakAfter = numberFlag(args, 'peak-after', { usage });
+    if (peakAfter !== undefined && !(peakAfter >= 0)) throw new UsageError('--peak-after must be >= 0 (hours after the end of infusion)', usage);
+    const nextDoseH = numberFlag(args, 'next-dose-h', { usage });
     let evaluate;
     const evalText = stringFlag(args, 'evaluate');
     if (evalText !== undefined) {
@@ -71,10 +79,17 @@ export const command: CliCommand = {
     }
     const population = await loadModelFile(resolvePath(io.cwd, stringFlag(args, 'model')!));
     const patient = await loadPatientFile(resolvePath(io.cwd, stringFlag(args, 'patient')!));
+    if (nextDoseH !== undefined) {
+      const last = patient.doses[patient.doses.length - 1];
+      if (nextDoseH < last.timeH + last.durationH) throw new UsageError(`--next-dose-h ${nextDoseH} is before the last dose has finished (${last.timeH + last.durationH} h)`, usage);
+      patient.nextDoseH = nextDoseH;
+    }
     const targetName = stringFlag(args, 'target');
     let target = targetName !== undefined ? await loadTarget(targetName, io.cwd) : undefined;
     if (target && mic !== undefined) target = { ...target, micMgL: mic };
     else if (!target && mic !== undefined) throw new UsageError('--mic needs --target', usage);
+    if (target && peakAfter !== undefined) target = { ...target, peakDelayH: peakAfter };
+    else if (!target && peakAfter !== undefined) throw new UsageError('--peak-after needs --target', usage);
     if (!target && targetName === undefined && evaluate === undefined)
       io.stderr(`plateau: no --target: evaluating the current regimen only (presets: ${(await listTargetPresets()).join(', ')})\n`);
 

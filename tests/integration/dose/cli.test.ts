@@ -63,11 +63,14 @@ describe('plateau dose', () => {
 
   it('--evaluate returns the one regimen; --json prints the same JSON', async () => {
     const t = io(dir);
-    const code = await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', '--evaluate', '1250mg q12h 1.5h', '--json'], t.io);
+    const code = await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', '--evaluate', '1250mg q12h 1.5h', '--json', '--peak-after', '1', '--next-dose-h', '40'], t.io);
     expect(code).toBe(0);
     const a = JSON.parse(t.out());
     expect(a.regimens).toHaveLength(1);
     expect(a.regimens[0]).toMatchObject({ doseMg: 1250, intervalH: 12, durationH: 1.5 });
+    expect(a.regimens[0].metrics.peakAt.median).toBeLessThan(a.regimens[0].metrics.peak.median);
+    expect(a.patient).toMatchObject({ nextDoseH: 40, nextDoseAssumed: false });
+    expect(a.forecast.futureDoses[0].timeH).toBe(40);
     expect(a.caution).toBe(CAUTION);
   });
 
