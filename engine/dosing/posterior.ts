@@ -140,10 +140,86 @@ export interface PosteriorDraws {
   diagnostics: SamplerDiagnostics;
 }
 
-/** Chain state: position, its log posterior (-objective / 2). */
-interface ChainState {
+/** Chain state: what the next step needs. */
+export interface ChainState {
+  /** Current random effects (transformed scale). */
   eta: Float64Array;
+  /** Its log posterior, -objective / 2. */
   logPost: number;
+  /** Its log density under the independence proposal (up to a constant). */
+  logQ: number;
+}
+
+/** One Metropolis-Hastings step on a chain state: moves `state` in place; true when accepted. */
+export type Kernel = (rng: RngStream, state: ChainState) => boolean;
+
+export interface KernelSet {
+  independence: Kernel;
+  randomWalk: Kernel;
+  /** log q of the independence proposal, for initialising a state. */
+  logQ(x: Float64Array): number;
+}
+
+/**
+ * Build the two kernels once from the target and the proposal factor L (Sigma = L L'):
+ * an independence sampler from a multivariate Student-t (df nu) centred at `centre` with scale
+ * Sigma, and a random walk N(eta, (2.38^2 / d) Sigma). Non-finite log densities are rejections.
+ */
+export function buildKernels(logPost: (x: Float64Array) => number, centre: Float64Array, L: Float64Array, nu: number): KernelSet {
+  const d = centre.length;
+  const z = new Float64Array(d);
+  const prop = new Float64Array(d);
+  const rwScale = 2.38 / Math.sqrt(d);
+  const logQ = (x: Float64Array): number => {
+    let qf = 0;
+    for (let i = 0; i < d; i++) {
+      let s = x[i] - centre[i];
+      for (let j = 0; j < i; j++) s -= L[i * d + j] * z[j];
+      z[i] = s / L[i * d + i];
+      qf += z[i] * z[i];
+    }
+    return -0.5 * (nu + d) * Math.log(1 + qf / nu);
+  };
+  const independence: Kernel = (r, state) => {
+    r.fillNormal(z);
+    let chi = 0;
+    for (let k = 0; k < nu; k++) {
+      const g = r.normal();
+      chi += g * g;
+    }
+    const w = Math.sqrt(nu / chi);
+    for (let i = 0; i < d; i++) {
+      let v = 0;
+      for (let j = 0; j <= i; j++) v += L[i * d + j] * z[j];
+      prop[i] = centre[i] + w * v;
+    }
+    const lp = logPost(prop);
+    const lq = logQ(prop);
+    if (Number.isFinite(lp) && Math.log(r.uniform()) < lp - state.logPost + state.logQ - lq) {
+      state.eta.set(prop);
+      state.logPost = lp;
+      state.logQ = lq;
+      return true;
+    }
+    return false;
+  };
+  const randomWalk: Kernel = (r, state) => {
+    r.fillNormal(z);
+    for (let i = 0; i < d; i++) {
+      let v = 0;
+      for (let j = 0; j <= i; j++) v += L[i * d + j] * z[j];
+      prop[i] = state.eta[i] + rwScale * v;
+    }
+    const lp = logPost(prop);
+    if (Number.isFinite(lp) && Math.log(r.uniform()) < lp - state.logPost) {
+      state.eta.set(prop);
+      state.logPost = lp;
+      state.logQ = logQ(prop);
+      return true;
+    }
+    return false;
+  };
+  return { independence, randomWalk, logQ };
 }
 
 /** Draws from the prior N(0, Omega). */
@@ -175,77 +251,29 @@ export function samplePosterior(obj: LevelObjective, prior: PatientPrior, map: M
     cholesky(prior.omega, d, L);
     proposalFromPrior = true;
   }
-  const rwScale = 2.38 / Math.sqrt(d);
   const perChain = Math.ceil(o.nDraws / o.chains);
   const out = new Float64Array(perChain * o.chains * d);
-  const z = new Float64Array(d);
-  const prop = new Float64Array(d);
-  const nu = o.tDf;
-  // log q(x) of the multivariate t centred at the MAP, up to a constant.
-  const logQ = (x: Float64Array): number => {
-    // Solve L w = x - map.
-    let qf = 0;
-    for (let i = 0; i < d; i++) {
-      let s = x[i] - map.eta[i];
-      for (let j = 0; j < i; j++) s -= L[i * d + j] * z[j];
-      z[i] = s / L[i * d + i];
-      qf += z[i] * z[i];
-    }
-    return -0.5 * (nu + d) * Math.log(1 + qf / nu);
-  };
+  const logPost = (x: Float64Array) => -0.5 * obj.objective(x);
+  const kernels = buildKernels(logPost, map.eta, L, o.tDf);
   let accI = 0;
   let accR = 0;
   let steps = 0;
-  const logPostOf = (x: Float64Array) => -0.5 * obj.objective(x);
   for (let c = 0; c < o.chains; c++) {
     const r = rng.stream('chain', c);
-    const state: ChainState = { eta: Float64Array.from(map.eta), logPost: logPostOf(map.eta) };
-    let stateLogQ = logQ(state.eta);
+    const start = Float64Array.from(map.eta);
+    const state: ChainState = { eta: start, logPost: logPost(start), logQ: kernels.logQ(start) };
     let kept = 0;
     const total = o.burnIn + perChain * o.thin;
     for (let it = 0; it < total; it++) {
-      // Independence step: eta* = map + L z sqrt(nu / chi2_nu).
-      r.fillNormal(prop);
-      let chi = 0;
-      for (let k = 0; k < nu; k++) {
-        const g = r.normal();
-        chi += g * g;
-      }
-      const w = Math.sqrt(nu / chi);
-      for (let i = 0; i < d; i++) z[i] = prop[i];
-      for (let i = 0; i < d; i++) {
-        let v = 0;
-        for (let j = 0; j <= i; j++) v += L[i * d + j] * z[j];
-        prop[i] = map.eta[i] + w * v;
-      }
-      const lpI = logPostOf(prop);
-      const lqI = logQ(prop);
-      if (Number.isFinite(lpI) && Math.log(r.uniform()) < lpI - state.logPost + stateLogQ - lqI) {
-        state.eta.set(prop);
-        state.logPost = lpI;
-        stateLogQ = lqI;
-        if (it >= o.burnIn) accI++;
-      }
-      // Random-walk step.
-      r.fillNormal(z);
-      for (let i = 0; i < d; i++) {
-        let v = 0;
-        for (let j = 0; j <= i; j++) v += L[i * d + j] * z[j];
-        prop[i] = state.eta[i] + rwScale * v;
-      }
-      const lpR = logPostOf(prop);
-      if (Number.isFinite(lpR) && Math.log(r.uniform()) < lpR - state.logPost) {
-        state.eta.set(prop);
-        state.logPost = lpR;
-        stateLogQ = logQ(prop);
-        if (it >= o.burnIn) accR++;
-      }
-      if (it >= o.burnIn) {
-        steps++;
-        if ((it - o.burnIn) % o.thin === o.thin - 1) {
-          out.set(state.eta, (c * perChain + kept) * d);
-          kept++;
-        }
+      const a1 = kernels.independence(r, state);
+      const a2 = kernels.randomWalk(r, state);
+      if (it < o.burnIn) continue;
+      steps++;
+      if (a1) accI++;
+      if (a2) accR++;
+      if ((it - o.burnIn) % o.thin === o.thin - 1) {
+        out.set(state.eta, (c * perChain + kept) * d);
+        kept++;
       }
     }
   }
