@@ -224,6 +224,10 @@ class LinearWork {
   readonly pend: Float64Array;
   /** Scratch cells KA, TLAG, BIO, RATE, DT, TIME. */
   readonly cur: Float64Array;
+  /** Whether any infusion runs (else the infusion factors are never needed). */
+  readonly hasInfusion: boolean;
+  /** Index into `out` of each static output point (integer typed, for the store). */
+  readonly outIndex: Int32Array;
 
   constructor(nModes: number, nDisposition: number, modes: ModeFunction, sc: Schedule) {
     const n = nModes;
@@ -260,6 +264,9 @@ class LinearWork {
     // The running infusion rate does not depend on the parameters: starts add, stops subtract
     // unless a later steady-state reset has cut their infusion.
     this.rateAfter = new Float64Array(ns);
+    this.hasInfusion = kind.includes(EV_INF_START);
+    this.outIndex = new Int32Array(ns);
+    for (let k = 0; k < ns; k++) this.outIndex[k] = kind[k] === EV_OUTPUT ? value[k] : -1;
     let rate = 0;
     let nInf = 0;
     let epoch = 0;
@@ -306,7 +313,7 @@ function fillTable(wk: LinearWork, u: number): void {
     const x = l * dt;
     const e = Math.exp(-x);
     wk.tabE[b + i] = e;
-    wk.tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
+    if (wk.hasInfusion) wk.tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
     if (hasOral) {
       const d = (ka - l) * dt;
       wk.tabB[b + i] =
@@ -414,7 +421,7 @@ function fail(out: Float64Array): boolean {
 
 /** One evaluation of the prepared predictor (see Predictor). */
 function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
-  const { n, s, lam, w, cur, pend, uniqueOf, rateAfter, sc } = wk;
+  const { n, s, lam, w, cur, pend, uniqueOf, rateAfter, outIndex, sc } = wk;
   if (!wk.modes(params, lam, w)) return fail(out);
   const { timeH, kind, value, epoch: evEpoch, oralTimeH, oralAmountMg, oralEpoch, hasOral } = sc;
   const ns = sc.n;
@@ -478,20 +485,20 @@ function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): bool
     tc = ts;
     afterStatic = true;
     const k = kind[is];
-    const v = value[is];
     if (k === EV_OUTPUT) {
       let c = 0;
       for (let i = 0; i < n; i++) c += w[i] * s[i];
       // Mode sums can round to a few ulps below 0 next to a zero level; a level is never negative.
-      out[v] = c < 0 ? 0 : c;
+      out[outIndex[is]] = c < 0 ? 0 : c;
       left--;
     } else if (k === EV_BOLUS) {
+      const v = value[is];
       for (let i = 0; i < n; i++) s[i] += v;
     } else if (k === EV_RESET) {
       epoch = evEpoch[is];
       cur[RATE] = 0;
       cur[TIME] = ts;
-      if (!reset(wk, v, ts === lastResetH)) return fail(out);
+      if (!reset(wk, value[is], ts === lastResetH)) return fail(out);
       lastResetH = ts;
     }
     cur[RATE] = rateAfter[is];
