@@ -295,22 +295,25 @@ function roundBand(b: Band): Band {
   return { median: sig(b.median), mean: sig(b.mean), q025: sig(b.q025), q10: sig(b.q10), q90: sig(b.q90), q975: sig(b.q975) };
 }
 
+/** Width of the score bands within which candidates count as equal (about 2 Monte Carlo SEs at 2000 draws). */
+export const RANK_TIE_WIDTH = 0.02;
+
 /**
- * Best first: highest P(target) - P(toxic); ties (within 0.5 %) go to lower P(toxic), then the
- * interval nearest the current one (fewer changes on the ward), fewer doses a day, the lower
- * daily dose.
+ * Best first by the score P(target) - P(toxic), in bands of RANK_TIE_WIDTH (differences below
+ * the Monte Carlo error are not evidence); within a band: the interval nearest the current one
+ * (fewer changes on the ward), then lower P(toxic), fewer doses a day, the lower daily dose.
+ * Bands keep the order transitive.
  */
 export function rankRegimens(results: RegimenResult[], currentIntervalH?: number): RegimenResult[] {
-  const score = (r: RegimenResult) => (Number.isFinite(r.pTarget) ? r.pTarget : -1) - (r.pToxic ?? 0);
+  const band = (r: RegimenResult) => Math.floor(((Number.isFinite(r.pTarget) ? r.pTarget : -1) - (r.pToxic ?? 0)) / RANK_TIE_WIDTH + 1e-9);
+  const distance = (r: RegimenResult) => (currentIntervalH !== undefined ? Math.abs(Math.log(r.intervalH / currentIntervalH)) : 0);
   return results.slice().sort((a, b) => {
-    const ds = score(b) - score(a);
-    if (Math.abs(ds) > 0.005) return ds;
+    const db = band(b) - band(a);
+    if (db !== 0) return db;
+    const di = distance(a) - distance(b);
+    if (Math.abs(di) > 1e-9) return di;
     const dt = (a.pToxic ?? 0) - (b.pToxic ?? 0);
-    if (Math.abs(dt) > 0.005) return dt;
-    if (currentIntervalH !== undefined) {
-      const di = Math.abs(Math.log(a.intervalH / currentIntervalH)) - Math.abs(Math.log(b.intervalH / currentIntervalH));
-      if (Math.abs(di) > 1e-9) return di;
-    }
+    if (dt !== 0) return dt;
     if (a.intervalH !== b.intervalH) return b.intervalH - a.intervalH;
     return a.dailyDoseMg - b.dailyDoseMg;
   });

@@ -44,10 +44,12 @@ describe('regimenGrid', () => {
 
 describe('rankRegimens', () => {
   const r = (doseMg: number, intervalH: number, pTarget: number, pToxic: number): RegimenResult => ({ doseMg, intervalH, durationH: 1, route: 'infusion', dailyDoseMg: (doseMg * 24) / intervalH, pTarget, pToxic, metrics: {}, failedDraws: 0 });
-  it('puts the highest P(target) - P(toxic) first, ties to lower toxicity then the current interval', () => {
-    const ranked = rankRegimens([r(500, 12, 0.5, 0.1), r(1000, 12, 0.8, 0.3), r(750, 12, 0.7, 0.05), r(1500, 24, 0.7, 0.05)], 12);
+  it('puts the highest P(target) - P(toxic) first; within Monte Carlo ties, the current interval, then lower toxicity', () => {
+    const ranked = rankRegimens([r(500, 12, 0.5, 0.1), r(1000, 12, 0.8, 0.3), r(750, 12, 0.7, 0.05), r(1500, 24, 0.705, 0.05), r(2000, 48, 0.905, 0.1), r(250, 12, 0.7, 0.06)], 12);
     expect(ranked.map((x) => [x.doseMg, x.intervalH])).toEqual([
+      [2000, 48],
       [750, 12],
+      [250, 12],
       [1500, 24],
       [1000, 12],
       [500, 12],
