@@ -3,11 +3,13 @@
  * population estimate: argmax_eta log p(y_i | eta) + log N(eta; 0, Omega), by BFGS from the
  * better of two starts (the estimator's conditional mean and eta = 0), and the Laplace
  * covariance (minus the inverse Hessian of the log joint density at the mode), which the
- * conditional sampler uses as its proposal scale.
+ * conditional sampler uses as its proposal scale. The optimiser is the dose-individualisation
+ * engine's BFGS (engine/dosing/optimise.ts), the same MAP search a dosing session uses.
  */
 import { choleskyInverse, cholesky } from '../linalg/index.js';
 import type { SubjectDensity } from './density.js';
-import { centralHessian, createBfgs } from './optimize.js';
+import { minimiseBfgs } from '../dosing/optimise.js';
+import { centralHessian } from './derivatives.js';
 
 export interface ModeResult {
   nEta: number;
@@ -57,7 +59,6 @@ export function conditionalModes(density: SubjectDensity, options: ModeOptions =
   let maxObs = 0;
   for (const s of model.subjects) maxObs = Math.max(maxObs, s.nObs);
   const f = new Float64Array(maxObs);
-  const bfgs = createBfgs(d);
   const x = new Float64Array(d);
   const best = new Float64Array(d);
   const hess = new Float64Array(d * d);
@@ -77,10 +78,10 @@ export function conditionalModes(density: SubjectDensity, options: ModeOptions =
         if (!options.start) continue;
         for (let k = 0; k < d; k++) x[k] = options.start[i * d + k];
       } else x.fill(0);
-      const r = d > 0 ? bfgs.minimise(objective, x) : { fx: objective(x), converged: true };
+      const r = d > 0 ? minimiseBfgs(objective, x) : { x, fx: objective(x), converged: true };
       if (r.fx < bestF) {
         bestF = r.fx;
-        best.set(x);
+        best.set(r.x);
         conv = r.converged;
       }
     }
