@@ -240,8 +240,9 @@ export function parsePatient(json: unknown): Patient {
   const levelKinds = levels.map((o) => kindByRow.get(o.sourceRow ?? 0));
   for (const o of levels) {
     const at = `levels[${(o.sourceRow ?? 0) - 1}]`;
-    if (finite(o.timeH) && doses.length && o.timeH < firstDoseH && !doses[0].steadyStateIntervalH)
-      problems.push(`${at}: drawn at ${fmtH(o.timeH)}, before the first dose (${fmtH(firstDoseH)}); add the earlier doses or check the time`);
+    // A level at the first dose's own time is pre-dose (model convention), so before any dose too.
+    if (finite(o.timeH) && doses.length && o.timeH <= firstDoseH && !doses[0].steadyStateIntervalH)
+      problems.push(`${at}: drawn at ${fmtH(o.timeH)}, ${o.timeH === firstDoseH ? 'at the time of the first dose (taken as before it)' : 'before the first dose'} (${fmtH(firstDoseH)}); add the earlier doses or check the time`);
   }
 
   // Renal history

@@ -68,6 +68,8 @@ describe('parsePatient', () => {
     expect(ps.some((p) => p.includes('doses[1]') && p.includes('overlapping'))).toBe(true);
     expect(ps.some((p) => p.includes('same time'))).toBe(true);
     expect(ps.some((p) => p.includes('levels[0]') && p.includes('before the first dose'))).toBe(true);
+    // A level at the first dose time is pre-dose: before any dose as well.
+    expect(problems({ ...base(), levels: [{ time_h: 0, conc_mg_L: 3 }] }).join()).toContain('at the time of the first dose');
   });
 
   it('rejects unknown units and implausible values with what to do', () => {
