@@ -7,7 +7,7 @@ import { analyseWorkbook } from '../../engine/import/analyse.js';
 import { WorkbookError } from '../../engine/import/workbook.js';
 import { TemplateError } from '../../engine/import/roles.js';
 import { validateParseRequest, type ParseResponse } from '../services/importProtocol.js';
-import { DEFAULT_MAX_FILE_BYTES } from './limits.js';
+import { DEFAULT_MAX_FILE_BYTES, checkZipContainer } from './limits.js';
 import * as path from 'node:path';
 import { fileURLToPath } from 'node:url';
 
@@ -30,6 +30,10 @@ export function handleParseMessage(raw: unknown): ParseResponse {
   try {
     if (req.bytes.length > DEFAULT_MAX_FILE_BYTES * 4)
       return { type: 'error', id: req.id, kind: 'workbook', message: `${req.fileName} is too large to parse` };
+    if (req.bytes.length >= 4 && req.bytes[0] === 0x50 && req.bytes[1] === 0x4b) {
+      const bad = checkZipContainer(req.bytes);
+      if (bad) return { type: 'error', id: req.id, kind: 'workbook', message: `${req.fileName} cannot be read: ${bad}; save it again from the spreadsheet program` };
+    }
     const analysis = analyseWorkbook(req.bytes, { mapping: req.mapping, options: req.options, ...(req.maxRows ? { maxRows: req.maxRows } : {}) });
     return { type: 'result', id: req.id, analysis };
   } catch (e) {

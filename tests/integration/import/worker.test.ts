@@ -7,6 +7,7 @@ import { importSpreadsheetFile, parseInWorker, ImportError } from '../../../main
 import type { SpawnWorker, WorkerHandle } from '../../../main/services/workerSpawner.js';
 import { handleParseMessage } from '../../../main/worker/parseWorker.js';
 import { validateParseRequest } from '../../../main/services/importProtocol.js';
+import { checkZipContainer } from '../../../main/worker/limits.js';
 import { ensureWorkerBuilt, repoRoot, workerPath } from './workerBuild.js';
 
 const fixture = (f: string) => path.join(repoRoot, 'tests/fixtures/import', f);
@@ -83,5 +84,18 @@ describe('import through the worker process', () => {
     expect(validateParseRequest({ type: 'parse', id: 'a', fileName: 'f', bytes: 'text' }).ok).toBe(false);
     expect(handleParseMessage({ type: 'evil', id: 'a' })).toMatchObject({ type: 'error', kind: 'request' });
     expect(handleParseMessage({ type: 'parse', id: 'a', fileName: 'f', bytes: new Uint8Array([1, 2, 0, 0, 0, 0, 0, 3]) })).toMatchObject({ type: 'error', kind: 'workbook' });
+  });
+
+  it('refuses damaged zip containers before the spreadsheet parser sees them', () => {
+    const good = new Uint8Array(readFileSync(fixture('ward7b_one_sheet.xlsx')));
+    expect(checkZipContainer(good)).toBeUndefined();
+    expect(checkZipContainer(good.subarray(0, good.length - 10))).toMatch(/central directory/);
+    // Flip bytes in the middle of the first entry's compressed data.
+    const bad = new Uint8Array(good);
+    for (let i = 200; i < 220; i++) bad[i] ^= 0x5a;
+    expect(checkZipContainer(bad)).toMatch(/does not unpack|checksum|unpacks to/);
+    expect(handleParseMessage({ type: 'parse', id: 'z', fileName: 'bad.xlsx', bytes: bad })).toMatchObject({ type: 'error', kind: 'workbook', message: expect.stringMatching(/bad\.xlsx cannot be read/) });
+    // A declared size above the limit (zip bomb guard).
+    expect(checkZipContainer(good, 10)).toMatch(/above the limit/);
   });
 });
