@@ -13,7 +13,7 @@
  * - independentSteps: 2, randomWalkSteps: 2, componentSweeps: 2 (Metropolis-Hastings steps per
  *   subject, chain and iteration: proposal from the population distribution, full random walk
  *   N(phi, kappa Omega), component-wise random walk).
- * - adaptiveSteps: 2 (random-walk steps shaped by each subject's own conditional covariance,
+ * - adaptiveSteps: 1 (random-walk steps shaped by each subject's own conditional covariance,
  *   learnt from its draws during exploration, then frozen; 0 turns the kernel off).
  * - targetAcceptance: 0.35 (random-walk kernels; their scales adapt during exploration, then freeze).
  * - annealingTau: 0.95 (variances fall at most 5 % per iteration during annealing).
@@ -62,7 +62,7 @@ export const DEFAULT_SAEM_SETTINGS: Readonly<SaemSettings> = Object.freeze({
   independentSteps: 2,
   randomWalkSteps: 2,
   componentSweeps: 2,
-  adaptiveSteps: 2,
+  adaptiveSteps: 1,
   targetAcceptance: 0.35,
   annealingTau: 0.95,
   annealingIterations: null,

@@ -448,10 +448,39 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
     return subjects[i].predictor(modelVec, out);
   }
 
+  const LOG_SQRT_2PI = 0.5 * LOG_2PI;
+  const residualCode = residualModel === 'additive' ? 0 : residualModel === 'proportional' ? 1 : residualModel === 'combined' ? 2 : 3;
+  const logY = subjects.map((s) => Float64Array.from(s.y, (v) => (v > 0 ? Math.log(v) : NaN)));
   function logLikFromPredictions(i: number, f: ArrayLike<number>, a: number, b: number): number {
     const s = subjects[i];
+    const n = s.nObs;
+    const y = s.y;
     let ll = 0;
-    for (let k = 0; k < s.nObs; k++) ll += observationLogLik(residualModel, a, b, s.y[k], f[k], s.censored[k] === 1, s.lloqMgL[k]);
+    if (s.nCensored === 0 && residualCode === 0) {
+      // Additive error without censoring: one log for the whole subject.
+      if (!(a > 0)) return -Infinity;
+      let q = 0;
+      for (let k = 0; k < n; k++) {
+        const e = y[k] - f[k];
+        q += e * e;
+      }
+      ll = -0.5 * q / (a * a) - n * (Math.log(a) + LOG_SQRT_2PI);
+    } else if (s.nCensored === 0 && residualCode === 3) {
+      if (!(a > 0)) return -Infinity;
+      const ly = logY[i];
+      let q = 0;
+      let sumLogY = 0;
+      for (let k = 0; k < n; k++) {
+        const fk = f[k];
+        if (!(fk > 0)) return -Infinity;
+        const e = ly[k] - Math.log(fk);
+        q += e * e;
+        sumLogY += ly[k];
+      }
+      ll = -0.5 * q / (a * a) - n * (Math.log(a) + LOG_SQRT_2PI) - sumLogY;
+    } else {
+      for (let k = 0; k < n; k++) ll += observationLogLik(residualModel, a, b, y[k], f[k], s.censored[k] === 1, s.lloqMgL[k]);
+    }
     return ll === ll ? ll : -Infinity;
   }
 

@@ -2,8 +2,6 @@
  * Population fit from files: read the dataset and the model spec, compile, run SAEM, build the
  * fit record. One entry point for the CLI, the worker and the tests.
  */
-import * as path from 'node:path';
-import { parseCanonicalCsv } from '../../engine/data/canonicalCsv.js';
 import { datasetHash } from '../../engine/data/hash.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { buildFitRecord, type FitRecord } from '../../engine/saem/fitRecord.js';
@@ -11,8 +9,8 @@ import { runSaem, type AbortSignalLike, type SaemProgress } from '../../engine/s
 import type { SaemSettings } from '../../engine/saem/settings.js';
 import { parseModelSpec, type ModelSpec } from '../../engine/spec/modelSpec.js';
 import { compileModel, type CompiledModel } from '../../engine/stats/model.js';
-import { CliError } from '../cli/types.js';
-import { readJsonFile, readTextFile } from '../cli/io.js';
+import { readJsonFile } from '../cli/io.js';
+import { loadDataset } from './datasetLoader.js';
 
 export interface FitFromFilesOptions {
   dataPath: string;
@@ -31,20 +29,9 @@ export interface FitOutcome {
   spec: ModelSpec;
 }
 
-/** Read a dataset: canonical CSV directly; spreadsheets and mapped exports through the dataset loader. */
+/** Read a dataset: canonical CSV, or a spreadsheet export with its mapping template (the shared loader). */
 export async function readDataset(dataPath: string, mappingPath?: string): Promise<Dataset> {
-  const ext = path.extname(dataPath).toLowerCase();
-  if (ext === '.csv' && mappingPath === undefined) return parseCanonicalCsv(await readTextFile(dataPath));
-  // The shared loader handles spreadsheets and column mappings (main/services/datasetLoader.ts).
-  const loaderPath = './datasetLoader.js';
-  let loader: { loadDataset?: (p: string, o?: { mapping?: string }) => Promise<Dataset> };
-  try {
-    loader = (await import(loaderPath)) as typeof loader;
-  } catch {
-    throw new CliError(`cannot read ${dataPath}: only canonical CSV is supported in this build (the spreadsheet loader is missing)`);
-  }
-  if (typeof loader.loadDataset !== 'function') throw new CliError(`cannot read ${dataPath}: the dataset loader has no loadDataset`);
-  return loader.loadDataset(dataPath, mappingPath !== undefined ? { mapping: mappingPath } : {});
+  return loadDataset(dataPath, mappingPath !== undefined ? { mapping: mappingPath } : {});
 }
 
 export async function fitFromFiles(options: FitFromFilesOptions): Promise<FitOutcome> {

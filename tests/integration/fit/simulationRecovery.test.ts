@@ -26,6 +26,7 @@ const fitSpec = parseModelSpec({
   covariates: [{ parameter: 'CL', covariate: 'weight_kg', relation: 'power', reference: 70, coefficient: 0 }],
   residual: { model: 'proportional', b: 0.3 },
 });
+// Short runs: 30 replicates must stay quick.
 const fast = { explorationMinIterations: 80, explorationMaxIterations: 250, averagingIterations: 100, settleWindow: 30 };
 
 interface Estimates {
@@ -64,13 +65,13 @@ describe('simulation recovery (invented data)', () => {
     let censored = 0;
     let total = 0;
     for (let rep = 0; rep < 30; rep++) {
-      const data = simulateDataset(truthSpec, tdmDesigns(40, 1000 + rep), 2000 + rep, 3);
+      const data = simulateDataset(truthSpec, tdmDesigns(40, 1000 + rep), 2000 + rep, 4);
       for (const s of data.subjects) for (const o of s.observations) (total += 1), (censored += o.censored ? 1 : 0);
       runs.push(await fit(data, rep + 1));
     }
     const s = summary(runs);
     console.log(`simulation recovery, ${(100 * censored / total).toFixed(1)} % of ${total} levels censored:`, JSON.stringify(s, null, 1));
-    expect(censored / total).toBeGreaterThan(0.02);
+    expect(censored / total).toBeGreaterThan(0.03);
     expect(Math.abs(s.CL.relBiasPct)).toBeLessThan(5);
     expect(Math.abs(s.V.relBiasPct)).toBeLessThan(5);
     // Variability and the covariate exponent are less precise with 40 sparse patients: looser, still unbiased.
@@ -78,7 +79,7 @@ describe('simulation recovery (invented data)', () => {
     expect(Math.abs(s.omegaV.relBiasPct)).toBeLessThan(25);
     expect(Math.abs(s.exponent.mean - TRUE.exponent)).toBeLessThan(0.1);
     expect(Math.abs(s.b.relBiasPct)).toBeLessThan(10);
-  });
+  }, 300_000);
 
   it('with a high LLOQ, the censored likelihood recovers the truth better than dropping the censored levels', async () => {
     const withCens: Estimates[] = [];
@@ -98,5 +99,5 @@ describe('simulation recovery (invented data)', () => {
     const err = (s: typeof a) => Math.abs(s.CL.relBiasPct) + Math.abs(s.V.relBiasPct) + Math.abs(s.omegaCL.relBiasPct) + Math.abs(s.b.relBiasPct);
     expect(err(a)).toBeLessThan(err(b));
     expect(Math.abs(a.CL.relBiasPct)).toBeLessThan(5);
-  });
+  }, 300_000);
 });

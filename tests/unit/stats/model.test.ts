@@ -72,6 +72,20 @@ describe('compileModel', () => {
     expect(m.subjectLogLik(0, Float64Array.from([Math.log(5), Math.log(50), 800]))).toBe(-Infinity);
   });
 
+  it('the fast additive and log-additive paths equal the sum of observation terms', () => {
+    const uncensored = createDataset([oralSubject('A'), oralSubject('B')].map((x) => ({ ...x, observations: x.observations.filter((o) => !o.censored) })));
+    for (const residual of [{ model: 'additive', a: 0.3 }, { model: 'log-additive', a: 0.2 }] as const) {
+      const m = compileModel(oralSpec({ residual }), uncensored);
+      const phi = Float64Array.from([Math.log(4), Math.log(40), Math.log(1.2)]);
+      const f = new Float64Array(2);
+      m.predict(1, phi, f);
+      let expected = 0;
+      for (let k = 0; k < 2; k++) expected += observationLogLik(residual.model, residual.a, 0, m.subjects[1].y[k], f[k], false, 0);
+      expect(m.logLikFromPredictions(1, f, residual.a, 0)).toBeCloseTo(expected, 12);
+      expect(m.logLikFromPredictions(1, Float64Array.from([NaN, 1]), residual.a, 0)).toBe(-Infinity);
+    }
+  });
+
   it('logPrior is the multivariate normal log density of the random effects', () => {
     const spec = oralSpec({ correlations: [['CL', 'V']], correlationValues: { 'CL,V': 0.5 } });
     const m = compileModel(spec, data);
