@@ -195,9 +195,11 @@ export function evaluateRegimens(input: EvaluationInput, regimens: readonly Regi
     const nT = unit.nTimes;
     if (curves.length < nDraws * nT) curves = new Float64Array(nDraws * nT);
     const c = curves.subarray(0, nDraws * nT);
+    const one = new Float64Array(nT);
     for (let d = 0; d < nDraws; d++) {
       for (let p = 0; p < nP; p++) ws.params[p] = draws[d * nP + p];
-      ok[d] = unit.curve(ws.params, c.subarray(d * nT, (d + 1) * nT)) ? 1 : 0;
+      ok[d] = unit.curve(ws.params, one) ? 1 : 0;
+      c.set(one, d * nT);
     }
     // Unit-dose metrics and their bands: every dose-proportional metric of dose D is D times
     // the unit value, so its quantiles are D times the unit quantiles (order is preserved).
@@ -216,16 +218,19 @@ export function evaluateRegimens(input: EvaluationInput, regimens: readonly Regi
       return bandOf(ws.column, ws.scratch);
     });
     const ftIndex = METRIC_IDS.indexOf('ftAbove');
-    const one = new Float64Array(nM);
+    const oneMetrics = new Float64Array(nM);
+    // Only the columns the probabilities read (column 0 also marks failed draws as NaN).
+    const used = [...new Set([0, ...[...target.goals, ...target.toxic].map((g) => METRIC_IDS.indexOf(g.metric))])].filter((j) => j !== ftIndex);
     for (const i of idx) {
       const r = regimens[i];
       const D = r.doseMg;
       for (let d = 0; d < nDraws; d++) {
-        for (let j = 0; j < nM; j++) ws.metrics[d * nM + j] = unitMetrics[d * nM + j] * D;
+        const row = d * nM;
+        for (const j of used) ws.metrics[row + j] = unitMetrics[row + j] * D;
         if (ok[d] && Number.isFinite(threshold)) {
           for (let p = 0; p < nP; p++) ws.params[p] = draws[d * nP + p];
-          unit.metricsFromCurve(c, d * nT, D, ws.params, one, 0);
-          ws.metrics[d * nM + ftIndex] = one[ftIndex];
+          unit.metricsFromCurve(c, d * nT, D, ws.params, oneMetrics, 0);
+          ws.metrics[row + ftIndex] = oneMetrics[ftIndex];
         }
       }
       out[i] = summarise(input, r, ws, { bands: unitBands, scale: D });

@@ -1,4 +1,4 @@
-/** Quantile summaries of Monte Carlo draws (type 7 linear interpolation, Hyndman & Fan 1996). */
+/** Quantile summaries of Monte Carlo draws (type 7 linear interpolation; Hyndman & Fan, Am Stat 1996;50:361-365, from memory). */
 
 export interface Band {
   median: number;
