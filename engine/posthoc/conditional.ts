@@ -71,10 +71,12 @@ export interface ConditionalResult {
   warnings: string[];
 }
 
-/** Multivariate Student-t draw: x = m + L z sqrt(df / chi2_df); returns log q(x) up to the normalising constant shared by all draws. */
+/** Multivariate Student-t draw (integer df): x = m + L z sqrt(df / chi2_df); returns log q(x) up to the normalising constant shared by all draws. */
 export function drawStudentT(rng: RngStream, m: ArrayLike<number>, chol: Float64Array, d: number, df: number, z: Float64Array, out: Float64Array): number {
+  // chi-square with df degrees of freedom: 2 x (sum of df/2 exponentials), one squared normal for odd df.
   let chi = 0;
-  for (let k = 0; k < df; k++) {
+  for (let k = 1; k < df; k += 2) chi += 2 * rng.exponential();
+  if (df % 2 === 1) {
     const g = rng.normal();
     chi += g * g;
   }
@@ -111,6 +113,7 @@ export function logStudentTConstant(chol: Float64Array, d: number, df: number): 
 
 export function conditionalDistribution(density: SubjectDensity, modes: ModeResult, options: Partial<ConditionalOptions> = {}): ConditionalResult {
   const o = { ...DEFAULT_CONDITIONAL, ...options };
+  if (!(Number.isInteger(o.proposalDf) && o.proposalDf >= 1)) throw new RangeError(`the Student-t proposal needs a whole number of degrees of freedom >= 1, got ${o.proposalDf}`);
   const model = density.model;
   const N = model.nSubjects;
   const d = density.nEta;

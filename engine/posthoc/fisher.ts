@@ -127,6 +127,8 @@ export function louisInformation(density: SubjectDensity, layout: ParameterLayou
   const hD = new Float64Array(nD * nD);
   const meanRow = new Float64Array(p);
   let skipped = 0;
+  const analyticResidual = !structuralData;
+  const residualWhich = Int32Array.from(dataPos, (a) => layout.entries[est[a]].index);
 
   for (let i = 0; i < N; i++) {
     const n = conditional.nKept[i];
@@ -216,19 +218,25 @@ export function louisInformation(density: SubjectDensity, layout: ParameterLayou
           H[omegaPos[x] * P + omegaPos[y]] += cab[x * nO + y] - 0.5 * q2;
         }
       }
-      // Data part.
+      // Data part: analytic in the residual terms for quantified levels, else finite differences.
       if (nD > 0) {
         if (!model.predict(i, phi, f)) continue;
-        for (let r = 0; r < nD; r++) xD[r] = w0[est[dataPos[r]]];
-        centralGradient(negDataLL, xD, gD, FD);
-        centralHessian(negDataLL, xD, hD, FD);
+        let sign = 1;
+        if (analyticResidual && sub.nCensored === 0) {
+          if (!residualDerivatives(model.residualModel, theta.a, theta.b, sub.y, f, residualWhich, gD, hD)) continue;
+        } else {
+          for (let r = 0; r < nD; r++) xD[r] = w0[est[dataPos[r]]];
+          centralGradient(negDataLL, xD, gD, FD);
+          centralHessian(negDataLL, xD, hD, FD);
+          sign = -1;
+        }
         let finite = true;
         for (let r = 0; r < nD; r++) {
           if (!Number.isFinite(gD[r])) finite = false;
-          g[dataPos[r]] -= gD[r];
+          g[dataPos[r]] += sign * gD[r];
           for (let r2 = 0; r2 < nD; r2++) {
             if (!Number.isFinite(hD[r * nD + r2])) finite = false;
-            H[dataPos[r] * P + dataPos[r2]] -= hD[r * nD + r2];
+            H[dataPos[r] * P + dataPos[r2]] += sign * hD[r * nD + r2];
           }
         }
         if (!finite) continue;
@@ -251,6 +259,40 @@ export function louisInformation(density: SubjectDensity, layout: ParameterLayou
   if (!Number.isFinite(c0)) warnings.push("Louis' formula: Omega is not positive definite at the estimate");
   for (let a = 0; a < P; a++) for (let b2 = 0; b2 < a; b2++) info[a * P + b2] = info[b2 * P + a] = 0.5 * (info[a * P + b2] + info[b2 * P + a]);
   return { method: 'stochastic approximation (Louis)', matrix: info, size: P, warnings };
+}
+
+/**
+ * Gradient and Hessian of sum_j log N(y_j; f_j, u_j) in the working residual terms (log a,
+ * log b), u = a^2 + b^2 f^2 (additive: b = 0; proportional: a = 0; log-additive: on log y with
+ * u = a^2), for quantified levels: d ll / d u = r^2 / (2 u^2) - 1 / (2 u), d2 ll / d u2 =
+ * -r^2 / u^3 + 1 / (2 u^2), d u / d log a = 2 a^2, d u / d log b = 2 b^2 f^2 (chain rule).
+ * `which[r]` is 0 for a, 1 for b. False when a variance is not positive.
+ */
+export function residualDerivatives(rm: CompiledModel['residualModel'], a: number, b: number, y: ArrayLike<number>, f: ArrayLike<number>, which: Int32Array, g: Float64Array, h: Float64Array): boolean {
+  const nD = which.length;
+  g.fill(0);
+  h.fill(0);
+  const hasA = rm !== 'proportional';
+  const hasB = rm === 'proportional' || rm === 'combined';
+  const logScale = rm === 'log-additive';
+  for (let o = 0; o < f.length; o++) {
+    const r = logScale ? Math.log(y[o]) - Math.log(f[o]) : y[o] - f[o];
+    const sa = hasA ? a * a : 0;
+    const sb = hasB && !logScale ? b * b * f[o] * f[o] : 0;
+    const u = sa + sb;
+    if (!(u > 0) || !Number.isFinite(r)) return false;
+    const lu = (0.5 * r * r) / (u * u) - 0.5 / u;
+    const luu = (-r * r) / (u * u * u) + 0.5 / (u * u);
+    for (let x = 0; x < nD; x++) {
+      const dx = which[x] === 0 ? 2 * sa : 2 * sb;
+      g[x] += lu * dx;
+      for (let z = 0; z < nD; z++) {
+        const dz = which[z] === 0 ? 2 * sa : 2 * sb;
+        h[x * nD + z] += luu * dx * dz + (x === z ? lu * 2 * dx : 0);
+      }
+    }
+  }
+  return true;
 }
 
 export function linearisedInformation(lin: Linearisation, layout: ParameterLayout, theta: PopulationParameters): Information {

@@ -46,6 +46,7 @@ export function importanceSamplingLikelihood(
   options: Partial<ImportanceOptions> = {},
 ): ImportanceResult {
   const o = { ...DEFAULT_IMPORTANCE, ...options };
+  if (!(Number.isInteger(o.df) && o.df >= 1)) throw new RangeError(`the Student-t proposal needs a whole number of degrees of freedom >= 1, got ${o.df}`);
   const model = density.model;
   const N = model.nSubjects;
   const d = density.nEta;

@@ -10,7 +10,8 @@ import type { Dose } from '../../../engine/data/types.js';
 import type { StructuralModel } from '../../../engine/models/types.js';
 import { conditionalDistribution } from '../../../engine/posthoc/conditional.js';
 import { buildDensity } from '../../../engine/posthoc/density.js';
-import { standardErrors } from '../../../engine/posthoc/fisher.js';
+import { residualDerivatives, standardErrors } from '../../../engine/posthoc/fisher.js';
+import { observationLogLik } from '../../../engine/stats/residual.js';
 import { importanceSamplingLikelihood } from '../../../engine/posthoc/likelihood.js';
 import { buildLinearisation, linearisedMinus2LL } from '../../../engine/posthoc/linearised.js';
 import { conditionalModes } from '../../../engine/posthoc/modes.js';
@@ -68,6 +69,33 @@ describe('finite differences', () => {
     const g = new Float64Array(1);
     centralGradient(() => NaN, Float64Array.from([0]), g, 1e-4);
     expect(Number.isNaN(g[0])).toBe(true);
+  });
+});
+
+describe('residual derivatives for Louis\' formula', () => {
+  it('match central differences of the residual log-likelihood (engine/stats/residual.ts) in log a, log b', () => {
+    const y = [1.2, 3.4, 0.8, 7.7];
+    const f = [1.0, 3.9, 0.5, 8.1];
+    for (const [rm, which] of [['combined', [0, 1]], ['additive', [0]], ['proportional', [1]], ['log-additive', [0]]] as const) {
+      const a = 0.3, b = 0.2;
+      const ll = (la: number, lb: number) => y.reduce((acc, yy, o) => acc + observationLogLik(rm, Math.exp(la), Math.exp(lb), yy, f[o], false, 0), 0);
+      const w = Int32Array.from(which);
+      const n = which.length;
+      const g = new Float64Array(n);
+      const h = new Float64Array(n * n);
+      expect(residualDerivatives(rm, a, b, y, f, w, g, h)).toBe(true);
+      const x0 = [Math.log(a), Math.log(b)];
+      const at = (d: number[]) => ll(x0[0] + d[0], x0[1] + d[1]);
+      const e = 1e-4;
+      which.forEach((wi, r) => {
+        const step = [0, 0];
+        step[wi] = e;
+        const minus = step.map((v) => -v);
+        expect(g[r]).toBeCloseTo((at(step) - at(minus)) / (2 * e), 5);
+        expect(h[r * n + r]).toBeCloseTo((at(step) - 2 * at([0, 0]) + at(minus)) / (e * e), 3);
+      });
+      if (n === 2) expect(h[1]).toBeCloseTo((at([e, e]) - at([e, -e]) - at([-e, e]) + at([-e, -e])) / (4 * e * e), 3);
+    }
   });
 });
 
@@ -141,7 +169,8 @@ describe('random-intercept model: closed-form posterior and marginal likelihood'
       const m = (v * y.reduce((s, x) => s + x - 10, 0)) / 1;
       expect(modes.eta[i]).toBeCloseTo(m, 5);
       expect(modes.laplaceCovariance[i]).toBeCloseTo(v, 4);
-      expect(Math.abs(cond.mean[i] - m)).toBeLessThan(0.1 * Math.sqrt(v));
+      // Monte Carlo error: about SD / sqrt(ESS), ESS a few hundred after settling; 0.25 SD is about 4 of them.
+      expect(Math.abs(cond.mean[i] - m)).toBeLessThan(0.25 * Math.sqrt(v));
       expect(Math.abs(Math.sqrt(cond.covariance[i]) / Math.sqrt(v) - 1)).toBeLessThan(0.15);
       expect(cond.settled[i]).toBe(1);
     });
