@@ -14,7 +14,7 @@ Cholesky factor of the inverse of minus the Hessian. The 7 parameters (log CL, l
 log omega_CL, log omega_V, log omega_ka, log a) are fitted by Nelder-Mead then BFGS.
 
 Run from the repository root:  /usr/bin/python3 tests/reference/theoph/exact_mle.py
-(about 10-20 minutes on two cores; pass --quick for a short smoke run that writes nothing).
+(about 8 minutes on an idle 2-core machine, 25 when loaded; pass --quick for a short smoke run that writes nothing).
 """
 import csv
 import json
