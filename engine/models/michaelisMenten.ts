@@ -62,7 +62,7 @@ class MichaelisMentenWork extends Dopri5 {
   readonly pend = new Float64Array(4);
   /** Steps left in this evaluation. */
   readonly budget = new Int32Array(1);
-  /** State: central amount (mg), depot amount (mg). */
+  /** State: central amount (mg), depot amount (mg; integrated only when there are oral doses). */
   readonly y = new Float64Array(2);
 
   constructor(
@@ -71,15 +71,18 @@ class MichaelisMentenWork extends Dopri5 {
     absTol: number,
     readonly maxBudget: number,
   ) {
-    super(2, relTol, absTol);
+    // Without oral doses the depot stays empty: integrate the central amount alone.
+    super(sc.hasOral ? 2 : 1, relTol, absTol);
   }
 
   rhs(y: Float64Array, dy: Float64Array): void {
     const ctx = this.ctx;
     const c = y[0] / ctx[VOL];
     const elim = c > 0 ? (ctx[VMAX] * c) / (ctx[KM] + c) : (ctx[VMAX] * c) / ctx[KM];
-    dy[0] = ctx[KA] * y[1] + ctx[RATE] - elim;
-    dy[1] = -ctx[KA] * y[1];
+    if (this.n === 2) {
+      dy[0] = ctx[KA] * y[1] + ctx[RATE] - elim;
+      dy[1] = -ctx[KA] * y[1];
+    } else dy[0] = ctx[RATE] - elim;
   }
 
   /** Integrate y over work[DURATION] h within the step budget; false when it ran out or the solver failed. */
