@@ -5,6 +5,7 @@ import { readFileSync } from 'node:fs';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { adviseDose } from '../../../engine/dosing/advise.js';
+import { forecast } from '../../../engine/dosing/forecast.js';
 import { buildSteadyStateEvaluator } from '../../../engine/dosing/metrics.js';
 import { parsePatient } from '../../../engine/dosing/patient.js';
 import { populationModelFromSpec } from '../../../engine/dosing/population.js';
@@ -163,5 +164,40 @@ describe('probability of target attainment', () => {
     expect(advice.posterior.diagnostics.method).toBe('prior');
     expect(Math.abs(r.pTarget - exact)).toBeLessThan(4 * Math.sqrt((exact * (1 - exact)) / nDraws));
     expect(Math.abs((r.pToxic as number) - exactToxic)).toBeLessThan(4 * Math.sqrt((exactToxic * (1 - exactToxic)) / nDraws));
+  });
+});
+
+describe('time above a threshold, sampling delay and time to fall below', () => {
+  // Closed forms of the one-compartment model (Gibaldi & Perrier, Pharmacokinetics 2nd ed.
+  // 1982, from memory): bolus at steady state C(t) = (D / V) e^-kt / (1 - e^-k tau), so the
+  // level stays above X for t* = ln(C(0+) / X) / k; after one infusion of D over T,
+  // C(T) = D / (CL T) (1 - e^-kT) and the level falls below X at T + ln(C(T) / X) / k.
+  const model = getStructuralModel('1cmt');
+  it('%T > threshold (bolus, steady state) within the grid interpolation error, and the delayed peak exactly', () => {
+    const CL = 4;
+    const V = 40;
+    const k = CL / V;
+    const D = 1000;
+    const tau = 8;
+    const thr = 25; // trough 20.4 mg/L < 25 < peak 45.4 mg/L
+    const c0 = D / V / (1 - Math.exp(-k * tau));
+    const ft = (100 * Math.log(c0 / thr)) / k / tau;
+    const params = Float64Array.from([CL, V, NaN, 0, 1]);
+    const ev = buildSteadyStateEvaluator(model, { doseMg: D, intervalH: tau, durationH: 0, route: 'bolus' }, { peakDelayH: 0.5, thresholdMgL: thr, gridIntervals: 64 });
+    const out = new Float64Array(5);
+    ev.evaluate(params, out, 0);
+    expect(Math.abs(out[4] - ft)).toBeLessThan(0.05); // percentage points
+    expect(Math.abs(out[2] / c0 - 1)).toBeLessThan(1e-6);
+    expect(Math.abs(out[3] / (c0 * Math.exp(-k * 0.5)) - 1)).toBeLessThan(1e-6);
+  });
+  it('time to fall below a level after the last dose', () => {
+    const spec = parseModelSpec({ name: 'no BSV (invented values)', source: 'test', structure: '1cmt', parameters: { CL: { typical: 2, bsv: null }, V: { typical: 30, bsv: null } }, residual: { model: 'additive', a: 1 }, covariateRanges: {} });
+    const prior = buildPatientPrior(populationModelFromSpec(spec), new Map(), model);
+    const k = 2 / 30;
+    const cEnd = (1000 / (2 * 1)) * (1 - Math.exp(-k * 1));
+    const expected = Math.log(cEnd / 5) / k;
+    const fc = forecast({ prior, history: [{ timeH: 0, amountMg: 1000, route: 'infusion', durationH: 1 }], etaDraws: new Float64Array(0), nDraws: 10, startH: 48, belowMgL: 5 });
+    expect(fc.timeBelow!.fromH).toBe(1);
+    expect(Math.abs(fc.timeBelow!.hours.median - expected)).toBeLessThan(0.01);
   });
 });
