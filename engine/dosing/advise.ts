@@ -236,6 +236,8 @@ export function adviseDose(o: AdviceOptions): Advice {
   const tableDraws = model.analytic ? nDraws : Math.min(nDraws, NONLINEAR_TABLE_DRAWS);
   const tableParams = tableDraws === nDraws ? paramDraws : thinRows(paramDraws, nP, nDraws, tableDraws);
   if (tableDraws < nDraws) warnings.push({ severity: 'note', code: 'table-draws', message: `the model is solved numerically: regimen probabilities use ${tableDraws} of the ${nDraws} draws (Monte Carlo error up to about ${Math.round(50 / Math.sqrt(tableDraws))} percentage points)` });
+  if (candidates.length === 0)
+    warnings.push({ severity: 'block', code: 'no-candidates', message: 'no candidate regimen fits the dose range, interval list, durations and rate limit of the regimen settings: widen them' });
   const evalInput = { model, draws: tableParams, nDraws: tableDraws, target };
   let results = evaluateRegimens(evalInput, candidates);
   if (o.loadingDose && !single) results = results.map((r) => ({ ...r, loadingDoseMg: loadingDoseFor(model, r, mapVector, settings) }));

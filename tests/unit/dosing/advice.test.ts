@@ -271,3 +271,11 @@ describe('other structures', () => {
     expect(() => adviseDose({ population: populationModelFromSpec(parseModelSpec({ ...SPEC, covariates: [] })), patient: po, target, caution: 'c', seed: 1, engineVersion: 't', nDraws: 200 })).toThrow(/absorption/);
   });
 });
+
+describe('regimen settings with no candidate', () => {
+  it('blocks with a reason instead of returning an empty table silently', () => {
+    const a = run({ regimenSettings: { strengthMg: 250, minDoseMg: 2000, maxDoseMg: 3000, intervalsH: [12], durationsH: [1], maxRateMgPerH: 1000 } });
+    expect(a.status).toBe('blocked');
+    expect(a.warnings[0].code).toBe('no-candidates');
+  });
+});
