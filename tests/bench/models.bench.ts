@@ -50,8 +50,14 @@ function paramSets(id: StructureId): Float64Array[] {
   );
 }
 
-function infusionHistory(nDoses: number): { doses: Dose[]; times: number[] } {
-  const doses: Dose[] = Array.from({ length: nDoses }, (_, i) => ({ timeH: 8 * i, amountMg: 1000, route: 'infusion', durationH: 1 }));
+/** Every 8 h, 1 h infusions; `irregular` moves each dose by a different odd number of minutes (as recorded clock times do), so no interval length repeats. */
+function infusionHistory(nDoses: number, irregular = false): { doses: Dose[]; times: number[] } {
+  const doses: Dose[] = Array.from({ length: nDoses }, (_, i) => ({
+    timeH: 8 * i + (irregular ? ((i * 37) % 41) / 60 : 0),
+    amountMg: 1000,
+    route: 'infusion',
+    durationH: irregular ? 1 + ((i * 13) % 7) / 60 : 1,
+  }));
   const end = 8 * nDoses;
   return { doses, times: [end - 8.01, end - 7, end - 4, end - 0.01] };
 }
@@ -84,13 +90,19 @@ export const suite = {
       });
     }
 
-    const perSecond = (nDoses: number): number => {
-      const h = infusionHistory(nDoses);
+    const perSecond = (nDoses: number, irregular = false): number => {
+      const h = infusionHistory(nDoses, irregular);
       const predict = getStructuralModel('2cmt').prepare(h.doses, h.times);
       return callsPerSecond(predict, paramSets('2cmt'), h.times.length, 0.8);
     };
     const p60 = perSecond(60);
     figures.push({ name: '2cmt infusion history, 60 doses, 4 levels', value: p60, unit: 'patient-evals/s', target: '>= 2e5' });
+    figures.push({
+      name: '2cmt infusion history, 60 doses at irregular times, 4 levels',
+      value: perSecond(60, true),
+      unit: 'patient-evals/s',
+      note: 'no interval length repeats: every interval computes its exponentials',
+    });
     const p120 = perSecond(120);
     figures.push({
       name: 'cost ratio, 120 vs 60 doses (2cmt infusion)',
