@@ -7,7 +7,9 @@ Gibaldi & Perrier, Pharmacokinetics 2nd ed. 1982, from memory) and log-normal pa
   objective(eta) = sum_j -2 log p(y_j | eta) + eta' Omega^-1 eta
 with p the normal density of the residual model (additive, proportional, combined), constants
 included, and log Phi((LLOQ - f) / g) for a level below the LLOQ.
-1. MAP: scipy.optimize.minimize (Nelder-Mead, then BFGS from its optimum) on a few patients.
+1. MAP: scipy.optimize.minimize (Nelder-Mead, then BFGS from its optimum) on a few patients;
+   also for a two-compartment model solved by the matrix exponential of the linear ODE system
+   (scipy.linalg.expm, an independent method), BSV on CL and V1 only.
 2. Posterior of CL and V for one patient by exact numerical integration on a fine grid:
    posterior means and 5 % / 95 % quantiles of the marginals, with the marginal density at each
    quantile (for the Monte Carlo error of a sampled quantile).
@@ -20,6 +22,7 @@ import os
 
 import numpy as np
 import scipy
+from scipy.linalg import expm
 from scipy.optimize import minimize
 from scipy.stats import norm
 
@@ -75,6 +78,88 @@ PATIENTS = [
         },
     },
 ]
+
+
+MODEL_2CMT = {
+    "name": "reference check two-compartment model (invented values)",
+    "source": "invented for the reference check",
+    "structure": "2cmt",
+    "parameters": {
+        "CL": {"typical": 5.0, "transform": "log", "bsv": 0.3},
+        "V1": {"typical": 18.0, "transform": "log", "bsv": 0.2},
+        "Q": {"typical": 1.5, "transform": "log", "bsv": None},
+        "V2": {"typical": 10.0, "transform": "log", "bsv": None},
+    },
+    "covariates": [{"parameter": "V1", "covariate": "weight_kg", "relation": "power", "reference": 70, "coefficient": 1.0, "fixed": True}],
+    "correlations": [],
+    "residual": {"model": "combined", "a": 0.1, "b": 0.1},
+}
+PATIENTS_2CMT = [
+    {
+        "model": MODEL_2CMT,
+        "patient": {
+            "id": "ref-2cmt",
+            "covariates": {"weight_kg": 80},
+            "doses": [{"time_h": 0, "amount_mg": 400, "duration_h": 0.5, "route": "iv"}, {"time_h": 24, "amount_mg": 400, "duration_h": 0.5, "route": "iv"}],
+            "levels": [{"time_h": 1.0, "conc_mg_L": 16.0}, {"time_h": 8.0, "conc_mg_L": 3.1}, {"time_h": 25.0, "conc_mg_L": 17.5}],
+        },
+    }
+]
+
+
+def conc_2cmt(p, doses, t):
+    """Central concentration by exact propagation of the augmented linear system over events."""
+    cl, v1, q, v2 = p["CL"], p["V1"], p["Q"], p["V2"]
+    K = np.array([[-(cl + q) / v1, q / v2], [q / v1, -q / v2]])
+    events = sorted({0.0, t} | {d["time_h"] for d in doses} | {d["time_h"] + d["duration_h"] for d in doses})
+    x = np.zeros(2)
+    tc = 0.0
+    for e in events:
+        if e > t:
+            break
+        if e > tc:
+            rate = sum(d["amount_mg"] / d["duration_h"] for d in doses if d["duration_h"] > 0 and d["time_h"] <= tc < d["time_h"] + d["duration_h"])
+            M = np.zeros((3, 3))
+            M[:2, :2] = K
+            M[0, 2] = rate
+            y = expm(M * (e - tc)) @ np.array([x[0], x[1], 1.0])
+            x = y[:2]
+            tc = e
+        if e < t:
+            x[0] += sum(d["amount_mg"] for d in doses if d["duration_h"] == 0 and d["time_h"] == e)
+    return x[0] / v1
+
+
+def objective_2cmt(case):
+    m, pat = case["model"], case["patient"]
+    phi = {n: math.log(q["typical"]) for n, q in m["parameters"].items()}
+    for c in m["covariates"]:
+        phi[c["parameter"]] += c["coefficient"] * math.log(pat["covariates"][c["covariate"]] / c["reference"])
+    omega_inv = np.diag([1 / 0.3**2, 1 / 0.2**2])
+    a, b = m["residual"]["a"], m["residual"]["b"]
+
+    def obj(eta):
+        p = {n: math.exp(phi[n]) for n in phi}
+        p["CL"] = math.exp(phi["CL"] + eta[0])
+        p["V1"] = math.exp(phi["V1"] + eta[1])
+        s = 0.0
+        for lv in pat["levels"]:
+            f = conc_2cmt(p, pat["doses"], lv["time_h"])
+            g = math.sqrt(a * a + b * b * f * f)
+            z = (lv["conc_mg_L"] - f) / g
+            s += z * z + 2 * math.log(g) + math.log(2 * math.pi)
+        e = np.asarray(eta)
+        return s + float(e @ omega_inv @ e)
+
+    return obj, phi
+
+
+def map_2cmt(case):
+    obj, phi = objective_2cmt(case)
+    nm = minimize(obj, [0.0, 0.0], method="Nelder-Mead", options={"xatol": 1e-12, "fatol": 1e-14, "maxiter": 20000})
+    bf = minimize(obj, nm.x, method="BFGS", options={"gtol": 1e-10})
+    x = bf.x if bf.fun <= nm.fun else nm.x
+    return {"etaCL": x[0], "etaV1": x[1], "CL": math.exp(phi["CL"] + x[0]), "V1": math.exp(phi["V1"] + x[1]), "objective": obj(x)}
 
 
 def conc(cl, v, doses, t):
@@ -186,11 +271,12 @@ def grid_posterior(case, half_width=7.0, n=601):
 def main():
     result = {
         "script": "tests/reference/dosing/map_posterior_scipy.py",
-        "source": f"scipy {scipy.__version__} (scipy.optimize.minimize Nelder-Mead then BFGS; numpy {np.__version__} trapezoid grid integration) on an independent closed-form one-compartment infusion model; invented patients",
+        "source": f"scipy {scipy.__version__} (scipy.optimize.minimize Nelder-Mead then BFGS; scipy.linalg.expm for the two-compartment model; numpy {np.__version__} trapezoid grid integration) on an independent closed-form one-compartment infusion model; invented patients",
         "patients": [],
     }
     for case in PATIENTS:
         result["patients"].append({"model": case["model"], "patient": case["patient"], "map": map_of(case)})
+    result["patients2cmt"] = [{"model": c["model"], "patient": c["patient"], "map": map_2cmt(c)} for c in PATIENTS_2CMT]
     result["gridPosterior"] = {"patientIndex": 0, **grid_posterior(PATIENTS[0])}
     with open(os.path.join(HERE, "map_posterior_scipy.json"), "w") as f:
         json.dump(result, f, indent=1)

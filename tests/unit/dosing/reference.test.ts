@@ -49,6 +49,24 @@ describe('MAP estimate', () => {
   }
 });
 
+describe('MAP estimate, two-compartment model', () => {
+  // Source: scipy.optimize.minimize on the same objective, the model solved by the matrix
+  // exponential of the linear system (scipy.linalg.expm), tests/reference/dosing/map_posterior_scipy.py.
+  for (const c of REF.patients2cmt) {
+    it(`matches scipy within 0.1 % for patient ${c.patient.id} (BSV on CL and V1 only)`, () => {
+      const population = populationModelFromSpec(parseModelSpec(c.model));
+      const patient = parsePatient(c.patient);
+      const prior = buildPatientPrior(population, new Map(Object.entries(patient.covariates)), getStructuralModel('2cmt'));
+      const obj = buildLevelObjective(prior, patient.doses, patient.levels);
+      const map = findMap(obj, prior);
+      expect(map.converged).toBe(true);
+      expect(Math.abs((prior.typical.CL * Math.exp(map.eta[0])) / c.map.CL - 1)).toBeLessThan(1e-3);
+      expect(Math.abs((prior.typical.V1 * Math.exp(map.eta[1])) / c.map.V1 - 1)).toBeLessThan(1e-3);
+      expect(obj.objective(Float64Array.from([c.map.etaCL, c.map.etaV1]))).toBeCloseTo(c.map.objective, 6);
+    });
+  }
+});
+
 describe('posterior draws', () => {
   // Source: exact numerical integration of the same posterior on a 601 x 601 grid (numpy
   // trapezoid rule), tests/reference/dosing/map_posterior_scipy.py -> .json (gridPosterior).
