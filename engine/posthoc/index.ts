@@ -139,6 +139,12 @@ export function runPosthoc(model: CompiledModel, theta: PopulationParameters, op
   };
 }
 
+const meanOf = (x: ArrayLike<number>): number => {
+  let s = 0;
+  for (let i = 0; i < x.length; i++) s += x[i];
+  return x.length ? s / x.length : 0;
+};
+
 const fin = (x: number | null | undefined): number | null => (x !== null && x !== undefined && Number.isFinite(x) ? x : null);
 
 /** The fit record's additions, JSON-ready. */
@@ -248,13 +254,13 @@ export function posthocRecordFields(model: CompiledModel, r: PosthocResult, seed
     likelihood: {
       minus2LL: fin(is?.minus2LL),
       mcError: fin(is?.mcError),
-      method: `importance sampling, multivariate Student-t proposal (${is ? 'df 5' : ''}) from the conditional means and covariances, ${is?.samplesPerSubject ?? 0} samples per subject`,
+      method: `importance sampling, multivariate Student-t proposal from the conditional means and covariances, up to ${is?.samplesPerSubject ?? 0} samples per subject (mean ${is ? Math.round(meanOf(is.samplesUsed)) : 0} drawn)`,
       aic: fin(crit?.aic),
       bic: fin(crit?.bic),
       bicc: fin(crit?.bicc),
       nParameters: crit?.nParameters ?? r.layout.estimated.length,
       nRandomEffectRelated: crit?.nRandomEffectRelated ?? 0,
-      samplesPerSubject: is?.samplesPerSubject ?? 0,
+      samplesPerSubject: is ? Math.round(meanOf(is.samplesUsed)) : 0,
       essMin: ess.length ? fin(ess[0]) : null,
       essMedian: ess.length ? fin(ess[ess.length >> 1]) : null,
       linearised: { minus2LL: fin(r.likelihood.linearisedMinus2LL), method: 'first-order linearisation around the conditional modes (levels below the LLOQ left out)', aic: fin(lc?.aic), bic: fin(lc?.bic), bicc: fin(lc?.bicc) },

@@ -1,6 +1,7 @@
 /**
  * Observed-data log-likelihood at the estimate.
- * - Importance sampling: per subject, M draws from a multivariate Student-t (df about 5)
+ * - Importance sampling: per subject, up to M draws (in chunks, until the Monte Carlo error is
+ *   small enough) from a multivariate Student-t (df about 5)
  *   centred on the conditional mean with the conditional covariance as its scale; log p(y_i) =
  *   log mean_m p(y_i, eta_m) / q(eta_m), with its Monte Carlo SE (delta method on the mean
  *   weight) and the effective sample size (sum w)^2 / sum w^2 (Kong 1992, from memory).
@@ -19,13 +20,21 @@ import type { ParameterLayout } from './parameters.js';
 
 export interface ImportanceOptions {
   seed: number;
+  /** Largest number of samples per subject. */
   samplesPerSubject: number;
+  /**
+   * Stop a subject's sampling early (checked every 1000 samples after minSamples) once the
+   * Monte Carlo SE of -2LL would be below this value if every subject were as precise:
+   * per-subject SE of log p(y_i) below targetMcError / (2 sqrt(N)). null: always samplesPerSubject.
+   */
+  targetMcError: number | null;
+  minSamples: number;
   df: number;
   /** Warn when a subject's effective sample size falls below this share of its samples. */
   minEssFraction: number;
 }
 
-export const DEFAULT_IMPORTANCE: Readonly<ImportanceOptions> = Object.freeze({ seed: 1, samplesPerSubject: 10_000, df: 5, minEssFraction: 0.05 });
+export const DEFAULT_IMPORTANCE: Readonly<ImportanceOptions> = Object.freeze({ seed: 1, samplesPerSubject: 10_000, targetMcError: 0.1, minSamples: 1000, df: 5, minEssFraction: 0.05 });
 
 export interface ImportanceResult {
   minus2LL: number;
@@ -35,6 +44,8 @@ export interface ImportanceResult {
   logLik: Float64Array;
   logLikSe: Float64Array;
   ess: Float64Array;
+  /** Samples drawn per subject. */
+  samplesUsed: Int32Array;
   samplesPerSubject: number;
   warnings: string[];
 }
@@ -51,7 +62,9 @@ export function importanceSamplingLikelihood(
   const N = model.nSubjects;
   const d = density.nEta;
   const M = o.samplesPerSubject;
-  const out: ImportanceResult = { minus2LL: 0, mcError: 0, logLik: new Float64Array(N), logLikSe: new Float64Array(N), ess: new Float64Array(N), samplesPerSubject: M, warnings: [] };
+  const out: ImportanceResult = { minus2LL: 0, mcError: 0, logLik: new Float64Array(N), logLikSe: new Float64Array(N), ess: new Float64Array(N), samplesUsed: new Int32Array(N), samplesPerSubject: M, warnings: [] };
+  const subjectTarget = o.targetMcError !== null && o.targetMcError > 0 ? o.targetMcError / (2 * Math.sqrt(Math.max(1, N))) : 0;
+  const CHUNK = 1000;
   let maxObs = 0;
   for (const s of model.subjects) maxObs = Math.max(maxObs, s.nObs);
   const f = new Float64Array(maxObs);
@@ -69,6 +82,7 @@ export function importanceSamplingLikelihood(
     if (d === 0) {
       out.logLik[i] = density.logLik(i, eta, fi);
       out.ess[i] = M;
+      out.samplesUsed[i] = 0;
       continue;
     }
     for (let k = 0; k < d; k++) loc[k] = conditional.mean[i * d + k];
@@ -83,30 +97,44 @@ export function importanceSamplingLikelihood(
     const c = logStudentTConstant(chol, d, o.df);
     const rng = root.stream('posthoc', 'importance', i);
     let max = -Infinity;
-    for (let m = 0; m < M; m++) {
-      const lq = drawStudentT(rng, loc, chol, d, o.df, z, eta) + c;
-      const v = density.logJoint(i, eta, fi) - lq;
-      lw[m] = v;
-      if (v > max) max = v;
+    let used = 0;
+    let s1 = 0, s2 = 0;
+    while (used < M) {
+      const end = Math.min(M, used + CHUNK);
+      for (let m = used; m < end; m++) {
+        const lq = drawStudentT(rng, loc, chol, d, o.df, z, eta) + c;
+        const v = density.logJoint(i, eta, fi) - lq;
+        lw[m] = v;
+        if (v > max) max = v;
+      }
+      used = end;
+      if (max === -Infinity) continue;
+      s1 = 0;
+      s2 = 0;
+      for (let m = 0; m < used; m++) {
+        const w = Math.exp(lw[m] - max);
+        s1 += w;
+        s2 += w * w;
+      }
+      if (subjectTarget > 0 && used >= o.minSamples && used < M) {
+        const mean = s1 / used;
+        const se = Math.sqrt(Math.max(0, s2 / used - mean * mean) / Math.max(1, used - 1)) / mean;
+        if (se < subjectTarget) break;
+      }
     }
+    out.samplesUsed[i] = used;
     if (max === -Infinity) {
       out.logLik[i] = -Infinity;
       impossible.push(model.subjects[i].id);
       continue;
     }
-    let s1 = 0, s2 = 0;
-    for (let m = 0; m < M; m++) {
-      const w = Math.exp(lw[m] - max);
-      s1 += w;
-      s2 += w * w;
-    }
-    const mean = s1 / M;
+    const mean = s1 / used;
     out.logLik[i] = max + Math.log(mean);
-    const varW = Math.max(0, s2 / M - mean * mean) / Math.max(1, M - 1);
+    const varW = Math.max(0, s2 / used - mean * mean) / Math.max(1, used - 1);
     out.logLikSe[i] = Math.sqrt(varW) / mean;
     var2 += out.logLikSe[i] * out.logLikSe[i];
     out.ess[i] = (s1 * s1) / s2;
-    if (out.ess[i] < o.minEssFraction * M) degenerate.push(`${model.subjects[i].id} (ESS ${out.ess[i].toFixed(0)})`);
+    if (out.ess[i] < o.minEssFraction * used) degenerate.push(`${model.subjects[i].id} (ESS ${out.ess[i].toFixed(0)})`);
   }
   let total = 0;
   for (let i = 0; i < N; i++) total += out.logLik[i];
@@ -114,7 +142,7 @@ export function importanceSamplingLikelihood(
   out.mcError = 2 * Math.sqrt(var2);
   if (degenerate.length)
     out.warnings.push(
-      `importance sampling: the weights degenerate for subject(s) ${list(degenerate)} of ${M} samples; their log-likelihood is less precise than its Monte Carlo SE suggests (raise the samples or check the conditional distribution)`,
+      `importance sampling: the weights degenerate for subject(s) ${list(degenerate)}; their log-likelihood is less precise than its Monte Carlo SE suggests (raise the samples or check the conditional distribution)`,
     );
   if (impossible.length) out.warnings.push(`importance sampling: no sample gave a finite density for subject(s) ${list(impossible)}; -2LL is not available`);
   return out;
