@@ -46,15 +46,17 @@ export function linearSpec(params: Record<'b0' | 'b1', Partial<ParameterSpec> & 
   };
 }
 
-/** Orthodont rows (subject, age, distance) as a dataset with level times = age. */
+/** Orthodont rows (subject, age, distance, sex) as a dataset with level times = age and covariate sex. */
 export function orthodontDataset(csv: string): Dataset {
   const lines = csv.trim().split(/\r?\n/).slice(1);
   const bySubject = new Map<string, { timeH: number; valueMgL: number; censored: boolean }[]>();
+  const sexOf = new Map<string, string>();
   for (const line of lines) {
-    const [subject, age, distance] = line.split(',');
+    const [subject, age, distance, sex] = line.split(',');
     const list = bySubject.get(subject) ?? [];
     list.push({ timeH: Number(age), valueMgL: Number(distance), censored: false });
     bySubject.set(subject, list);
+    sexOf.set(subject, sex);
   }
-  return createDataset([...bySubject].map(([id, observations]) => ({ id, doses: [], observations })));
+  return createDataset([...bySubject].map(([id, observations]) => ({ id, covariates: { sex: sexOf.get(id)! }, doses: [], observations })));
 }
