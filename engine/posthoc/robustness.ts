@@ -27,6 +27,8 @@ export interface RepeatOptions {
   /** SEs to compare with (natural scale, per population entry); from the first run's post-fit when absent. */
   se?: readonly (number | null)[];
   signal?: SaemOptions['signal'];
+  /** The fit already made with `seed` and the spec's own initial values: used as run 1 instead of refitting. */
+  first?: RepeatRun;
   onRun?: (run: number, of: number) => void | Promise<void>;
 }
 
@@ -81,7 +83,8 @@ export async function runRepeatedFits(spec: ModelSpec, dataset: Dataset, options
   const runs: RepeatRun[] = [];
   let firstModel: CompiledModel | null = null;
   let se: readonly (number | null)[] | undefined = o.se;
-  for (let r = 0; r < o.runs; r++) {
+  if (o.first) runs.push(o.first);
+  for (let r = o.first ? 1 : 0; r < o.runs; r++) {
     if (o.onRun) await o.onRun(r + 1, o.runs);
     const runSpec = r === 0 || o.jitter === 0 ? spec : jitterSpec(spec, o.jitter, rng);
     const model = compileModel(runSpec, dataset);
@@ -113,7 +116,8 @@ export async function runRepeatedFits(spec: ModelSpec, dataset: Dataset, options
     for (const [name, ps] of Object.entries(runSpec.parameters)) if (ps) initial[name] = ps.typical;
     runs.push({ seed: o.seed + r, estimates, minus2LL, mcError, initial, warnings });
   }
-  return summariseRuns(parameterLayout(firstModel!).entries.map((e) => e.label), runs, se ?? []);
+  firstModel ??= compileModel(spec, dataset);
+  return summariseRuns(parameterLayout(firstModel).entries.map((e) => e.label), runs, se ?? []);
 }
 
 export function summariseRuns(labels: readonly string[], runs: readonly RepeatRun[], se: readonly (number | null)[]): RepeatSummary {
