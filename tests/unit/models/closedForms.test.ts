@@ -41,6 +41,15 @@ describe('steady-state intermittent infusion, 1cmt', () => {
   });
 });
 
+describe('continuous infusion at steady state', () => {
+  // Gibaldi & Perrier 1982, ch. 2 (constant-rate infusion): Css = k0 / CL (from memory).
+  it.each(['1cmt', '2cmt', '3cmt'] as StructureId[])('%s: an infusion as long as its interval holds Css = k0 / CL', (id) => {
+    const params = { '1cmt': [4, 50], '2cmt': [4, 20, 5, 40], '3cmt': [4, 15, 8, 30, 2, 60], '1cmt-mm': [] }[id];
+    const c = predict(id, [inf(0, 1200, 12, 12)], [0, 3, 11.999], [...params, NaN, NaN, NaN]);
+    for (const v of c) expect(relErr(v, 100 / 4)).toBeLessThan(1e-12);
+  });
+});
+
 describe('AUC over a steady-state interval = F dose / CL', () => {
   // Rowland & Tozer, Clinical Pharmacokinetics (AUC over a dosing interval at steady state equals the single-dose AUC, F Dose / CL) (from memory).
   const tau = 12;
