@@ -11,7 +11,7 @@
  *   [0, P(Y < LLOQ | the subject's earlier levels)] in the decorrelated sequence and the level
  *   imputed at that pde (after Nguyen, Comets & Mentre 2012, J Pharmacokinet Pharmacodyn
  *   39:499-518, from memory, who impute from the marginal distribution before decorrelating).
- * - VPC: observation times cut into bins of about equal counts; per bin the observed 5th, 50th
+ * - VPC: observation times (or times after the last dose) cut into bins of about equal counts; per bin the observed 5th, 50th
  *   and 95th percentiles against the 90 % prediction interval of each percentile over the K
  *   simulated replicates, and the share below the LLOQ; censored values rank below every
  *   quantified one and a percentile that falls among them is reported as null (below the LLOQ).
@@ -35,9 +35,14 @@ export interface DiagnosticsOptions {
   vpcBins: number;
   /** Coverage of the prediction intervals of the VPC percentiles. */
   piLevel: number;
+  /**
+   * VPC time axis: time since the first event, time after the last dose, or 'auto' (time after
+   * dose when some subject has more than one dose, common practice for TDM data).
+   */
+  vpcTime: 'time' | 'timeAfterDose' | 'auto';
 }
 
-export const DEFAULT_DIAGNOSTICS: Readonly<DiagnosticsOptions> = Object.freeze({ seed: 1, vpcBins: 8, piLevel: 0.9 });
+export const DEFAULT_DIAGNOSTICS: Readonly<DiagnosticsOptions> = Object.freeze({ seed: 1, vpcBins: 8, piLevel: 0.9, vpcTime: 'auto' });
 
 export interface ObservationDiagnostics {
   subject: string;
@@ -72,6 +77,8 @@ export interface VpcBin {
 
 export interface VpcData {
   predictionCorrected: boolean;
+  /** Time axis of the bins: 'time' (h since the first event) or 'timeAfterDose' (h since the last dose). */
+  timeScale: 'time' | 'timeAfterDose';
   replicates: number;
   piLevel: number;
   bins: VpcBin[];
@@ -256,7 +263,8 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
     }
   }
   const tests = nObs >= 3 ? npdeTests(npde) : null;
-  const vpcInput = { model, offset, sims, K, pred, piLevel: o.piLevel, maxBins: o.vpcBins };
+  const timeScale = o.vpcTime === 'auto' ? (model.subjects.some((x) => x.doses.length > 1) ? 'timeAfterDose' : 'time') : o.vpcTime;
+  const vpcInput = { model, offset, sims, K, pred, piLevel: o.piLevel, maxBins: o.vpcBins, timeScale };
   return {
     observations,
     epsilonShrinkage: num(1 - sdIw),
@@ -286,6 +294,7 @@ interface VpcInput {
   pred: Float64Array;
   piLevel: number;
   maxBins: number;
+  timeScale: 'time' | 'timeAfterDose';
 }
 
 function percentileOf(values: Float64Array, n: number, nCensored: number, q: number): number {
@@ -304,13 +313,16 @@ function band(x: Float64Array, m: number, level: number): PercentileBand {
 }
 
 function vpcData(input: VpcInput, corrected: boolean): VpcData {
-  const { model, offset, sims, K, pred, piLevel, maxBins } = input;
+  const { model, offset, sims, K, pred, piLevel, maxBins, timeScale } = input;
   const nObs = model.nObsTotal;
   const times = new Float64Array(nObs);
   const subjOf = new Int32Array(nObs);
   for (let i = 0; i < model.nSubjects; i++)
     for (let q = 0; q < model.subjects[i].nObs; q++) {
-      times[offset[i] + q] = model.subjects[i].timesH[q];
+      const t = model.subjects[i].timesH[q];
+      let last = 0;
+      if (timeScale === 'timeAfterDose') for (const dose of model.subjects[i].doses) if (dose.timeH <= t) last = dose.timeH;
+      times[offset[i] + q] = t - last;
       subjOf[offset[i] + q] = i;
     }
   const order = Array.from({ length: nObs }, (_, g) => g).sort((x, y) => times[x] - times[y]);
@@ -364,5 +376,5 @@ function vpcData(input: VpcInput, corrected: boolean): VpcData {
       censoredFraction: { observed: nc / n, simulated: band(simC, K, piLevel) },
     });
   }
-  return { predictionCorrected: corrected, replicates: K, piLevel, bins };
+  return { predictionCorrected: corrected, timeScale, replicates: K, piLevel, bins };
 }

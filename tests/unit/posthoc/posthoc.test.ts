@@ -14,6 +14,7 @@ import { residualDerivatives, standardErrors } from '../../../engine/posthoc/fis
 import { observationLogLik } from '../../../engine/stats/residual.js';
 import { importanceSamplingLikelihood } from '../../../engine/posthoc/likelihood.js';
 import { buildLinearisation, linearisedMinus2LL } from '../../../engine/posthoc/linearised.js';
+import { binEdges, computeDiagnostics } from '../../../engine/posthoc/diagnostics.js';
 import { conditionalModes } from '../../../engine/posthoc/modes.js';
 import { centralGradient, centralHessian } from '../../../engine/posthoc/derivatives.js';
 import { fromWorking, parameterLayout, thetaFromPopulation, toWorking } from '../../../engine/posthoc/parameters.js';
@@ -198,6 +199,29 @@ describe('random-intercept model: closed-form posterior and marginal likelihood'
     const is = importanceSamplingLikelihood(density, cond, modes, { seed: 1, samplesPerSubject: 200, minEssFraction: 1 });
     expect(is.warnings.join(' ')).toMatch(/weights degenerate .*ESS/);
     for (const e of is.ess) expect(e).toBeGreaterThan(1);
+  });
+});
+
+describe('VPC bins', () => {
+  it('cut sorted times into bins of about equal counts and never split identical times', () => {
+    // Bins [0, 1), [1, 2), [2, 4), [4, inf): counts 1, 3, 2, 2; the three 1s stay together.
+    expect(binEdges([0, 1, 1, 1, 2, 3, 4, 5], 8, 4)).toEqual([0, 1, 2, 4, Infinity]);
+  });
+  it('use the time after the last dose when subjects have several doses (auto)', () => {
+    const data = createDataset(
+      [0, 1, 2, 3].map((i) => ({
+        id: `S${i}`,
+        doses: [0, 12, 24].map((t) => ({ timeH: t, amountMg: 1, route: 'bolus' as const, durationH: 0 })),
+        observations: [2, 11, 26, 35].map((t, k) => ({ timeH: t, valueMgL: 10 + i - k, censored: false })),
+      })),
+    );
+    const model = compileModel(interceptSpec, data, { structuralModel: interceptModel });
+    const density = buildDensity(model, model.initial)!;
+    const d = computeDiagnostics(density, conditionalModes(density), { seed: 1, replicates: 200 });
+    expect(d.vpc.timeScale).toBe('timeAfterDose');
+    for (const b of d.vpc.bins) expect(b.timeHighH).toBeLessThanOrEqual(11);
+    expect(d.vpc.bins.reduce((a, b) => a + b.n, 0)).toBe(16);
+    expect(computeDiagnostics(density, conditionalModes(density), { seed: 1, replicates: 200, vpcTime: 'time' }).vpc.bins.at(-1)!.timeHighH).toBe(35);
   });
 });
 
