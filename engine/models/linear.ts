@@ -442,7 +442,12 @@ function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): bool
   cur[RATE] = 0;
   for (let i = 0; i <= n; i++) s[i] = 0;
   const counter = wk.evalCount;
-  const id = (counter[0] = counter[0] === 0x7fffffff ? 1 : counter[0] + 1);
+  if (counter[0] === 0x7fffffff) {
+    // Wrap-around: forget every stamp so that no table from an old evaluation can look current.
+    wk.stamp.fill(0);
+    counter[0] = 0;
+  }
+  const id = ++counter[0];
   pend[0] = 0;
   let epoch = 0;
   let left = sc.nOutputs;
