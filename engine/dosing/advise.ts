@@ -13,7 +13,7 @@ import { fmtH, patientCovariate, type Patient } from './patient.js';
 import type { ModelProvenance, PopulationModel } from './population.js';
 import { buildLevelObjective, drawPrior, findMap, samplePosterior, DEFAULT_SAMPLER, type SamplerDiagnostics } from './posterior.js';
 import { buildPatientPrior, type PatientPrior } from './prior.js';
-import { DEFAULT_REGIMEN_SETTINGS, evaluateRegimens, explainRegimen, formatRegimen, rankRegimens, regimenGrid, type RegimenResult } from './regimens.js';
+import { DEFAULT_REGIMEN_SETTINGS, evaluateRegimens, explainRegimen, formatRegimen, goalCentreOf, rankRegimens, regimenGrid, type RegimenResult } from './regimens.js';
 import { bandOf, sig } from './summary.js';
 import type { RegimenSettings, TargetSpec } from './targets.js';
 import {
@@ -241,7 +241,9 @@ export function adviseDose(o: AdviceOptions): Advice {
   const evalInput = { model, draws: tableParams, nDraws: tableDraws, target };
   let results = evaluateRegimens(evalInput, candidates);
   if (o.loadingDose && !single) results = results.map((r) => ({ ...r, loadingDoseMg: loadingDoseFor(model, r, mapVector, settings) }));
-  const ranked = single ? results : rankRegimens(results, currentTauOf(patient));
+  const preferIntervalH = currentTauOf(patient) ?? target.preferIntervalH;
+  const centre = goalCentreOf(target);
+  const ranked = single ? results : rankRegimens(results, { ...(preferIntervalH !== undefined ? { preferIntervalH } : {}), ...(centre ? { goalCentre: centre } : {}) });
   const failing = results.filter((r) => r.failedDraws > 0);
   if (failing.length)
     warnings.push({ severity: 'flag', code: 'regimen-draws-failed', message: `${failing.length} candidate regimen(s) have draws with no steady state or a model failure (e.g. elimination saturated): those draws count as toxic` });

@@ -303,25 +303,50 @@ function roundBand(b: Band): Band {
 /** Width of the score bands within which candidates count as equal (about 2 Monte Carlo SEs at 2000 draws). */
 export const RANK_TIE_WIDTH = 0.02;
 
+export interface RankOptions {
+  /** Interval to stay near within a tie band: the current one, else the target's preferred one. */
+  preferIntervalH?: number;
+  /** Centre of the target range (for the first two-sided goal): within ties, the median nearest it. */
+  goalCentre?: { metric: MetricId; value: number };
+}
+
 /**
  * Best first by the score P(target) - P(toxic), in bands of RANK_TIE_WIDTH (differences below
- * the Monte Carlo error are not evidence); within a band: the interval nearest the current one
- * (fewer changes on the ward), then lower P(toxic), fewer doses a day, the lower daily dose.
- * Bands keep the order transitive.
+ * the Monte Carlo error are not evidence); within a band: the interval nearest the preferred one
+ * (fewer changes on the ward), lower P(toxic), the median nearest the centre of the target
+ * range, fewer doses a day, the lower daily dose. Bands keep the order transitive.
  */
-export function rankRegimens(results: RegimenResult[], currentIntervalH?: number): RegimenResult[] {
-  const band = (r: RegimenResult) => Math.floor(((Number.isFinite(r.pTarget) ? r.pTarget : -1) - (r.pToxic ?? 0)) / RANK_TIE_WIDTH + 1e-9);
-  const distance = (r: RegimenResult) => (currentIntervalH !== undefined ? Math.abs(Math.log(r.intervalH / currentIntervalH)) : 0);
+export function rankRegimens(results: RegimenResult[], options: RankOptions = {}): RegimenResult[] {
+  // Bands counted down from the best possible score, 1, so that certain attainment is one band.
+  const band = (r: RegimenResult) => Math.floor((1 - ((Number.isFinite(r.pTarget) ? r.pTarget : -1) - (r.pToxic ?? 0))) / RANK_TIE_WIDTH + 1e-9);
+  const prefer = options.preferIntervalH;
+  const distance = (r: RegimenResult) => (prefer !== undefined ? Math.abs(Math.log(r.intervalH / prefer)) : 0);
+  const centre = options.goalCentre;
+  const offCentre = (r: RegimenResult) => {
+    const m = centre ? r.metrics[centre.metric]?.median : undefined;
+    return centre && m !== undefined && Number.isFinite(m) ? Math.abs(Math.log(m / centre.value)) : 0;
+  };
   return results.slice().sort((a, b) => {
-    const db = band(b) - band(a);
+    const db = band(a) - band(b);
     if (db !== 0) return db;
     const di = distance(a) - distance(b);
     if (Math.abs(di) > 1e-9) return di;
     const dt = (a.pToxic ?? 0) - (b.pToxic ?? 0);
     if (dt !== 0) return dt;
+    const dc = offCentre(a) - offCentre(b);
+    if (Math.abs(dc) > 1e-9) return dc;
     if (a.intervalH !== b.intervalH) return b.intervalH - a.intervalH;
     return a.dailyDoseMg - b.dailyDoseMg;
   });
+}
+
+/** The centre (geometric mean of the bounds) of the target's first two-sided goal. */
+export function goalCentreOf(target: TargetSpec): RankOptions['goalCentre'] {
+  for (const c of target.goals) {
+    const { min, max } = resolvedBounds(target, c);
+    if (Number.isFinite(min) && Number.isFinite(max) && min > 0) return { metric: c.metric, value: Math.sqrt(min * max) };
+  }
+  return undefined;
 }
 
 const pct = (p: number) => `${Math.round(100 * p)} %`;

@@ -58,6 +58,8 @@ export interface TargetSpec {
   /** Any of these (max exceeded) counts as a toxic exposure. */
   toxic: Condition[];
   regimen?: RegimenSettings;
+  /** Interval to stay near when ranking ties and the patient has no current interval (h). */
+  preferIntervalH?: number;
   notes?: string[];
 }
 
@@ -146,6 +148,7 @@ export function parseTarget(json: unknown): TargetSpec {
   if (unboundFraction !== undefined && unboundFraction > 1) problems.push('unboundFraction: must lie in (0, 1]');
   const peakDelayH = json.peakDelayH === undefined ? undefined : finite(json.peakDelayH) && json.peakDelayH >= 0 ? json.peakDelayH : (problems.push('peakDelayH: must be a number of hours >= 0'), undefined);
   const thresholdMgL = num('thresholdMgL');
+  const preferIntervalH = num('preferIntervalH');
   const goals = parseConditions(json.goals, 'goals', problems, false);
   if (goals.length === 0 && json.goals !== undefined) problems.push('goals: give at least one condition');
   if (json.goals === undefined) problems.push('goals: missing (a list of {metric, min?, max?})');
@@ -160,7 +163,7 @@ export function parseTarget(json: unknown): TargetSpec {
     id, label, ...(drug ? { drug } : {}), source, sourceStatus, localProtocol,
     ...(micMgL !== undefined ? { micMgL } : {}), ...(unboundFraction !== undefined ? { unboundFraction } : {}),
     ...(peakDelayH !== undefined ? { peakDelayH } : {}), ...(thresholdMgL !== undefined ? { thresholdMgL } : {}),
-    goals, toxic, ...(regimen ? { regimen } : {}), ...(notes ? { notes } : {}),
+    goals, toxic, ...(regimen ? { regimen } : {}), ...(preferIntervalH !== undefined ? { preferIntervalH } : {}), ...(notes ? { notes } : {}),
   };
 }
 

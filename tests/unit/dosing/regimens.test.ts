@@ -45,7 +45,7 @@ describe('regimenGrid', () => {
 describe('rankRegimens', () => {
   const r = (doseMg: number, intervalH: number, pTarget: number, pToxic: number): RegimenResult => ({ doseMg, intervalH, durationH: 1, route: 'infusion', dailyDoseMg: (doseMg * 24) / intervalH, pTarget, pToxic, metrics: {}, failedDraws: 0 });
   it('puts the highest P(target) - P(toxic) first; within Monte Carlo ties, the current interval, then lower toxicity', () => {
-    const ranked = rankRegimens([r(500, 12, 0.5, 0.1), r(1000, 12, 0.8, 0.3), r(750, 12, 0.7, 0.05), r(1500, 24, 0.705, 0.05), r(2000, 48, 0.905, 0.1), r(250, 12, 0.7, 0.06)], 12);
+    const ranked = rankRegimens([r(500, 12, 0.5, 0.1), r(1000, 12, 0.8, 0.3), r(750, 12, 0.7, 0.05), r(1500, 24, 0.705, 0.05), r(2000, 48, 0.905, 0.1), r(250, 12, 0.705, 0.06)], { preferIntervalH: 12 });
     expect(ranked.map((x) => [x.doseMg, x.intervalH])).toEqual([
       [2000, 48],
       [750, 12],
@@ -54,6 +54,15 @@ describe('rankRegimens', () => {
       [1000, 12],
       [500, 12],
     ]);
+  });
+});
+
+describe('rankRegimens within a tie band', () => {
+  it('prefers the median nearest the centre of a two-sided target range', () => {
+    const m = (doseMg: number, median: number): RegimenResult => ({ doseMg, intervalH: 12, durationH: 1, route: 'infusion', dailyDoseMg: 2 * doseMg, pTarget: 0.9, pToxic: 0.05, metrics: { auc24: { median, mean: median, q025: 0, q10: 0, q90: 0, q975: 0 } }, failedDraws: 0 });
+    const ranked = rankRegimens([m(750, 430), m(1000, 520), m(1250, 580)], { preferIntervalH: 12, goalCentre: { metric: 'auc24', value: Math.sqrt(400 * 600) } });
+    // Centre sqrt(400 x 600) = 490: |log(520/490)| < |log(430/490)| < |log(580/490)|.
+    expect(ranked.map((x) => x.doseMg)).toEqual([1000, 750, 1250]);
   });
 });
 
