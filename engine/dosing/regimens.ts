@@ -9,7 +9,7 @@ import type { Route } from '../data/types.js';
 import type { StructuralModel } from '../models/types.js';
 import { buildSteadyStateEvaluator, isDoseLinear, METRIC_IDS, type Regimen } from './metrics.js';
 import { bandOf, sig, type Band } from './summary.js';
-import { describeCondition, describeToxic, ftThresholdMgL, METRIC_LABELS, metricsNeeded, resolvedBounds, type MetricId, type RegimenSettings, type TargetSpec } from './targets.js';
+import { describeCondition, describeToxic, metricLabel, ftThresholdMgL, METRIC_LABELS, metricsNeeded, resolvedBounds, type MetricId, type RegimenSettings, type TargetSpec } from './targets.js';
 
 export type { Regimen };
 
@@ -364,7 +364,7 @@ export function explainRegimen(r: RegimenResult, target: TargetSpec, rank?: numb
   for (const id of shown) {
     const b = r.metrics[id];
     if (!b) continue;
-    parts.push(`Predicted ${METRIC_LABELS[id].label}: ${fmt(b.median)} ${METRIC_LABELS[id].unit} (80 % interval ${fmt(b.q10)}-${fmt(b.q90)}).`);
+    parts.push(`Predicted ${metricLabel(target, id)}: ${fmt(b.median)} ${METRIC_LABELS[id].unit} (80 % interval ${fmt(b.q10)}-${fmt(b.q90)}).`);
   }
   if (r.loadingDoseMg !== undefined) parts.push(`The loading dose of ${r.loadingDoseMg} mg brings the first peak close to the steady-state peak.`);
   if (r.failedDraws > 0) parts.push(`(${r.failedDraws} draws reach no steady state or could not be evaluated; they count as toxic.)`);

@@ -184,9 +184,16 @@ export function metricsNeeded(target: TargetSpec): Set<MetricId> {
   return new Set([...target.goals, ...target.toxic].map((c) => c.metric));
 }
 
+/** The metric's label, with the sampling delay for peakAt. */
+export function metricLabel(target: TargetSpec, metric: MetricId): string {
+  if (metric === 'peakAt') return `level ${target.peakDelayH ?? 0} h after the end of infusion`;
+  return METRIC_LABELS[metric].label;
+}
+
 /** Plain words for a condition, e.g. "AUC24 400-600 mg.h/L". */
 export function describeCondition(target: TargetSpec, c: Condition): string {
-  const { label, unit } = METRIC_LABELS[c.metric];
+  const { unit } = METRIC_LABELS[c.metric];
+  const label = metricLabel(target, c.metric);
   const { min, max } = resolvedBounds(target, c);
   const mic = c.perMic ? ` (${c.min ?? ''}${c.min !== undefined && c.max !== undefined ? '-' : ''}${c.max ?? ''} x MIC ${target.micMgL} mg/L)` : '';
   const fmt = (x: number) => (Math.abs(x) >= 100 ? x.toFixed(0) : String(Number(x.toPrecision(3))));
@@ -197,7 +204,8 @@ export function describeCondition(target: TargetSpec, c: Condition): string {
 
 /** Plain words for a toxicity condition, e.g. "AUC24 above 600 mg.h/L". */
 export function describeToxic(target: TargetSpec, c: Condition): string {
-  const { label, unit } = METRIC_LABELS[c.metric];
+  const { unit } = METRIC_LABELS[c.metric];
+  const label = metricLabel(target, c.metric);
   const { max } = resolvedBounds(target, c);
   return `${label} above ${Math.abs(max) >= 100 ? max.toFixed(0) : String(Number(max.toPrecision(3)))} ${unit}`;
 }
