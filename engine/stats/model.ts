@@ -443,8 +443,16 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
     return true;
   }
 
+  // The scratch vector keeps the defaults of absent parameters; predict writes only the others.
+  modelVec.set(modelDefaults);
   function predict(i: number, phi: ArrayLike<number>, out: Float64Array): boolean {
-    if (!toModelVector(phi, modelVec)) return false;
+    for (let j = 0; j < nParams; j++) {
+      const x = phi[j];
+      const code = transformCode[j];
+      const v = code === 0 ? Math.exp(x) : code === 1 ? 1 / (1 + Math.exp(-x)) : x;
+      if (!Number.isFinite(v)) return false;
+      modelVec[modelIdx[j]] = v;
+    }
     return subjects[i].predictor(modelVec, out);
   }
 
