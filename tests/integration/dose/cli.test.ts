@@ -89,6 +89,24 @@ describe('plateau dose', () => {
     expect(t2.out()).toContain('Ranked regimens');
   });
 
+  it('takes the user\'s own target file and a --mic override', async () => {
+    writeFileSync(
+      path.join(dir, 'my-target.json'),
+      JSON.stringify({ id: 'ward-7', label: 'ward 7 trough 10-15', source: 'ward 7 protocol 2026 (invented for the test)', goals: [{ metric: 'trough', min: 10, max: 15 }], toxic: [{ metric: 'trough', max: 20 }], regimen: { strengthMg: 250, minDoseMg: 500, maxDoseMg: 2000, intervalsH: [12], durationsH: [1, 2], maxRateMgPerH: 1000 } }),
+    );
+    const t = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'my-target.json', '--json'], t.io)).toBe(0);
+    const a = JSON.parse(t.out());
+    expect(a.target).toMatchObject({ id: 'ward-7', localProtocol: 'check local protocol' });
+    expect(a.regimens.every((r: { intervalH: number }) => r.intervalH === 12)).toBe(true);
+    const t2 = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', '--mic', '2', '--evaluate', '1000mg q12h 1h', '--json'], t2.io)).toBe(0);
+    const b = JSON.parse(t2.out());
+    expect(b.target.micMgL).toBe(2);
+    // AUC24/MIC 400-600 with MIC 2 means AUC24 800-1200: 2000 mg a day cannot reach it here.
+    expect(b.regimens[0].pTarget).toBeLessThan(0.05);
+  });
+
   it('without --target evaluates the current regimen only', async () => {
     const t = io(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--json'], t.io)).toBe(0);
