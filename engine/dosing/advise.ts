@@ -148,6 +148,8 @@ export function adviseDose(o: AdviceOptions): Advice {
     if (v) covValues.set(name, v.value);
   }
   const usedFrom = new Set([...Object.values(covariatesUsed)].map((x) => x.split(' ')[0]));
+  // The inputs of a derived creatinine clearance are used through it.
+  if (usedFrom.has('crcl_mL_min') && 'crcl_mL_min' in patient.derived && patient.derived.crcl_mL_min.includes('Cockcroft')) for (const k of ['age_y', 'sex', 'scr_mg_dL', 'weight_kg']) usedFrom.add(k);
   const unused = Object.keys(patient.covariates).filter((k) => !usedFrom.has(k));
   if (unused.length) warnings.push({ severity: 'note', code: 'covariate-unused', message: `covariates not used by the model: ${unused.join(', ')}` });
   const prior: PatientPrior = buildPatientPrior(population, covValues, model);

@@ -148,8 +148,11 @@ describe('adviseDose', () => {
     } catch (e) {
       expect((e as Error).message).toContain('crcl_mL_min');
     }
-    const a = run();
-    expect(a.warnings.find((w) => w.code === 'covariate-unused')?.message).toContain('age_y');
+    const a = run({ patient: { ...PATIENT, covariates: { ...PATIENT.covariates, height_cm: 180 } } });
+    const note = a.warnings.find((w) => w.code === 'covariate-unused')?.message;
+    expect(note).toContain('height_cm');
+    // Age, sex, weight and creatinine enter through the Cockcroft-Gault clearance the model uses.
+    expect(note).not.toContain('age_y');
   });
 
   it('refuses to advise without the caution text', () => {
