@@ -167,6 +167,10 @@ export function adviseDose(o: AdviceOptions): Advice {
   const ppc = checkPredictive(prior, obj, map, root.stream('dosing', 'predictive-check'));
   warnings.push(...ppc.warnings);
   warnings.push(...checkRenalChange(patient.renal));
+  const scr = patient.covariates.scr_mg_dL;
+  const latest = patient.renal.length ? patient.renal[patient.renal.length - 1] : undefined;
+  if (typeof scr === 'number' && latest && Math.abs(latest.scrMgDl / scr - 1) > 0.2)
+    warnings.push({ severity: 'flag', code: 'scr-stale', message: `the covariate serum creatinine (${scr.toFixed(2)} mg/dL) differs from the latest one in the renal history (${latest.scrMgDl.toFixed(2)} mg/dL at ${latest.timeH} h): the model uses the covariate value; update it if the latest reflects the patient now` });
 
   // Parameter draws on the natural scale.
   const nP = model.parameterOrder.length;

@@ -218,6 +218,14 @@ describe('population model from a fit', () => {
   });
 });
 
+describe('renal change in the advice', () => {
+  it('flags a creatinine rise between levels and a covariate value older than the renal history', () => {
+    const a = run({ patient: { ...PATIENT, renal: [{ time_h: 0, scr_mg_dL: 1.1 }, { time_h: 24, scr_mg_dL: 1.6 }] } });
+    expect(a.warnings.some((w) => w.code === 'renal-change')).toBe(true);
+    expect(a.warnings.some((w) => w.code === 'scr-stale')).toBe(true);
+  });
+});
+
 describe('renal change', () => {
   // KDIGO 2012 AKI criteria (from memory): a rise >= 0.3 mg/dL within 48 h, or >= 1.5 x baseline.
   it('flags a creatinine rise and a marked fall, not small changes', () => {
