@@ -25,16 +25,18 @@ export interface ImportanceOptions {
   /**
    * Stop a subject's sampling early (checked every 1000 samples after minSamples) once the
    * Monte Carlo SE of -2LL would be below this value if every subject were as precise:
-   * per-subject SE of log p(y_i) below targetMcError / (2 sqrt(N)). null: always samplesPerSubject.
+   * per-subject SE of log p(y_i) below targetMcError / (2 sqrt(N)). 'auto': max(0.1, 0.01
+   * sqrt(N)) (a tenth of a point for small studies, a fixed per-subject precision of 0.005 for
+   * large ones). null: always samplesPerSubject.
    */
-  targetMcError: number | null;
+  targetMcError: number | 'auto' | null;
   minSamples: number;
   df: number;
   /** Warn when a subject's effective sample size falls below this share of its samples. */
   minEssFraction: number;
 }
 
-export const DEFAULT_IMPORTANCE: Readonly<ImportanceOptions> = Object.freeze({ seed: 1, samplesPerSubject: 10_000, targetMcError: 0.1, minSamples: 1000, df: 5, minEssFraction: 0.05 });
+export const DEFAULT_IMPORTANCE: Readonly<ImportanceOptions> = Object.freeze({ seed: 1, samplesPerSubject: 10_000, targetMcError: 'auto', minSamples: 1000, df: 5, minEssFraction: 0.05 });
 
 export interface ImportanceResult {
   minus2LL: number;
@@ -63,7 +65,8 @@ export function importanceSamplingLikelihood(
   const d = density.nEta;
   const M = o.samplesPerSubject;
   const out: ImportanceResult = { minus2LL: 0, mcError: 0, logLik: new Float64Array(N), logLikSe: new Float64Array(N), ess: new Float64Array(N), samplesUsed: new Int32Array(N), samplesPerSubject: M, warnings: [] };
-  const subjectTarget = o.targetMcError !== null && o.targetMcError > 0 ? o.targetMcError / (2 * Math.sqrt(Math.max(1, N))) : 0;
+  const target = o.targetMcError === 'auto' ? Math.max(0.1, 0.01 * Math.sqrt(N)) : o.targetMcError;
+  const subjectTarget = target !== null && target > 0 ? target / (2 * Math.sqrt(Math.max(1, N))) : 0;
   const CHUNK = 1000;
   let maxObs = 0;
   for (const s of model.subjects) maxObs = Math.max(maxObs, s.nObs);
