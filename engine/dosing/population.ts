@@ -145,6 +145,11 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
   if (!covariateRanges) warnings.push('the fit carries no covariate ranges of its dataset: whether this patient lies inside the fitted population cannot be checked');
   const fitWarnings = Array.isArray(fit.warnings) ? fit.warnings.map((w) => (typeof w === 'string' ? w : JSON.stringify(w))) : [];
   if (fitWarnings.length) warnings.push(`the fit reported ${fitWarnings.length} warning(s): review them before using it for dosing`);
+  // Poorly estimated population values make the prior unreliable (50 % RSE: common practice).
+  for (const e of fit.population as Array<Record<string, unknown>>) {
+    if (isRecord(e) && finite(e.rsePercent) && e.rsePercent > 50)
+      warnings.push(`the fit estimated ${e.kind} ${e.parameter}${typeof e.covariate === 'string' ? `~${e.covariate}` : ''} with ${Math.round(e.rsePercent)} % RSE: the prior rests on a poorly determined value`);
+  }
   const merged: ModelSpec = {
     ...spec,
     parameters: params,

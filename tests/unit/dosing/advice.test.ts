@@ -213,6 +213,10 @@ describe('population model from a fit', () => {
     const withRanges = loadPopulationModel({ ...fit, covariateRanges: { crcl_mL_min: [30, 140] } });
     expect(withRanges.covariateRanges).toEqual({ crcl_mL_min: [30, 140] });
   });
+  it('warns about poorly estimated population values', () => {
+    const m = loadPopulationModel({ ...fit, population: fit.population.map((e) => (e.kind === 'bsv' && e.parameter === 'V' ? { ...e, rsePercent: 85 } : e)) });
+    expect(m.warnings.some((w) => w.includes('bsv V') && w.includes('85 % RSE'))).toBe(true);
+  });
   it('rejects entries that do not match the spec', () => {
     expect(() => loadPopulationModel({ ...fit, population: [...fit.population, { parameter: 'Q', kind: 'typical', estimate: 1 }] })).toThrow(PopulationModelError);
   });
