@@ -3,22 +3,30 @@
  * levels: Samson, Lavielle & Mentre 2006; all from memory), DESIGN.md §5.
  *
  * Each iteration k: (1) for every subject and chain, Metropolis-Hastings steps on phi_i
- * targeting p(phi_i | y_i; theta_k) (independent proposal from the population distribution,
- * full random walk N(phi, kappa Omega), component-wise random walk with adaptive scales), then
- * censored levels drawn from their truncated conditional distribution; (2) stochastic
- * approximation of the complete-data sufficient statistics, s_k = s_{k-1} + gamma_k (S_k -
- * s_{k-1}), gamma 1 in exploration then (k-K1)^-alpha; (3) M-step: typical values and covariate
- * effects of parameters with BSV by GLS from s_k (reduces to least squares under a diagonal
- * Omega), Omega from the second moments (within the chosen blocks), additive / proportional /
- * log-additive residual variance in closed form. Parameters without BSV and combined-error
- * (a, b) have no sufficient statistics: they move by a stochastic-approximation Newton step on
- * the complete-data log-likelihood at the current draws, theta <- theta - gamma Hbar^-1 grad
- * (Robbins-Monro; by Fisher's identity its fixed point solves the observed-data score equation,
- * so it lands on the MLE). Variances are annealed during exploration (at most (1 - tau) fall per
- * iteration). Randomness: one stream per subject and chain from the seed.
+ * targeting p(phi_i | y_i; theta_k): independent proposal from the population distribution,
+ * full random walk N(phi, kappa Omega), component-wise random walk with adaptive scales, and a
+ * random walk shaped by the subject's own conditional covariance (learnt from its draws during
+ * exploration; it mixes along ridges of p(phi_i | y_i) that Omega-shaped steps cross slowly);
+ * scales adapt towards the target acceptance during exploration, then freeze. Censored levels
+ * are then drawn from their truncated conditional distribution. (2) Stochastic approximation of
+ * the complete-data sufficient statistics, s_k = s_{k-1} + gamma_k (S_k - s_{k-1}): gamma 1 in
+ * exploration, then 1/(k - K1 + W)^alpha, the averaging phase opening from the mean statistics
+ * of the last W (settle window) exploration iterations. (3) M-step: typical values and
+ * covariate effects of parameters with BSV by GLS from s_k with W = Omega_{k-1}^-1 (least
+ * squares under a diagonal Omega or shared regressors), Omega from the second moments within
+ * the chosen blocks, additive / proportional / log-additive residual variance in closed form.
+ * Parameters without BSV and combined-error (a, b) have no sufficient statistics: they move by a
+ * stochastic-approximation Newton step on the complete-data log-likelihood at the current
+ * draws, theta <- theta - gamma Hbar^-1 grad (Robbins-Monro; by Fisher's identity its fixed
+ * point solves the observed-data score equation, so it lands on the MLE: checked against an
+ * exact quadrature MLE in tests/integration/fit/censoredExact.test.ts). Variances are annealed
+ * early in exploration (at most (1 - tau) fall per iteration). Randomness: one stream per
+ * subject and chain from the seed, so results do not depend on the order of work.
  *
  * The iteration itself is synchronous and allocation-free; `runSaem` drives it, reports progress
- * every iteration and honours an abort signal between iterations.
+ * every iteration and checks the abort signal between iterations. A host that must receive an
+ * abort message while the fit runs returns a promise from onProgress (e.g. every 10
+ * iterations) so its event loop can turn.
  */
 import { createStreams, type RngStream } from '../rng/index.js';
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
