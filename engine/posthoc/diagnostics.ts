@@ -11,6 +11,7 @@
  *   [0, P(Y < LLOQ | the subject's earlier levels)] in the decorrelated sequence and the level
  *   imputed at that pde (after Nguyen, Comets & Mentre 2012, J Pharmacokinet Pharmacodyn
  *   39:499-518, from memory, who impute from the marginal distribution before decorrelating).
+ * - Random effects at the modes against each covariate (covariateRelations).
  * - VPC: observation times (or times after the last dose) cut into bins of about equal counts; per bin the observed 5th, 50th
  *   and 95th percentiles against the 90 % prediction interval of each percentile over the K
  *   simulated replicates, and the share below the LLOQ; censored values rank below every
@@ -23,7 +24,7 @@ import { createStreams } from '../rng/index.js';
 import { normalQuantile } from '../rng/index.js';
 import { residualSd } from '../stats/residual.js';
 import type { SubjectDensity } from './density.js';
-import { quantileSorted } from './distributions.js';
+import { quantileSorted, studentTTwoSided } from './distributions.js';
 import { list, type ModeResult } from './modes.js';
 import { npdeTests, type NpdeTests } from './normality.js';
 
@@ -90,6 +91,7 @@ export interface DiagnosticsResult {
   npde: { replicates: number; censoredMethod: string; tests: NpdeTests | null };
   vpc: VpcData;
   pcVpc: VpcData;
+  covariateRelations: CovariateRelation[];
   warnings: string[];
 }
 
@@ -271,6 +273,7 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
     npde: { replicates: K, censoredMethod: 'censored levels: pde drawn uniformly on [0, P(Y < LLOQ | earlier levels of the subject)] in the decorrelated (Cholesky) sequence and the level imputed at that pde (after Nguyen, Comets & Mentre 2012)', tests },
     vpc: vpcData(vpcInput, false),
     pcVpc: vpcData(vpcInput, true),
+    covariateRelations: covariateRelations(model, modes),
     warnings,
   };
 }
@@ -377,4 +380,57 @@ function vpcData(input: VpcInput, corrected: boolean): VpcData {
     });
   }
   return { predictionCorrected: corrected, timeScale, replicates: K, piLevel, bins };
+}
+
+export interface CovariateRelation {
+  /** Parameter whose random effect (at the conditional mode) is related. */
+  parameter: string;
+  covariate: string;
+  kind: 'continuous' | 'categorical';
+  /** Continuous: Pearson correlation of eta_mode with the covariate and its two-sided p-value (t-test, n - 2 df). */
+  correlation?: number | null;
+  pValue?: number | null;
+  /** Categorical: mean eta_mode and count per level. */
+  levels?: { level: string; n: number; meanEta: number }[];
+}
+
+/**
+ * Random effects at the conditional modes against every covariate in the dataset, the usual
+ * screen for a missing covariate effect (common practice; read it with the shrinkage: at high
+ * shrinkage modes shrink towards 0 and hide relations, Savic & Karlsson 2009).
+ */
+export function covariateRelations(model: SubjectDensity['model'], modes: ModeResult): CovariateRelation[] {
+  const out: CovariateRelation[] = [];
+  const N = model.nSubjects;
+  const d = model.nEta;
+  for (let k = 0; k < d; k++) {
+    const parameter = model.parameters[model.etaParameter[k]].name;
+    for (const covariate of model.dataset.covariateNames) {
+      const values = model.dataset.subjects.map((s) => s.covariates[covariate]);
+      if (values.some((v) => v === undefined)) continue;
+      if (values.every((v) => typeof v === 'number')) {
+        let sx = 0, sy = 0, sxx = 0, syy = 0, sxy = 0;
+        for (let i = 0; i < N; i++) {
+          const x = values[i] as number;
+          const y = modes.eta[i * d + k];
+          sx += x, sy += y, sxx += x * x, syy += y * y, sxy += x * y;
+        }
+        const cov = sxy - (sx * sy) / N;
+        const r = cov / Math.sqrt((sxx - (sx * sx) / N) * (syy - (sy * sy) / N));
+        const t = r * Math.sqrt((N - 2) / Math.max(1e-300, 1 - r * r));
+        out.push({ parameter, covariate, kind: 'continuous', correlation: num(r), pValue: N > 2 ? num(studentTTwoSided(t, N - 2)) : null });
+      } else {
+        const byLevel = new Map<string, { n: number; sum: number }>();
+        values.forEach((v, i) => {
+          const key = String(v);
+          const e = byLevel.get(key) ?? { n: 0, sum: 0 };
+          e.n++;
+          e.sum += modes.eta[i * d + k];
+          byLevel.set(key, e);
+        });
+        out.push({ parameter, covariate, kind: 'categorical', levels: [...byLevel.entries()].sort((a, b) => (a[0] < b[0] ? -1 : 1)).map(([level, e]) => ({ level, n: e.n, meanEta: e.sum / e.n })) });
+      }
+    }
+  }
+  return out;
 }

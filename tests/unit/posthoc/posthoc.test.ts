@@ -14,7 +14,7 @@ import { residualDerivatives, standardErrors } from '../../../engine/posthoc/fis
 import { observationLogLik } from '../../../engine/stats/residual.js';
 import { importanceSamplingLikelihood } from '../../../engine/posthoc/likelihood.js';
 import { buildLinearisation, linearisedMinus2LL } from '../../../engine/posthoc/linearised.js';
-import { binEdges, computeDiagnostics } from '../../../engine/posthoc/diagnostics.js';
+import { binEdges, computeDiagnostics, covariateRelations } from '../../../engine/posthoc/diagnostics.js';
 import { conditionalModes } from '../../../engine/posthoc/modes.js';
 import { centralGradient, centralHessian } from '../../../engine/posthoc/derivatives.js';
 import { fromWorking, parameterLayout, thetaFromPopulation, toWorking } from '../../../engine/posthoc/parameters.js';
@@ -222,6 +222,27 @@ describe('VPC bins', () => {
     for (const b of d.vpc.bins) expect(b.timeHighH).toBeLessThanOrEqual(11);
     expect(d.vpc.bins.reduce((a, b) => a + b.n, 0)).toBe(16);
     expect(computeDiagnostics(density, conditionalModes(density), { seed: 1, replicates: 200, vpcTime: 'time' }).vpc.bins.at(-1)!.timeHighH).toBe(35);
+  });
+});
+
+describe('random effects against covariates', () => {
+  it('find a relation the model leaves out (invented data: levels rise with weight) and list categorical levels', () => {
+    const data = createDataset(
+      [50, 60, 70, 80, 90, 100].map((w, i) => ({
+        id: `S${i}`,
+        covariates: { weight_kg: w, sex: i % 2 ? 'F' : 'M' },
+        doses: [{ timeH: 0, amountMg: 1, route: 'bolus' as const, durationH: 0 }],
+        observations: [1, 2, 3].map((t, k) => ({ timeH: t, valueMgL: 10 + (w - 75) / 10 + 0.1 * k, censored: false })),
+      })),
+      ['weight_kg', 'sex'],
+    );
+    const model = compileModel(interceptSpec, data, { structuralModel: interceptModel });
+    const rel = covariateRelations(model, conditionalModes(buildDensity(model, model.initial)!));
+    const w = rel.find((r) => r.covariate === 'weight_kg')!;
+    expect(w.correlation!).toBeGreaterThan(0.99);
+    expect(w.pValue!).toBeLessThan(0.001);
+    const sex = rel.find((r) => r.covariate === 'sex')!;
+    expect(sex.levels!.map((l) => [l.level, l.n])).toEqual([['F', 3], ['M', 3]]);
   });
 });
 
