@@ -198,7 +198,6 @@ export function timeToFallBelow(prior: PatientPrior, history: readonly Dose[], e
     let found = false;
     for (let i = 1; i < n; i++) {
       if (conc[i] < levelMgL) {
-        // Linear interpolation between the grid nodes.
         const f = (conc[i - 1] - levelMgL) / (conc[i - 1] - conc[i]);
         h = (i - 1 + f) * step;
         found = true;

@@ -23,7 +23,6 @@ export function quantileSorted(sorted: Float64Array, p: number, n: number = sort
 function select(a: Float64Array, lo: number, hi: number, k: number): void {
   while (hi > lo) {
     const mid = (lo + hi) >>> 1;
-    // Median of three as the pivot.
     const x = a[lo];
     const y = a[mid];
     const z = a[hi];
