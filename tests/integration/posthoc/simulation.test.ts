@@ -77,6 +77,11 @@ describe('NPDE and VPC on data simulated from the true model (simulated, labelle
         }
         expect(inside / diag.vpc.bins.length).toBeGreaterThanOrEqual(0.75);
         expect(diag.observations.filter((o) => o.censored).every((o) => o.imputed !== undefined && o.imputed < lloq)).toBe(true);
+        // Louis' formula takes the censored likelihood P(Y < LLOQ) through finite differences.
+        const ph = runPosthoc(model, model.initial, { seed: 3, diagnostics: false, importance: { samplesPerSubject: 1000 } });
+        expect(ph.standardErrors.ok).toBe(true);
+        expect(ph.standardErrors.se.every((x) => x !== null && x > 0)).toBe(true);
+        expect(ph.warnings.join(' ')).toMatch(/level\(s\) below the LLOQ are left out of the linearised likelihood/);
       }
       expect(diag.epsilonShrinkage!).toBeLessThan(0.2);
     });
