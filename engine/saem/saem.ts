@@ -31,7 +31,7 @@
 import { createStreams, type RngStream } from '../rng/index.js';
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import { choleskyLower, invertFromCholesky, solveWithCholesky } from '../stats/dense.js';
-import { residualSd } from '../stats/residual.js';
+import { combinedErrorDerivatives, residualSd } from '../stats/residual.js';
 import { truncatedNormalBelow } from '../stats/normalTail.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
 
@@ -583,15 +583,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     return total / L;
   }
 
-  const xTmp = new Float64Array(nNum);
-  function numericalStep(gamma: number): void {
-    for (let m = 0; m < nNum; m++) {
-      const nc = numComps[m];
-      numTheta[m] = nc.kind === 'mu' ? theta.mu[nc.index] : nc.kind === 'beta' ? theta.beta[nc.index] : nc.kind === 'loga' ? Math.log(theta.a) : Math.log(theta.b);
-    }
+  /** Gradient and Hessian of the numerical block's objective by central differences. */
+  function finiteDifferenceDerivatives(): boolean {
     const f0 = numObjective(numTheta);
-    if (!Number.isFinite(f0)) return;
-    // Central differences for the gradient and Hessian.
+    if (!Number.isFinite(f0)) return false;
     for (let m = 0; m < nNum; m++) {
       const h = 1e-3 * Math.max(1, Math.abs(numTheta[m]));
       xTmp.set(numTheta);
@@ -607,7 +602,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         const h1 = 1e-3 * Math.max(1, Math.abs(numTheta[m]));
         const h2 = 1e-3 * Math.max(1, Math.abs(numTheta[m2]));
         let acc = 0;
-        for (const [s1, s2, w] of [[1, 1, 1], [1, -1, -1], [-1, 1, -1], [-1, -1, 1]] as const) {
+        for (let corner = 0; corner < 4; corner++) {
+          const s1 = corner < 2 ? 1 : -1;
+          const s2 = corner % 2 === 0 ? 1 : -1;
+          const w = s1 * s2;
           xTmp.set(numTheta);
           xTmp[m] += s1 * h1;
           xTmp[m2] += s2 * h2;
@@ -615,10 +613,45 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         }
         numHess[m * nNum + m2] = numHess[m2 * nNum + m] = acc / (4 * h1 * h2);
       }
-    for (let q = 0; q < nNum * nNum; q++) {
-      if (!Number.isFinite(numHess[q])) return;
+    for (let q = 0; q < nNum * nNum; q++) if (!Number.isFinite(numHess[q])) return false;
+    for (let m = 0; m < nNum; m++) if (!Number.isFinite(numGrad[m])) return false;
+    return true;
+  }
+
+  /** Combined error alone: analytic gradient and Hessian in (log a, log b), one pass over the levels. */
+  const der = new Float64Array(6);
+  function combinedDerivatives(): boolean {
+    numGrad.fill(0);
+    numHess.fill(0);
+    const invL = 1 / L;
+    for (let i = 0; i < N; i++) {
+      const sub = subjects[i];
+      for (let c = 0; c < L; c++) {
+        const f = fView[i * L + c];
+        for (let o = 0; o < sub.nObs; o++) {
+          if (!combinedErrorDerivatives(theta.a, theta.b, sub.y[o], f[o], sub.censored[o] === 1, sub.lloqMgL[o], der)) continue;
+          numGrad[0] += der[1] * invL;
+          numGrad[1] += der[2] * invL;
+          numHess[0] += der[3] * invL;
+          numHess[3] += der[4] * invL;
+          numHess[1] += der[5] * invL;
+        }
+      }
     }
-    for (let m = 0; m < nNum; m++) if (!Number.isFinite(numGrad[m])) return;
+    numHess[2] = numHess[1];
+    for (let q = 0; q < 4; q++) if (!Number.isFinite(numHess[q])) return false;
+    return Number.isFinite(numGrad[0]) && Number.isFinite(numGrad[1]);
+  }
+
+  const xTmp = new Float64Array(nNum);
+  function numericalStep(gamma: number): void {
+    for (let m = 0; m < nNum; m++) {
+      const nc = numComps[m];
+      numTheta[m] = nc.kind === 'mu' ? theta.mu[nc.index] : nc.kind === 'beta' ? theta.beta[nc.index] : nc.kind === 'loga' ? Math.log(theta.a) : Math.log(theta.b);
+    }
+    if (!numStructural && rm === 'combined') {
+      if (!combinedDerivatives()) return;
+    } else if (!finiteDifferenceDerivatives()) return;
     for (let q = 0; q < nNum * nNum; q++) numHessBar[q] += gamma * (numHess[q] - numHessBar[q]);
     for (let q = 0; q < nNum * nNum; q++) numNegH[q] = -numHessBar[q];
     numStep.set(numGrad);

@@ -486,6 +486,18 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
         sumLogY += ly[k];
       }
       ll = -0.5 * q / (a * a) - n * (Math.log(a) + LOG_SQRT_2PI) - sumLogY;
+    } else if (s.nCensored === 0 && (residualCode === 1 || residualCode === 2)) {
+      const a2 = residualCode === 2 ? a * a : 0;
+      const b2 = b * b;
+      let sum = 0;
+      for (let k = 0; k < n; k++) {
+        const fk = f[k];
+        const w = a2 + b2 * fk * fk;
+        if (!(w > 0)) return -Infinity;
+        const e = y[k] - fk;
+        sum += (e * e) / w + Math.log(w);
+      }
+      ll = -0.5 * sum - n * LOG_SQRT_2PI;
     } else {
       for (let k = 0; k < n; k++) ll += observationLogLik(residualModel, a, b, y[k], f[k], s.censored[k] === 1, s.lloqMgL[k]);
     }

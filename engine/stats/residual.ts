@@ -68,3 +68,43 @@ export function observationLogLik(
   const r = -0.5 * z * z - Math.log(g) - LOG_SQRT_2PI;
   return r === r ? r : -Infinity;
 }
+
+/**
+ * Combined error: one level's log-likelihood and its first and second derivatives with respect
+ * to u = log a and v = log b, written into out = [l, dl/du, dl/dv, d2l/du2, d2l/dv2, d2l/dudv].
+ * With w = g^2 = a^2 + b^2 f^2: dw/du = 2a^2, dw/dv = 2 b^2 f^2 (chain rule through w).
+ * Returns false (out untouched) when the level is impossible.
+ */
+export function combinedErrorDerivatives(a: number, b: number, y: number, f: number, censored: boolean, lloqMgL: number, out: Float64Array): boolean {
+  const A = a * a;
+  const B = b * b * f * f;
+  const w = A + B;
+  if (!(w > 0) || !Number.isFinite(w)) return false;
+  let l: number;
+  let h1: number; // dl/dw
+  let h2: number; // d2l/dw2
+  if (censored) {
+    const g = Math.sqrt(w);
+    const z = (lloqMgL - f) / g;
+    const logPhi = logNormalCdf(z);
+    if (!Number.isFinite(logPhi)) return false;
+    const lambda = Math.exp(-0.5 * z * z - LOG_SQRT_2PI - logPhi); // phi(z) / Phi(z)
+    l = logPhi;
+    h1 = (-lambda * z) / (2 * w);
+    // d(lambda z)/dw = (lambda - lambda z (z + lambda)) dz/dw, dz/dw = -z / (2w)
+    const dLambdaZ = (lambda - lambda * z * (z + lambda)) * (-z / (2 * w));
+    h2 = -dLambdaZ / (2 * w) + (lambda * z) / (2 * w * w);
+  } else {
+    const r = y - f;
+    l = (-0.5 * r * r) / w - 0.5 * Math.log(w) - LOG_SQRT_2PI;
+    h1 = (r * r - w) / (2 * w * w);
+    h2 = (w - 2 * r * r) / (2 * w * w * w);
+  }
+  out[0] = l;
+  out[1] = h1 * 2 * A;
+  out[2] = h1 * 2 * B;
+  out[3] = h2 * 4 * A * A + h1 * 4 * A;
+  out[4] = h2 * 4 * B * B + h1 * 4 * B;
+  out[5] = h2 * 4 * A * B;
+  return true;
+}

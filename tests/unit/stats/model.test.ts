@@ -72,17 +72,17 @@ describe('compileModel', () => {
     expect(m.subjectLogLik(0, Float64Array.from([Math.log(5), Math.log(50), 800]))).toBe(-Infinity);
   });
 
-  it('the fast additive and log-additive paths equal the sum of observation terms', () => {
+  it('the fast uncensored paths (additive, log-additive, proportional, combined) equal the sum of observation terms', () => {
     const uncensored = createDataset([oralSubject('A'), oralSubject('B')].map((x) => ({ ...x, observations: x.observations.filter((o) => !o.censored) })));
-    for (const residual of [{ model: 'additive', a: 0.3 }, { model: 'log-additive', a: 0.2 }] as const) {
+    for (const residual of [{ model: 'additive', a: 0.3, b: 0 }, { model: 'log-additive', a: 0.2, b: 0 }, { model: 'proportional', a: 0, b: 0.2 }, { model: 'combined', a: 0.1, b: 0.2 }] as const) {
       const m = compileModel(oralSpec({ residual }), uncensored);
       const phi = Float64Array.from([Math.log(4), Math.log(40), Math.log(1.2)]);
       const f = new Float64Array(2);
       m.predict(1, phi, f);
       let expected = 0;
-      for (let k = 0; k < 2; k++) expected += observationLogLik(residual.model, residual.a, 0, m.subjects[1].y[k], f[k], false, 0);
-      expect(m.logLikFromPredictions(1, f, residual.a, 0)).toBeCloseTo(expected, 12);
-      expect(m.logLikFromPredictions(1, Float64Array.from([NaN, 1]), residual.a, 0)).toBe(-Infinity);
+      for (let k = 0; k < 2; k++) expected += observationLogLik(residual.model, residual.a, residual.b, m.subjects[1].y[k], f[k], false, 0);
+      expect(m.logLikFromPredictions(1, f, residual.a, residual.b)).toBeCloseTo(expected, 12);
+      expect(m.logLikFromPredictions(1, Float64Array.from([NaN, 1]), residual.a, residual.b)).toBe(-Infinity);
     }
   });
 

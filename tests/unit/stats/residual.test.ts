@@ -84,3 +84,27 @@ describe('observationLogLik', () => {
     expect(far).toBeLessThan(-4000);
   });
 });
+
+describe('combinedErrorDerivatives', () => {
+  it('matches finite differences of observationLogLik in (log a, log b), censored or not', async () => {
+    const { combinedErrorDerivatives } = await import('../../../engine/stats/residual.js');
+    const out = new Float64Array(6);
+    const ll = (u: number, v: number, y: number, f: number, c: boolean, lloq: number) => observationLogLik('combined', Math.exp(u), Math.exp(v), y, f, c, lloq);
+    for (const [a, b, y, f, c, lloq] of [
+      [0.3, 0.1, 2.5, 2, false, 0],
+      [0.1, 0.2, 0.4, 3, false, 0],
+      [0.2, 0.15, 0.5, 1.2, true, 0.5],
+      [0.2, 0.15, 0.5, 4, true, 0.5],
+    ] as const) {
+      expect(combinedErrorDerivatives(a, b, y, f, c, lloq, out)).toBe(true);
+      const u = Math.log(a), v = Math.log(b), h = 1e-4;
+      expect(out[0]).toBeCloseTo(ll(u, v, y, f, c, lloq), 12);
+      expect(out[1]).toBeCloseTo((ll(u + h, v, y, f, c, lloq) - ll(u - h, v, y, f, c, lloq)) / (2 * h), 6);
+      expect(out[2]).toBeCloseTo((ll(u, v + h, y, f, c, lloq) - ll(u, v - h, y, f, c, lloq)) / (2 * h), 6);
+      expect(out[3]).toBeCloseTo((ll(u + h, v, y, f, c, lloq) - 2 * out[0] + ll(u - h, v, y, f, c, lloq)) / (h * h), 4);
+      expect(out[4]).toBeCloseTo((ll(u, v + h, y, f, c, lloq) - 2 * out[0] + ll(u, v - h, y, f, c, lloq)) / (h * h), 4);
+      const cross = (ll(u + h, v + h, y, f, c, lloq) - ll(u + h, v - h, y, f, c, lloq) - ll(u - h, v + h, y, f, c, lloq) + ll(u - h, v - h, y, f, c, lloq)) / (4 * h * h);
+      expect(out[5]).toBeCloseTo(cross, 4);
+    }
+  });
+});
