@@ -6,7 +6,6 @@
  * what their written fields differ by. Clock changes (daylight saving) are not corrected, since
  * the files carry no UTC offset; build.ts warns when an interval spans one (see clockChangesBetween).
  */
-import * as XLSX from 'xlsx';
 import type { Cell } from './workbook.js';
 import defaults from '../../resources/import/importDefaults.json' with { type: 'json' };
 import molar from '../../resources/import/molarMasses.json' with { type: 'json' };
@@ -18,9 +17,16 @@ const ok = <T>(value: T): Parsed<T> => ({ ok: true, value });
 export type DecimalSeparator = 'dot' | 'comma' | 'auto';
 
 /** Plain text of a cell, trimmed, with non-breaking and thin spaces as spaces. */
+const ODD_SPACES = /[\u00a0\u2009\u202f]/g;
+const ODD_SPACE = /[\u00a0\u2009\u202f]/;
+
 export function cellText(cell: Cell | undefined): string {
   if (!cell) return '';
-  return cell.text.replace(/[\u00a0\u2009\u202f]/g, ' ').trim();
+  const t = cell.text;
+  if (cell.kind !== 'text' || t.length === 0) return t;
+  // Fast path: most cells have nothing to trim or replace.
+  if (t.charCodeAt(0) > 32 && t.charCodeAt(t.length - 1) > 32 && !ODD_SPACE.test(t)) return t;
+  return t.replace(ODD_SPACES, ' ').trim();
 }
 
 export function isBlank(cell: Cell | undefined): boolean {
@@ -134,7 +140,17 @@ export function buildCommentMatcher(words: readonly string[]): CommentMatcher {
 // Units
 
 /** Canonical spelling of a unit: lower case, micro as "u", no spaces, "mcg" -> "ug". */
+const unitCache = new Map<string, string>();
+
 export function normaliseUnit(text: string): string {
+  const hit = unitCache.get(text);
+  if (hit !== undefined) return hit;
+  const u = normaliseUnitUncached(text);
+  if (unitCache.size < 2000) unitCache.set(text, u);
+  return u;
+}
+
+function normaliseUnitUncached(text: string): string {
   return text
     .trim()
     .replace(/[µμ]/g, 'u')
@@ -286,12 +302,16 @@ export interface WallTime {
 const MS_H = 3_600_000;
 const MS_DAY = 86_400_000;
 
-/** Excel serial day -> wall ms (SSF's decoder: time-zone free, honours the 1900 leap-year bug and 1904 dates). */
+/**
+ * Excel serial day -> wall ms, with no time zone (ECMA-376 Part 1 18.17.4: the 1900 system counts
+ * the non-existent 1900-02-29 as serial 60, so serials below 61 are one day ahead; the 1904
+ * system starts 1,462 days later; from memory). Rounded to the second, as spreadsheets show.
+ */
 export function serialToWallMs(serial: number, date1904 = false): number | undefined {
   if (!Number.isFinite(serial) || serial < 0 || serial > 2_958_465) return undefined;
-  const p = XLSX.SSF.parse_date_code(serial, { date1904 });
-  if (!p) return undefined;
-  return Date.UTC(p.y, p.m - 1, p.d, p.H, p.M, p.S);
+  let s = date1904 ? serial + 1462 : serial;
+  if (s < 61) s += 1; // before 1900-03-01; serial 60 (the fake 29 February) reads as 1 March
+  return Math.round((s - 25569) * 86_400) * 1000;
 }
 
 function validYmd(y: number, m: number, d: number): boolean {
@@ -432,8 +452,19 @@ function lastSunday(y: number, month0: number): number {
   return last.getTime() - last.getUTCDay() * MS_DAY;
 }
 
+const clockChangeCache = new Map<string, ClockChange[]>();
+
 export function clockChangesOfYear(y: number, rule: ClockChangeRule): ClockChange[] {
   if (rule === 'none') return [];
+  const key = `${rule}${y}`;
+  const hit = clockChangeCache.get(key);
+  if (hit) return hit;
+  const changes = computeClockChanges(y, rule);
+  clockChangeCache.set(key, changes);
+  return changes;
+}
+
+function computeClockChanges(y: number, rule: 'eu' | 'us'): ClockChange[] {
   const days = rule === 'eu' ? [lastSunday(y, 2), lastSunday(y, 9)] : [nthSunday(y, 2, 2), nthSunday(y, 10, 1)];
   return days.map((d, i) => ({ atMs: d + 2 * MS_H, shiftH: i === 0 ? 1 : -1, date: new Date(d).toISOString().slice(0, 10) }));
 }

@@ -4,6 +4,8 @@
  * of a plain object: sheets are an array, header lookups go through Map.
  */
 import * as XLSX from 'xlsx';
+import { readXlsxEntries, type ZipEntries } from './xlsxFast.js';
+import { serialToWallMs } from './values.js';
 
 export type CellKind = 'number' | 'date' | 'text' | 'boolean' | 'error';
 
@@ -37,6 +39,12 @@ export interface ReadOptions {
   maxRows?: number;
   /** Cells longer than this are cut (and marked) so one giant string cannot stall the parse. */
   maxCellChars?: number;
+  /** Already-inflated zip entries (the worker checks and inflates them with zlib first). */
+  zipEntries?: ZipEntries;
+  /** UTF-8 decoder for the XML inside .xlsx (the worker passes Node's; default a plain-JS one). */
+  decodeUtf8?: (bytes: Uint8Array) => string;
+  /** Use SheetJS for .xlsx too (the direct reader is the default; tests compare the two). */
+  sheetJsOnly?: boolean;
 }
 
 /** Thrown for files that are not a readable spreadsheet; the message says what to do. */
@@ -69,43 +77,41 @@ export function decodeText(bytes: Uint8Array): string {
   let i = bytes.length >= 3 && bytes[0] === 0xef && bytes[1] === 0xbb && bytes[2] === 0xbf ? 3 : 0;
   const start = i;
   const parts: string[] = [];
-  let chunk: number[] = [];
+  const buf = new Uint16Array(8192);
+  let k = 0;
   const n = bytes.length;
   let valid = true;
   while (i < n) {
+    if (k >= 8190) {
+      parts.push(String.fromCharCode.apply(null, buf.subarray(0, k) as unknown as number[]));
+      k = 0;
+    }
     const b = bytes[i];
-    let cp: number;
     if (b < 0x80) {
-      cp = b;
+      buf[k++] = b;
       i++;
     } else if (b >= 0xc2 && b < 0xe0 && i + 1 < n && (bytes[i + 1] & 0xc0) === 0x80) {
-      cp = ((b & 0x1f) << 6) | (bytes[i + 1] & 0x3f);
+      buf[k++] = ((b & 0x1f) << 6) | (bytes[i + 1] & 0x3f);
       i += 2;
     } else if (b >= 0xe0 && b < 0xf0 && i + 2 < n && (bytes[i + 1] & 0xc0) === 0x80 && (bytes[i + 2] & 0xc0) === 0x80) {
-      cp = ((b & 0x0f) << 12) | ((bytes[i + 1] & 0x3f) << 6) | (bytes[i + 2] & 0x3f);
+      buf[k++] = ((b & 0x0f) << 12) | ((bytes[i + 1] & 0x3f) << 6) | (bytes[i + 2] & 0x3f);
       i += 3;
     } else if (b >= 0xf0 && b < 0xf5 && i + 3 < n && (bytes[i + 1] & 0xc0) === 0x80 && (bytes[i + 2] & 0xc0) === 0x80 && (bytes[i + 3] & 0xc0) === 0x80) {
-      cp = ((b & 0x07) << 18) | ((bytes[i + 1] & 0x3f) << 12) | ((bytes[i + 2] & 0x3f) << 6) | (bytes[i + 3] & 0x3f);
+      const cp = (((b & 0x07) << 18) | ((bytes[i + 1] & 0x3f) << 12) | ((bytes[i + 2] & 0x3f) << 6) | (bytes[i + 3] & 0x3f)) - 0x10000;
+      buf[k++] = 0xd800 + (cp >> 10);
+      buf[k++] = 0xdc00 + (cp & 0x3ff);
       i += 4;
     } else {
       valid = false;
       break;
     }
-    if (cp > 0xffff) {
-      cp -= 0x10000;
-      chunk.push(0xd800 + (cp >> 10), 0xdc00 + (cp & 0x3ff));
-    } else chunk.push(cp);
-    if (chunk.length >= 8192) {
-      parts.push(String.fromCharCode(...chunk));
-      chunk = [];
-    }
   }
   if (valid) {
-    parts.push(String.fromCharCode(...chunk));
+    parts.push(String.fromCharCode.apply(null, buf.subarray(0, k) as unknown as number[]));
     return parts.join('');
   }
   const latin: string[] = [];
-  for (let j = start; j < n; j += 8192) latin.push(String.fromCharCode(...bytes.subarray(j, Math.min(n, j + 8192))));
+  for (let j = start; j < n; j += 8192) latin.push(String.fromCharCode.apply(null, bytes.subarray(j, Math.min(n, j + 8192)) as unknown as number[]));
   return latin.join('');
 }
 
@@ -148,16 +154,31 @@ export function columnIndex(letter: string): number {
   return n - 1;
 }
 
-function toCell(c: XLSX.CellObject, maxChars: number): Cell | undefined {
+/** Spreadsheet error codes (BIFF / OOXML error values, as SheetJS gives them). */
+const ERROR_TEXT = new Map<number, string>([[0x00, '#NULL!'], [0x07, '#DIV/0!'], [0x0f, '#VALUE!'], [0x17, '#REF!'], [0x1d, '#NAME?'], [0x24, '#NUM!'], [0x2a, '#N/A'], [0x2b, '#GETTING_DATA']]);
+
+const p2 = (n: number) => (n < 10 ? `0${n}` : String(n));
+
+/** A date cell's text, written unambiguously (ISO order), from its serial. */
+export function serialText(serial: number, date1904: boolean): string {
+  const ms = serialToWallMs(serial, date1904);
+  if (ms === undefined) return String(serial);
+  const d = new Date(ms);
+  const sec = d.getUTCSeconds();
+  const clock = `${p2(d.getUTCHours())}:${p2(d.getUTCMinutes())}${sec ? `:${p2(sec)}` : ''}`;
+  if (serial >= 0 && serial < 1) return clock;
+  const day = `${d.getUTCFullYear()}-${p2(d.getUTCMonth() + 1)}-${p2(d.getUTCDate())}`;
+  return Math.abs(serial - Math.floor(serial)) > 1e-9 ? `${day} ${clock}` : day;
+}
+
+function toCell(c: XLSX.CellObject, maxChars: number, isDateFormat: (fmt: string) => boolean, date1904: boolean): Cell | undefined {
   const t = c.t;
   if (t === 'z' || c.v === undefined || c.v === null) return undefined;
   if (t === 'n') {
     const v = c.v as number;
     if (!Number.isFinite(v)) return { kind: 'error', raw: String(v), text: String(v) };
-    const fmt = typeof c.z === 'string' ? c.z : undefined;
-    const text = typeof c.w === 'string' ? c.w : String(v);
-    const isDate = fmt !== undefined && XLSX.SSF.is_date(fmt);
-    return { kind: isDate ? 'date' : 'number', raw: v, text };
+    if (typeof c.z === 'string' && isDateFormat(c.z)) return { kind: 'date', raw: v, text: serialText(v, date1904) };
+    return { kind: 'number', raw: v, text: String(v) };
   }
   if (t === 'd') {
     // cellDates is off, but a format may still hand us a Date: keep the serial, UTC getters.
@@ -169,10 +190,11 @@ function toCell(c: XLSX.CellObject, maxChars: number): Cell | undefined {
   }
   if (t === 'b') return { kind: 'boolean', raw: Boolean(c.v), text: c.v ? 'TRUE' : 'FALSE' };
   if (t === 'e') {
-    const text = typeof c.w === 'string' ? c.w : '#ERROR';
+    const text = typeof c.w === 'string' ? c.w : (ERROR_TEXT.get(c.v as number) ?? '#ERROR');
     return { kind: 'error', raw: text, text };
   }
   let s = String(c.v);
+  if (s === '') return undefined;
   if (s.length > maxChars) s = s.slice(0, maxChars) + '…';
   return { kind: 'text', raw: s, text: s };
 }
@@ -187,6 +209,10 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
   if (format === 'other')
     throw new WorkbookError('the file is not a spreadsheet Plateau can read (.xlsx, .xls, .ods or .csv): it looks like binary data of another kind');
   const maxChars = options.maxCellChars ?? 32_767;
+  if (format === 'xlsx' && !options.sheetJsOnly) {
+    const fast = readXlsxFast(bytes, options, maxChars);
+    if (fast) return fast;
+  }
   let wb: XLSX.WorkBook;
   try {
     const input = format === 'csv' ? decodeText(bytes) : bytes;
@@ -194,6 +220,8 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
       type: format === 'csv' ? 'string' : 'array',
       dense: true,
       cellNF: true,
+      // Plateau formats what it shows itself; SheetJS's number formatting is a large part of its time.
+      cellText: false,
       cellFormula: false,
       cellHTML: false,
       cellStyles: false,
@@ -209,6 +237,16 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
   const names = Array.isArray(wb.SheetNames) ? wb.SheetNames : [];
   if (names.length === 0) throw new WorkbookError('the workbook has no sheets');
   const sheets: SheetModel[] = [];
+  const date1904 = Boolean((wb as { Workbook?: { WBProps?: { date1904?: boolean } } }).Workbook?.WBProps?.date1904);
+  const formatIsDate = new Map<string, boolean>();
+  const isDateFormat = (fmt: string): boolean => {
+    let d = formatIsDate.get(fmt);
+    if (d === undefined) {
+      d = Boolean(XLSX.SSF.is_date(fmt));
+      formatIsDate.set(fmt, d);
+    }
+    return d;
+  };
   for (const name of names) {
     const ws = (wb.Sheets as Record<string, XLSX.WorkSheet | undefined>)[name];
     const data = ws ? ((ws as unknown as { '!data'?: XLSX.CellObject[][] })['!data'] ?? []) : [];
@@ -225,7 +263,7 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
       const row: (Cell | undefined)[] = new Array(src.length);
       for (let c = 0; c < src.length; c++) {
         const cell = src[c];
-        row[c] = cell ? toCell(cell, maxChars) : undefined;
+        row[c] = cell ? toCell(cell, maxChars, isDateFormat, date1904) : undefined;
       }
       while (row.length > 0 && row[row.length - 1] === undefined) row.pop();
       if (row.length > columnCount) columnCount = row.length;
@@ -234,8 +272,26 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
     rows.length = n;
     sheets.push({ name: String(name), rows, columnCount, truncated: data.length > cap });
   }
-  const date1904 = Boolean((wb as { Workbook?: { WBProps?: { date1904?: boolean } } }).Workbook?.WBProps?.date1904);
   return { format, sheets, date1904 };
+}
+
+function readXlsxFast(bytes: Uint8Array, options: ReadOptions, maxCellChars: number): WorkbookModel | undefined {
+  try {
+    let entries = options.zipEntries;
+    if (!entries) {
+      const cfb = XLSX.CFB.read(bytes, { type: 'array' });
+      entries = (p: string) => {
+        const e = XLSX.CFB.find(cfb, `/${p}`);
+        const c = e?.content as unknown;
+        return c instanceof Uint8Array ? c : Array.isArray(c) ? Uint8Array.from(c as number[]) : undefined;
+      };
+    }
+    const r = readXlsxEntries(entries, { maxRows: options.maxRows, maxCellChars, serialText, decode: options.decodeUtf8 ?? decodeText });
+    return r ? { format: 'xlsx', sheets: r.sheets, date1904: r.date1904 } : undefined;
+  } catch {
+    // Not a package the direct reader understands: SheetJS gets it (and reports what is wrong).
+    return undefined;
+  }
 }
 
 // ---------------------------------------------------------------------------------------------

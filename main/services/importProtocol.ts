@@ -18,8 +18,14 @@ export interface ParseRequest {
   maxRows?: number;
 }
 
+/** CPU and wall time the worker spent on one request (ms), for benchmarks and logs. */
+export interface WorkerTiming {
+  cpuMs: number;
+  wallMs: number;
+}
+
 export type ParseResponse =
-  | { type: 'result'; id: string; analysis: Analysis }
+  | { type: 'result'; id: string; analysis: Analysis; timing?: WorkerTiming }
   | { type: 'error'; id: string; kind: 'workbook' | 'template' | 'request' | 'internal'; message: string; problems?: string[] };
 
 const isRecord = (x: unknown): x is Record<string, unknown> => typeof x === 'object' && x !== null && !Array.isArray(x);
@@ -62,6 +68,7 @@ export function validateParseResponse(x: unknown, id: string): { ok: true; respo
     if (!isRecord(p) || typeof p.sheet !== 'string' || typeof p.row !== 'number' || typeof p.column !== 'string' || typeof p.value !== 'string' || typeof p.message !== 'string' || (p.severity !== 'error' && p.severity !== 'warning'))
       return { ok: false, message: 'a problem in the worker report is malformed' };
   }
+  if (x.timing !== undefined && !(isRecord(x.timing) && typeof x.timing.cpuMs === 'number' && typeof x.timing.wallMs === 'number')) return { ok: false, message: 'the worker timing is malformed' };
   if (a.dataset !== undefined) {
     const d = a.dataset;
     if (!isRecord(d) || !Array.isArray(d.subjects) || !Array.isArray(d.covariateNames)) return { ok: false, message: 'the worker dataset is malformed' };

@@ -11,7 +11,7 @@ import { createDataset } from '../../engine/data/dataset.js';
 import { DataError, type Dataset } from '../../engine/data/types.js';
 import type { Analysis } from '../../engine/import/analyse.js';
 import type { ImportOptions } from '../../engine/import/roles.js';
-import { validateParseResponse, type ParseRequest } from './importProtocol.js';
+import { validateParseResponse, type ParseRequest, type WorkerTiming } from './importProtocol.js';
 import { spawnNodeWorker, type SpawnWorker } from './workerSpawner.js';
 import { DEFAULT_MAX_FILE_BYTES, DEFAULT_PARSE_TIME_LIMIT_MS, DEFAULT_WORKER_HEAP_MB } from '../worker/limits.js';
 
@@ -44,6 +44,8 @@ export interface ImportFileOptions {
 export interface ImportOutcome extends Analysis {
   /** Re-validated in this process. */
   dataset: Dataset | undefined;
+  /** Time the worker spent parsing and checking. */
+  workerTiming?: WorkerTiming;
 }
 
 /** Where the compiled worker is: beside this module under dist/, else the repository's dist/. */
@@ -78,7 +80,7 @@ export async function readFileLimited(file: string, maxBytes: number): Promise<U
 }
 
 /** Parse bytes in a worker process; resolves with the worker's validated analysis. */
-export function parseInWorker(request: Omit<ParseRequest, 'type' | 'id'>, opts: ImportFileOptions = {}): Promise<Analysis> {
+export function parseInWorker(request: Omit<ParseRequest, 'type' | 'id'>, opts: ImportFileOptions = {}): Promise<Analysis & { workerTiming?: WorkerTiming }> {
   const spawn = opts.spawn ?? spawnNodeWorker;
   const workerPath = opts.workerPath ?? parseWorkerPath();
   if (!opts.spawn && !existsSync(workerPath))
@@ -86,7 +88,7 @@ export function parseInWorker(request: Omit<ParseRequest, 'type' | 'id'>, opts: 
   const timeLimitMs = opts.timeLimitMs ?? DEFAULT_PARSE_TIME_LIMIT_MS;
   const heapMb = opts.heapMb ?? DEFAULT_WORKER_HEAP_MB;
   const id = randomUUID();
-  return new Promise<Analysis>((resolve, reject) => {
+  return new Promise<Analysis & { workerTiming?: WorkerTiming }>((resolve, reject) => {
     if (opts.signal?.aborted) return reject(new ImportError('aborted', 'the import was cancelled'));
     const worker = spawn({ modulePath: workerPath, execArgv: [`--max-old-space-size=${heapMb}`] });
     let settled = false;
@@ -112,7 +114,7 @@ export function parseInWorker(request: Omit<ParseRequest, 'type' | 'id'>, opts: 
         const kind = r.kind === 'template' ? 'template' : r.kind === 'workbook' || r.kind === 'internal' ? 'workbook' : 'worker';
         return finish(() => reject(new ImportError(kind, r.message, r.problems ?? [])));
       }
-      finish(() => resolve(r.analysis));
+      finish(() => resolve(r.timing ? { ...r.analysis, workerTiming: r.timing } : r.analysis));
     });
     worker.onExit((code, signal) => {
       if (settled) return;

@@ -7,7 +7,7 @@ import { analyseWorkbook } from '../../engine/import/analyse.js';
 import { WorkbookError } from '../../engine/import/workbook.js';
 import { TemplateError } from '../../engine/import/roles.js';
 import { validateParseRequest, type ParseResponse } from '../services/importProtocol.js';
-import { DEFAULT_MAX_FILE_BYTES, checkZipContainer } from './limits.js';
+import { DEFAULT_MAX_FILE_BYTES, inspectZipContainer } from './limits.js';
 import * as path from 'node:path';
 import { fileURLToPath } from 'node:url';
 
@@ -30,11 +30,19 @@ export function handleParseMessage(raw: unknown): ParseResponse {
   try {
     if (req.bytes.length > DEFAULT_MAX_FILE_BYTES * 4)
       return { type: 'error', id: req.id, kind: 'workbook', message: `${req.fileName} is too large to parse` };
+    let zipEntries: ((p: string) => Uint8Array | undefined) | undefined;
     if (req.bytes.length >= 4 && req.bytes[0] === 0x50 && req.bytes[1] === 0x4b) {
-      const bad = checkZipContainer(req.bytes);
-      if (bad) return { type: 'error', id: req.id, kind: 'workbook', message: `${req.fileName} cannot be read: ${bad}; save it again from the spreadsheet program` };
+      const zip = inspectZipContainer(req.bytes);
+      if (!zip.ok) return { type: 'error', id: req.id, kind: 'workbook', message: `${req.fileName} cannot be read: ${zip.reason}; save it again from the spreadsheet program` };
+      zipEntries = (p) => zip.entries.get(p);
     }
-    const analysis = analyseWorkbook(req.bytes, { mapping: req.mapping, options: req.options, ...(req.maxRows ? { maxRows: req.maxRows } : {}) });
+    const analysis = analyseWorkbook(req.bytes, {
+      mapping: req.mapping,
+      options: req.options,
+      ...(req.maxRows ? { maxRows: req.maxRows } : {}),
+      ...(zipEntries ? { zipEntries } : {}),
+      decodeUtf8: (b) => Buffer.from(b.buffer, b.byteOffset, b.length).toString('utf8'),
+    });
     return { type: 'result', id: req.id, analysis };
   } catch (e) {
     if (e instanceof WorkbookError) return { type: 'error', id: req.id, kind: 'workbook', message: `${req.fileName}: ${e.message}` };
@@ -46,5 +54,13 @@ export function handleParseMessage(raw: unknown): ParseResponse {
 
 // Listen only when started as the worker (imported by a test runner that has IPC of its own, stay quiet).
 const isEntry = process.argv[1] !== undefined && path.resolve(process.argv[1]) === fileURLToPath(import.meta.url);
-if (parentPort) parentPort.on('message', (e) => send(handleParseMessage(e.data)));
-else if (isEntry && process.send) process.on('message', (m) => send(handleParseMessage(m)));
+function handleTimed(raw: unknown): ParseResponse {
+  const cpu0 = process.cpuUsage();
+  const t0 = performance.now();
+  const r = handleParseMessage(raw);
+  const cpu = process.cpuUsage(cpu0);
+  return r.type === 'result' ? { ...r, timing: { cpuMs: (cpu.user + cpu.system) / 1000, wallMs: performance.now() - t0 } } : r;
+}
+
+if (parentPort) parentPort.on('message', (e) => send(handleTimed(e.data)));
+else if (isEntry && process.send) process.on('message', (m) => send(handleTimed(m)));

@@ -80,7 +80,7 @@ function randomWorkbook(rng: RngStream): Uint8Array {
       const addr = XLSX.utils.encode_cell({ r: 1 + rng.int(Math.max(1, n)), c: rng.int(cols) });
       const t = rng.int(3);
       if (t === 0) ws[addr] = { t: 'n', v: rng.uniform() * 100, f: 'A1*2' };
-      else if (t === 1) ws[addr] = { t: 'n', v: 45000 + rng.uniform() * 400, z: 'dd/mm/yyyy hh:mm' };
+      else if (t === 1) ws[addr] = { t: 'n', v: 45000 + rng.uniform() * 400, z: 'dd/mm/yyyy' }; // no space: the ODS writer warns on it
       else ws[addr] = { t: 'e', v: 7, w: '#DIV/0!' };
     }
     let name = pick(rng, ['Doses', 'Levels', '__proto__', 'constructor', 'Sheet', 'Patients', 'toString']);
