@@ -36,6 +36,7 @@ export async function loadSpreadsheetDataset(path: string, mappingPath: string |
       errors.length > 0
         ? errors.map((p) => ({ row: p.row || undefined, field: p.column || undefined, message: `${p.sheet ? `sheet "${p.sheet}": ` : ''}${p.message}${mappingPath ? '' : ' (suggested mapping; run plateau check --data <file> --save-mapping <template.json> to confirm it)'}` }))
         : [{ message: 'the spreadsheet gave no usable rows: run plateau check --data <file> to see why' }],
+      path,
     );
   }
   return outcome.dataset;
