@@ -680,6 +680,13 @@ function readLevel(
     if (!lu.ok) return void problem(ctx, cl, 'error', lu.message, cl.mapping.unit);
     lloqMgL = l.value * lu.value;
   }
+  const cf = b.columns.get('censoredFlag');
+  if (cf && v.value.kind === 'value' && /^(1|true|yes|y|ja|oui|x)$/i.test(cellText(cells[cf.index]))) {
+    // A flag column (canonical CSV style): the level is below the LLOQ; the limit is the LLOQ column or the value.
+    const limit = lloqMgL ?? v.value.value * f.value;
+    if (!(limit > 0)) return void problem(ctx, cf, 'error', 'a censored level needs its LLOQ (> 0): fill in the LLOQ column');
+    return { valueMgL: limit, censored: true, lloqMgL: limit };
+  }
   if (v.value.kind === 'censored') {
     const limit = v.value.limit !== undefined ? v.value.limit * f.value : (lloqMgL ?? defaultLloqMgL);
     if (limit === undefined) return void problem(ctx, cv, 'error', `"${v.value.text}" is below the limit, but no limit is known: add an LLOQ column or set defaultLloqMgL in the mapping`);

@@ -26,6 +26,7 @@ export const ROLES = [
   'levelValue',
   'levelUnit',
   'lloq',
+  'censoredFlag',
   'comment',
   'weight',
   'height',
@@ -110,13 +111,14 @@ const HEADER_RULES: readonly [Role, RegExp][] = [
   ['creatinineUnit', /(creat|krea|\bscr\b).*(unit|einheit|unite|eenheid)/],
   ['doseUnit', /(dose|amount|dosis|menge).*(unit|einheit|unite|eenheid)/],
   ['levelUnit', /(level|result|conc|value|wert).*(unit|einheit|unite|eenheid)/],
+  ['censoredFlag', /^(censored|cens|blq|bloq|blq flag|below lloq|below loq)$/],
   ['lloq', /(lloq|\bloq\b|\blod\b|lower limit|quantification|quantifizierung|bestimmungsgrenze|nachweisgrenze)/],
   ['creatinine', /(creat|krea|\bscr\b)/],
   ['infusionDuration', /(duration|dauer|duree|\blength of infusion|infusion time|over \(?(min|h))/],
   ['infusionRate', /(\brate\b|infusion speed|laufrate|debit|snelheid)/],
   ['infusionStart', /(infusion|infus).*(start|begin)|^(start|begin)(\s|$)/],
   ['infusionEnd', /(infusion|infus).*(end|stop|finish)|^(end|stop|ende|fin)(\s|$)/],
-  ['steadyStateInterval', /(steady.?state|ss interval|\bii\b)/],
+  ['steadyStateInterval', /(steady.?state|ss.interval|\bii\b)/],
   ['patientId', /(patient|\bpat\b|\bmrn\b|subject|\bsubj\b|^id$|\bid\b|hospital n|\bnhs\b|fallnummer|dossier|\bpid\b|record n|\bipp\b)/],
   ['elapsedH', /(elapsed|time since|hours from|\btad\b|\btsfd\b|^time \(?h\)?$|^t \(?h\)?$|time_h|zeit \(?h\)?$)/],
   ['dateTime', /(date.?time|datetime|timestamp|zeitpunkt|date et heure|datum.?tijd|date.{0,3}heure|datum.{0,3}(uhr)?zeit|date and time|date & time)/],
@@ -141,6 +143,9 @@ export function unitFromHeader(header: string): string | undefined {
   const m = /[([]\s*([^)\]]{1,16})\s*[)\]]/.exec(header);
   const candidates: string[] = [];
   if (m) candidates.push(m[1]);
+  // snake_case headers: amount_mg, conc_mg_L, time_h
+  const snake = /^[A-Za-z]+_([A-Za-z]+(?:_[A-Za-z]+)?)$/.exec(header.trim());
+  if (snake) candidates.push(snake[1].replace('_', '/'));
   const tail = /[\s,]([A-Za-zµμ/]{1,10}\/?[A-Za-z]{0,3})\s*$/.exec(header);
   if (tail) candidates.push(tail[1]);
   for (const c of candidates) {

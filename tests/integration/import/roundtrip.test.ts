@@ -52,6 +52,18 @@ describe('round trip through .xlsx', () => {
   });
 });
 
+describe('canonical CSV through the spreadsheet path', () => {
+  it('imports with the suggested mapping to the same dataset', () => {
+    const ds = createDataset(inventedDataset().subjects.map((s) => ({ id: s.id, covariates: { weightKg: s.covariates.weightKg as number }, doses: [...s.doses], observations: [...s.observations] })));
+    const a = analyseWorkbook(new TextEncoder().encode(writeCanonicalCsv(ds)));
+    expect(a.report.problems.filter((p) => p.severity === 'error')).toEqual([]);
+    const roles = a.mapping.sheets[0].columns.map((c) => `${c.header}:${c.role}`);
+    expect(roles).toContain('censored:censoredFlag');
+    const strip = (d: typeof ds) => d.subjects.map((s) => ({ id: s.id, doses: s.doses.map(({ sourceRow: _r, ...x }) => x), observations: s.observations.map(({ sourceRow: _r, ...x }) => x) }));
+    expect(strip(a.dataset!)).toEqual(strip(ds));
+  });
+});
+
 describe('export neutralises formulas', () => {
   it('prefixes text starting with = + - @ and keeps negative numbers as numbers', () => {
     expect(['=1+1', '+A1', '-2+3', '@SUM(A1)', 'ok', '\tX'].map(neutraliseText)).toEqual(["'=1+1", "'+A1", "'-2+3", "'@SUM(A1)", 'ok', "'\tX"]);
