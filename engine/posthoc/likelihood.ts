@@ -25,9 +25,9 @@ export interface ImportanceOptions {
   /**
    * Stop a subject's sampling early (checked every 1000 samples after minSamples) once the
    * Monte Carlo SE of -2LL would be below this value if every subject were as precise:
-   * per-subject SE of log p(y_i) below targetMcError / (2 sqrt(N)). 'auto': max(0.1, 0.01
-   * sqrt(N)) (a tenth of a point for small studies, a fixed per-subject precision of 0.005 for
-   * large ones). null: always samplesPerSubject.
+   * per-subject SE of log p(y_i) below targetMcError / (2 sqrt(N)). 'auto': max(0.1, 0.02
+   * sqrt(N)) (a tenth of a point up to 25 subjects, then a per-subject precision of 0.01, e.g.
+   * 0.63 for 1000 subjects). null: always samplesPerSubject.
    */
   targetMcError: number | 'auto' | null;
   minSamples: number;
@@ -65,7 +65,7 @@ export function importanceSamplingLikelihood(
   const d = density.nEta;
   const M = o.samplesPerSubject;
   const out: ImportanceResult = { minus2LL: 0, mcError: 0, logLik: new Float64Array(N), logLikSe: new Float64Array(N), ess: new Float64Array(N), samplesUsed: new Int32Array(N), samplesPerSubject: M, warnings: [] };
-  const target = o.targetMcError === 'auto' ? Math.max(0.1, 0.01 * Math.sqrt(N)) : o.targetMcError;
+  const target = o.targetMcError === 'auto' ? Math.max(0.1, 0.02 * Math.sqrt(N)) : o.targetMcError;
   const subjectTarget = target !== null && target > 0 ? target / (2 * Math.sqrt(Math.max(1, N))) : 0;
   const CHUNK = 1000;
   let maxObs = 0;
