@@ -32,14 +32,17 @@ export function analyseWorkbook(bytes: Uint8Array, options: AnalyseOptions = {})
   let template: MappingTemplate;
   let skippedSheets: string[] = [];
   const suggested = options.mapping === undefined;
+  const overrides = options.options ? stripUndefined(options.options) : {};
   if (suggested) {
-    const s = suggestMapping(model, options.options);
+    const s = suggestMapping(model, overrides);
     template = s.template;
     skippedSheets = s.skipped;
   } else {
     template = parseTemplate(options.mapping);
-    if (options.options) template = { ...template, options: { ...template.options, ...stripUndefined(options.options) } };
+    template = { ...template, options: { ...template.options, ...overrides } };
   }
+  // Overrides come from flags or a message: validate them like a template's options.
+  if (template.sheets.length > 0) template = parseTemplate(JSON.parse(JSON.stringify(template)));
   if (template.sheets.length === 0) {
     const report: ImportReport = {
       mapping: template,
@@ -54,8 +57,11 @@ export function analyseWorkbook(bytes: Uint8Array, options: AnalyseOptions = {})
   return { preview, mapping: result.report.mapping, suggested, skippedSheets, dataset: result.dataset, report: result.report };
 }
 
-function stripUndefined<T extends object>(o: T): Partial<T> {
-  const out: Partial<T> = {};
-  for (const k of Object.keys(o) as (keyof T)[]) if (o[k] !== undefined) out[k] = o[k];
-  return out;
+const OPTION_KEYS: readonly (keyof ImportOptions)[] = ['dateOrder', 'decimalSeparator', 'drug', 'molarMassGPerMol', 'defaultLloqMgL', 'defaultRoute', 'clockChanges', 'maxGapH', 'excludeCommentWords'];
+
+/** Only known option keys, and only those given; the values are checked by parseTemplate below. */
+function stripUndefined(o: Partial<ImportOptions>): Partial<ImportOptions> {
+  const out: Record<string, unknown> = {};
+  for (const k of OPTION_KEYS) if (Object.prototype.hasOwnProperty.call(o, k) && o[k] !== undefined) out[k] = o[k];
+  return out as Partial<ImportOptions>;
 }

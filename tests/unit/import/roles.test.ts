@@ -109,4 +109,16 @@ describe('templates', () => {
     expect(s.doses[0]).toMatchObject({ timeH: 0, amountMg: 500_000, route: 'oral', durationH: 0 });
     expect(s.observations[0]).toMatchObject({ timeH: 2, valueMgL: 0.0015, censored: false });
   });
+
+  it('validates option overrides and ignores unknown keys', async () => {
+    const { analyseWorkbook } = await import('../../../engine/import/analyse.js');
+    const bytes = new TextEncoder().encode('patient,date time,dose mg,route\nA,2024-01-01 08:00,100,oral\n');
+    const hostile = JSON.parse('{"__proto__": {"polluted": 1}, "dateOrder": "dayFirst"}');
+    const a = analyseWorkbook(bytes, { options: hostile });
+    expect(a.mapping.options.dateOrder).toBe('dayFirst');
+    expect(({} as Record<string, unknown>).polluted).toBeUndefined();
+    expect(() => analyseWorkbook(bytes, { options: { maxGapH: -5 } })).toThrow(TemplateError);
+    const none = analyseWorkbook(new TextEncoder().encode('just,text\nno,data\n'));
+    expect(none.report.problems[0].message).toMatch(/no sheet with a patient id/);
+  });
 });
