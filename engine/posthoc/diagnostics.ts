@@ -265,6 +265,8 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
     }
   }
   const tests = nObs >= 3 ? npdeTests(npde) : null;
+  if (!tests || ![tests.meanTest.pValue, tests.varianceTest.pValue, tests.normalityTest.pValue].every((p) => Number.isFinite(p)))
+    warnings.push(`NPDE tests: not all available (${nObs < 3 ? 'fewer than 3 levels' : 'too few distinct NPDE values'}); the NPDE values themselves are still reported`);
   const timeScale = o.vpcTime === 'auto' ? (model.subjects.some((x) => x.doses.length > 1) ? 'timeAfterDose' : 'time') : o.vpcTime;
   const vpcInput = { model, offset, sims, K, pred, piLevel: o.piLevel, maxBins: o.vpcBins, timeScale };
   return {
