@@ -103,7 +103,7 @@ export function defaultOptions(): ImportOptions {
 // Suggestion
 
 /** Words that name the moment of an event; they mean a date-time only in a column of dates. */
-const EVENT_TIME_WORDS = /(collected|collection|sampled|given at|administered|drawn|horodatage|abnahme|entnahme|prelevement)/;
+const EVENT_TIME_WORDS = /(collected|collection|sampled|given at|administered|drawn|horodatage|abnahme|entnahme|prelevement|^when$|^wann$|^quand$|^moment$)/;
 
 /** Header patterns in priority order (first match wins). Folded text: lower case, no accents. */
 const HEADER_RULES: readonly [Role, RegExp][] = [
@@ -209,6 +209,16 @@ export function suggestSheet(sheet: SheetModel): SheetSuggestion {
   if (date && !used.has('time') && !used.has('dateTime')) {
     const p = profiles.find((q) => q.letter === date.column);
     if (p && p.samples.some((s) => /\d{1,2}:\d{2}/.test(s))) date.role = 'dateTime';
+  }
+  // Value patterns: no time role from the headers, but a column of dates (and one of times).
+  if (!columns.some((c) => ['dateTime', 'date', 'elapsedH', 'infusionStart'].includes(c.role))) {
+    const dateCol = columns.find((c) => c.role === 'ignore' && c.type === 'date');
+    if (dateCol) {
+      const timeCol = columns.find((c) => c.role === 'ignore' && c.type === 'time');
+      const p = profiles.find((q) => q.letter === dateCol.column);
+      dateCol.role = timeCol || !(p && p.samples.some((x) => /\d{1,2}:\d{2}/.test(x))) ? 'date' : 'dateTime';
+      if (timeCol) timeCol.role = 'time';
+    }
   }
   const has = (r: Role) => columns.some((c) => c.role === r);
   let content: SheetContent | undefined;

@@ -342,6 +342,7 @@ export function parseDateCell(cell: Cell | undefined, order: DateOrder, date1904
   if (!cell) return fail('the date is empty');
   if (cell.kind === 'date' || cell.kind === 'number') {
     const serial = cell.raw as number;
+    if (cell.kind === 'date' && serial >= 0 && serial < 1) return fail(`${cell.text} is a time of day without a date: put the date in this column (or map a separate time column)`);
     if (cell.kind === 'number' && (serial < 1 || serial > 2_958_465))
       return fail(`${cell.text} is a number, not a date (expected a date cell or a text date such as 2024-03-31 14:30)`);
     const ms = serialToWallMs(serial, date1904);

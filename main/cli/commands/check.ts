@@ -30,6 +30,7 @@ Options:
   --drug <name>            drug name (molar mass looked up for umol/L levels)
   --molar-mass <g/mol>     molar mass of the drug for umol/L or nmol/L levels
   --lloq <mg/L>            LLOQ for levels reported as BLQ/ND without a limit
+  --default-route <route>  bolus, infusion or oral, for doses without a route
   --clock-changes <rule>   eu (default), us or none: which daylight-saving dates to warn about
   --time-limit <s>         stop parsing after this many seconds (default 60)
 
@@ -87,6 +88,7 @@ export const command: CliCommand = {
         drug: { type: 'string' },
         'molar-mass': { type: 'string' },
         lloq: { type: 'string' },
+        'default-route': { type: 'string' },
         'clock-changes': { type: 'string' },
         'time-limit': { type: 'string' },
       },
@@ -116,6 +118,11 @@ export const command: CliCommand = {
     if (lloq !== undefined) {
       if (!(lloq > 0)) throw new UsageError('--lloq must be > 0 (mg/L)', usage);
       options.defaultLloqMgL = lloq;
+    }
+    const route = stringFlag(args, 'default-route');
+    if (route !== undefined) {
+      if (route !== 'bolus' && route !== 'infusion' && route !== 'oral') throw new UsageError('--default-route must be bolus, infusion or oral', usage);
+      options.defaultRoute = route;
     }
     const cc = stringFlag(args, 'clock-changes');
     if (cc !== undefined) {
