@@ -91,5 +91,11 @@ export function formatPosthocSummary(record: PosthocFitRecord): string {
     if (m.range !== null) lines.push(`  -2LL range ${fmt(m.range, 3)} (Monte Carlo error ${fmt(m.mcError, 2)})`);
     lines.push(`  rule: ${record.robustness.rule}`);
   }
+  const warnings = [...record.posthoc.warnings, ...(record.robustness && !record.robustness.stable ? [`robustness: ${record.robustness.verdict}`] : [])];
+  if (warnings.length) {
+    lines.push('');
+    lines.push('Post-fit warnings:');
+    for (const w of warnings) lines.push(`  - ${w}`);
+  }
   return lines.join('\n');
 }
