@@ -15,6 +15,7 @@ import { observationLogLik } from '../../../engine/stats/residual.js';
 import { importanceSamplingLikelihood } from '../../../engine/posthoc/likelihood.js';
 import { buildLinearisation, linearisedMinus2LL } from '../../../engine/posthoc/linearised.js';
 import { binEdges, computeDiagnostics, covariateRelations } from '../../../engine/posthoc/diagnostics.js';
+import { PosthocError, runPosthoc } from '../../../engine/posthoc/index.js';
 import { conditionalModes } from '../../../engine/posthoc/modes.js';
 import { centralGradient, centralHessian } from '../../../engine/posthoc/derivatives.js';
 import { fromWorking, parameterLayout, thetaFromPopulation, toWorking } from '../../../engine/posthoc/parameters.js';
@@ -243,6 +244,15 @@ describe('random effects against covariates', () => {
     expect(w.pValue!).toBeLessThan(0.001);
     const sex = rel.find((r) => r.covariate === 'sex')!;
     expect(sex.levels!.map((l) => [l.level, l.n])).toEqual([['F', 3], ['M', 3]]);
+  });
+});
+
+describe('runPosthoc on a broken estimate', () => {
+  it('refuses an Omega that is not positive definite with a message saying what to do', () => {
+    const model = compileModel(interceptSpec, interceptData([[9, 10], [12, 11]]), { structuralModel: interceptModel });
+    const bad = { ...model.initial, omega: Float64Array.from([-1]) };
+    expect(() => runPosthoc(model, bad)).toThrow(PosthocError);
+    expect(() => runPosthoc(model, bad)).toThrow(/Omega is not positive definite.*refit/);
   });
 });
 
