@@ -112,3 +112,28 @@ export function countObservations(dataset: Dataset): number {
   for (const s of dataset.subjects) n += s.observations.length;
   return n;
 }
+
+/**
+ * The range of every numeric covariate over the subjects (min, max), for a fit to record the
+ * population it was built on; dose advice warns when a patient lies outside it.
+ */
+export function covariateRanges(dataset: Dataset): Record<string, [number, number]> {
+  const ranges: Record<string, [number, number]> = Object.create(null);
+  for (const name of dataset.covariateNames) {
+    let lo = Infinity;
+    let hi = -Infinity;
+    let numeric = true;
+    for (const s of dataset.subjects) {
+      const v = s.covariates[name];
+      if (v === undefined) continue;
+      if (typeof v !== 'number') {
+        numeric = false;
+        break;
+      }
+      if (v < lo) lo = v;
+      if (v > hi) hi = v;
+    }
+    if (numeric && lo <= hi) ranges[name] = [lo, hi];
+  }
+  return ranges;
+}

@@ -35,6 +35,8 @@ export interface FitRecord {
   nSubjects: number;
   nObservations: number;
   nCensored: number;
+  /** Range (min, max) of each numeric covariate in the fitted dataset: the population the fit describes. */
+  covariateRanges: Record<string, [number, number]>;
   population: PopulationEstimate[];
   individual: { subject: string; parameters: Record<string, number> }[];
   trajectory: {
@@ -52,7 +54,12 @@ export interface FitRecord {
 
 const finiteOrNull = (x: number): number | null => (Number.isFinite(x) ? x : null);
 
-export function buildFitRecord(model: CompiledModel, result: SaemResult, dataHash: string): FitRecord {
+export function buildFitRecord(
+  model: CompiledModel,
+  result: SaemResult,
+  dataHash: string,
+  ranges: Record<string, [number, number]> = Object.create(null),
+): FitRecord {
   const nEst = result.estimateNames.length;
   const last = result.estimates;
   const population: PopulationEstimate[] = [];
@@ -92,6 +99,7 @@ export function buildFitRecord(model: CompiledModel, result: SaemResult, dataHas
     nSubjects: model.nSubjects,
     nObservations: model.nObsTotal,
     nCensored: model.nCensoredTotal,
+    covariateRanges: ranges,
     population,
     individual,
     trajectory: { names: [...result.estimateNames], explorationEnd: result.explorationEnd, explorationSettled: result.explorationSettled, iterations: result.iterations, values },

@@ -3,6 +3,7 @@
  * fit record. One entry point for the CLI, the worker and the tests.
  */
 import { datasetHash } from '../../engine/data/hash.js';
+import { covariateRanges } from '../../engine/data/dataset.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { buildFitRecord, type FitRecord } from '../../engine/saem/fitRecord.js';
 import { runSaem, type AbortSignalLike, type SaemProgress } from '../../engine/saem/saem.js';
@@ -52,5 +53,5 @@ export async function fitDataset(
     ...(options.onProgress ? { onProgress: options.onProgress } : {}),
     ...(options.signal ? { signal: options.signal } : {}),
   });
-  return { record: buildFitRecord(model, result, datasetHash(dataset)), model, dataset, spec };
+  return { record: buildFitRecord(model, result, datasetHash(dataset), covariateRanges(dataset)), model, dataset, spec };
 }

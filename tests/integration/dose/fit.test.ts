@@ -18,7 +18,7 @@ function io(cwd: string) {
 }
 
 describe('plateau dose with a fit.json', () => {
-  it('uses the fitted estimates, records the fit provenance and warns that ranges are unknown', async () => {
+  it('uses the fitted estimates, records the fit provenance and checks the patient against the fitted covariate ranges', async () => {
     const dir = mkdtempSync(path.join(os.tmpdir(), 'plateau-dose-fit-'));
     const spec = {
       name: 'Theoph one-compartment (test)',
@@ -45,7 +45,20 @@ describe('plateau dose with a fit.json', () => {
     expect(a.model).toMatchObject({ kind: 'site fit', dataHash: fit.dataHash, engineVersion: fit.engineVersion, seed: 3 });
     // weight 70 = the reference, so the typical CL for this patient is the fitted typical CL.
     expect(a.posterior.typical.CL).toBeCloseTo(clFit, 4);
-    expect(a.warnings.some((w: { code: string; message: string }) => w.code === 'ranges-unknown')).toBe(true);
+    // The fit records the range of weight_kg in its data (Theoph: 54.6-86.4 kg), so the range is known.
+    expect(fit.covariateRanges.weight_kg).toEqual([54.6, 86.4]);
+    expect(a.warnings.some((w: { code: string; message: string }) => w.code === 'ranges-unknown')).toBe(false);
     expect(a.regimens[0].route).toBe('oral');
+
+    // A patient heavier than anyone in the fitted data: the advice is blocked.
+    writeFileSync(
+      path.join(dir, 'heavy.json'),
+      JSON.stringify({ id: 'oral-2 (invented)', covariates: { weight_kg: 130 }, doses: [{ time_h: 0, amount_mg: 4, route: 'oral' }], levels: [{ time_h: 2, conc_mg_L: 5 }] }),
+    );
+    const h = io(dir);
+    expect(await runCli(['dose', '--model', 'fit.json', '--patient', 'heavy.json', '--json', '--seed', '2'], h.io)).toBe(1);
+    const blocked = JSON.parse(h.out());
+    expect(blocked.status).toBe('blocked');
+    expect(blocked.warnings.some((w: { severity: string; message: string }) => w.severity === 'block' && /weight_kg/.test(w.message))).toBe(true);
   }, 120_000);
 });
