@@ -6,7 +6,7 @@
 import type { CovariateValue } from '../data/types.js';
 import { cholesky, inverseSpd, logDetFromCholesky } from '../linalg/index.js';
 import type { PkParameterName, StructuralModel, Transform } from '../models/types.js';
-import { covariateShift, CovariateValueError, transformForward, transformInverse } from '../spec/individual.js';
+import { covariateShift, CovariateValueError, naturalToTransformed, transformedToNatural } from '../spec/individual.js';
 import type { ResidualModelId } from '../spec/modelSpec.js';
 import type { PopulationModel } from './population.js';
 
@@ -65,7 +65,7 @@ export function buildPatientPrior(population: PopulationModel, covariates: Reado
       problems.push(`parameters.${name}: not a parameter of ${model.id}`);
       continue;
     }
-    const p: PriorParameter = { name: name as PkParameterName, transform: ps.transform, modelIndex, etaIndex: ps.bsv !== null ? etaNames.length : -1, phiMean: transformForward(ps.transform, ps.typical) };
+    const p: PriorParameter = { name: name as PkParameterName, transform: ps.transform, modelIndex, etaIndex: ps.bsv !== null ? etaNames.length : -1, phiMean: naturalToTransformed(ps.transform, ps.typical) };
     if (ps.bsv !== null) etaNames.push(p.name);
     parameters.push(p);
     byName.set(name, p);
@@ -126,14 +126,14 @@ export function buildPatientPrior(population: PopulationModel, covariates: Reado
     for (let j = 0; j < parameters.length; j++) {
       const p = parameters[j];
       const phi = p.etaIndex >= 0 ? p.phiMean + eta[p.etaIndex] : p.phiMean;
-      const v = transformInverse(p.transform, phi);
+      const v = transformedToNatural(p.transform, phi);
       if (!Number.isFinite(v)) return false;
       out[p.modelIndex] = v;
     }
     return true;
   };
   const typical: Record<string, number> = Object.create(null);
-  for (const p of parameters) typical[p.name] = transformInverse(p.transform, p.phiMean);
+  for (const p of parameters) typical[p.name] = transformedToNatural(p.transform, p.phiMean);
   const res = spec.residual;
   return {
     model, parameters, nEta, etaNames, omega, omegaChol, omegaInv,

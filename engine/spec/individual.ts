@@ -10,14 +10,14 @@ import type { CovariateValue, Dose } from '../data/types.js';
 import type { CovariateEffectSpec, ModelSpec } from './modelSpec.js';
 
 /** psi (natural scale) -> phi (transformed scale): log, logit or identity. NaN outside the domain. */
-export function transformForward(t: Transform, psi: number): number {
+export function naturalToTransformed(t: Transform, psi: number): number {
   if (t === 'log') return psi > 0 ? Math.log(psi) : NaN;
   if (t === 'logit') return psi > 0 && psi < 1 ? Math.log(psi / (1 - psi)) : NaN;
   return psi;
 }
 
 /** phi (transformed scale) -> psi (natural scale): exp, inverse logit or identity. */
-export function transformInverse(t: Transform, phi: number): number {
+export function transformedToNatural(t: Transform, phi: number): number {
   if (t === 'log') return Math.exp(phi);
   if (t === 'logit') return phi >= 0 ? 1 / (1 + Math.exp(-phi)) : Math.exp(phi) / (1 + Math.exp(phi));
   return phi;
@@ -93,7 +93,7 @@ export function typicalIndividualParameters(
       shift += covariateShift(effect, value, subject);
     }
     // No shift: the typical value itself, not exp(log(typical)) with its rounding.
-    out[info.name] = shift === 0 ? p.typical : transformInverse(p.transform, transformForward(p.transform, p.typical) + shift);
+    out[info.name] = shift === 0 ? p.typical : transformedToNatural(p.transform, naturalToTransformed(p.transform, p.typical) + shift);
   }
   return out;
 }

@@ -33,6 +33,7 @@ import type { CovariateRelation, ModelSpec, ResidualModelId } from '../spec/mode
 import { getStructuralModel } from '../models/catalogue.js';
 import { choleskyLower, invertFromCholesky } from './dense.js';
 import { observationLogLik } from './residual.js';
+import { naturalToTransformed, transformedToNatural } from '../spec/individual.js';
 
 export interface CompiledParameter {
   name: PkParameterName;
@@ -162,18 +163,6 @@ export interface CompileOptions {
 
 const LOG_2PI = Math.log(2 * Math.PI);
 
-/** phi -> psi for one transform. */
-export function transformForwardValue(t: Transform, phi: number): number {
-  return t === 'log' ? Math.exp(phi) : t === 'logit' ? 1 / (1 + Math.exp(-phi)) : phi;
-}
-
-/** psi -> phi for one transform (NaN outside the domain). */
-export function transformInverseValue(t: Transform, psi: number): number {
-  if (t === 'log') return psi > 0 ? Math.log(psi) : NaN;
-  if (t === 'logit') return psi > 0 && psi < 1 ? Math.log(psi / (1 - psi)) : NaN;
-  return psi;
-}
-
 /** Merge blocks that share a member (union-find); every index not in a block is a singleton. */
 export function mergeBlocks(n: number, blocks: readonly (readonly number[])[]): number[][] {
   const parent = Array.from({ length: n }, (_, i) => i);
@@ -209,7 +198,7 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
     const pi = info.get(name);
     if (pi && !pi.transforms.includes(ps.transform))
       problems.push({ parameter: name, message: `transform "${ps.transform}" does not respect the domain of ${name}; use ${pi.transforms.join(' or ')}` });
-    const phi0 = transformInverseValue(ps.transform, ps.typical);
+    const phi0 = naturalToTransformed(ps.transform, ps.typical);
     if (!Number.isFinite(phi0)) problems.push({ parameter: name, message: `typical value ${ps.typical} is outside the domain of the ${ps.transform} transform` });
     if (ps.bsv !== null && !(Number.isFinite(ps.bsv) && ps.bsv > 0)) problems.push({ parameter: name, message: `initial BSV must be an SD > 0, got ${ps.bsv}` });
     parameters.push({
@@ -413,7 +402,7 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
   if (problems.length) throw new ModelDataError(problems);
 
   const initial: PopulationParameters = {
-    mu: Float64Array.from(parameters, (p) => transformInverseValue(p.transform, p.initialTypical)),
+    mu: Float64Array.from(parameters, (p) => naturalToTransformed(p.transform, p.initialTypical)),
     beta: Float64Array.from(terms, (t) => t.initial),
     omega: omega0,
     a: a0,
@@ -517,7 +506,7 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
   }
 
   function toNatural(phi: ArrayLike<number>, out: Float64Array): void {
-    for (let j = 0; j < nParams; j++) out[j] = transformForwardValue(parameters[j].transform, phi[j]);
+    for (let j = 0; j < nParams; j++) out[j] = transformedToNatural(parameters[j].transform, phi[j]);
   }
 
   function priorFactor(omega: ArrayLike<number>): OmegaFactor | null {

@@ -15,8 +15,8 @@ import {
   CovariateValueError,
   parameterOverridesFromCovariates,
   toModelVector,
-  transformForward,
-  transformInverse,
+  naturalToTransformed,
+  transformedToNatural,
   typicalIndividualParameters,
 } from '../../engine/spec/individual.js';
 import { SpecError, type ModelSpec } from '../../engine/spec/modelSpec.js';
@@ -137,7 +137,7 @@ export function simulateDataset(spec: ModelSpec, dataset: Dataset, options: Simu
       multiplyLowerVector(lOmega, bsvNames.length, z, eta);
       bsvNames.forEach((p, i) => {
         const t = spec.parameters[p]!.transform;
-        values[p] = transformInverse(t, transformForward(t, values[p]) + eta[i]);
+        values[p] = transformedToNatural(t, naturalToTransformed(t, values[p]) + eta[i]);
         source[p] = 'spec+bsv';
       });
     }

@@ -5,7 +5,7 @@
  */
 import { mergePosthoc, posthocRecordFields, PosthocError, runPosthoc, thetaFromPopulation, type PosthocOptions, type WithPosthoc } from '../../engine/posthoc/index.js';
 import { runRepeatedFits, type RepeatOptions, type RepeatSummary } from '../../engine/posthoc/robustness.js';
-import { transformInverseValue } from '../../engine/stats/model.js';
+import { naturalToTransformed } from '../../engine/spec/individual.js';
 import type { FitOutcome } from './fitService.js';
 
 export interface FitPosthocOptions {
@@ -26,7 +26,7 @@ export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions
   const theta = thetaFromPopulation(model, record.population);
   const p = model.nParams;
   const startPhi = new Float64Array(model.nSubjects * p);
-  record.individual.forEach((s, i) => model.parameters.forEach((par, j) => (startPhi[i * p + j] = transformInverseValue(par.transform, s.parameters[par.name]))));
+  record.individual.forEach((s, i) => model.parameters.forEach((par, j) => (startPhi[i * p + j] = naturalToTransformed(par.transform, s.parameters[par.name]))));
   await options.onStatus?.('post-fit: conditional modes and distributions, standard errors, likelihood, diagnostics');
   let merged: PosthocFitRecord;
   try {

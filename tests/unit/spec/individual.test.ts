@@ -7,8 +7,8 @@ import {
   CovariateValueError,
   parameterOverridesFromCovariates,
   toModelVector,
-  transformForward,
-  transformInverse,
+  naturalToTransformed,
+  transformedToNatural,
   typicalIndividualParameters,
 } from '../../../engine/spec/individual.js';
 
@@ -17,14 +17,14 @@ const cov = (x: Record<string, number | string>) => Object.assign(Object.create(
 describe('transforms', () => {
   it('forward (psi -> phi) and inverse (phi -> psi) are inverse to each other', () => {
     for (const t of ['log', 'logit', 'none'] as const) {
-      for (const psi of [0.01, 0.3, 0.5, 0.99]) expect(transformInverse(t, transformForward(t, psi))).toBeCloseTo(psi, 14);
+      for (const psi of [0.01, 0.3, 0.5, 0.99]) expect(transformedToNatural(t, naturalToTransformed(t, psi))).toBeCloseTo(psi, 14);
     }
-    expect(transformForward('log', Math.E)).toBeCloseTo(1, 15);
-    expect(transformForward('logit', 0.5)).toBe(0);
-    expect(transformInverse('logit', -700)).toBeGreaterThan(0); // exp(phi)/(1+exp(phi)): no underflow to 0 before exp itself does
-    expect(transformInverse('logit', 800)).toBe(1);
-    expect(Number.isNaN(transformForward('log', 0))).toBe(true);
-    expect(Number.isNaN(transformForward('logit', 1))).toBe(true);
+    expect(naturalToTransformed('log', Math.E)).toBeCloseTo(1, 15);
+    expect(naturalToTransformed('logit', 0.5)).toBe(0);
+    expect(transformedToNatural('logit', -700)).toBeGreaterThan(0); // exp(phi)/(1+exp(phi)): no underflow to 0 before exp itself does
+    expect(transformedToNatural('logit', 800)).toBe(1);
+    expect(Number.isNaN(naturalToTransformed('log', 0))).toBe(true);
+    expect(Number.isNaN(naturalToTransformed('logit', 1))).toBe(true);
   });
 });
 
