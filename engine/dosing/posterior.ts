@@ -3,8 +3,9 @@
  * MAP: minimise sum_j -2 log p(y_j | eta) + eta' Omega^-1 eta (the -2 log p terms include the
  * log-variance term, which matters when the error depends on the prediction; Sheiner & Beal,
  * J Pharmacokinet Biopharm 1982;10:553-571, from memory), by BFGS from several starts.
- * Draws: Metropolis-Hastings chains started at the MAP, each iteration an independence step
- * from a Student-t built on the Laplace approximation and a random-walk step
+ * Draws: Metropolis-Hastings chains started at the MAP (the shared kernels of engine/mcmc), each
+ * iteration an independence step from a Student-t built on the Laplace approximation and a
+ * random-walk step
  * N(eta, (2.38^2 / d) Sigma) (Roberts, Gelman & Gilks, Ann Appl Probab 1997;7:110-120, from
  * memory), Sigma = (H / 2)^-1 with H the Hessian of the objective at the mode. Convergence:
  * acceptance, effective sample size (Geyer's initial positive sequence) and split R-hat
@@ -17,6 +18,7 @@ import type { Predictor } from '../models/types.js';
 import type { RngStream } from '../rng/index.js';
 import { observationLogLik } from '../stats/residual.js';
 import { hessian, minimiseBfgs } from './optimise.js';
+import { buildIndependenceKernel, buildRandomWalkKernel, logStudentTKernel, type ChainState as McmcState, type LogDensityTarget } from '../mcmc/kernels.js';
 import type { PatientPrior } from './prior.js';
 
 export interface LevelObjective {
@@ -140,7 +142,7 @@ export interface PosteriorDraws {
   diagnostics: SamplerDiagnostics;
 }
 
-/** Chain state: what the next step needs. */
+/** Chain state of the dosing sampler: what the next step needs. */
 export interface ChainState {
   /** Current random effects (transformed scale). */
   eta: Float64Array;
@@ -161,63 +163,34 @@ export interface KernelSet {
 }
 
 /**
- * Build the two kernels once from the target and the proposal factor L (Sigma = L L'):
- * an independence sampler from a multivariate Student-t (df nu) centred at `centre` with scale
- * Sigma, and a random walk N(eta, (2.38^2 / d) Sigma). Non-finite log densities are rejections.
+ * The dosing configuration of the shared kernels (engine/mcmc): an independence step from a
+ * multivariate Student-t (df nu) centred at `centre` with scale Sigma = L L', and a random walk
+ * N(eta, (2.38^2 / d) Sigma). Built once; non-finite log densities are rejections.
  */
 export function buildKernels(logPost: (x: Float64Array) => number, centre: Float64Array, L: Float64Array, nu: number): KernelSet {
   const d = centre.length;
-  const z = new Float64Array(d);
-  const prop = new Float64Array(d);
+  const ind = buildIndependenceKernel({ dim: d, df: nu, priorProposal: false });
+  const rw = buildRandomWalkKernel(d);
+  const target: LogDensityTarget = { dim: d, logLikelihood: logPost, logPrior: () => 0 };
   const rwScale = 2.38 / Math.sqrt(d);
-  const logQ = (x: Float64Array): number => {
-    let qf = 0;
-    for (let i = 0; i < d; i++) {
-      let s = x[i] - centre[i];
-      for (let j = 0; j < i; j++) s -= L[i * d + j] * z[j];
-      z[i] = s / L[i * d + i];
-      qf += z[i] * z[i];
-    }
-    return -0.5 * (nu + d) * Math.log(1 + qf / nu);
-  };
+  const z = new Float64Array(d);
+  const inner: McmcState = { position: centre, logLikelihood: 0, logPrior: 0 };
+  const logQ = (x: Float64Array): number => logStudentTKernel(x, centre, L, d, nu, z);
   const independence: Kernel = (r, state) => {
-    r.fillNormal(z);
-    let chi = 0;
-    for (let k = 0; k < nu; k++) {
-      const g = r.normal();
-      chi += g * g;
-    }
-    const w = Math.sqrt(nu / chi);
-    for (let i = 0; i < d; i++) {
-      let v = 0;
-      for (let j = 0; j <= i; j++) v += L[i * d + j] * z[j];
-      prop[i] = centre[i] + w * v;
-    }
-    const lp = logPost(prop);
-    const lq = logQ(prop);
-    if (Number.isFinite(lp) && Math.log(r.uniform()) < lp - state.logPost + state.logQ - lq) {
-      state.eta.set(prop);
-      state.logPost = lp;
-      state.logQ = lq;
-      return true;
-    }
-    return false;
+    inner.position = state.eta;
+    inner.logLikelihood = state.logPost;
+    if (!ind.step(r, target, inner, centre, L)) return false;
+    state.logPost = inner.logLikelihood;
+    state.logQ = logQ(state.eta);
+    return true;
   };
   const randomWalk: Kernel = (r, state) => {
-    r.fillNormal(z);
-    for (let i = 0; i < d; i++) {
-      let v = 0;
-      for (let j = 0; j <= i; j++) v += L[i * d + j] * z[j];
-      prop[i] = state.eta[i] + rwScale * v;
-    }
-    const lp = logPost(prop);
-    if (Number.isFinite(lp) && Math.log(r.uniform()) < lp - state.logPost) {
-      state.eta.set(prop);
-      state.logPost = lp;
-      state.logQ = logQ(prop);
-      return true;
-    }
-    return false;
+    inner.position = state.eta;
+    inner.logLikelihood = state.logPost;
+    if (!rw.step(r, target, inner, L, rwScale)) return false;
+    state.logPost = inner.logLikelihood;
+    state.logQ = logQ(state.eta);
+    return true;
   };
   return { independence, randomWalk, logQ };
 }
