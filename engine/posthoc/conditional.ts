@@ -1,7 +1,8 @@
 /**
  * Conditional distribution of each subject's random effects at the population estimate,
  * p(eta_i | y_i; theta_hat), by Metropolis-Hastings (Robert & Casella, Monte Carlo Statistical
- * Methods, 2nd ed. 2004, ch. 7, from memory) with two moves per iteration, both scaled by the
+ * Methods, 2nd ed. 2004, ch. 7, from memory; the shared kernels of engine/mcmc) with two moves
+ * per iteration, both scaled by the
  * Laplace covariance C_i at the mode: an independent multivariate Student-t proposal centred at
  * the mode, and a random walk N(eta, s^2 C_i) with s adapted during warm-up towards 30 %
  * acceptance (start 2.38 / sqrt(d), Gelman, Roberts & Gilks 1996). The chain runs in batches
@@ -11,10 +12,22 @@
  * version); per subject, var(eta_i | y_i) / omega^2 (Xu et al. 2012, from memory).
  */
 import { cholesky } from '../linalg/index.js';
-import { createStreams, type RngStream } from '../rng/index.js';
+import { createStreams } from '../rng/index.js';
 import type { SubjectDensity } from './density.js';
 import { logGamma, quantileSorted } from './distributions.js';
 import { list, type ModeResult } from './modes.js';
+import {
+  buildIndependenceKernel,
+  buildRandomWalkKernel,
+  drawStudentT,
+  logStudentTKernel,
+  scaleAdaptation,
+  type ChainState,
+  type LogDensityTarget,
+} from '../mcmc/kernels.js';
+
+// Warm-up adaptation towards 30 % acceptance, one step per batch: accept x1.049, reject x0.979.
+const RW_ADAPTATION = scaleAdaptation({ target: 0.3, rate: 0.07, min: 1e-6, max: 1e6 });
 
 export interface ConditionalOptions {
   seed: number;
@@ -71,38 +84,9 @@ export interface ConditionalResult {
   warnings: string[];
 }
 
-/** Multivariate Student-t draw (integer df): x = m + L z sqrt(df / chi2_df); returns log q(x) up to the normalising constant shared by all draws. */
-export function drawStudentT(rng: RngStream, m: ArrayLike<number>, chol: Float64Array, d: number, df: number, z: Float64Array, out: Float64Array): number {
-  // chi-square with df degrees of freedom: 2 x (sum of df/2 exponentials), one squared normal for odd df.
-  let chi = 0;
-  for (let k = 1; k < df; k += 2) chi += 2 * rng.exponential();
-  if (df % 2 === 1) {
-    const g = rng.normal();
-    chi += g * g;
-  }
-  for (let k = 0; k < d; k++) z[k] = rng.normal();
-  const w = Math.sqrt(df / chi);
-  let q = 0;
-  for (let r = 0; r < d; r++) {
-    let v = 0;
-    for (let c = 0; c <= r; c++) v += chol[r * d + c] * z[c];
-    out[r] = m[r] + w * v;
-    q += z[r] * z[r] * w * w;
-  }
-  return -0.5 * (df + d) * Math.log1p(q / df);
-}
-
-/** log q(x) of the Student-t with location m and scale L L' (same constant as drawStudentT); z is scratch. */
-export function logStudentTKernel(x: ArrayLike<number>, m: ArrayLike<number>, chol: Float64Array, d: number, df: number, z: Float64Array): number {
-  let q = 0;
-  for (let r = 0; r < d; r++) {
-    let s = x[r] - m[r];
-    for (let c = 0; c < r; c++) s -= chol[r * d + c] * z[c];
-    z[r] = s / chol[r * d + r];
-    q += z[r] * z[r];
-  }
-  return -0.5 * (df + d) * Math.log1p(q / df);
-}
+// The Student-t draw and its log kernel live with the shared kernels; re-exported for the
+// importance sampler (likelihood.ts).
+export { drawStudentT, logStudentTKernel };
 
 /** Normalising constant of the multivariate t density with scale L L'. */
 export function logStudentTConstant(chol: Float64Array, d: number, df: number): number {
@@ -157,6 +141,19 @@ export function conditionalDistribution(density: SubjectDensity, modes: ModeResu
   const sortBuf = new Float64Array(K);
   const unsettled: string[] = [];
   const mode = new Float64Array(d);
+  // Target: the log joint density of subject `subject` (all in logLikelihood; no prior split needed).
+  const target: LogDensityTarget & { subject: number; f: Float64Array } = {
+    dim: d,
+    subject: 0,
+    f,
+    logLikelihood(x) {
+      return density.logJoint(this.subject, x, this.f);
+    },
+    logPrior: () => 0,
+  };
+  const state: ChainState = { position: cur, logLikelihood: 0, logPrior: 0 };
+  const independent = buildIndependenceKernel({ dim: d, df: o.proposalDf, priorProposal: false });
+  const randomWalk = buildRandomWalkKernel(d);
 
   for (let i = 0; i < N; i++) {
     const rng = root.stream('posthoc', 'conditional', i);
@@ -178,9 +175,11 @@ export function conditionalDistribution(density: SubjectDensity, modes: ModeResu
       cholesky(chol, d, chol);
     }
     cur.set(mode);
-    let lp = density.logJoint(i, cur, fi);
-    let lqCur = logStudentTKernel(cur, mode, chol, d, o.proposalDf, z);
-    let scale = 2.38 / Math.sqrt(d);
+    target.subject = i;
+    target.f = fi;
+    state.logLikelihood = target.logLikelihood(cur);
+    state.logPrior = 0;
+    const adapt = RW_ADAPTATION.init(1, 2.38 / Math.sqrt(d));
     let accRw = 0, accInd = 0, n = 0;
     sum.fill(0);
     sumSq.fill(0);
@@ -191,31 +190,14 @@ export function conditionalDistribution(density: SubjectDensity, modes: ModeResu
     const drawBase = i * K * d;
     const total = o.warmup + o.maxIterations;
     for (let it = 0; it < total; it++) {
-      // Independent Student-t move from the Laplace approximation.
-      const lqProp = drawStudentT(rng, mode, chol, d, o.proposalDf, z, prop);
-      const lpProp = density.logJoint(i, prop, fi);
-      if (lpProp > -Infinity && Math.log(rng.uniform()) < lpProp - lp + lqCur - lqProp) {
-        cur.set(prop);
-        lp = lpProp;
-        lqCur = lqProp;
-        if (it >= o.warmup) accInd++;
-      }
-      // Random walk N(eta, s^2 C).
-      for (let k = 0; k < d; k++) z[k] = rng.normal();
-      for (let r = 0; r < d; r++) {
-        let v = 0;
-        for (let c = 0; c <= r; c++) v += chol[r * d + c] * z[c];
-        prop[r] = cur[r] + scale * v;
-      }
-      const lpRw = density.logJoint(i, prop, fi);
-      const accepted = lpRw > -Infinity && Math.log(rng.uniform()) < lpRw - lp;
-      if (accepted) {
-        cur.set(prop);
-        lp = lpRw;
-        lqCur = logStudentTKernel(cur, mode, chol, d, o.proposalDf, z);
-      }
+      // Independent Student-t move from the Laplace approximation, then a random walk N(eta, s^2 C).
+      const acceptedInd = independent.step(rng, target, state, mode, chol);
+      if (acceptedInd && it >= o.warmup) accInd++;
+      const accepted = randomWalk.step(rng, target, state, chol, adapt.scale[0]);
       if (it < o.warmup) {
-        scale *= accepted ? 1.05 : 0.98;
+        adapt.tries[0] = 1;
+        adapt.accepted[0] = accepted ? 1 : 0;
+        RW_ADAPTATION.update(adapt);
         continue;
       }
       if (accepted) accRw++;
