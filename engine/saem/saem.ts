@@ -34,6 +34,7 @@ import { choleskyLower, invertFromCholesky, solveWithCholesky } from '../stats/d
 import { combinedErrorDerivatives, residualSd } from '../stats/residual.js';
 import { truncatedNormalBelow } from '../stats/normalTail.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
+import { buildComponentwiseKernel, buildIndependenceKernel, buildRandomWalkKernel, scaleAdaptation, type ChainState, type LogDensityTarget } from '../mcmc/kernels.js';
 
 export type SaemPhase = 'exploration' | 'averaging';
 
@@ -250,19 +251,22 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const fPropBuf = new Float64Array(maxObs);
   const fPropView = subjects.map((s) => fPropBuf.subarray(0, s.nObs));
   const phiProp = new Float64Array(p);
-  const etaCur = new Float64Array(nEta);
-  const etaProp = new Float64Array(nEta);
-  const zBuf = new Float64Array(nEta);
-  const invEta = new Float64Array(nEta);
   const meanRow = new Float64Array(p);
 
   const root = createStreams(settings.seed);
   const streams: RngStream[] = new Array(NL);
   for (let i = 0; i < N; i++) for (let c = 0; c < L; c++) streams[i * L + c] = root.stream('saem', 'subject', i, 'chain', c);
 
-  // Kernel adaptation (scales relative to Omega), frozen after exploration.
-  let kappa = nEta > 0 ? 2.38 * 2.38 / nEta / 2 : 1;
-  const compScale = new Float64Array(nEta).fill(0.5);
+  // Kernel adaptation (scales relative to Omega) towards the target acceptance, one update per
+  // exploration iteration, frozen after exploration (DESIGN.md §5).
+  const target = settings.targetAcceptance;
+  const kappaAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-4, max: 10 });
+  const compAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-3, max: 10 });
+  const subjectAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-4, max: 20 });
+  /** kappa: variance multiplier of the full random walk N(phi, kappa Omega). */
+  const kappa = kappaAdaptation.init(1, nEta > 0 ? 2.38 * 2.38 / nEta / 2 : 1);
+  /** Component step SDs in units of each omega SD. */
+  const compScale = compAdaptation.init(nEta, 0.5);
   let accInd = 0, triesInd = 0, accRw = 0, triesRw = 0;
   const accComp = new Float64Array(nEta);
   const triesComp = new Float64Array(nEta);
@@ -309,12 +313,36 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     return q;
   }
 
-  function accept(s: number, i: number, ll: number): void {
-    const base = s * p;
-    for (let k = 0; k < nEta; k++) phiS[base + etaParam[k]] = phiProp[etaParam[k]];
-    fView[s].set(fPropView[i]);
-    llS[s] = ll;
-  }
+  // The kernels (engine/mcmc) move eta_i = phi_i - mean_i over the BSV components; the target is
+  // p(y_i | phi_i) x N(eta_i; 0, Omega), and an accepted point keeps its predictions.
+  const etaS = new Float64Array(NL * nEta);
+  const chainStates: ChainState[] = new Array(NL);
+  for (let s = 0; s < NL; s++) chainStates[s] = { position: etaS.subarray(s * nEta, (s + 1) * nEta), logLikelihood: 0, logPrior: 0 };
+  const zeroCentre = new Float64Array(nEta);
+  const compSd = new Float64Array(nEta);
+  const subjectTarget: LogDensityTarget & { subject: number; chain: number } = {
+    dim: nEta,
+    subject: 0,
+    chain: 0,
+    logLikelihood(eta) {
+      const i = this.subject;
+      const mBase = i * p;
+      const sBase = this.chain * p;
+      for (let j = 0; j < p; j++) phiProp[j] = hasEta[j] ? meanAll[mBase + j] : phiS[sBase + j];
+      for (let k = 0; k < nEta; k++) phiProp[etaParam[k]] += eta[k];
+      return propLogLik(i, phiProp, theta.a, theta.b);
+    },
+    logPrior(eta) {
+      return -0.5 * quadInv(eta);
+    },
+    accept() {
+      fView[this.chain].set(fPropView[this.subject]);
+    },
+  };
+  // Independent proposal from N(mean_i, Omega): the prior cancels in the ratio.
+  const independentKernel = buildIndependenceKernel({ dim: nEta, df: null, priorProposal: true });
+  const randomWalkKernel = buildRandomWalkKernel(nEta);
+  const componentKernel = buildComponentwiseKernel(nEta);
 
   // Initial chains at the population means.
   refreshMeans();
@@ -337,7 +365,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const subjCov = new Float64Array(nEta * nEta);
   const subjChol = new Float64Array(N * nEta * nEta);
   const subjReady = new Uint8Array(N);
-  let adaptScale = nEta > 0 ? (2.38 * 2.38) / nEta : 1;
+  const subjCholView = Array.from({ length: N }, (_, i) => subjChol.subarray(i * nEta * nEta, (i + 1) * nEta * nEta));
+  /** Variance multiplier of the subject-shaped random walk. */
+  const adaptScale = subjectAdaptation.init(1, nEta > 0 ? (2.38 * 2.38) / nEta : 1);
   let accAd = 0, triesAd = 0, totAccAd = 0, totTriesAd = 0;
   let adaptUpdates = 0;
   function updateSubjectCovariances(): void {
@@ -366,115 +396,56 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         }
       // A small share of Omega keeps the proposal non-degenerate while the chain is still stuck.
       for (let k = 0; k < nEta; k++) subjCov[k * nEta + k] += 1e-3 * theta.omega[k * nEta + k];
-      subjReady[i] = choleskyLower(subjCov, nEta, subjChol.subarray(i * nEta * nEta, (i + 1) * nEta * nEta)) ? 1 : 0;
+      subjReady[i] = choleskyLower(subjCov, nEta, subjCholView[i]) ? 1 : 0;
     }
   }
 
   function simulate(exploring: boolean): void {
     accInd = triesInd = accRw = triesRw = accAd = triesAd = 0;
-    const sqrtAdapt = Math.sqrt(adaptScale);
+    const sqrtAdapt = Math.sqrt(adaptScale.scale[0]);
     accComp.fill(0);
     triesComp.fill(0);
-    const sqrtKappa = Math.sqrt(kappa);
+    const sqrtKappa = Math.sqrt(kappa.scale[0]);
+    for (let k = 0; k < nEta; k++) compSd[k] = compScale.scale[k] * omegaSd[k];
     for (let i = 0; i < N; i++) {
       const mBase = i * p;
       for (let c = 0; c < L; c++) {
         const s = i * L + c;
         const rng = streams[s];
         const base = s * p;
-        let ll = llS[s];
         if (nEta > 0) {
-          for (let j = 0; j < p; j++) phiProp[j] = phiS[base + j];
-          // 1. Independent proposal from N(mean_i, Omega): the prior cancels in the ratio.
+          const st = chainStates[s];
+          const eta = st.position;
+          for (let k = 0; k < nEta; k++) eta[k] = phiS[base + etaParam[k]] - meanAll[mBase + etaParam[k]];
+          st.logLikelihood = llS[s];
+          st.logPrior = -0.5 * quadInv(eta);
+          subjectTarget.subject = i;
+          subjectTarget.chain = s;
+          // 1. Independent proposal from N(mean_i, Omega).
           for (let it = 0; it < settings.independentSteps; it++) {
-            for (let k = 0; k < nEta; k++) zBuf[k] = rng.normal();
-            for (let r = 0; r < nEta; r++) {
-              let v = 0;
-              for (let q = 0; q <= r; q++) v += omegaChol[r * nEta + q] * zBuf[q];
-              phiProp[etaParam[r]] = meanAll[mBase + etaParam[r]] + v;
-            }
-            const llp = propLogLik(i, phiProp, theta.a, theta.b);
             triesInd++;
-            if (llp > -Infinity && Math.log(rng.uniform()) < llp - ll) {
-              accept(s, i, llp);
-              ll = llp;
-              accInd++;
-            } else for (let k = 0; k < nEta; k++) phiProp[etaParam[k]] = phiS[base + etaParam[k]];
+            if (independentKernel.step(rng, subjectTarget, st, zeroCentre, omegaChol)) accInd++;
           }
           // 2. Full random walk N(phi, kappa Omega).
-          for (let k = 0; k < nEta; k++) etaCur[k] = phiS[base + etaParam[k]] - meanAll[mBase + etaParam[k]];
-          let qCur = quadInv(etaCur);
           for (let it = 0; it < settings.randomWalkSteps; it++) {
-            for (let k = 0; k < nEta; k++) zBuf[k] = rng.normal();
-            for (let r = 0; r < nEta; r++) {
-              let v = 0;
-              for (let q = 0; q <= r; q++) v += omegaChol[r * nEta + q] * zBuf[q];
-              etaProp[r] = etaCur[r] + sqrtKappa * v;
-              phiProp[etaParam[r]] = meanAll[mBase + etaParam[r]] + etaProp[r];
-            }
-            const qProp = quadInv(etaProp);
-            const llp = propLogLik(i, phiProp, theta.a, theta.b);
             triesRw++;
-            if (llp > -Infinity && Math.log(rng.uniform()) < llp - ll - 0.5 * (qProp - qCur)) {
-              accept(s, i, llp);
-              ll = llp;
-              qCur = qProp;
-              etaCur.set(etaProp);
-              accRw++;
-            } else for (let k = 0; k < nEta; k++) phiProp[etaParam[k]] = phiS[base + etaParam[k]];
+            if (randomWalkKernel.step(rng, subjectTarget, st, omegaChol, sqrtKappa)) accRw++;
           }
           // 3. Component-wise random walk with adaptive scales.
           for (let sw = 0; sw < settings.componentSweeps; sw++) {
-            for (let k = 0; k < nEta; k++) {
-              let row = 0;
-              for (let c2 = 0; c2 < nEta; c2++) row += omegaInv[k * nEta + c2] * etaCur[c2];
-              invEta[k] = row;
-            }
-            for (let k = 0; k < nEta; k++) {
-              const d = compScale[k] * omegaSd[k] * rng.normal();
-              const j = etaParam[k];
-              phiProp[j] = phiS[base + j] + d;
-              const dq = 2 * d * invEta[k] + d * d * omegaInv[k * nEta + k];
-              const llp = propLogLik(i, phiProp, theta.a, theta.b);
-              triesComp[k]++;
-              if (llp > -Infinity && Math.log(rng.uniform()) < llp - ll - 0.5 * dq) {
-                phiS[base + j] = phiProp[j];
-                fView[s].set(fPropView[i]);
-                llS[s] = llp;
-                ll = llp;
-                etaCur[k] += d;
-                for (let r = 0; r < nEta; r++) invEta[r] += omegaInv[r * nEta + k] * d;
-                accComp[k]++;
-              } else phiProp[j] = phiS[base + j];
-            }
+            for (let k = 0; k < nEta; k++) triesComp[k]++;
+            componentKernel.sweep(rng, subjectTarget, st, compSd, accComp);
           }
           // 4. Random walk shaped by the subject's own conditional covariance (adaptive
           // Metropolis, Haario, Saksman & Tamminen 2001, from memory): mixes along ridges of
           // p(phi_i | y_i) that Omega-shaped proposals cross only in tiny steps.
-          if (subjReady[i] && settings.adaptiveSteps > 0) {
-            const cBase = i * nEta * nEta;
-            for (let k = 0; k < nEta; k++) etaCur[k] = phiS[base + etaParam[k]] - meanAll[mBase + etaParam[k]];
-            let qCur = quadInv(etaCur);
+          if (subjReady[i] && settings.adaptiveSteps > 0)
             for (let it = 0; it < settings.adaptiveSteps; it++) {
-              for (let k = 0; k < nEta; k++) zBuf[k] = rng.normal();
-              for (let r = 0; r < nEta; r++) {
-                let v = 0;
-                for (let q = 0; q <= r; q++) v += subjChol[cBase + r * nEta + q] * zBuf[q];
-                etaProp[r] = etaCur[r] + sqrtAdapt * v;
-                phiProp[etaParam[r]] = meanAll[mBase + etaParam[r]] + etaProp[r];
-              }
-              const qProp = quadInv(etaProp);
-              const llp = propLogLik(i, phiProp, theta.a, theta.b);
               triesAd++;
-              if (llp > -Infinity && Math.log(rng.uniform()) < llp - ll - 0.5 * (qProp - qCur)) {
-                accept(s, i, llp);
-                ll = llp;
-                qCur = qProp;
-                etaCur.set(etaProp);
-                accAd++;
-              } else for (let k = 0; k < nEta; k++) phiProp[etaParam[k]] = phiS[base + etaParam[k]];
+              if (randomWalkKernel.step(rng, subjectTarget, st, subjCholView[i], sqrtAdapt)) accAd++;
             }
-          }
+          llS[s] = st.logLikelihood;
+          for (let k = 0; k < nEta; k++) phiS[base + etaParam[k]] = meanAll[mBase + etaParam[k]] + eta[k];
         }
         // Censored levels: draw from N(f, g^2) truncated below the LLOQ (log scale for log-additive).
         const sub = subjects[i];
@@ -508,11 +479,15 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     for (let k = 0; k < nEta; k++) (totAccComp[k] += accComp[k]), (totTriesComp[k] += triesComp[k]);
     if (exploring) {
       // kappa <- kappa (1 + delta (acc - target)), likewise the component scales (DESIGN.md §5).
-      const target = settings.targetAcceptance;
-      if (triesRw > 0) kappa = Math.min(10, Math.max(1e-4, kappa * (1 + 0.4 * (accRw / triesRw - target))));
-      if (triesAd > 0) adaptScale = Math.min(20, Math.max(1e-4, adaptScale * (1 + 0.4 * (accAd / triesAd - target))));
-      for (let k = 0; k < nEta; k++)
-        if (triesComp[k] > 0) compScale[k] = Math.min(10, Math.max(1e-3, compScale[k] * (1 + 0.4 * (accComp[k] / triesComp[k] - target))));
+      kappa.accepted[0] = accRw;
+      kappa.tries[0] = triesRw;
+      kappaAdaptation.update(kappa);
+      adaptScale.accepted[0] = accAd;
+      adaptScale.tries[0] = triesAd;
+      subjectAdaptation.update(adaptScale);
+      compScale.accepted.set(accComp);
+      compScale.tries.set(triesComp);
+      compAdaptation.update(compScale);
     }
   }
 
