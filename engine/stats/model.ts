@@ -181,6 +181,7 @@ export function mergeBlocks(n: number, blocks: readonly (readonly number[])[]): 
 export function compileModel(spec: ModelSpec, dataset: Dataset, options: CompileOptions = {}): CompiledModel {
   const problems: ModelDataProblem[] = [];
   const warnings: string[] = [];
+  const preDoseLevels: string[] = [];
   const structural = options.structuralModel ?? getStructuralModel(spec.structure);
   const info = new Map<string, ParameterInfo>();
   for (const p of structural.parameters) info.set(p.name, p);
@@ -366,6 +367,19 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
       if (residualModel === 'log-additive' && !o.censored && !(o.valueMgL > 0))
         problems.push({ subject: s.id, message: `level ${o.valueMgL} mg/L at ${o.timeH} h${o.sourceRow !== undefined ? ` (row ${o.sourceRow})` : ''} is not > 0, which log-additive error cannot describe; mark it censored below the LLOQ or use another error model` });
     });
+    // Before (or at) the first dose every PK model predicts 0: a level there is a baseline the
+    // model cannot explain, and proportional error gives it zero likelihood.
+    if (!options.structuralModel && n > 0) {
+      const firstDose = s.doses[0];
+      if (!firstDose) problems.push({ subject: s.id, message: 'has levels but no dose rows: the model predicts 0 without a dose; add the doses or remove the subject' });
+      else if (firstDose.steadyStateIntervalH === undefined) {
+        const early = s.observations.filter((o) => !o.censored && o.valueMgL > 0 && o.timeH <= firstDose.timeH);
+        const at = (o: (typeof early)[number]) => `${o.valueMgL} mg/L at ${o.timeH} h${o.sourceRow !== undefined ? ` (row ${o.sourceRow})` : ''}`;
+        if (early.length && residualModel === 'proportional')
+          problems.push({ subject: s.id, message: `level ${at(early[0])} lies at or before the first dose, where the model predicts 0; proportional error cannot describe a level above 0 at a zero prediction: use combined or additive error, mark the level censored, or remove it` });
+        else if (early.length) preDoseLevels.push(`subject ${s.id}: ${at(early[0])}${early.length > 1 ? ` and ${early.length - 1} more` : ''}`);
+      }
+    }
     if (n === 0) warnings.push(`subject ${s.id} has no levels: it contributes nothing to the fit`);
     else if (nc === n) warnings.push(`subject ${s.id}: every level is below the LLOQ; it informs the fit only through the censored likelihood`);
     const design = new Float64Array(nTerms);
@@ -388,6 +402,10 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
     nCensoredTotal += nc;
     subjects.push({ id: s.id, nObs: n, timesH, y, censored, lloqMgL: lloq, nCensored: nc, design, doses: s.doses, predictor });
   }
+  if (preDoseLevels.length)
+    warnings.push(
+      `${preDoseLevels.length} subject(s) have levels above 0 at or before their first dose, where the model predicts 0 (baseline or pre-dose samples; they enter the fit as residual error): ${preDoseLevels.slice(0, 3).join('; ')}${preDoseLevels.length > 3 ? '; ...' : ''}`,
+    );
   if (nObsTotal === 0) problems.push({ message: 'the dataset holds no levels to fit' });
   else if (nCensoredTotal === nObsTotal) problems.push({ message: 'every level in the dataset is below the LLOQ: nothing to fit' });
   // A continuous covariate constant across subjects makes its coefficient unidentifiable.
