@@ -147,3 +147,13 @@ export function getStructuralModel(id: StructureId): StructuralModel {
 export function listStructuralModels(): StructuralModel[] {
   return [...MODELS];
 }
+
+/**
+ * The structural model with solver settings bound (for the ODE-solved models; analytic models
+ * ignore them): `prepare` uses `solver` unless its caller passes settings of its own.
+ */
+export function structuralModelWithSolver(id: StructureId, solver: Partial<SolverSettings> | undefined): StructuralModel {
+  const base = getStructuralModel(id);
+  if (!solver || base.analytic) return base;
+  return { ...base, prepare: (doses, timesH, own) => base.prepare(doses, timesH, { ...solver, ...own }) };
+}

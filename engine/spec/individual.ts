@@ -4,7 +4,7 @@
  *   phi = mu + sum of covariate shifts (+ eta),  psi = h(phi),
  * where phi is the transformed scale and psi the natural scale (CL in L/h, F a fraction).
  */
-import { getStructuralModel } from '../models/catalogue.js';
+import { structuralModelWithSolver } from '../models/catalogue.js';
 import type { PkParameterName, StructuralModel, Transform } from '../models/types.js';
 import type { CovariateValue, Dose } from '../data/types.js';
 import type { CovariateEffectSpec, ModelSpec } from './modelSpec.js';
@@ -77,7 +77,7 @@ export function typicalIndividualParameters(
   spec: ModelSpec,
   covariates: Readonly<Record<string, CovariateValue>>,
   subject?: string,
-  model: StructuralModel = getStructuralModel(spec.structure),
+  model: StructuralModel = structuralModelWithSolver(spec.structure, spec.solver),
 ): Record<PkParameterName, number> {
   const out = Object.create(null) as Record<PkParameterName, number>;
   for (const info of model.parameters) {

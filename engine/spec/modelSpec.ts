@@ -4,7 +4,7 @@
  * estimator settings). One parser for the CLI, the worker and the UI; it reports every problem
  * with its JSON path.
  */
-import type { PkParameterName, StructureId, Transform } from '../models/types.js';
+import type { PkParameterName, SolverSettings, StructureId, Transform } from '../models/types.js';
 
 export type CovariateRelation = 'power' | 'linear' | 'categorical';
 export type ResidualModelId = 'additive' | 'proportional' | 'combined' | 'log-additive';
@@ -61,6 +61,8 @@ export interface ModelSpec {
   estimation: Record<string, unknown>;
   /** Covariate ranges the model was built on: name -> [min, max]. */
   covariateRanges?: Record<string, [number, number]>;
+  /** ODE solver settings for the numerically solved models (1cmt-mm); defaults in engine/models/types.ts. */
+  solver?: Partial<SolverSettings>;
 }
 
 export class SpecError extends Error {
@@ -217,6 +219,23 @@ export function parseModelSpec(json: unknown): ModelSpec {
     }
   }
 
+  let solver: Partial<SolverSettings> | undefined;
+  if (json.solver !== undefined) {
+    if (!isRecord(json.solver)) problems.push('solver: must be an object {relTol, absTol, maxSteps}');
+    else {
+      solver = {};
+      for (const [k, v] of Object.entries(json.solver)) {
+        if (k === 'relTol' || k === 'absTol') {
+          if (!(finite(v) && v > 0 && v < 1)) problems.push(`solver.${k}: must be a number in (0, 1)`);
+          else solver[k] = v;
+        } else if (k === 'maxSteps') {
+          if (!(finite(v) && Number.isInteger(v) && v >= 100)) problems.push('solver.maxSteps: must be an integer >= 100');
+          else solver.maxSteps = v;
+        } else problems.push(`solver.${k}: unknown setting (relTol, absTol, maxSteps)`);
+      }
+    }
+  }
+
   for (const key of ['name', 'source'] as const) {
     if (json[key] !== undefined && typeof json[key] !== 'string') problems.push(`${key}: must be text`);
   }
@@ -233,5 +252,6 @@ export function parseModelSpec(json: unknown): ModelSpec {
     residual,
     estimation: estimation as Record<string, unknown>,
     ...(covariateRanges ? { covariateRanges } : {}),
+    ...(solver ? { solver } : {}),
   };
 }

@@ -30,7 +30,7 @@
 import type { Dataset, Dose } from '../data/types.js';
 import type { ParameterInfo, PkParameterName, Predictor, StructuralModel, Transform } from '../models/types.js';
 import type { CovariateRelation, ModelSpec, ResidualModelId } from '../spec/modelSpec.js';
-import { getStructuralModel } from '../models/catalogue.js';
+import { structuralModelWithSolver } from '../models/catalogue.js';
 import { choleskyLower, invertFromCholesky } from './dense.js';
 import { observationLogLik } from './residual.js';
 import { naturalToTransformed, transformedToNatural } from '../spec/individual.js';
@@ -182,7 +182,7 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
   const problems: ModelDataProblem[] = [];
   const warnings: string[] = [];
   const preDoseLevels: string[] = [];
-  const structural = options.structuralModel ?? getStructuralModel(spec.structure);
+  const structural = options.structuralModel ?? structuralModelWithSolver(spec.structure, spec.solver);
   const info = new Map<string, ParameterInfo>();
   for (const p of structural.parameters) info.set(p.name, p);
 

@@ -7,7 +7,7 @@
 import { createDataset, type SubjectInput } from '../../engine/data/dataset.js';
 import { DataError, type DataProblem, type Dataset, type Observation } from '../../engine/data/types.js';
 import { cholesky, multiplyLowerVector } from '../../engine/linalg/index.js';
-import { getStructuralModel } from '../../engine/models/catalogue.js';
+import { structuralModelWithSolver } from '../../engine/models/catalogue.js';
 import type { PkParameterName, StructuralModel } from '../../engine/models/types.js';
 import { createStreams } from '../../engine/rng/index.js';
 import {
@@ -107,7 +107,7 @@ function residualDraw(spec: ModelSpec, f: number, eps: number): number {
 }
 
 export function simulateDataset(spec: ModelSpec, dataset: Dataset, options: SimulateOptions = {}): SimulationResult {
-  const model = getStructuralModel(spec.structure);
+  const model = structuralModelWithSolver(spec.structure, spec.solver);
   const problems: DataProblem[] = [];
   const grid = options.grid ? gridTimes(options.grid) : undefined;
   const bsvNames = model.parameterOrder.filter((p) => spec.parameters[p]?.bsv != null) as PkParameterName[];
