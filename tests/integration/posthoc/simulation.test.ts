@@ -164,6 +164,7 @@ describe('95 % Wald intervals from the SEs cover the truth (simulated, labelled)
         const se = r.standardErrors.seWorking[q];
         expect(se).not.toBeNull();
         total++;
+        // 1.959964 = the standard normal 97.5 % quantile (any statistics table; common practice).
         if (Math.abs(w[q] - truth[q]) <= 1.959964 * se!) inside++;
       }
     }
