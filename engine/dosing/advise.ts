@@ -68,7 +68,7 @@ export interface Advice {
   patient: { id: string; covariates: Record<string, CovariateValue>; derived: Record<string, string>; nDoses: number; nLevels: number; clockOrigin?: string; nextDoseH: number; nextDoseAssumed: boolean };
   model: ModelProvenance & { structure: string; covariatesUsed: Record<string, string> };
   target: TargetSpec;
-  posterior: ParameterSummary & { nDraws: number; diagnostics: SamplerDiagnostics; mapObjective: number; levels: Array<{ timeH: number; concMgL: number; censored: boolean; predictedMap: number; priorPredictiveP: number; iwres: number }> };
+  posterior: ParameterSummary & { nDraws: number; diagnostics: SamplerDiagnostics; mapObjective: number; levels: Array<{ timeH: number; concMgL: number; censored: boolean; predictedMap: number; priorPredictiveP: number; posteriorPredictiveP: number; iwres: number | null }> };
   regimens: RegimenResult[];
   /** Number of candidates evaluated (before ranking). */
   candidatesEvaluated: number;
@@ -126,11 +126,19 @@ export function adviseDose(o: AdviceOptions): Advice {
   const model = o.structuralModel ?? getStructuralModel(population.spec.structure);
   const warnings: AdviceWarning[] = [];
   for (const w of population.warnings) warnings.push({ severity: 'flag', code: 'model-provenance', message: w });
+  for (const c of population.checks ?? []) warnings.push({ severity: c.severity, code: c.code, message: c.message });
   const prov = `${population.provenance.name ?? ''} ${population.provenance.source ?? ''}`;
   if (/not for clinical use/i.test(prov)) warnings.push({ severity: 'block', code: 'example-model', message: 'the model is labelled "example, not for clinical use": its values are invented' });
   warnings.push(...fromPatientNotes(patient.notes));
 
-  if (patient.doses.some((d) => d.route === 'oral') && !('ka' in population.spec.parameters)) throw new AdviceError('the patient has oral doses but the model spec has no absorption rate ka; use a model with oral absorption');
+  const hasKa = 'ka' in population.spec.parameters;
+  const nOral = patient.doses.filter((d) => d.route === 'oral').length;
+  if (nOral > 0 && !hasKa)
+    throw new AdviceError(`the patient has ${nOral} oral dose(s) but the model "${population.provenance.name ?? population.spec.structure}" has no absorption rate ka (an IV model): it cannot describe oral doses; use a model with oral absorption, or check the dose routes in the patient file`);
+  if (nOral === 0 && hasKa) {
+    const unused = ['ka', 'F', 'tlag'].filter((k) => k in population.spec.parameters);
+    warnings.push({ severity: 'note', code: 'absorption-unused', message: `${unused.join(', ')} unused for IV doses: the model's absorption parameters do not apply to this patient's doses (all IV); its IV part (clearance, volumes) is used` });
+  }
   // Model covariates, resolved against the patient's names.
   const covValues = new Map<string, CovariateValue>();
   const covariatesUsed: Record<string, string> = Object.create(null);
@@ -164,7 +172,7 @@ export function adviseDose(o: AdviceOptions): Advice {
   const nDraws = draws.nDraws;
   warnings.push(...checkLevelTiming(patient.doses, patient.levels, prior.nEta, patient.levelKinds));
   if (obj.nLevels > 0) warnings.push(...checkSampler(map, draws.diagnostics, prior.etaNames));
-  const ppc = checkPredictive(prior, obj, map, root.stream('dosing', 'predictive-check'));
+  const ppc = checkPredictive(prior, obj, map, root.stream('dosing', 'predictive-check'), draws.eta, obj.nLevels > 0 ? nDraws : 0);
   warnings.push(...ppc.warnings);
   warnings.push(...checkRenalChange(patient.renal));
   const scr = patient.covariates.scr_mg_dL;
@@ -293,7 +301,7 @@ export function adviseDose(o: AdviceOptions): Advice {
       nDraws,
       diagnostics: draws.diagnostics,
       mapObjective: map.objective,
-      levels: patient.levels.map((l, j) => ({ timeH: l.timeH, concMgL: l.valueMgL, censored: l.censored, predictedMap: sig(fMap[j]), priorPredictiveP: sig(ppc.pValues[j], 3), iwres: sig(ppc.iwres[j], 3) })),
+      levels: patient.levels.map((l, j) => ({ timeH: l.timeH, concMgL: l.valueMgL, censored: l.censored, predictedMap: sig(fMap[j]), priorPredictiveP: sig(ppc.pValues[j], 3), posteriorPredictiveP: sig(ppc.posteriorP[j], 3), iwres: Number.isFinite(ppc.iwres[j]) ? sig(ppc.iwres[j], 3) : null })),
     },
     regimens: shown,
     candidatesEvaluated: results.length,

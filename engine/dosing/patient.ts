@@ -222,7 +222,9 @@ export function parsePatient(json: unknown): Patient {
     if (lloq !== undefined && !(finite(lloq) && lloq > 0)) problems.push(`${at}.lloq_mg_L: must be a number > 0`);
     if (!finite(conc)) {
       const other = Object.keys(r).find((k) => k.startsWith('conc'));
+      const given = ['conc_mg_L', 'conc_ug_mL', 'conc_ng_mL'].find((k) => r[k] !== undefined && r[k] !== null && r[k] !== '');
       if (censored === true && finite(lloq)) conc = lloq;
+      else if (given) problems.push(`${at}.${given}: must be a number, got ${JSON.stringify(r[given])} (not a number); give the measured level, or mark it censored with lloq_mg_L`);
       else if (other && !['conc_mg_L', 'conc_ug_mL', 'conc_ng_mL'].includes(other)) problems.push(`${at}.${other}: unknown unit; give conc_mg_L (mg/L = ug/mL) or conc_ng_mL`);
       else problems.push(`${at}.conc_mg_L: the measured level (mg/L) is missing`);
     } else if (conc < 0) problems.push(`${at}.conc_mg_L: a level cannot be negative`);

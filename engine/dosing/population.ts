@@ -5,6 +5,7 @@
  * the covariate ranges it was built on.
  */
 import { parseModelSpec, type ModelSpec } from '../spec/modelSpec.js';
+import { parseFitSubjects, type FitSubjectPosterior } from './posterior.js';
 
 export interface ModelProvenance {
   kind: 'site fit' | 'model spec';
@@ -23,9 +24,22 @@ export interface PopulationModel {
   provenance: ModelProvenance;
   /** Covariate name -> [min, max] the model was built on; null when unknown. */
   covariateRanges: Record<string, [number, number]> | null;
-  /** Problems with the model as a prior (unknown ranges, no source). */
+  /** Problems with the model as a prior (no source, poorly estimated values); shown as flags. */
   warnings: string[];
+  /** Checks of a fit's fitness as a prior, with their severity (a fit that says "do not use" blocks). */
+  checks?: ModelCheck[];
+  /** A site fit's subjects (id -> post-fit draws and the levels the fit saw); absent for a model spec. */
+  fitSubjects?: ReadonlyMap<string, FitSubjectPosterior>;
 }
+
+export interface ModelCheck {
+  severity: 'block' | 'flag' | 'note';
+  code: string;
+  message: string;
+}
+
+/** BSV (SD on the transformed scale) below this has collapsed: the prior pins the patient to the typical value (common practice). */
+export const COLLAPSED_BSV = 0.01;
 
 export class PopulationModelError extends Error {
   readonly problems: readonly string[];
@@ -63,7 +77,6 @@ function parseRanges(raw: unknown, at: string, problems: string[]): Record<strin
 export function populationModelFromSpec(spec: ModelSpec): PopulationModel {
   const warnings: string[] = [];
   if (!spec.source) warnings.push('the model spec has no "source": record where the model comes from (publication, site fit) before using it for dosing');
-  if (!spec.covariateRanges) warnings.push('the model spec gives no covariateRanges: whether this patient lies inside the population the model was built on cannot be checked');
   return {
     spec,
     provenance: { kind: 'model spec', ...(spec.name ? { name: spec.name } : {}), ...(spec.source ? { source: spec.source } : {}) },
@@ -94,7 +107,10 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
   const seenTypical = new Set<string>();
   (fit.population as unknown[]).forEach((e, i) => {
     const at = `population[${i}]`;
-    if (!isRecord(e) || typeof e.parameter !== 'string' || !finite(e.estimate)) return void problems.push(`${at}: must be {parameter, kind, estimate}`);
+    if (!isRecord(e) || typeof e.parameter !== 'string') return void problems.push(`${at}: must be {parameter, kind, estimate}`);
+    // JSON writes NaN and Infinity as null: a non-finite estimate means the fit failed.
+    if (!finite(e.estimate))
+      return void problems.push(`${at}: the estimate of ${String(e.kind)} ${e.parameter} is not finite (${JSON.stringify(e.estimate ?? null)}): the fit failed and cannot be used as a prior; refit the model`);
     const name = e.parameter;
     const est = e.estimate;
     switch (e.kind) {
@@ -142,9 +158,8 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
   if (problems.length) throw new PopulationModelError(problems);
   const warnings: string[] = [];
   const covariateRanges = ranges ?? spec.covariateRanges ?? null;
-  if (!covariateRanges) warnings.push('the fit carries no covariate ranges of its dataset: whether this patient lies inside the fitted population cannot be checked');
   const fitWarnings = Array.isArray(fit.warnings) ? fit.warnings.map((w) => (typeof w === 'string' ? w : JSON.stringify(w))) : [];
-  if (fitWarnings.length) warnings.push(`the fit reported ${fitWarnings.length} warning(s): review them before using it for dosing`);
+  const checks = fitChecks(fit, fitWarnings);
   // Poorly estimated population values make the prior unreliable (50 % RSE: common practice).
   for (const e of fit.population as Array<Record<string, unknown>>) {
     if (isRecord(e) && finite(e.rsePercent) && e.rsePercent > 50)
@@ -171,5 +186,33 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
     },
     covariateRanges,
     warnings,
+    checks,
+    fitSubjects: parseFitSubjects(fit),
   };
+}
+
+/**
+ * Is the fit fit to be a prior? A fit whose own record says not to use it blocks; an exploration
+ * that hit its iteration cap, missing standard errors and a collapsed BSV are flagged by name.
+ * Every warning the fit reported is listed with its text.
+ */
+function fitChecks(fit: Record<string, unknown>, fitWarnings: readonly string[]): ModelCheck[] {
+  const out: ModelCheck[] = [];
+  for (const w of fitWarnings) {
+    if (/do not use/i.test(w)) out.push({ severity: 'block', code: 'fit-unusable', message: `the fit's record says it must not be used: "${w}"; refit the model before using it for dosing` });
+    else out.push({ severity: 'flag', code: 'fit-warning', message: `the fit reported: "${w}"` });
+  }
+  const tr = isRecord(fit.trajectory) ? fit.trajectory : undefined;
+  if (tr && tr.explorationSettled === false)
+    out.push({ severity: 'flag', code: 'fit-cap-reached', message: `the fit's exploration phase hit its iteration cap (${finite(tr.explorationEnd) ? `${tr.explorationEnd} iterations` : 'cap'}) without settling: the estimates may not have converged; refit with more iterations before relying on this prior` });
+  const unc = isRecord(fit.uncertainty) ? fit.uncertainty : undefined;
+  const pop = (fit.population as unknown[]).filter(isRecord);
+  const noSe = pop.filter((e) => e.fixed !== true && !finite(e.se)).map((e) => `${String(e.kind)} ${String(e.parameter)}${typeof e.covariate === 'string' ? `~${e.covariate}` : ''}`);
+  if (!unc) out.push({ severity: 'flag', code: 'fit-no-se', message: 'the fit carries no standard errors (no uncertainty section): how well its population values are determined is unknown; run the post-fit step (plateau fit computes it) before relying on this prior' });
+  else if (unc.ok !== true) out.push({ severity: 'flag', code: 'fit-no-se', message: `the fit's standard errors could not be computed (uncertainty.ok is ${JSON.stringify(unc.ok ?? null)}${finite(unc.conditionNumber) ? `, condition number ${Number(unc.conditionNumber.toPrecision(3))}` : ''}): the model may be over-parameterised or not identifiable from its data` });
+  else if (noSe.length) out.push({ severity: 'flag', code: 'fit-no-se', message: `the fit has no standard error for ${noSe.join(', ')}: how well those values are determined is unknown` });
+  for (const e of pop)
+    if (e.kind === 'bsv' && finite(e.estimate) && e.estimate < COLLAPSED_BSV)
+      out.push({ severity: 'flag', code: 'fit-bsv-collapsed', message: `the fit's BSV of ${String(e.parameter)} collapsed to ${Number(e.estimate.toPrecision(2))} (< ${COLLAPSED_BSV} on the transformed scale): the prior holds ${String(e.parameter)} at its typical value, so this patient's levels can barely move it; the fit probably did not converge, or its data do not inform that BSV` });
+  return out;
 }

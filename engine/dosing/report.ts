@@ -57,8 +57,8 @@ export function formatAdvice(a: Advice, maxRegimens = 10): string {
   out.push(`  ${pad('parameter', 10)}${pad('typical', 10)}${pad('MAP', 10)}${pad('mean', 10)}${pad('SD', 10)}${pad('5 %', 10)}95 %`);
   for (const name of Object.keys(p.map)) out.push(`  ${pad(name, 10)}${pad(f(p.typical[name]), 10)}${pad(f(p.map[name]), 10)}${pad(f(p.mean[name]), 10)}${pad(f(p.sd[name]), 10)}${pad(f(p.q05[name]), 10)}${f(p.q95[name])}`);
   if (p.levels.length) {
-    out.push('  levels: time h, measured mg/L, MAP prediction, prior predictive P, standardised residual');
-    for (const l of p.levels) out.push(`    ${pad(f(l.timeH), 8)}${pad((l.censored ? '<' : '') + f(l.concMgL), 10)}${pad(f(l.predictedMap), 10)}${pad(f(l.priorPredictiveP), 8)}${f(l.iwres)}`);
+    out.push('  levels: time h, measured mg/L, MAP prediction, prior / posterior predictive P(y_rep <= y), IWRES at the MAP');
+    for (const l of p.levels) out.push(`    ${pad(f(l.timeH), 8)}${pad((l.censored ? '<' : '') + f(l.concMgL), 10)}${pad(f(l.predictedMap), 10)}${pad(f(l.priorPredictiveP), 8)}${pad(f(l.posteriorPredictiveP), 8)}${l.censored ? '-' : l.iwres === null ? 'extreme' : f(l.iwres)}`);
   }
   out.push('');
   if (a.warnings.length) {

@@ -5,6 +5,7 @@
  */
 import type { Dose, Observation } from '../data/types.js';
 import type { RngStream } from '../rng/index.js';
+import { normalCdf } from '../rng/index.js';
 import { residualSd } from '../stats/residual.js';
 import type { LevelKind, PatientNote, RenalRecord } from './patient.js';
 import type { LevelObjective, MapResult, SamplerDiagnostics } from './posterior.js';
@@ -22,7 +23,7 @@ const fmt = (x: number) => (Math.abs(x) >= 100 ? x.toFixed(0) : String(Number(x.
 
 /** Patient covariates against the ranges the model was built on. */
 export function checkCovariateRanges(values: ReadonlyMap<string, unknown>, ranges: Record<string, [number, number]> | null): AdviceWarning[] {
-  if (!ranges) return [{ severity: 'flag', code: 'ranges-unknown', message: 'the model carries no covariate ranges: this patient may lie outside the population it was built on' }];
+  if (!ranges) return [{ severity: 'flag', code: 'ranges-unknown', message: 'the model carries no covariate ranges (model spec: "covariateRanges"; fit: the fitted data\'s ranges): whether this patient lies inside the population the model was built on cannot be checked' }];
   const out: AdviceWarning[] = [];
   for (const [name, [lo, hi]] of Object.entries(ranges)) {
     const v = values.get(name);
@@ -71,22 +72,67 @@ export function checkLevelTiming(doses: readonly Dose[], levels: readonly Observ
   return out;
 }
 
+/** Rule of the level-consistency check (stated in every warning it gives). */
+export const CONSISTENCY_RULE = {
+  /** BLOCK: |IWRES| at the MAP above this, or a prior or posterior predictive tail probability below blockP. */
+  blockIwres: 4,
+  blockP: 0.001,
+  /** BLOCK also when the level and its MAP prediction differ more than this factor with |IWRES| above foldMinIwres. */
+  fold: 10,
+  foldMinIwres: 1,
+  /** FLAG: |IWRES| above this, or a predictive tail probability below flagP. */
+  flagIwres: 3,
+  flagP: 0.01,
+} as const;
+
+const RULE_TEXT = `rule: BLOCK when |IWRES| > ${CONSISTENCY_RULE.blockIwres}, a prior or posterior predictive tail P < ${CONSISTENCY_RULE.blockP}, or a ${CONSISTENCY_RULE.fold}-fold gap to the MAP prediction with |IWRES| > ${CONSISTENCY_RULE.foldMinIwres}; FLAG when |IWRES| > ${CONSISTENCY_RULE.flagIwres} or a tail P < ${CONSISTENCY_RULE.flagP}`;
+
+/** P(y_rep <= y | f) under the residual error model (exact, no simulation). */
+function residualCdf(rm: PatientPrior['residual']['model'], a: number, b: number, f: number, y: number): number {
+  if (rm === 'log-additive') {
+    if (!(f > 0)) return y > 0 ? 1 : 0.5;
+    return y > 0 ? normalCdf((Math.log(y) - Math.log(f)) / a) : 0;
+  }
+  const sd = residualSd(rm, a, b, f);
+  if (!(sd > 0)) return y > f ? 1 : y < f ? 0 : 0.5;
+  return normalCdf((y - f) / sd);
+}
+
+export interface PredictiveCheck {
+  warnings: AdviceWarning[];
+  /** Prior predictive P(y_rep <= y) per level. */
+  pValues: number[];
+  /** Posterior predictive P(y_rep <= y) per level (the posterior draws with the residual error). */
+  posteriorP: number[];
+  /** Standardised residual at the MAP; +-Infinity when the MAP prediction cannot produce the level at all, NaN for censored levels. */
+  iwres: number[];
+}
+
 /**
- * Prior predictive check: how extreme each level is under the model for this patient before
- * seeing any level (simulated p-values); and the standardised residuals at the MAP.
+ * Level consistency. For each level: the standardised residual at the MAP (IWRES), the prior
+ * predictive and the posterior predictive tail probabilities, P(y_rep <= y) averaged over the
+ * draws with the residual error's distribution (Gelman, Meng & Stern, Stat Sinica 1996;6:733-807,
+ * from memory). A level far outside the model even after fitting (a prior that cannot bend to
+ * it, e.g. a collapsed BSV) is caught by the posterior check and the IWRES, which the prior
+ * check alone can miss.
  */
-export function checkPredictive(prior: PatientPrior, obj: LevelObjective, map: MapResult, rng: RngStream, nSim = 1000): { warnings: AdviceWarning[]; pValues: number[]; iwres: number[] } {
+export function checkPredictive(prior: PatientPrior, obj: LevelObjective, map: MapResult, rng: RngStream, posteriorEta?: Float64Array, nPosteriorDraws = 0, nSim = 1000): PredictiveCheck {
   const out: AdviceWarning[] = [];
   const n = obj.nLevels;
-  if (n === 0) return { warnings: out, pValues: [], iwres: [] };
+  if (n === 0) return { warnings: out, pValues: [], posteriorP: [], iwres: [] };
   const d = prior.nEta;
   const eta = new Float64Array(d);
   const z = new Float64Array(d);
   const f = new Float64Array(n);
-  const below = new Float64Array(n);
-  let ok = 0;
   const { model: rm, a, b } = prior.residual;
   const L = prior.omegaChol;
+  const refOf = (j: number) => {
+    const o = obj.levels[j];
+    return o.censored ? (o.lloqMgL ?? o.valueMgL) : o.valueMgL;
+  };
+  // Prior predictive: eta from the prior, the residual integrated exactly.
+  const priorSum = new Float64Array(n);
+  let priorOk = 0;
   for (let s = 0; s < nSim; s++) {
     rng.fillNormal(z);
     for (let i = 0; i < d; i++) {
@@ -95,43 +141,68 @@ export function checkPredictive(prior: PatientPrior, obj: LevelObjective, map: M
       eta[i] = v;
     }
     if (!obj.predict(eta, f)) continue;
-    ok++;
-    for (let j = 0; j < n; j++) {
-      const o = obj.levels[j];
-      const e = rng.normal();
-      const yRep = rm === 'log-additive' ? f[j] * Math.exp(a * e) : f[j] + residualSd(rm, a, b, f[j]) * e;
-      const ref = o.censored ? (o.lloqMgL ?? o.valueMgL) : o.valueMgL;
-      if (yRep < ref) below[j]++;
-    }
+    priorOk++;
+    for (let j = 0; j < n; j++) priorSum[j] += residualCdf(rm, a, b, f[j], refOf(j));
   }
-  const pValues: number[] = [];
-  for (let j = 0; j < n; j++) {
-    const o = obj.levels[j];
-    const p = ok ? below[j] / ok : NaN;
-    pValues.push(p);
-    const at = `level ${fmt(o.valueMgL)} mg/L at ${fmt(o.timeH)} h`;
-    const tail = Math.min(p, 1 - p);
-    const side = o.censored ? 'below the LLOQ, where the model predicts it clearly above' : p < 0.5 ? 'lower than the model allows for this patient' : 'higher than the model allows for this patient';
-    if (o.censored) {
-      if (p < 0.001) out.push({ severity: 'block', code: 'level-inconsistent', message: `${at} is ${side} (prior predictive P < 0.001): check the sample time, the dose record and the assay, or whether this model describes this patient` });
-      continue;
-    }
-    if (tail < 0.001) out.push({ severity: 'block', code: 'level-inconsistent', message: `${at} is far ${side} (prior predictive P = ${p.toFixed(4)}): check the sample time, the dose record, the unit and the assay, or whether this model describes this patient` });
-    else if (tail < 0.01) out.push({ severity: 'flag', code: 'level-unusual', message: `${at} is ${side} (prior predictive P = ${p.toFixed(3)}): check the sample and dose times` });
+  // Posterior predictive: the posterior draws (or the MAP alone when none are given).
+  const postSum = new Float64Array(n);
+  let postOk = 0;
+  const nPost = posteriorEta && nPosteriorDraws > 0 ? nPosteriorDraws : 1;
+  for (let k = 0; k < nPost; k++) {
+    if (posteriorEta && nPosteriorDraws > 0) for (let i = 0; i < d; i++) eta[i] = posteriorEta[k * d + i];
+    else eta.set(map.eta);
+    if (!obj.predict(eta, f)) continue;
+    postOk++;
+    for (let j = 0; j < n; j++) postSum[j] += residualCdf(rm, a, b, f[j], refOf(j));
   }
   const iwres: number[] = [];
-  if (obj.predict(map.eta, f))
-    for (let j = 0; j < n; j++) {
-      const o = obj.levels[j];
-      if (o.censored) {
-        iwres.push(NaN);
-        continue;
-      }
-      const r = rm === 'log-additive' ? (Math.log(o.valueMgL) - Math.log(f[j])) / a : (o.valueMgL - f[j]) / residualSd(rm, a, b, f[j]);
-      iwres.push(r);
-      if (Math.abs(r) > 3) out.push({ severity: 'flag', code: 'level-poorly-fitted', message: `level ${fmt(o.valueMgL)} mg/L at ${fmt(o.timeH)} h is not explained by the patient's estimate (standardised residual ${r.toFixed(1)}): check its time, or whether the patient changed (renal function, fluid)` });
+  const mapOk = obj.predict(map.eta, f);
+  for (let j = 0; j < n; j++) {
+    const o = obj.levels[j];
+    if (o.censored || !mapOk) {
+      iwres.push(NaN);
+      continue;
     }
-  return { warnings: out, pValues, iwres };
+    let r: number;
+    if (rm === 'log-additive') r = f[j] > 0 ? (Math.log(o.valueMgL) - Math.log(f[j])) / a : Infinity;
+    else {
+      const sd = residualSd(rm, a, b, f[j]);
+      r = sd > 0 ? (o.valueMgL - f[j]) / sd : o.valueMgL === f[j] ? 0 : (o.valueMgL - f[j]) * Infinity;
+    }
+    iwres.push(r === r ? r : Infinity);
+  }
+  const pValues: number[] = [];
+  const posteriorP: number[] = [];
+  for (let j = 0; j < n; j++) {
+    const o = obj.levels[j];
+    const pPrior = priorOk ? priorSum[j] / priorOk : NaN;
+    const pPost = postOk ? postSum[j] / postOk : NaN;
+    pValues.push(pPrior);
+    posteriorP.push(pPost);
+    const at = `level ${o.censored ? '<' : ''}${fmt(o.valueMgL)} mg/L at ${fmt(o.timeH)} h`;
+    if (!mapOk || !(pPost === pPost)) {
+      out.push({ severity: 'block', code: 'level-inconsistent', message: `${at}: the model could not predict this level for this patient (the prediction failed), so its consistency cannot be checked; check the dose record and the model` });
+      continue;
+    }
+    const r = iwres[j];
+    // Censored levels: only "the model predicts it clearly above the LLOQ" is inconsistent.
+    const tailPost = o.censored ? pPost : Math.min(pPost, 1 - pPost);
+    const tailPrior = o.censored ? pPrior : Math.min(pPrior, 1 - pPrior);
+    const high = o.censored ? false : pPost > 0.5;
+    const side = o.censored ? 'below the LLOQ where the model predicts it clearly above' : high ? 'higher than the model can explain for this patient' : 'lower than the model can explain for this patient';
+    const tailText = (t: number) => (t === t ? (t < 1e-4 ? '< 0.0001' : `= ${Number(t.toPrecision(2))}`) : 'n/a');
+    const rel = o.censored ? 'y_rep <= LLOQ' : high ? 'y_rep >= y' : 'y_rep <= y';
+    const fig = `MAP prediction ${fmt(f[j])} mg/L${o.censored ? '' : `, IWRES ${Number.isFinite(r) ? r.toFixed(1) : r > 0 ? '+inf' : '-inf'}`}, posterior predictive P(${rel}) ${tailText(tailPost)}, prior predictive P ${tailText(tailPrior)}`;
+    const absR = o.censored ? 0 : Math.abs(r);
+    const tp = tailPrior === tailPrior ? tailPrior : 1;
+    // A ten-fold gap between the level and its fitted value is implausible whatever the error model says.
+    const fold = !o.censored && absR > CONSISTENCY_RULE.foldMinIwres && (f[j] * CONSISTENCY_RULE.fold < o.valueMgL || o.valueMgL * CONSISTENCY_RULE.fold < f[j]);
+    if (fold || absR > CONSISTENCY_RULE.blockIwres || tailPost < CONSISTENCY_RULE.blockP || tp < CONSISTENCY_RULE.blockP)
+      out.push({ severity: 'block', code: 'level-inconsistent', message: `${at} is far ${side} (${fig}; ${RULE_TEXT}): check the sample time, the dose record, the unit and the assay, or whether this model describes this patient` });
+    else if (absR > CONSISTENCY_RULE.flagIwres || tailPost < CONSISTENCY_RULE.flagP || tp < CONSISTENCY_RULE.flagP)
+      out.push({ severity: 'flag', code: 'level-unusual', message: `${at} is ${side} (${fig}; ${RULE_TEXT}): check its time and the dose times, or whether the patient changed (renal function, fluid)` });
+  }
+  return { warnings: out, pValues, posteriorP, iwres };
 }
 
 /** MAP and sampler diagnostics. */
