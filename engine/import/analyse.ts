@@ -49,11 +49,13 @@ export function analyseWorkbook(bytes: Uint8Array, options: AnalyseOptions = {})
       summary: { patients: 0, doses: 0, levels: 0, censored: 0, excludedRows: 0 },
       problems: [{ sheet: '', row: 0, column: '', value: '', severity: 'error', message: `no sheet with a patient id and doses, levels or covariates was recognised (${skippedSheets.join('; ') || 'the file has no data'}): make a mapping by hand` }],
       excluded: [],
-      notes: [],
+      notes: skippedSheets.map((s) => `Left out: ${s}.`),
     };
     return { preview, mapping: template, suggested, skippedSheets, dataset: undefined, report };
   }
   const result = importWorkbook(model, template);
+  // Sheets the suggestion left out are named in the report too, with the reason.
+  for (const s of skippedSheets) result.report.notes.push(`Left out: ${s}.`);
   return { preview, mapping: result.report.mapping, suggested, skippedSheets, dataset: result.dataset, report: result.report };
 }
 

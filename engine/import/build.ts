@@ -12,7 +12,8 @@
 import { createDataset, type SubjectInput } from '../data/dataset.js';
 import { DataError, type CovariateValue, type Dataset, type Dose, type Observation, type Route } from '../data/types.js';
 import type { Cell, WorkbookModel } from './workbook.js';
-import { bindTemplate, refreshTemplate, type BoundColumn, type BoundSheet, type MappingTemplate, type ReportProblem, type Role } from './roles.js';
+import { bindTemplate, columnLabel, refreshTemplate, type BoundColumn, type BoundSheet, type MappingTemplate, type ReportProblem, type Role } from './roles.js';
+import { cockcroftGault, scrUmolToMgDl, COCKCROFT_GAULT_LABEL } from '../dosing/renal.js';
 import {
   buildCommentMatcher,
   cellText,
@@ -68,21 +69,25 @@ export interface ImportResult {
   report: ImportReport;
 }
 
-/** Standard covariate names in the dataset (units in the name, per DEVELOPERS.md). */
+/**
+ * Canonical covariate names of the dataset, as model specs and patient files use them (unit in
+ * the name). Serum creatinine is stored in umol/L.
+ */
 export const COVARIATE_NAMES = {
-  weight: 'weightKg',
-  height: 'heightCm',
-  age: 'ageY',
+  weight: 'weight_kg',
+  height: 'height_cm',
+  age: 'age_y',
   sex: 'sex',
-  creatinine: 'creatinineUmolL',
+  creatinine: 'scr_umol_L',
+  crcl: 'crcl_mL_min',
 } as const;
 
 /** Plausible adult and paediatric ranges (common practice); outside them a warning is given. */
 const PLAUSIBLE = {
-  weightKg: [0.3, 350],
-  heightCm: [25, 250],
-  ageY: [0, 120],
-  creatinineUmolL: [10, 2000],
+  weight: [0.3, 350],
+  height: [25, 250],
+  age: [0, 120],
+  creatinine: [10, 2000],
 } as const;
 
 const MS_H = 3_600_000;
@@ -131,8 +136,13 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
   const notes: string[] = [
     'Times are taken as written (the ward clock): no time zone is applied and clock changes are not corrected; an interval across a daylight-saving change is reported.',
   ];
-  const { bound, problems: bindProblems } = bindTemplate(model, template);
+  const { bound, unbound, problems: bindProblems } = bindTemplate(model, template);
   problems.push(...bindProblems);
+  // A sheet that cannot be imported: every row with content is listed, none vanishes.
+  for (const u of unbound)
+    for (let r = u.headerIndex + 1; r < u.sheet.rows.length; r++)
+      if ((u.sheet.rows[r] ?? []).some((c) => !isBlank(c))) excluded.push({ sheet: u.sheet.name, row: r + 1, reason: `sheet not imported: ${u.reason}` });
+  for (const b of bound) notes.push(...ignoredColumnNotes(b));
   const opts = template.options;
   const matcher = buildCommentMatcher(opts.excludeCommentWords);
   const molarMass = opts.molarMassGPerMol ?? (opts.drug ? lookupMolarMass(opts.drug) : undefined);
@@ -176,7 +186,10 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
           any = true;
           break;
         }
-      if (!any) continue;
+      if (!any) {
+        if (cells.some((c) => !isBlank(c))) excluded.push({ sheet: sheetName, row: r + 1, reason: 'no value in any mapped column (only in ignored columns)' });
+        continue;
+      }
       const ctx: RowCtx = { sheet: sheetName, row: r + 1, cells, errors: 0 };
       const pid = cellText(cells[cPid.index]);
       if (pid === '') {
@@ -257,6 +270,13 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
     problems.push({ sheet: e.sheet, row: e.row, column: e.timeColumn, value, severity, message });
 
   const ordered = [...patients.values()].sort((a, b) => a.order - b.order);
+  // Derive CrCl only from columns mapped as weight/age/sex/creatinine, and only when no CrCl column is given.
+  const deriveCrcl =
+    bound.some((b) => b.columns.has('creatinine')) &&
+    !bound.some((b) => b.covariates.some((c) => (c.mapping.name ?? c.mapping.header) === COVARIATE_NAMES.crcl));
+  let derivedCrcl = 0;
+  const crclMissing: string[] = [];
+  const timelines: PendingEvent[][] = [];
   for (const pat of ordered) {
     const events = pat.events;
     if (events.length === 0) {
@@ -319,6 +339,7 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
       timeline.push(e);
     }
     if (timeline.length === 0) continue;
+    timelines.push(timeline);
 
     // Gaps that suggest a wrong date; clock changes; the skipped hour.
     for (let i = 1; i < timeline.length; i++) {
@@ -374,9 +395,22 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
         problems.push({ sheet: pat.birthMs.sheet, row: pat.birthMs.row, column: pat.birthMs.column, value: wallMsToIso(pat.birthMs.ms).slice(0, 10), severity: 'error', message: `birth date is after patient ${pat.id}'s first event: check the date` });
       } else if (!pat.covariates.has(COVARIATE_NAMES.age)) {
         pat.covariates.set(COVARIATE_NAMES.age, { value: Math.round(ageY * 100) / 100, sheet: pat.birthMs.sheet, row: pat.birthMs.row, column: pat.birthMs.column });
-        if (ageY > PLAUSIBLE.ageY[1])
+        if (ageY > PLAUSIBLE.age[1])
           problems.push({ sheet: pat.birthMs.sheet, row: pat.birthMs.row, column: pat.birthMs.column, value: wallMsToIso(pat.birthMs.ms).slice(0, 10), severity: 'warning', message: `age ${ageY.toFixed(0)} years from the birth date is outside plausible human ages: check the birth date` });
       }
+    }
+    if (deriveCrcl) {
+      const w = pat.covariates.get(COVARIATE_NAMES.weight)?.value;
+      const a = pat.covariates.get(COVARIATE_NAMES.age)?.value;
+      const sx = pat.covariates.get(COVARIATE_NAMES.sex)?.value;
+      const scr = pat.covariates.get(COVARIATE_NAMES.creatinine);
+      if (typeof w === 'number' && typeof a === 'number' && (sx === 'M' || sx === 'F') && scr && typeof scr.value === 'number') {
+        const crcl = cockcroftGault({ ageY: a, weightKg: w, scrMgDl: scrUmolToMgDl(scr.value), sex: sx });
+        if (Number.isFinite(crcl)) {
+          pat.covariates.set(COVARIATE_NAMES.crcl, { value: Math.round(crcl * 100) / 100, sheet: scr.sheet, row: scr.row, column: scr.column });
+          derivedCrcl++;
+        } else problems.push({ sheet: scr.sheet, row: scr.row, column: scr.column, value: String(scr.value), severity: 'warning', message: `patient ${pat.id}: creatinine clearance cannot be derived (age ${a}, weight ${w} kg, creatinine ${scr.value} umol/L are outside the Cockcroft-Gault formula's domain)` });
+      } else if (scr) crclMissing.push(pat.id);
     }
     for (const [name, entry] of pat.covariates) {
       covariates[name] = entry.value;
@@ -396,11 +430,16 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
       if (!(e instanceof DataError)) throw e;
       // Should not happen (every field is checked above); report rather than lose the rows.
       for (const p of e.problems) problems.push({ sheet: '', row: p.row ?? 0, column: p.field ?? '', value: '', severity: 'error', message: `${p.subject ? `patient ${p.subject}: ` : ''}${p.message}` });
+      for (const tl of timelines) for (const ev of tl) rowExcluded(ev.sheet, ev.row, 'the dataset could not be built (see problems)');
     }
   } else {
     problems.push({ sheet: '', row: 0, column: '', value: '', severity: 'error', message: 'no usable dose or level rows: check the mapping (sheets, columns and roles) against the file' });
   }
 
+  if (derivedCrcl > 0)
+    notes.push(`${COVARIATE_NAMES.crcl} was derived for ${derivedCrcl} patient(s): ${COCKCROFT_GAULT_LABEL}, CrCl = (140 - age) x weight / (72 x SCr mg/dL), x 0.85 for women, with SCr umol/L / 88.4 = mg/dL (Cockcroft & Gault 1976); no CrCl column was given.`);
+  if (crclMissing.length > 0)
+    notes.push(`${COVARIATE_NAMES.crcl} was not derived for ${crclMissing.length} patient(s) with a creatinine but without weight, age (or birth date) and sex: ${crclMissing.slice(0, 10).join(', ')}${crclMissing.length > 10 ? ', ...' : ''}.`);
   const sheetOrder = new Map(model.sheets.map((s, i) => [s.name, i]));
   problems.sort((a, b) => (sheetOrder.get(a.sheet) ?? -1) - (sheetOrder.get(b.sheet) ?? -1) || a.row - b.row);
   excluded.sort((a, b) => (sheetOrder.get(a.sheet) ?? -1) - (sheetOrder.get(b.sheet) ?? -1) || a.row - b.row);
@@ -716,7 +755,9 @@ function readCovariates(b: BoundSheet, ctx: RowCtx, pat: PatientAcc, problem: Pr
       problem(ctx, col, 'warning', `patient ${pat.id}'s ${name} changes (${prev.value} in ${prev.sheet} row ${prev.row}, ${value} here): covariates are constant per patient, the first value is used`);
     }
   };
-  const numeric = (role: 'weight' | 'height' | 'age' | 'creatinine', name: string, factorOf: (u: string) => Parsed<number>, range: readonly [number, number], unitRole?: Role) => {
+  const numeric = (role: 'weight' | 'height' | 'age' | 'creatinine', unitLabel: string, factorOf: (u: string) => Parsed<number>, unitRole?: Role) => {
+    const name = COVARIATE_NAMES[role];
+    const range = PLAUSIBLE[role];
     const col = b.columns.get(role);
     if (!col || isBlank(cells[col.index])) return;
     const n = parseNumberCell(cells[col.index]);
@@ -727,13 +768,13 @@ function readCovariates(b: BoundSheet, ctx: RowCtx, pat: PatientAcc, problem: Pr
     if (!f.ok) return problem(ctx, unit.col, 'error', f.message, unit.unit);
     const value = Math.round(n.value * f.value * 1e6) / 1e6;
     if (value < range[0] || value > range[1])
-      problem(ctx, col, 'warning', `${role} ${value} ${name.replace(/^[a-z]+/, '')} is outside the plausible human range ${range[0]}-${range[1]}: check the value and its unit`);
+      problem(ctx, col, 'warning', `${role} ${value} ${unitLabel} is outside the plausible human range ${range[0]}-${range[1]}: check the value and its unit`);
     setCov(col.mapping.name ?? name, value, col, false);
   };
-  numeric('weight', COVARIATE_NAMES.weight, weightFactorToKg, PLAUSIBLE.weightKg);
-  numeric('height', COVARIATE_NAMES.height, heightFactorToCm, PLAUSIBLE.heightCm);
-  numeric('age', COVARIATE_NAMES.age, (u) => (u === '' || /^(y|yr|yrs|year|years|jahre|ans|jaar)$/i.test(u.trim()) ? { ok: true, value: 1 } : { ok: false, message: `unknown age unit "${u}" (years)` }), PLAUSIBLE.ageY);
-  numeric('creatinine', COVARIATE_NAMES.creatinine, (u) => (u === '' ? { ok: false, message: 'the creatinine unit is missing: add a unit column or set the unit (umol/L or mg/dL) in the mapping' } : creatinineFactorToUmolL(u)), PLAUSIBLE.creatinineUmolL, 'creatinineUnit');
+  numeric('weight', 'kg', weightFactorToKg);
+  numeric('height', 'cm', heightFactorToCm);
+  numeric('age', 'years', (u) => (u === '' || /^(y|yr|yrs|year|years|jahre|ans|jaar)$/i.test(u.trim()) ? { ok: true, value: 1 } : { ok: false, message: `unknown age unit "${u}" (years)` }));
+  numeric('creatinine', 'umol/L', (u) => (u === '' ? { ok: false, message: 'the creatinine unit is missing: add a unit column or set the unit (umol/L or mg/dL) in the mapping' } : creatinineFactorToUmolL(u)), 'creatinineUnit');
 
   const cs = b.columns.get('sex');
   if (cs && !isBlank(cells[cs.index])) {
@@ -757,4 +798,28 @@ function readCovariates(b: BoundSheet, ctx: RowCtx, pat: PatientAcc, problem: Pr
     const n = parseNumberCell(cell);
     setCov(name, n.ok ? n.value : cellText(cell).slice(0, 200), col, false);
   }
+}
+
+/** Columns of a bound sheet that are not imported, each named with the reason (nothing is left out silently). */
+function ignoredColumnNotes(b: BoundSheet): string[] {
+  const out: string[] = [];
+  const header = b.sheet.rows[b.headerIndex] ?? [];
+  const used = new Set<number>([...b.columns.values(), ...b.covariates].map((c) => c.index));
+  const unitRoles = new Set<number>();
+  for (const r of ['doseUnit', 'levelUnit', 'creatinineUnit'] as const) {
+    const c = b.columns.get(r);
+    if (c) unitRoles.add(c.index);
+  }
+  const noteByHeader = new Map<string, string>();
+  for (const c of b.mapping.columns) if (c.role === 'ignore' && c.note) noteByHeader.set(c.header.trim(), c.note);
+  for (let i = 0; i < header.length; i++) {
+    if (used.has(i) || unitRoles.has(i)) continue;
+    const text = header[i]?.text.trim() ?? '';
+    let hasValue = false;
+    for (let r = b.headerIndex + 1; r < b.sheet.rows.length && !hasValue; r++) if (!isBlank(b.sheet.rows[r]?.[i])) hasValue = true;
+    if (text === '' && !hasValue) continue;
+    const why = noteByHeader.get(text) ?? (b.mapping.columns.some((c) => c.header.trim() === text) ? 'mapped as ignore' : 'not in the mapping');
+    out.push(`Sheet "${b.sheet.name}", column ${columnLabel(i, text)} is not imported: ${why}${hasValue ? '' : ' (no values)'}.`);
+  }
+  return out;
 }

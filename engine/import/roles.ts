@@ -54,6 +54,8 @@ export interface ColumnMapping {
   unit?: string;
   /** Column type when the mapping was made; a change is reported. */
   type?: ColumnType;
+  /** Why the column is ignored (or how it was mapped), for the report. */
+  note?: string;
 }
 
 export interface SheetMapping {
@@ -105,6 +107,9 @@ export function defaultOptions(): ImportOptions {
 /** Words that name the moment of an event; they mean a date-time only in a column of dates. */
 const EVENT_TIME_WORDS = /(collected|collection|sampled|given at|administered|drawn|horodatage|abnahme|entnahme|prelevement|^when$|^wann$|^quand$|^moment$)/;
 
+/** Creatinine clearance columns (checked before creatinine itself). */
+const CRCL_HEADER = /(crcl|clcr|creatinine clearance|kreatinin.?clearance|clairance)/;
+
 /** Header patterns in priority order (first match wins). Folded text: lower case, no accents. */
 const HEADER_RULES: readonly [Role, RegExp][] = [
   ['birthDate', /(birth|\bdob\b|geburt|naissance|geboorte|nacimiento|nascita)/],
@@ -113,6 +118,7 @@ const HEADER_RULES: readonly [Role, RegExp][] = [
   ['levelUnit', /(level|result|conc|value|wert).*(unit|einheit|unite|eenheid)/],
   ['censoredFlag', /^(censored|cens|blq|bloq|blq flag|below lloq|below loq)$/],
   ['lloq', /(lloq|\bloq\b|\blod\b|lower limit|quantification|quantifizierung|bestimmungsgrenze|nachweisgrenze)/],
+  ['covariate', CRCL_HEADER],
   ['creatinine', /(creat|krea|\bscr\b)/],
   ['infusionDuration', /(duration|dauer|duree|\blength of infusion|infusion time|over \(?(min|h))/],
   ['infusionRate', /(\brate\b|infusion speed|laufrate|debit|snelheid)/],
@@ -131,7 +137,7 @@ const HEADER_RULES: readonly [Role, RegExp][] = [
   ['comment', /(comment|remark|note|bemerkung|kommentar|remarque|opmerking|\bflag\b|status|observacion)/],
   ['weight', /(weight|\bwt\b|gewicht|poids|peso|body mass)/],
   ['height', /(height|\bht\b|grosse|taille|lengte|altura|body length)/],
-  ['age', /(^|\s)(age|alter|leeftijd|edad|eta)(\s|$|\W)/],
+  ['age', /(^|[\s_])(age|alter|leeftijd|edad|eta)([\s_]|$|\W)/],
   ['sex', /(sex|gender|geschlecht|sexe|geslacht|sesso|sexo)/],
   ['levelValue', /(level|result|conc|value|spiegel|wert|taux|resultat|uitslag|trough|peak|vancomycin|gentamicin|tobramycin|amikacin|teicoplanin)/],
 ];
@@ -164,6 +170,8 @@ function suggestRole(header: string, profile: ColumnProfile): Role {
     if (!re.test(h)) continue;
     if (re === EVENT_TIME_WORDS && profile.type !== 'date') continue;
     if (role === 'date' && profile.type === 'time') return 'time';
+    // "Sample time" holding full date-times is the moment of the event, not a time of day.
+    if (role === 'time' && profile.type === 'date') return 'dateTime';
     if (role === 'time' && (profile.type === 'number' || /\(h\)|hours|\bh\b/.test(h))) return 'elapsedH';
     if (role === 'date' && /time|zeit|heure|tijd/.test(h)) return 'dateTime';
     if (role === 'infusionStart' && profile.type === 'number') return 'ignore';
@@ -172,6 +180,67 @@ function suggestRole(header: string, profile: ColumnProfile): Role {
     return role;
   }
   return 'ignore';
+}
+
+function hasClock(p: ColumnProfile): boolean {
+  return p.samples.some((s) => /\d{1,2}:\d{2}/.test(s));
+}
+
+/** Unit words kept as written when they follow the name in a snake_case header (crcl_mL_min). */
+const UNIT_TOKENS: ReadonlySet<string> = new Set(['mL', 'L', 'dL', 'mg', 'g', 'kg', 'ug', 'ng', 'umol', 'mmol', 'nmol', 'mol', 'min', 'h', 's', 'd', 'y', 'cm', 'm', 'mm', 'IU', 'U', 'mU', 'mEq', 'mmHg', 'pct']);
+
+/**
+ * Canonical covariate name from a header: lower snake case, the unit kept as written after the
+ * name ("CrCl (mL/min)" -> crcl_mL_min, "Albumin g/L" -> albumin_g_L, "Ward" -> ward).
+ */
+export function canonicalCovariateName(header: string): string {
+  let h = header.normalize('NFKD').replace(/[\u0300-\u036f]/g, '').replace(/[µμ]/g, 'u').replace(/%/g, ' pct ').trim();
+  let unitPart = '';
+  const br = /[([]\s*([^)\]]*)[)\]]/.exec(h);
+  if (br) {
+    unitPart = br[1];
+    h = `${h.slice(0, br.index)} ${h.slice(br.index + br[0].length)}`;
+  } else {
+    const tail = /(?:^|[\s,_])([A-Za-z]+\/[A-Za-z0-9.]+)\s*$/.exec(h);
+    if (tail) {
+      unitPart = tail[1];
+      h = h.slice(0, tail.index);
+    }
+  }
+  const words = h.split(/[^A-Za-z0-9]+/).filter(Boolean);
+  const units = unitPart.split(/[^A-Za-z0-9]+/).filter(Boolean);
+  let out = [...words.map((w, i) => (i > 0 && UNIT_TOKENS.has(w) ? w : w.toLowerCase())), ...units].join('_');
+  if (out === '') out = 'covariate';
+  if (/^[0-9]/.test(out)) out = `c_${out}`;
+  return out;
+}
+
+/**
+ * Why a column not recognised by its header is not a patient covariate, or undefined when it is
+ * one: empty, dates or times (moments, not patient traits), or text that is the same on every
+ * row (a drug or test name) or that changes within one patient (an order or sample label).
+ */
+function notCovariate(sheet: SheetModel, headerIndex: number, p: ColumnProfile, pidIndex: number): string | undefined {
+  if (p.type === 'empty') return 'the column is empty';
+  if (p.type === 'date' || p.type === 'time') return `the column holds ${p.type === 'date' ? 'dates' : 'times'} that no role uses; give it a role if it matters`;
+  if (p.type === 'number') return undefined;
+  const first = new Map<string, string>();
+  const distinct = new Set<string>();
+  let varies = false;
+  const end = Math.min(sheet.rows.length, headerIndex + 1 + 2000);
+  for (let r = headerIndex + 1; r < end; r++) {
+    const v = (sheet.rows[r]?.[p.index]?.text ?? '').trim();
+    if (v === '') continue;
+    distinct.add(v);
+    if (pidIndex < 0) continue;
+    const pid = (sheet.rows[r]?.[pidIndex]?.text ?? '').trim();
+    const prev = first.get(pid);
+    if (prev === undefined) first.set(pid, v);
+    else if (prev !== v) varies = true;
+  }
+  if (distinct.size <= 1) return `the same text ("${[...distinct][0] ?? ''}") on every row: it says nothing about the patient`;
+  if (varies) return 'the text changes within one patient, so it is not a patient covariate; give it a role if it matters';
+  return undefined;
 }
 
 export interface SheetSuggestion {
@@ -194,12 +263,29 @@ export function suggestSheet(sheet: SheetModel): SheetSuggestion {
     if (UNIT_HEADER.test(h) && lastValueRole) {
       role = lastValueRole === 'doseAmount' ? 'doseUnit' : lastValueRole === 'creatinine' ? 'creatinineUnit' : 'levelUnit';
     }
+    let note: string | undefined;
     // One column per role (except covariates and ignored): later duplicates become ignored.
-    if (role !== 'covariate' && role !== 'ignore' && used.has(role)) role = 'ignore';
-    if (role === 'dateTime' && (used.has('date') || used.has('time'))) role = 'ignore';
+    if (role !== 'covariate' && role !== 'ignore' && used.has(role)) {
+      note = `a second ${role} column (the first one is used)`;
+      role = 'ignore';
+    }
+    if (role === 'dateTime' && (used.has('date') || used.has('time'))) {
+      const d = columns.find((c) => c.role === 'date');
+      if (d && !used.has('time') && hasClock(p)) {
+        // Full date-times win over a date-only column: that one would give midnight.
+        d.role = 'ignore';
+        d.note = `the date is also in column ${p.letter} (${p.header}), which carries the time`;
+        used.delete('date');
+      } else {
+        note = 'the date and time are already taken from the date and time columns';
+        role = 'ignore';
+      }
+    }
     if (role !== 'ignore') used.add(role);
     if (role === 'doseAmount' || role === 'levelValue' || role === 'creatinine') lastValueRole = role;
     const col: ColumnMapping = { role, header: p.header, column: p.letter, type: p.type };
+    if (note) col.note = note;
+    if (role === 'covariate') col.name = CRCL_HEADER.test(h) && !/l\s*\/\s*h/.test(h) ? 'crcl_mL_min' : canonicalCovariateName(p.header);
     const unit = unitFromHeader(p.header);
     if (unit && ['doseAmount', 'levelValue', 'lloq', 'creatinine', 'weight', 'height', 'infusionDuration', 'infusionRate', 'elapsedH'].includes(role)) col.unit = unit;
     columns.push(col);
@@ -218,6 +304,18 @@ export function suggestSheet(sheet: SheetModel): SheetSuggestion {
       const p = profiles.find((q) => q.letter === dateCol.column);
       dateCol.role = timeCol || !(p && p.samples.some((x) => /\d{1,2}:\d{2}/.test(x))) ? 'date' : 'dateTime';
       if (timeCol) timeCol.role = 'time';
+    }
+  }
+  // Any other column with values: a covariate, unless its values say it is not one.
+  const pidCol = columns.find((c) => c.role === 'patientId');
+  for (const col of columns) {
+    if (col.role !== 'ignore' || col.note || col.header === '' || UNIT_HEADER.test(foldText(col.header).trim())) continue;
+    const p = profiles.find((q) => q.letter === col.column)!;
+    const why = notCovariate(sheet, headerIndex, p, pidCol ? profiles.find((q) => q.letter === pidCol.column)!.index : -1);
+    if (why) col.note = why;
+    else {
+      col.role = 'covariate';
+      col.name = canonicalCovariateName(col.header);
     }
   }
   const has = (r: Role) => columns.some((c) => c.role === r);
@@ -287,11 +385,12 @@ export function parseTemplate(json: unknown): MappingTemplate {
           if (typeof c.role !== 'string' || !ROLE_SET.has(c.role)) p.push(`${cat}.role: unknown role ${JSON.stringify(c.role)} (one of ${ROLES.join(', ')})`);
           if (typeof c.header !== 'string') p.push(`${cat}.header: expected the header text`);
           if (c.column !== undefined && typeof c.column !== 'string') p.push(`${cat}.column: expected a column letter`);
-          for (const k of ['name', 'unit', 'type'] as const) if (c[k] !== undefined && typeof c[k] !== 'string') p.push(`${cat}.${k}: expected text`);
+          for (const k of ['name', 'unit', 'type', 'note'] as const) if (c[k] !== undefined && typeof c[k] !== 'string') p.push(`${cat}.${k}: expected text`);
           const col: ColumnMapping = { role: c.role as Role, header: String(c.header ?? ''), column: typeof c.column === 'string' ? c.column : '' };
           if (typeof c.name === 'string') col.name = c.name;
           if (typeof c.unit === 'string') col.unit = c.unit;
           if (typeof c.type === 'string') col.type = c.type as ColumnType;
+          if (typeof c.note === 'string') col.note = c.note;
           columns.push(col);
         });
       sheets.push({ sheet: String(s.sheet ?? ''), content: s.content as SheetContent, headerRow: Number(s.headerRow), columns });
@@ -385,9 +484,10 @@ export function columnLabel(index: number, header: string): string {
  * text. Reports: sheet missing, header row moved, column missing (error when essential), column
  * type changed (warning). A sheet that cannot be bound is left out with an error.
  */
-export function bindTemplate(model: WorkbookModel, template: MappingTemplate): { bound: BoundSheet[]; problems: ReportProblem[] } {
+export function bindTemplate(model: WorkbookModel, template: MappingTemplate): { bound: BoundSheet[]; unbound: UnboundSheet[]; problems: ReportProblem[] } {
   const problems: ReportProblem[] = [];
   const bound: BoundSheet[] = [];
+  const unbound: UnboundSheet[] = [];
   for (const sm of template.sheets) {
     let sheet = model.sheets.find((s) => s.name === sm.sheet) ?? model.sheets.find((s) => headerKey(s.name) === headerKey(sm.sheet));
     if (!sheet && template.sheets.length === 1 && model.sheets.length === 1) {
@@ -479,15 +579,33 @@ export function bindTemplate(model: WorkbookModel, template: MappingTemplate): {
       fatal = true;
       problems.push({ sheet: sheet.name, row: headerIndex + 1, column: '', value: '', severity: 'error', message: 'no column has the role patientId: the sheet cannot be joined to patients' });
     }
-    const hasTime = columns.has('dateTime') || columns.has('date') || columns.has('elapsedH') || columns.has('infusionStart');
+    let hasTime = columns.has('dateTime') || columns.has('date') || columns.has('elapsedH') || columns.has('infusionStart');
+    const timeCol = columns.get('time');
+    if (!hasTime && timeCol && profiles[timeCol.index]?.type === 'date') {
+      // The values decide: a "time" column of full date-times is the date-time of the event.
+      columns.delete('time');
+      columns.set('dateTime', { ...timeCol, mapping: { ...timeCol.mapping, role: 'dateTime' } });
+      hasTime = true;
+      problems.push({ sheet: sheet.name, row: headerIndex + 1, column: timeCol.label, value: profiles[timeCol.index]?.samples[0] ?? '', severity: 'warning', message: `column "${timeCol.mapping.header}" has the role time (time of day) but holds full date-times: it is read as the date-time of each event; save the mapping to keep this` });
+    }
     if (!hasTime && sm.content !== 'patients' && !fatal) {
       fatal = true;
       problems.push({ sheet: sheet.name, row: headerIndex + 1, column: '', value: '', severity: 'error', message: 'no time column (dateTime, date + time, or elapsedH): give one column a time role' });
     }
-    if (fatal) continue;
+    if (fatal) {
+      unbound.push({ sheet, headerIndex, reason: problems.filter((q) => q.sheet === sheet!.name && q.severity === 'error').map((q) => q.message)[0] ?? 'the sheet cannot be imported' });
+      continue;
+    }
     bound.push({ mapping: sm, sheet, headerIndex, columns, covariates });
   }
-  return { bound, problems };
+  return { bound, unbound, problems };
+}
+
+/** A sheet the template names but that cannot be imported; its rows are listed as excluded. */
+export interface UnboundSheet {
+  sheet: SheetModel;
+  headerIndex: number;
+  reason: string;
 }
 
 /** The template with the header rows and column letters and types as found in this workbook. */
@@ -503,10 +621,10 @@ export function refreshTemplate(template: MappingTemplate, bound: readonly Bound
         sheet: b.sheet.name,
         headerRow: b.headerIndex + 1,
         columns: sm.columns.map((c) => {
-          const found = [...b.columns.values(), ...b.covariates].find((x) => x.mapping === c);
+          const found = [...b.columns.values(), ...b.covariates].find((x) => x.mapping === c || (x.mapping.role === 'dateTime' && c.role === 'time' && x.mapping.header === c.header));
           if (!found) return c;
           const type = profiles[found.index]?.type;
-          return { ...c, column: columnLetter(found.index), ...(type ? { type } : {}) };
+          return { ...c, role: found.mapping.role, column: columnLetter(found.index), ...(type ? { type } : {}) };
         }),
       };
     }),

@@ -101,7 +101,7 @@ export function parseInWorker(request: Omit<ParseRequest, 'type' | 'id'>, opts: 
       fn();
     };
     const timer = setTimeout(
-      () => finish(() => reject(new ImportError('timeout', `parsing ${request.fileName} took longer than ${(timeLimitMs / 1000).toFixed(0)} s and was stopped: the file may be malformed or very large; save it again as .xlsx or .csv with fewer rows`))),
+      () => finish(() => reject(new ImportError('timeout', `parsing ${request.fileName} took longer than ${formatSeconds(timeLimitMs)} s and was stopped: the file may be malformed or very large; save it again as .xlsx or .csv with fewer rows`))),
       timeLimitMs,
     );
     const onAbort = () => finish(() => reject(new ImportError('aborted', 'the import was cancelled')));
@@ -167,4 +167,9 @@ const SPREADSHEET_EXT = /\.(xlsx|xlsm|xls|ods)$/i;
 /** True for files the spreadsheet import handles (.csv only when it is not the canonical CSV). */
 export function isSpreadsheetPath(file: string): boolean {
   return SPREADSHEET_EXT.test(file);
+}
+
+/** A time limit in seconds as given (0.05 stays 0.05, 60 stays 60): at most 3 decimals, trailing zeros dropped. */
+export function formatSeconds(ms: number): string {
+  return String(Number((ms / 1000).toFixed(3)));
 }

@@ -74,3 +74,15 @@ describe('spreadsheet branch of the dataset loader', () => {
     expect((err as DataError).message).toContain('neither a dose nor a level');
   });
 });
+
+describe('plateau check on the demo dataset', () => {
+  it('maps all four covariates of resources/demo/ward-levels.csv under their canonical names', async () => {
+    const r = await plateau('check', '--data', path.join(repoRoot, 'resources/demo/ward-levels.csv'));
+    expect(r.code).toBe(0);
+    expect(r.stdout).toMatch(/"weight_kg"\s+-> weight \[kg\]/);
+    expect(r.stdout).toMatch(/"crcl_mL_min"\s+-> covariate "crcl_mL_min"/);
+    expect(r.stdout).toMatch(/"age_y"\s+-> age/);
+    expect(r.stdout).toMatch(/"sex"\s+-> sex/);
+    expect(r.stdout).toContain('0 rows excluded');
+  });
+});

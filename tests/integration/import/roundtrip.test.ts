@@ -1,4 +1,5 @@
 /** Canonical dataset -> .xlsx (export) -> import with its template -> the identical dataset. */
+import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import * as XLSX from 'xlsx';
 import { createDataset } from '../../../engine/data/dataset.js';
@@ -94,5 +95,33 @@ describe('export neutralises formulas', () => {
     expect(wb.SheetNames).toEqual(['Summary', 'Problems', 'Excluded rows', 'Notes']);
     expect(wb.Sheets['Problems']['D2'].v).toBe("'=evil()");
     expect(wb.Sheets['Problems']['D2'].f).toBeUndefined();
+  });
+});
+
+describe('the demo dataset (resources/demo/ward-levels.csv) keeps every covariate', () => {
+  const file = new URL('../../../resources/demo/ward-levels.csv', import.meta.url);
+  const text = readFileSync(file, 'utf8');
+  const strip = (d: ReturnType<typeof parseCanonicalCsv>) =>
+    d.subjects.map((s) => ({ id: s.id, covariates: { ...s.covariates }, doses: s.doses.map(({ sourceRow: _r, ...x }) => x), observations: s.observations.map(({ sourceRow: _r, ...x }) => x) }));
+
+  it('canonical -> .xlsx -> import with its template -> identical, covariates included', () => {
+    const ds = parseCanonicalCsv(text);
+    expect(ds.covariateNames).toEqual(['weight_kg', 'crcl_mL_min', 'age_y', 'sex']);
+    const { workbook, template } = datasetToWorkbook(ds);
+    const a = analyseWorkbook(workbookBytes(workbook), { mapping: JSON.parse(JSON.stringify(template)) });
+    expect(a.report.problems.filter((p) => p.severity === 'error')).toEqual([]);
+    expect(a.dataset!.covariateNames).toEqual(ds.covariateNames);
+    expect(strip(a.dataset!)).toEqual(strip(ds));
+  });
+
+  it('imported as a spreadsheet with the suggested mapping, then exported and imported again: identical', () => {
+    const ds = parseCanonicalCsv(text);
+    const a = analyseWorkbook(new TextEncoder().encode(text));
+    expect(a.report.problems.filter((p) => p.severity === 'error')).toEqual([]);
+    expect([...a.dataset!.covariateNames].sort()).toEqual([...ds.covariateNames].sort());
+    expect(strip(a.dataset!)).toEqual(strip(ds));
+    const { workbook, template } = datasetToWorkbook(a.dataset!);
+    const b = analyseWorkbook(workbookBytes(workbook), { mapping: JSON.parse(JSON.stringify(template)) });
+    expect(strip(b.dataset!)).toEqual(strip(ds));
   });
 });

@@ -55,9 +55,9 @@ describe('covariates and clocks', () => {
   it('computes age at the first event from the birth date and warns when weight changes', () => {
     const a = run(['patient,date time,dose mg,route,date of birth,weight', 'A,2024-05-01 08:00,500,oral,2000-05-01,70', 'A,2024-05-02 08:00,500,oral,2000-05-01,75']);
     const s = a.dataset!.subjects[0];
-    expect(s.covariates.ageY).toBeCloseTo(24, 1);
-    expect(s.covariates.weightKg).toBe(70);
-    expect(at(a, 3)).toContain("patient A's weightKg changes");
+    expect(s.covariates.age_y).toBeCloseTo(24, 1);
+    expect(s.covariates.weight_kg).toBe(70);
+    expect(at(a, 3)).toContain("patient A's weight_kg changes");
   });
 
   it('uses the US clock-change calendar when asked (second Sunday of March 2024 = 10 March, from memory)', () => {
