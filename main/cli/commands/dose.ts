@@ -1,10 +1,11 @@
 /** `plateau dose`: Bayesian dose individualisation for one patient. */
 import { formatAdvice } from '../../../engine/dosing/report.js';
 import { parseRegimen, RegimenParseError } from '../../../engine/dosing/regimens.js';
-import { listTargetPresets, loadModelFile, loadPatientFile, loadTarget, runDoseAdvice } from '../../services/doseService.js';
+import { ENGINE_VERSION } from '../../../engine/version.js';
+import { listTargetPresets, loadCaution, loadModelFile, loadPatientFile, loadTarget, runDoseAdvice } from '../../services/doseService.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
 import { resolvePath, writeFileAtomic } from '../io.js';
-import { UsageError, type CliCommand } from '../types.js';
+import { UsageError, type CliCommand, type CliIo } from '../types.js';
 
 const usage = `Usage: plateau dose --model <fit.json|model.json> --patient <patient.json> [--target <preset|target.json>]
                     [--out advice.json] [--seed N] [--evaluate "1000mg q12h 1h"] [--draws N]
@@ -56,62 +57,117 @@ export const command: CliCommand = {
   summary: 'Bayesian dose individualisation for one patient (posterior, forecast, ranked regimens)',
   usage,
   async run(argv, io) {
-    const args = parseArgs(argv, specs, { usage });
-    const seed = numberFlag(args, 'seed', { integer: true, usage }) ?? 1;
-    const draws = numberFlag(args, 'draws', { integer: true, usage });
-    if (draws !== undefined && !(draws >= 100 && draws <= 100_000)) throw new UsageError('--draws must be between 100 and 100000', usage);
-    const mic = numberFlag(args, 'mic', { usage });
-    if (mic !== undefined && !(mic > 0)) throw new UsageError('--mic must be > 0 (mg/L)', usage);
-    const below = numberFlag(args, 'below', { usage });
-    if (below !== undefined && !(below > 0)) throw new UsageError('--below must be > 0 (mg/L)', usage);
-    const peakAfter = numberFlag(args, 'peak-after', { usage });
-    if (peakAfter !== undefined && !(peakAfter >= 0)) throw new UsageError('--peak-after must be >= 0 (hours after the end of infusion)', usage);
-    const nextDoseH = numberFlag(args, 'next-dose-h', { usage });
-    let evaluate;
-    const evalText = stringFlag(args, 'evaluate');
-    if (evalText !== undefined) {
-      try {
-        evaluate = parseRegimen(evalText);
-      } catch (e) {
-        if (e instanceof RegimenParseError) throw new UsageError(e.message, usage);
-        throw e;
-      }
+    // Every exit path carries the caution: on failure it is printed (and the JSON error record
+    // written with --out / --json) before the error goes to the runner.
+    const outputs: { out?: string; json: boolean } = { json: argv.includes('--json'), ...outFromArgv(argv) };
+    try {
+      return await runDose(argv, io, outputs);
+    } catch (e) {
+      await reportFailure(e, io, outputs);
+      throw e;
     }
-    const population = await loadModelFile(resolvePath(io.cwd, stringFlag(args, 'model')!));
-    const patient = await loadPatientFile(resolvePath(io.cwd, stringFlag(args, 'patient')!));
-    if (nextDoseH !== undefined) {
-      const last = patient.doses[patient.doses.length - 1];
-      if (nextDoseH < last.timeH + last.durationH) throw new UsageError(`--next-dose-h ${nextDoseH} is before the last dose has finished (${last.timeH + last.durationH} h)`, usage);
-      patient.nextDoseH = nextDoseH;
-    }
-    const targetName = stringFlag(args, 'target');
-    let target = targetName !== undefined ? await loadTarget(targetName, io.cwd) : undefined;
-    if (target && mic !== undefined) target = { ...target, micMgL: mic };
-    else if (!target && mic !== undefined) throw new UsageError('--mic needs --target', usage);
-    if (target && peakAfter !== undefined) target = { ...target, peakDelayH: peakAfter };
-    else if (!target && peakAfter !== undefined) throw new UsageError('--peak-after needs --target', usage);
-    if (!target && targetName === undefined && evaluate === undefined)
-      io.stderr(`plateau: no --target: evaluating the current regimen only (presets: ${(await listTargetPresets()).join(', ')})\n`);
-
-    const advice = await runDoseAdvice({
-      population,
-      patient,
-      ...(target ? { target } : {}),
-      seed,
-      ...(evaluate ? { evaluate } : {}),
-      ...(draws !== undefined ? { nDraws: draws } : {}),
-      loadingDose: booleanFlag(args, 'loading-dose'),
-      ...(below !== undefined ? { belowMgL: below } : {}),
-      overrideBlocks: booleanFlag(args, 'override-blocks'),
-    });
-    const json = `${JSON.stringify(advice, null, 2)}\n`;
-    const out = stringFlag(args, 'out');
-    if (out !== undefined) await writeFileAtomic(resolvePath(io.cwd, out), json);
-    io.stdout(booleanFlag(args, 'json') ? json : formatAdvice(advice));
-    if (advice.status === 'blocked') {
-      io.stderr('plateau: dose advice blocked by the checks above (use --override-blocks to see the regimens anyway)\n');
-      return 1;
-    }
-    return 0;
   },
 };
+
+/** --out from the raw arguments, for when they do not parse. */
+function outFromArgv(argv: readonly string[]): { out?: string } {
+  for (let i = 0; i < argv.length; i++) {
+    if ((argv[i] === '--out' || argv[i] === '-o') && argv[i + 1] !== undefined && !argv[i + 1].startsWith('-')) return { out: argv[i + 1] };
+    if (argv[i].startsWith('--out=')) return { out: argv[i].slice(6) };
+  }
+  return {};
+}
+
+/** The error's own list of problems when it has one, else its message. */
+function errorList(e: unknown): string[] {
+  const problems = (e as { problems?: unknown }).problems;
+  if (Array.isArray(problems) && problems.length)
+    return problems.map((p) => (typeof p === 'string' ? p : typeof p === 'object' && p !== null && 'message' in p ? `${'line' in p ? `line ${String((p as { line: unknown }).line)}: ` : ''}${String((p as { message: unknown }).message)}` : JSON.stringify(p)));
+  return [e instanceof Error ? e.message : String(e)];
+}
+
+async function reportFailure(e: unknown, io: CliIo, outputs: { out?: string; json: boolean }): Promise<void> {
+  let caution: string;
+  try {
+    caution = await loadCaution();
+  } catch (c) {
+    caution = `(the caution text could not be loaded: ${(c as Error).message})`;
+  }
+  const record = { status: 'error' as const, caution, errors: errorList(e), engineVersion: ENGINE_VERSION };
+  const json = `${JSON.stringify(record, null, 2)}\n`;
+  if (outputs.out !== undefined) {
+    try {
+      await writeFileAtomic(resolvePath(io.cwd, outputs.out), json);
+    } catch (w) {
+      io.stderr(`plateau: could not write the error record to ${outputs.out}: ${(w as Error).message}\n`);
+    }
+  }
+  if (outputs.json) io.stdout(json);
+  io.stderr(`${caution}\n\nplateau: no dose advice: the command failed (reason below)\n`);
+}
+
+async function runDose(argv: readonly string[], io: CliIo, outputs: { out?: string; json: boolean }): Promise<number> {
+  const args = parseArgs([...argv], specs, { usage });
+  if (args.help) {
+    io.stdout(`${usage}\n`);
+    return 0;
+  }
+  outputs.out = stringFlag(args, 'out');
+  outputs.json = booleanFlag(args, 'json');
+  const seed = numberFlag(args, 'seed', { integer: true, usage }) ?? 1;
+  const draws = numberFlag(args, 'draws', { integer: true, usage });
+  if (draws !== undefined && !(draws >= 100 && draws <= 100_000)) throw new UsageError('--draws must be between 100 and 100000', usage);
+  const mic = numberFlag(args, 'mic', { usage });
+  if (mic !== undefined && !(mic > 0)) throw new UsageError('--mic must be > 0 (mg/L)', usage);
+  const below = numberFlag(args, 'below', { usage });
+  if (below !== undefined && !(below > 0)) throw new UsageError('--below must be > 0 (mg/L)', usage);
+  const peakAfter = numberFlag(args, 'peak-after', { usage });
+  if (peakAfter !== undefined && !(peakAfter >= 0)) throw new UsageError('--peak-after must be >= 0 (hours after the end of infusion)', usage);
+  const nextDoseH = numberFlag(args, 'next-dose-h', { usage });
+  let evaluate;
+  const evalText = stringFlag(args, 'evaluate');
+  if (evalText !== undefined) {
+    try {
+      evaluate = parseRegimen(evalText);
+    } catch (e) {
+      if (e instanceof RegimenParseError) throw new UsageError(e.message, usage);
+      throw e;
+    }
+  }
+  const population = await loadModelFile(resolvePath(io.cwd, stringFlag(args, 'model')!));
+  const patient = await loadPatientFile(resolvePath(io.cwd, stringFlag(args, 'patient')!));
+  if (nextDoseH !== undefined) {
+    const last = patient.doses[patient.doses.length - 1];
+    if (nextDoseH < last.timeH + last.durationH) throw new UsageError(`--next-dose-h ${nextDoseH} is before the last dose has finished (${last.timeH + last.durationH} h)`, usage);
+    patient.nextDoseH = nextDoseH;
+  }
+  const targetName = stringFlag(args, 'target');
+  let target = targetName !== undefined ? await loadTarget(targetName, io.cwd) : undefined;
+  if (target && mic !== undefined) target = { ...target, micMgL: mic };
+  else if (!target && mic !== undefined) throw new UsageError('--mic needs --target', usage);
+  if (target && peakAfter !== undefined) target = { ...target, peakDelayH: peakAfter };
+  else if (!target && peakAfter !== undefined) throw new UsageError('--peak-after needs --target', usage);
+  if (!target && targetName === undefined && evaluate === undefined)
+    io.stderr(`plateau: no --target: evaluating the current regimen only (presets: ${(await listTargetPresets()).join(', ')})\n`);
+
+  const advice = await runDoseAdvice({
+    population,
+    patient,
+    ...(target ? { target } : {}),
+    seed,
+    ...(evaluate ? { evaluate } : {}),
+    ...(draws !== undefined ? { nDraws: draws } : {}),
+    loadingDose: booleanFlag(args, 'loading-dose'),
+    ...(below !== undefined ? { belowMgL: below } : {}),
+    overrideBlocks: booleanFlag(args, 'override-blocks'),
+  });
+  const json = `${JSON.stringify(advice, null, 2)}\n`;
+  const out = stringFlag(args, 'out');
+  if (out !== undefined) await writeFileAtomic(resolvePath(io.cwd, out), json);
+  io.stdout(booleanFlag(args, 'json') ? json : formatAdvice(advice));
+  if (advice.status === 'blocked') {
+    io.stderr('plateau: dose advice blocked by the checks above (use --override-blocks to see the regimens anyway)\n');
+    return 1;
+  }
+  return 0;
+}

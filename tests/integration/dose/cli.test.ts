@@ -134,4 +134,26 @@ describe('plateau dose', () => {
     expect(await runCli(['dose', '--model', 'model.json', '--patient', 'nocov.json', '--target', 'vancomycin-auc24'], t4.io)).toBe(1);
     expect(t4.err()).toContain('crcl_mL_min');
   });
+
+  it('carries the caution on every exit path, and writes a JSON error record with --out / --json', async () => {
+    writeFileSync(path.join(dir, 'invalid.json'), JSON.stringify({ id: 'x', covariates: { weight_kg: 70 }, doses: [{ time_h: 0, amount_mg: 1000, duration_h: 1 }], levels: [{ time_h: 11, conc_mg_L: 'NaN' }] }));
+    const t = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', 'invalid.json', '--target', 'vancomycin-auc24', '--out', 'error.json'], t.io)).toBe(1);
+    expect(t.err()).toContain(CAUTION);
+    expect(t.err()).toContain('levels[0].conc_mg_L: must be a number, got "NaN" (not a number)');
+    const rec = JSON.parse(readFileSync(path.join(dir, 'error.json'), 'utf8'));
+    expect(rec).toMatchObject({ status: 'error', caution: CAUTION, engineVersion: '0.1.0' });
+    expect(rec.errors.some((e: string) => e.includes('not a number'))).toBe(true);
+    // --json prints the record; a usage error (bad --draws) carries the caution too.
+    const t2 = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', 'invalid.json', '--json'], t2.io)).toBe(1);
+    expect(JSON.parse(t2.out())).toMatchObject({ status: 'error', caution: CAUTION });
+    const t3 = io(dir);
+    expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--draws', '5', '--out', 'usage.json'], t3.io)).toBe(2);
+    expect(t3.err()).toContain(CAUTION);
+    expect(JSON.parse(readFileSync(path.join(dir, 'usage.json'), 'utf8')).errors[0]).toContain('--draws');
+    const t4 = io(dir);
+    expect(await runCli(['dose', '--model', 'missing-model.json', '--patient', PATIENT], t4.io)).toBe(1);
+    expect(t4.err()).toContain(CAUTION);
+  });
 });
