@@ -49,6 +49,13 @@ describe('plateau dose with a fit.json', () => {
     expect(fit.covariateRanges.weight_kg).toEqual([54.6, 86.4]);
     expect(a.warnings.some((w: { code: string; message: string }) => w.code === 'ranges-unknown')).toBe(false);
     expect(a.regimens[0].route).toBe('oral');
+    // The fit checks read the fields the estimator and the post-fit step really write.
+    const has = (code: string) => a.warnings.some((w: { code: string }) => w.code === code);
+    expect(typeof fit.trajectory.explorationSettled).toBe('boolean');
+    expect(has('fit-cap-reached')).toBe(!fit.trajectory.explorationSettled);
+    expect(typeof fit.uncertainty.ok).toBe('boolean');
+    expect(has('fit-no-se')).toBe(!fit.uncertainty.ok || fit.population.some((e: { fixed: boolean; se: number | null }) => !e.fixed && e.se === null));
+    for (const w of fit.warnings as string[]) expect(a.warnings.some((x: { message: string }) => x.message.includes(w))).toBe(true);
 
     // A patient heavier than anyone in the fitted data: the advice is blocked.
     writeFileSync(
