@@ -11,7 +11,7 @@ import { forecast, type Forecast } from './forecast.js';
 import { buildSteadyStateEvaluator, type Regimen } from './metrics.js';
 import { fmtH, patientCovariate, type Patient } from './patient.js';
 import type { ModelProvenance, PopulationModel } from './population.js';
-import { buildLevelObjective, drawPrior, findMap, samplePosterior, DEFAULT_SAMPLER, type SamplerDiagnostics } from './posterior.js';
+import { buildLevelObjective, drawPrior, findMap, postFitDraws, samplePosterior, DEFAULT_SAMPLER, type SamplerDiagnostics } from './posterior.js';
 import { buildPatientPrior, type PatientPrior } from './prior.js';
 import { DEFAULT_REGIMEN_SETTINGS, evaluateRegimens, explainRegimen, formatRegimen, goalCentreOf, rankRegimens, regimenGrid, type RegimenResult } from './regimens.js';
 import { bandOf, sig } from './summary.js';
@@ -168,7 +168,11 @@ export function adviseDose(o: AdviceOptions): Advice {
   const nDrawsWanted = o.nDraws ?? DEFAULT_SAMPLER.nDraws;
   const obj = buildLevelObjective(prior, patient.doses, patient.levels);
   const map = findMap(obj, prior);
-  const draws = obj.nLevels === 0 ? drawPrior(prior, root.stream('dosing', 'prior-draws'), nDrawsWanted) : samplePosterior(obj, prior, map, root.stream('dosing', 'posterior'), { nDraws: nDrawsWanted });
+  // A subject of the site fit with no level the fit did not see: its post-fit draws are the posterior.
+  const postFit = postFitDraws(population, patient.id, patient.levels, prior);
+  const draws = postFit ?? (obj.nLevels === 0 ? drawPrior(prior, root.stream('dosing', 'prior-draws'), nDrawsWanted) : samplePosterior(obj, prior, map, root.stream('dosing', 'posterior'), { nDraws: nDrawsWanted }));
+  const posteriorFrom = postFit ? `post-fit draws of subject ${patient.id} of the site fit (${postFit.nDraws} draws)` : undefined;
+  if (postFit) warnings.push({ severity: 'note', code: 'post-fit-draws', message: `the patient is subject ${patient.id} of the site fit and brings no level the fit did not see: the posterior is that subject's ${postFit.nDraws} post-fit draws from the fit, not a new sampler run` });
   const nDraws = draws.nDraws;
   warnings.push(...checkLevelTiming(patient.doses, patient.levels, prior.nEta, patient.levelKinds));
   if (obj.nLevels > 0) warnings.push(...checkSampler(map, draws.diagnostics, prior.etaNames));
@@ -294,7 +298,7 @@ export function adviseDose(o: AdviceOptions): Advice {
       nextDoseH: next.h,
       nextDoseAssumed: next.assumed,
     },
-    model: { ...population.provenance, structure: model.id, covariatesUsed },
+    model: { ...population.provenance, structure: model.id, covariatesUsed, ...(posteriorFrom ? { posteriorFrom } : {}) },
     target,
     posterior: {
       ...summary,

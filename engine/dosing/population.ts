@@ -17,6 +17,8 @@ export interface ModelProvenance {
   seed?: number | string;
   /** Warnings the fit itself reported. */
   fitWarnings?: string[];
+  /** Set on advice whose posterior is a fitted subject's post-fit draws (which subject, how many). */
+  posteriorFrom?: string;
 }
 
 export interface PopulationModel {

@@ -20,6 +20,8 @@ import { observationLogLik } from '../stats/residual.js';
 import { hessian, minimiseBfgs } from './optimise.js';
 import { buildIndependenceKernel, buildRandomWalkKernel, logStudentTKernel, type ChainState as McmcState, type LogDensityTarget } from '../mcmc/kernels.js';
 import type { PatientPrior } from './prior.js';
+import type { PopulationModel } from './population.js';
+import { naturalToTransformed } from '../spec/individual.js';
 
 export interface LevelObjective {
   d: number;
@@ -122,7 +124,10 @@ export interface SamplerOptions {
 export const DEFAULT_SAMPLER: SamplerOptions = { nDraws: 2000, chains: 4, burnIn: 100, thin: 1, tDf: 5 };
 
 export interface SamplerDiagnostics {
-  method: 'prior' | 'mcmc';
+  /** prior: no levels; mcmc: chains run here; post-fit: a fitted subject's draws from the site fit. */
+  method: 'prior' | 'mcmc' | 'post-fit';
+  /** For post-fit: the fit's subject whose draws are the posterior. */
+  postFitSubject?: string;
   chains: number;
   burnIn: number;
   thin: number;
@@ -318,4 +323,95 @@ export function splitRhat(x: Float64Array, chains: number): number {
   const W = vars.reduce((a, b) => a + b, 0) / m;
   if (!(W > 0)) return 1;
   return Math.sqrt(((half - 1) / half) * W + B / half) / Math.sqrt(W);
+}
+
+/** One subject of a site fit: its post-fit draws and the levels the fit saw. */
+export interface FitSubjectPosterior {
+  /** Thinned draws from p(psi_i | y_i; theta_hat) per parameter, natural scale (fit.json individual[].draws). */
+  draws: Readonly<Record<string, readonly number[]>>;
+  nDraws: number;
+  /** The subject's levels in the fit (fit.json diagnostics.observations); null when the fit does not record them. */
+  levels: ReadonlyArray<{ timeH: number; concMgL: number; censored: boolean }> | null;
+}
+
+const isObj = (x: unknown): x is Record<string, unknown> => typeof x === 'object' && x !== null && !Array.isArray(x);
+
+/**
+ * The fitted subjects of a fit.json (subject id -> draws and levels). Subjects without usable
+ * draws are left out: they are optional data, and the patient's posterior is then computed anew.
+ */
+export function parseFitSubjects(fit: Record<string, unknown>): Map<string, FitSubjectPosterior> {
+  const out = new Map<string, FitSubjectPosterior>();
+  const levels = new Map<string, Array<{ timeH: number; concMgL: number; censored: boolean }>>();
+  const obs = isObj(fit.diagnostics) && Array.isArray(fit.diagnostics.observations) ? fit.diagnostics.observations : null;
+  if (obs)
+    for (const o of obs) {
+      if (!isObj(o) || typeof o.subject !== 'string' || typeof o.timeH !== 'number' || typeof o.dv !== 'number') continue;
+      let l = levels.get(o.subject);
+      if (!l) levels.set(o.subject, (l = []));
+      l.push({ timeH: o.timeH, concMgL: o.dv, censored: o.censored === true });
+    }
+  if (!Array.isArray(fit.individual)) return out;
+  for (const e of fit.individual) {
+    if (!isObj(e) || typeof e.subject !== 'string' || !isObj(e.draws)) continue;
+    const draws: Record<string, number[]> = Object.create(null);
+    let n = -1;
+    let ok = true;
+    for (const [name, v] of Object.entries(e.draws)) {
+      if (!Array.isArray(v) || !v.every((x) => typeof x === 'number' && Number.isFinite(x)) || (n >= 0 && v.length !== n)) ok = false;
+      else {
+        n = v.length;
+        draws[name] = v as number[];
+      }
+    }
+    if (!ok || n <= 0) continue;
+    out.set(e.subject, { draws, nDraws: n, levels: obs ? (levels.get(e.subject) ?? []) : null });
+  }
+  return out;
+}
+
+/** Whether a level is one the fit saw: same time (within 1e-3 h), censoring and value (relative 1e-6). */
+function sameLevel(a: Observation, b: { timeH: number; concMgL: number; censored: boolean }): boolean {
+  if (Math.abs(a.timeH - b.timeH) > 1e-3) return false;
+  if (a.censored !== b.censored) return false;
+  if (a.censored) return true;
+  return Math.abs(a.valueMgL - b.concMgL) <= 1e-6 * Math.max(1, Math.abs(b.concMgL));
+}
+
+/**
+ * The posterior of a patient who is a subject of the site fit and brings no level the fit did
+ * not see: that subject's post-fit draws (the estimator's conditional distribution at the final
+ * estimates), mapped to this prior's eta. Null otherwise (the posterior is then computed anew).
+ */
+export function postFitDraws(population: PopulationModel, patientId: string, levels: readonly Observation[], prior: PatientPrior): PosteriorDraws | null {
+  const fs = population.fitSubjects?.get(patientId);
+  if (!fs || fs.levels === null) return null;
+  const seen = fs.levels;
+  if (!levels.every((l) => seen.some((m) => sameLevel(l, m)))) return null;
+  const d = prior.nEta;
+  const n = fs.nDraws;
+  const eta = new Float64Array(n * d);
+  for (const p of prior.parameters) {
+    if (p.etaIndex < 0) continue;
+    const col = fs.draws[p.name];
+    if (!col) return null;
+    for (let k = 0; k < n; k++) {
+      const e = naturalToTransformed(p.transform, col[k]) - p.phiMean;
+      if (!Number.isFinite(e)) return null;
+      eta[k * d + p.etaIndex] = e;
+    }
+  }
+  const ess: number[] = [];
+  const rhat: number[] = [];
+  const c = new Float64Array(n);
+  for (let i = 0; i < d; i++) {
+    for (let k = 0; k < n; k++) c[k] = eta[k * d + i];
+    ess.push(effectiveSampleSize(c, 1));
+    rhat.push(splitRhat(c, 1));
+  }
+  return {
+    nDraws: n,
+    eta,
+    diagnostics: { method: 'post-fit', postFitSubject: patientId, chains: 1, burnIn: 0, thin: 1, acceptanceIndependence: null, acceptanceRandomWalk: null, ess, rhat, proposalFromPrior: false },
+  };
 }

@@ -52,7 +52,7 @@ export function formatAdvice(a: Advice, maxRegimens = 10): string {
   out.push('');
   const p = a.posterior;
   const d = p.diagnostics;
-  const how = d.method === 'prior' ? 'drawn from the population prior (no levels)' : `MCMC, ${d.chains} chains, acceptance ${pct(d.acceptanceIndependence)} / ${pct(d.acceptanceRandomWalk)} (independence / random walk), ESS ${d.ess.map((e) => Math.round(e)).join(', ')}, R-hat ${d.rhat.map((r) => r.toFixed(3)).join(', ')}`;
+  const how = d.method === 'prior' ? 'drawn from the population prior (no levels)' : d.method === 'post-fit' ? `post-fit draws of subject ${d.postFitSubject} of the site fit (no new levels)` : `MCMC, ${d.chains} chains, acceptance ${pct(d.acceptanceIndependence)} / ${pct(d.acceptanceRandomWalk)} (independence / random walk), ESS ${d.ess.map((e) => Math.round(e)).join(', ')}, R-hat ${d.rhat.map((r) => r.toFixed(3)).join(', ')}`;
   out.push(`Posterior (${p.nDraws} draws; ${how}):`);
   out.push(`  ${pad('parameter', 10)}${pad('typical', 10)}${pad('MAP', 10)}${pad('mean', 10)}${pad('SD', 10)}${pad('5 %', 10)}95 %`);
   for (const name of Object.keys(p.map)) out.push(`  ${pad(name, 10)}${pad(f(p.typical[name]), 10)}${pad(f(p.map[name]), 10)}${pad(f(p.mean[name]), 10)}${pad(f(p.sd[name]), 10)}${pad(f(p.q05[name]), 10)}${f(p.q95[name])}`);
