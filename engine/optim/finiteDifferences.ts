@@ -1,7 +1,7 @@
 /**
  * Central finite differences into caller-owned buffers (no allocation, for the per-draw loop of
- * Louis' formula and the BFGS minimiser): gradient error O(h^2), Hessian by the four-point cross formula (Nocedal &
- * Wright, Numerical Optimization, 2nd ed. 2006, section 8.1, from memory). A non-finite
+ * Louis' formula and the BFGS minimiser): gradient error O(h^2), Hessian by the four-point cross
+ * formula (Nocedal & Wright, Numerical Optimization, 2nd ed. 2006, section 8.1, from memory). A non-finite
  * objective counts as +Infinity, so a derivative across an impossible point is NaN, never thrown.
  */
 

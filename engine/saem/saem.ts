@@ -7,8 +7,9 @@
  * full random walk N(phi, kappa Omega), component-wise random walk with adaptive scales, and a
  * random walk shaped by the subject's own conditional covariance (learnt from its draws during
  * exploration; it mixes along ridges of p(phi_i | y_i) that Omega-shaped steps cross slowly);
- * scales adapt towards the target acceptance during exploration, then freeze. Censored levels
- * are then drawn from their truncated conditional distribution. (2) Stochastic approximation of
+ * scales adapt towards the target acceptance during exploration, then freeze (the kernels and
+ * the adaptation rule are the shared ones of engine/mcmc, over eta_i = phi_i - mean_i).
+ * Censored levels are then drawn from their truncated conditional distribution. (2) Stochastic approximation of
  * the complete-data sufficient statistics, s_k = s_{k-1} + gamma_k (S_k - s_{k-1}): gamma 1 in
  * exploration, then 1/(k - K1 + W)^alpha, the averaging phase opening from the mean statistics
  * of the last W (settle window) exploration iterations. (3) M-step: typical values and
