@@ -31,12 +31,14 @@ export function analyseWorkbook(bytes: Uint8Array, options: AnalyseOptions = {})
   const preview = previewWorkbook(model);
   let template: MappingTemplate;
   let skippedSheets: string[] = [];
+  let unimported: ReturnType<typeof suggestMapping>['unimported'] = [];
   const suggested = options.mapping === undefined;
   const overrides = options.options ? stripUndefined(options.options) : {};
   if (suggested) {
     const s = suggestMapping(model, overrides);
     template = s.template;
     skippedSheets = s.skipped;
+    unimported = s.unimported;
   } else {
     template = parseTemplate(options.mapping);
     template = { ...template, options: { ...template.options, ...overrides } };
@@ -51,11 +53,13 @@ export function analyseWorkbook(bytes: Uint8Array, options: AnalyseOptions = {})
       excluded: [],
       notes: skippedSheets.map((s) => `Left out: ${s}.`),
     };
+    listUnimported(report, unimported);
     return { preview, mapping: template, suggested, skippedSheets, dataset: undefined, report };
   }
   const result = importWorkbook(model, template);
   // Sheets the suggestion left out are named in the report too, with the reason.
   for (const s of skippedSheets) result.report.notes.push(`Left out: ${s}.`);
+  listUnimported(result.report, unimported);
   return { preview, mapping: result.report.mapping, suggested, skippedSheets, dataset: result.dataset, report: result.report };
 }
 
@@ -66,4 +70,16 @@ function stripUndefined(o: Partial<ImportOptions>): Partial<ImportOptions> {
   const out: Record<string, unknown> = {};
   for (const k of OPTION_KEYS) if (Object.prototype.hasOwnProperty.call(o, k) && o[k] !== undefined) out[k] = o[k];
   return out as Partial<ImportOptions>;
+}
+
+/** Rows of a sheet with doses or levels that the suggestion could not map: an error, and every row listed. */
+function listUnimported(report: ImportReport, unimported: ReturnType<typeof suggestMapping>['unimported']): void {
+  for (const u of unimported) {
+    report.problems.push({ sheet: u.sheet.name, row: u.headerIndex + 1, column: '', value: '', severity: 'error', message: u.reason.replace(/^sheet "[^"]*": /, '') });
+    for (let r = u.headerIndex + 1; r < u.sheet.rows.length; r++)
+      if ((u.sheet.rows[r] ?? []).some((c) => c !== undefined && c.text.trim() !== '')) {
+        report.excluded.push({ sheet: u.sheet.name, row: r + 1, reason: 'sheet not imported: no patient id column' });
+        report.summary.excludedRows++;
+      }
+  }
 }

@@ -247,6 +247,8 @@ export interface SheetSuggestion {
   mapping: SheetMapping | undefined;
   /** Why a sheet was left out, when it was. */
   skipped?: string;
+  /** Set when the sheet holds doses or levels but cannot be imported: its rows must be listed. */
+  dataHeaderIndex?: number;
 }
 
 /** Suggest the roles of one sheet's columns; a sheet with neither doses, levels nor covariates is left out. */
@@ -324,6 +326,8 @@ export function suggestSheet(sheet: SheetModel): SheetSuggestion {
   else if (has('doseAmount')) content = 'doses';
   else if (has('levelValue')) content = 'levels';
   else if (has('patientId') && columns.some((c) => ['weight', 'height', 'age', 'birthDate', 'sex', 'creatinine'].includes(c.role))) content = 'patients';
+  if (content && content !== 'patients' && !has('patientId'))
+    return { mapping: undefined, skipped: `sheet "${sheet.name}": it holds ${content} but no column was recognised as the patient id, so its rows are not imported; give the id column the role patientId in a mapping`, dataHeaderIndex: headerIndex };
   if (!content || !has('patientId')) {
     return { mapping: undefined, skipped: `sheet "${sheet.name}": no patient id with doses, levels or covariates found` };
   }
@@ -331,15 +335,20 @@ export function suggestSheet(sheet: SheetModel): SheetSuggestion {
 }
 
 /** A full template suggested from a workbook. */
-export function suggestMapping(model: WorkbookModel, options: Partial<ImportOptions> = {}): { template: MappingTemplate; skipped: string[] } {
+export function suggestMapping(
+  model: WorkbookModel,
+  options: Partial<ImportOptions> = {},
+): { template: MappingTemplate; skipped: string[]; unimported: { sheet: SheetModel; headerIndex: number; reason: string }[] } {
   const sheets: SheetMapping[] = [];
   const skipped: string[] = [];
+  const unimported: { sheet: SheetModel; headerIndex: number; reason: string }[] = [];
   for (const s of model.sheets) {
     const r = suggestSheet(s);
     if (r.mapping) sheets.push(r.mapping);
     else if (r.skipped) skipped.push(r.skipped);
+    if (r.dataHeaderIndex !== undefined) unimported.push({ sheet: s, headerIndex: r.dataHeaderIndex, reason: r.skipped ?? 'the sheet cannot be imported' });
   }
-  return { template: { format: 'plateau-import-mapping', version: 1, sheets, options: { ...defaultOptions(), ...options } }, skipped };
+  return { template: { format: 'plateau-import-mapping', version: 1, sheets, options: { ...defaultOptions(), ...options } }, skipped, unimported };
 }
 
 // ---------------------------------------------------------------------------------------------

@@ -128,6 +128,15 @@ describe('a level sheet of N rows accounts for N rows', () => {
     expect(a.report.excluded.find((x) => x.sheet === 'Levels' && x.row === 2)?.reason).toMatch(/sheet not imported: no time column/);
   });
 
+  it('when the suggestion finds levels but no patient id column', () => {
+    const noId = levels.map((r, i) => (i === 0 ? ['Bed', ...r.slice(1)] : r));
+    const b2 = book({ Doses: DOSES, Levels: noId });
+    const a = analyseWorkbook(b2);
+    expectAccounted(b2, a);
+    expect(a.report.summary.excludedRows).toBe(contentRows(b2, 'Levels').length);
+    expect(a.report.problems.find((p) => p.sheet === 'Levels')).toMatchObject({ row: 1, severity: 'error', message: expect.stringMatching(/no column was recognised as the patient id/) });
+  });
+
   it('when a template column is gone from the file', () => {
     const t = JSON.parse(JSON.stringify(analyseWorkbook(bytes).mapping)) as MappingTemplate;
     t.sheets.find((s) => s.sheet === 'Levels')!.columns.find((c) => c.role === 'levelValue')!.header = 'Concentration';
