@@ -4,7 +4,7 @@
  * for the CLI, the worker and the UI. Same inputs and seed give the same advice.
  */
 import type { CovariateValue, Dose } from '../data/types.js';
-import { getStructuralModel } from '../models/catalogue.js';
+import { structuralModelWithSolver } from '../models/catalogue.js';
 import type { StructuralModel } from '../models/types.js';
 import { createStreams } from '../rng/index.js';
 import { forecast, type Forecast } from './forecast.js';
@@ -123,7 +123,7 @@ export function adviseDose(o: AdviceOptions): Advice {
   if (!o.caution || !o.caution.trim()) throw new AdviceError('the caution text is missing: dose advice is never given without it');
   const { population, patient } = o;
   const target: TargetSpec = o.target ?? NO_TARGET;
-  const model = o.structuralModel ?? getStructuralModel(population.spec.structure);
+  const model = o.structuralModel ?? structuralModelWithSolver(population.spec.structure, population.spec.solver);
   const warnings: AdviceWarning[] = [];
   for (const w of population.warnings) warnings.push({ severity: 'flag', code: 'model-provenance', message: w });
   for (const c of population.checks ?? []) warnings.push({ severity: c.severity, code: c.code, message: c.message });
