@@ -422,6 +422,11 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
     inputs.push({ id: pat.id, covariates, doses, observations });
   }
 
+  // Covariates in the order of their columns in the file (derived ones last).
+  const rank = covariateColumnRank(bound);
+  const ordinal = new Map(covNames.map((n, i) => [n, i]));
+  covNames.sort((a, b) => (rank.get(a) ?? Infinity) - (rank.get(b) ?? Infinity) || ordinal.get(a)! - ordinal.get(b)!);
+
   let dataset: Dataset | undefined;
   if (inputs.length > 0) {
     try {
@@ -822,4 +827,27 @@ function ignoredColumnNotes(b: BoundSheet): string[] {
     out.push(`Sheet "${b.sheet.name}", column ${columnLabel(i, text)} is not imported: ${why}${hasValue ? '' : ' (no values)'}.`);
   }
   return out;
+}
+
+const STANDARD_COVARIATE_ROLE: Partial<Record<Role, string>> = {
+  weight: COVARIATE_NAMES.weight,
+  height: COVARIATE_NAMES.height,
+  age: COVARIATE_NAMES.age,
+  birthDate: COVARIATE_NAMES.age,
+  creatinine: COVARIATE_NAMES.creatinine,
+  sex: COVARIATE_NAMES.sex,
+};
+
+function covariateColumnRank(bound: readonly BoundSheet[]): Map<string, number> {
+  const rank = new Map<string, number>();
+  bound.forEach((b, bi) => {
+    const cols: [number, string][] = [];
+    for (const [role, c] of b.columns) {
+      const std = STANDARD_COVARIATE_ROLE[role];
+      if (std) cols.push([c.index, role === 'birthDate' ? std : (c.mapping.name ?? std)]);
+    }
+    for (const c of b.covariates) cols.push([c.index, c.mapping.name ?? c.mapping.header]);
+    for (const [i, name] of cols) if (!rank.has(name)) rank.set(name, bi * 1e6 + i);
+  });
+  return rank;
 }
