@@ -228,6 +228,14 @@ class LinearWork {
   readonly hasInfusion: boolean;
   /** Index into `out` of each static output point (integer typed, for the store). */
   readonly outIndex: Int32Array;
+  /**
+   * No oral dose and no steady-state reset: every interval is a table step, so the walk runs
+   * the static points 0..lastOutput with the tables of the first `nLengthsUsed` lengths filled
+   * up front (no per-point stamp check or depot test).
+   */
+  readonly staticOnly: boolean;
+  readonly lastOutput: number;
+  readonly nLengthsUsed: number;
 
   constructor(nModes: number, nDisposition: number, modes: ModeFunction, sc: Schedule) {
     const n = nModes;
@@ -295,6 +303,14 @@ class LinearWork {
     this.tabA = new Float64Array(nu);
     this.pend = new Float64Array(4);
     this.cur = new Float64Array(6);
+    this.staticOnly = !sc.hasOral && !kind.includes(EV_RESET);
+    let lastOutput = -1;
+    let nLengthsUsed = 0;
+    for (let k = 0; k < ns; k++) if (kind[k] === EV_OUTPUT) lastOutput = k;
+    // Lengths are numbered in order of first occurrence.
+    for (let k = 0; k <= lastOutput; k++) if (this.uniqueOf[k] + 1 > nLengthsUsed) nLengthsUsed = this.uniqueOf[k] + 1;
+    this.lastOutput = lastOutput;
+    this.nLengthsUsed = nLengthsUsed;
   }
 }
 
@@ -419,10 +435,55 @@ function fail(out: Float64Array): boolean {
   return false;
 }
 
+/**
+ * The walk of a schedule without oral doses or steady-state resets (wk.staticOnly): the same
+ * arithmetic as tableStep and fillTable, so the same numbers to the last bit.
+ */
+function evaluateStatic(wk: LinearWork, out: Float64Array): boolean {
+  const { n, s, lam, w, uniqueOf, rateAfter, outIndex, tabE, tabG, lengthH } = wk;
+  const { kind, value } = wk.sc;
+  const nu = wk.nLengthsUsed;
+  const hasInfusion = wk.hasInfusion;
+  for (let u = 0; u < nu; u++) {
+    const dt = lengthH[u];
+    const b = u * n;
+    for (let i = 0; i < n; i++) {
+      const l = lam[i];
+      const x = l * dt;
+      const e = Math.exp(-x);
+      tabE[b + i] = e;
+      if (hasInfusion) tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
+    }
+  }
+  for (let i = 0; i < n; i++) s[i] = 0;
+  let rate = 0;
+  const last = wk.lastOutput;
+  for (let k = 0; k <= last; k++) {
+    const u = uniqueOf[k];
+    if (u >= 0) {
+      const b = u * n;
+      if (rate === 0) for (let i = 0; i < n; i++) s[i] *= tabE[b + i];
+      else for (let i = 0; i < n; i++) s[i] = tabE[b + i] * s[i] + rate * tabG[b + i];
+    }
+    const kd = kind[k];
+    if (kd === EV_OUTPUT) {
+      let c = 0;
+      for (let i = 0; i < n; i++) c += w[i] * s[i];
+      out[outIndex[k]] = c < 0 ? 0 : c;
+    } else if (kd === EV_BOLUS) {
+      const v = value[k];
+      for (let i = 0; i < n; i++) s[i] += v;
+    }
+    rate = rateAfter[k];
+  }
+  return true;
+}
+
 /** One evaluation of the prepared predictor (see Predictor). */
 function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
   const { n, s, lam, w, cur, pend, uniqueOf, rateAfter, outIndex, sc } = wk;
   if (!wk.modes(params, lam, w)) return fail(out);
+  if (wk.staticOnly) return evaluateStatic(wk, out);
   const { timeH, kind, value, epoch: evEpoch, oralTimeH, oralAmountMg, oralEpoch, hasOral } = sc;
   const ns = sc.n;
   const no = sc.nOral;
