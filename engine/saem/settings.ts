@@ -10,7 +10,7 @@
  *   settleTolerance); with autoEndExploration false it runs explorationMaxIterations.
  * - averagingIterations: 200 (step 1/(k-K1)^stepExponent).
  * - stepExponent: 1 (plain averaging of every draw of phase 2); allowed (0.5, 1].
- * - independentSteps: 2, randomWalkSteps: 2, componentSweeps: 2 (Metropolis-Hastings steps per
+ * - independentSteps: 2, randomWalkSteps: 2, componentSweeps: 1 (Metropolis-Hastings steps per
  *   subject, chain and iteration: proposal from the population distribution, full random walk
  *   N(phi, kappa Omega), component-wise random walk).
  * - adaptiveSteps: 1 (random-walk steps shaped by each subject's own conditional covariance,
@@ -61,7 +61,7 @@ export const DEFAULT_SAEM_SETTINGS: Readonly<SaemSettings> = Object.freeze({
   stepExponent: 1,
   independentSteps: 2,
   randomWalkSteps: 2,
-  componentSweeps: 2,
+  componentSweeps: 1,
   adaptiveSteps: 1,
   targetAcceptance: 0.35,
   annealingTau: 0.95,
