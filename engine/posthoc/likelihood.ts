@@ -112,6 +112,9 @@ export function importanceSamplingLikelihood(
       }
       used = end;
       if (max === -Infinity) continue;
+      // The weight sums are needed only for the early-stop check and at the end.
+      const check = subjectTarget > 0 && used >= o.minSamples && used < M;
+      if (!check && used < M) continue;
       s1 = 0;
       s2 = 0;
       for (let m = 0; m < used; m++) {
@@ -119,7 +122,7 @@ export function importanceSamplingLikelihood(
         s1 += w;
         s2 += w * w;
       }
-      if (subjectTarget > 0 && used >= o.minSamples && used < M) {
+      if (check) {
         const mean = s1 / used;
         const se = Math.sqrt(Math.max(0, s2 / used - mean * mean) / Math.max(1, used - 1)) / mean;
         if (se < subjectTarget) break;
