@@ -17,7 +17,8 @@ import { cholesky, inverseSpd } from '../linalg/index.js';
 import type { Predictor } from '../models/types.js';
 import type { RngStream } from '../rng/index.js';
 import { observationLogLik } from '../stats/residual.js';
-import { hessian, minimiseBfgs } from './optimise.js';
+import { minimiseBfgs } from '../optim/bfgs.js';
+import { centralHessian } from '../optim/finiteDifferences.js';
 import { buildIndependenceKernel, buildRandomWalkKernel, logStudentTKernel, type ChainState as McmcState, type LogDensityTarget } from '../mcmc/kernels.js';
 import type { PatientPrior } from './prior.js';
 import type { PopulationModel } from './population.js';
@@ -104,7 +105,8 @@ export function findMap(obj: LevelObjective, prior: PatientPrior): MapResult {
   const polished = minimiseBfgs(obj.objective, b.x);
   const fin = polished.fx <= b.fx ? polished : b;
   const otherOptima = values.filter((v) => Number.isFinite(v) && v - fin.fx > 1e-3).length;
-  const H = hessian(obj.objective, Float64Array.from(fin.x));
+  const H = new Float64Array(fin.x.length * fin.x.length);
+  centralHessian(obj.objective, Float64Array.from(fin.x), H);
   // The objective is -2 log posterior: covariance = (H / 2)^-1.
   for (let i = 0; i < H.length; i++) H[i] *= 0.5;
   const cov = new Float64Array(d * d);

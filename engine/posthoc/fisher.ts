@@ -16,7 +16,7 @@ import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import type { ConditionalResult } from './conditional.js';
 import type { SubjectDensity } from './density.js';
 import { linearisedMinus2LL, linearisedScratch, type Linearisation } from './linearised.js';
-import { centralGradient, centralHessian } from './derivatives.js';
+import { centralGradient, centralHessian } from '../optim/finiteDifferences.js';
 import { copyTheta, fromWorking, naturalOf, toWorking, type ParameterLayout } from './parameters.js';
 
 export type InformationMethod = 'stochastic approximation (Louis)' | 'linearisation';

@@ -4,12 +4,12 @@
  * better of two starts (the estimator's conditional mean and eta = 0), and the Laplace
  * covariance (minus the inverse Hessian of the log joint density at the mode), which the
  * conditional sampler uses as its proposal scale. The optimiser is the dose-individualisation
- * engine's BFGS (engine/dosing/optimise.ts), the same MAP search a dosing session uses.
+ * engine's BFGS (engine/optim/bfgs.ts), the same MAP search a dosing session uses.
  */
 import { choleskyInverse, cholesky } from '../linalg/index.js';
 import type { SubjectDensity } from './density.js';
-import { minimiseBfgs } from '../dosing/optimise.js';
-import { centralHessian } from './derivatives.js';
+import { minimiseBfgs } from '../optim/bfgs.js';
+import { centralHessian } from '../optim/finiteDifferences.js';
 
 export interface ModeResult {
   nEta: number;

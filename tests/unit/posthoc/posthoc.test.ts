@@ -17,7 +17,7 @@ import { buildLinearisation, linearisedMinus2LL } from '../../../engine/posthoc/
 import { binEdges, computeDiagnostics, covariateRelations } from '../../../engine/posthoc/diagnostics.js';
 import { PosthocError, runPosthoc } from '../../../engine/posthoc/index.js';
 import { conditionalModes } from '../../../engine/posthoc/modes.js';
-import { centralGradient, centralHessian } from '../../../engine/posthoc/derivatives.js';
+import { centralGradient, centralHessian } from '../../../engine/optim/finiteDifferences.js';
 import { fromWorking, parameterLayout, thetaFromPopulation, toWorking } from '../../../engine/posthoc/parameters.js';
 import { summariseRuns } from '../../../engine/posthoc/robustness.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
