@@ -86,7 +86,7 @@ export class AdviceError extends Error {
 }
 
 /** Next dose: as given, else one usual interval after the last dose (inferred), else 12 h after it. */
-function nextDose(patient: Patient): { h: number; assumed: boolean; note?: string } {
+function nextDoseTime(patient: Patient): { h: number; assumed: boolean; note?: string } {
   if (patient.nextDoseH !== undefined) return { h: patient.nextDoseH, assumed: false };
   const d = patient.doses;
   const last = d[d.length - 1];
@@ -241,7 +241,7 @@ export function adviseDose(o: AdviceOptions): Advice {
   if (failed > 0) warnings.push({ severity: 'flag', code: 'draws-failed', message: `${failed} of ${nDraws} draws gave parameters outside the model's domain and were left out` });
 
   // Regimens.
-  const next = nextDose(patient);
+  const next = nextDoseTime(patient);
   if (next.note) warnings.push({ severity: 'note', code: 'next-dose-assumed', message: next.note });
   const settings = o.regimenSettings ?? target.regimen ?? DEFAULT_REGIMEN_SETTINGS;
   const lastRoute = patient.doses[patient.doses.length - 1].route;
