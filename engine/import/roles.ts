@@ -215,6 +215,9 @@ export function canonicalCovariateName(header: string): string {
   return out;
 }
 
+/** Headers of columns that identify a person; they never become covariates (data minimisation). */
+const IDENTIFYING_HEADER = /\b(name|names|surname|forename|first ?name|last ?name|family ?name|given ?name|nom|prenom|nombre|apellidos?|address|street|postcode|zip|phone|telephone|mobile|e-?mail|mrn|nhs|ssn|insurance|passport|record ?(no|number))\b/i;
+
 /**
  * Why a column not recognised by its header is not a patient covariate, or undefined when it is
  * one: empty, dates or times (moments, not patient traits), or text that is the same on every
@@ -312,6 +315,10 @@ export function suggestSheet(sheet: SheetModel): SheetSuggestion {
   const pidCol = columns.find((c) => c.role === 'patientId');
   for (const col of columns) {
     if (col.role !== 'ignore' || col.note || col.header === '' || UNIT_HEADER.test(foldText(col.header).trim())) continue;
+    if (IDENTIFYING_HEADER.test(foldText(col.header))) {
+      col.note = 'the column looks like patient-identifying information (a name, address, contact or record number): it is not imported; the patient id column is all Plateau needs';
+      continue;
+    }
     const p = profiles.find((q) => q.letter === col.column)!;
     const why = notCovariate(sheet, headerIndex, p, pidCol ? profiles.find((q) => q.letter === pidCol.column)!.index : -1);
     if (why) col.note = why;
