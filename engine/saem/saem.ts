@@ -68,6 +68,14 @@ export interface SaemOptions {
   /** Milliseconds clock for timing (default Date.now). */
   now?: () => number;
   /**
+   * Hands control back to the host (e.g. `setImmediate` in Node) at most every
+   * `yieldEveryMs` ms of work, so an abort from outside can land mid-fit; the engine itself
+   * knows no event loop.
+   */
+  yieldToHost?: () => Promise<void>;
+  /** Default 50 ms. */
+  yieldEveryMs?: number;
+  /**
    * Keep the population parameters at their initial values (no M-step): the kernels then sample
    * p(phi_i | y_i; theta) at that theta (for checks of the sampler and for post-fit draws).
    */
@@ -989,9 +997,16 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 /** Run SAEM to the end; rejects with SaemCancelledError when the signal aborts. */
 export async function runSaem(model: CompiledModel, options: SaemOptions = {}): Promise<SaemResult> {
   const run = createSaemRun(model, options);
+  const now = options.now ?? Date.now;
+  const yieldEveryMs = options.yieldEveryMs ?? 50;
+  let lastYield = now();
   while (!run.done) {
     if (options.signal?.aborted) throw new SaemCancelledError(run.iteration);
     run.step();
+    if (options.yieldToHost && now() - lastYield >= yieldEveryMs) {
+      await options.yieldToHost();
+      lastYield = now();
+    }
     if (options.onProgress) {
       const r = options.onProgress({
         phase: run.phase === 'averaging' && run.iteration === run.explorationEnd ? 'exploration' : run.phase,

@@ -51,7 +51,7 @@ export async function fitDataset(
     ...(options.seed !== undefined ? { seed: options.seed } : {}),
     ...(options.settings ? { settings: options.settings } : {}),
     ...(options.onProgress ? { onProgress: options.onProgress } : {}),
-    ...(options.signal ? { signal: options.signal } : {}),
+    ...(options.signal ? { signal: options.signal, yieldToHost: () => new Promise<void>((resolve) => setImmediate(resolve)) } : {}),
   });
   return { record: buildFitRecord(model, result, datasetHash(dataset), covariateRanges(dataset)), model, dataset, spec };
 }

@@ -53,6 +53,22 @@ describe('cancellation and progress', () => {
     await expect(promise).rejects.toBeInstanceOf(SaemCancelledError);
     expect(seen).toEqual([1, 2, 3, 4, 5, 6, 7].map((k) => `exploration:${k}`));
   });
+  it('an abort from outside (a timer) lands mid-fit when the host is given control', async () => {
+    const model = compileModel(truth, dataset);
+    const controller = new AbortController();
+    setTimeout(() => controller.abort(), 5);
+    let iterations = 0;
+    const promise = runSaem(model, {
+      seed: 1,
+      settings: { ...short, explorationMinIterations: 5000, explorationMaxIterations: 5000 },
+      signal: controller.signal,
+      yieldToHost: () => new Promise<void>((resolve) => setImmediate(resolve)),
+      yieldEveryMs: 1,
+      onProgress: (p) => void (iterations = p.iteration),
+    });
+    await expect(promise).rejects.toBeInstanceOf(SaemCancelledError);
+    expect(iterations).toBeLessThan(5000);
+  });
   it('marks the phase boundary', async () => {
     const model = compileModel(truth, dataset);
     const phases: string[] = [];
