@@ -9,25 +9,21 @@ import * as os from 'node:os';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { runCli } from '../../main/cli/run.js';
+import { captureIo } from '../helpers/captureIo.js';
 
 const root = path.resolve(__dirname, '../..');
-const capture = (cwd: string) => {
-  const out: string[] = [];
-  const err: string[] = [];
-  return { io: { stdout: (t: string) => out.push(t), stderr: (t: string) => err.push(t), cwd }, out: () => out.join(''), err: () => err.join('') };
-};
 
 describe('demo walk-through (invented data)', () => {
   it('check, fit and dose run end to end on the demo ward data', async () => {
     const dir = mkdtempSync(path.join(os.tmpdir(), 'plateau-demo-'));
     const data = path.join(root, 'resources/demo/ward-levels.csv');
 
-    const c = capture(dir);
+    const c = captureIo(dir);
     expect(await runCli(['check', '--data', data, '--report', 'report.json'], c.io)).toBe(0);
     const report = JSON.parse(readFileSync(path.join(dir, 'report.json'), 'utf8'));
     expect(report.summary).toMatchObject({ patients: 48, levels: 92 });
 
-    const f = capture(dir);
+    const f = captureIo(dir);
     expect(await runCli(['fit', '--data', data, '--model', path.join(root, 'resources/demo/ward-model.json'), '--out', 'fit.json'], f.io)).toBe(0);
     const fit = JSON.parse(readFileSync(path.join(dir, 'fit.json'), 'utf8'));
     const est = (kind: string, parameter: string) => fit.population.find((e: { kind: string; parameter: string }) => e.kind === kind && e.parameter === parameter);
@@ -38,13 +34,13 @@ describe('demo walk-through (invented data)', () => {
     expect(fit.covariateRanges.crcl_mL_min[0]).toBeGreaterThanOrEqual(30);
 
     const patient = path.join(root, 'resources/demo/patient.json');
-    const d = capture(dir);
+    const d = captureIo(dir);
     expect(await runCli(['dose', '--model', 'fit.json', '--patient', patient, '--target', 'vancomycin-auc24', '--json'], d.io)).toBe(1);
     const blocked = JSON.parse(d.out());
     expect(blocked.status).toBe('blocked');
     expect(blocked.caution).toMatch(/qualified clinicians/);
 
-    const o = capture(dir);
+    const o = captureIo(dir);
     await runCli(['dose', '--model', 'fit.json', '--patient', patient, '--target', 'vancomycin-auc24', '--json', '--override-blocks'], o.io);
     const shown = JSON.parse(o.out());
     expect(shown.status).toBe('blocked-shown-on-request');

@@ -3,17 +3,13 @@ import * as os from 'node:os';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
+import { captureIo } from '../../helpers/captureIo.js';
 
 const ROOT = path.resolve(__dirname, '../../..');
 const EXAMPLE_MODEL = path.join(ROOT, 'resources/models/example-vancomycin-1cmt.json');
 const PATIENT = path.join(__dirname, 'fixtures/patient-vanco.json');
 const CAUTION = JSON.parse(readFileSync(path.join(ROOT, 'resources/cautions/dosing.json'), 'utf8')).text as string;
 
-function io(cwd: string) {
-  const out: string[] = [];
-  const err: string[] = [];
-  return { io: { stdout: (t: string) => out.push(t), stderr: (t: string) => err.push(t), cwd }, out: () => out.join(''), err: () => err.join('') };
-}
 
 // A model spec with its source and ranges (invented values, for this test only).
 const SPEC = {
@@ -34,7 +30,7 @@ describe('plateau dose', () => {
   writeFileSync(path.join(dir, 'model.json'), JSON.stringify(SPEC));
 
   it('prints the posterior, ranked regimens and the caution, and writes advice.json per the contract', async () => {
-    const t = io(dir);
+    const t = captureIo(dir);
     const code = await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', '--out', 'advice.json', '--seed', '4'], t.io);
     expect(t.err()).toBe('');
     expect(code).toBe(0);
@@ -62,7 +58,7 @@ describe('plateau dose', () => {
   });
 
   it('--evaluate returns the one regimen; --json prints the same JSON', async () => {
-    const t = io(dir);
+    const t = captureIo(dir);
     const code = await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', '--evaluate', '1250mg q12h 1.5h', '--json', '--peak-after', '1', '--next-dose-h', '40'], t.io);
     expect(code).toBe(0);
     const a = JSON.parse(t.out());
@@ -75,7 +71,7 @@ describe('plateau dose', () => {
   });
 
   it('refuses to advise with an example model (exit 1) and shows the table only on request', async () => {
-    const t = io(dir);
+    const t = captureIo(dir);
     expect(await runCli(['dose', '--model', EXAMPLE_MODEL, '--patient', PATIENT, '--target', 'vancomycin-auc24', '--out', 'blocked.json'], t.io)).toBe(1);
     expect(t.out()).toContain('BLOCKED: NO DOSE ADVICE');
     expect(t.out()).toContain('CAUTION');
@@ -83,7 +79,7 @@ describe('plateau dose', () => {
     const a = JSON.parse(readFileSync(path.join(dir, 'blocked.json'), 'utf8'));
     expect(a.status).toBe('blocked');
     expect(a.regimens).toEqual([]);
-    const t2 = io(dir);
+    const t2 = captureIo(dir);
     expect(await runCli(['dose', '--model', EXAMPLE_MODEL, '--patient', PATIENT, '--target', 'vancomycin-auc24', '--override-blocks'], t2.io)).toBe(0);
     expect(t2.out()).toContain('BLOCKED (regimens shown on request');
     expect(t2.out()).toContain('Ranked regimens');
@@ -94,12 +90,12 @@ describe('plateau dose', () => {
       path.join(dir, 'my-target.json'),
       JSON.stringify({ id: 'ward-7', label: 'ward 7 trough 10-15', source: 'ward 7 protocol 2026 (invented for the test)', goals: [{ metric: 'trough', min: 10, max: 15 }], toxic: [{ metric: 'trough', max: 20 }], regimen: { strengthMg: 250, minDoseMg: 500, maxDoseMg: 2000, intervalsH: [12], durationsH: [1, 2], maxRateMgPerH: 1000 } }),
     );
-    const t = io(dir);
+    const t = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'my-target.json', '--json'], t.io)).toBe(0);
     const a = JSON.parse(t.out());
     expect(a.target).toMatchObject({ id: 'ward-7', localProtocol: 'check local protocol' });
     expect(a.regimens.every((r: { intervalH: number }) => r.intervalH === 12)).toBe(true);
-    const t2 = io(dir);
+    const t2 = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', '--mic', '2', '--evaluate', '1000mg q12h 1h', '--json'], t2.io)).toBe(0);
     const b = JSON.parse(t2.out());
     expect(b.target.micMgL).toBe(2);
@@ -108,7 +104,7 @@ describe('plateau dose', () => {
   });
 
   it('without --target evaluates the current regimen only', async () => {
-    const t = io(dir);
+    const t = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--json'], t.io)).toBe(0);
     const a = JSON.parse(t.out());
     expect(a.regimens).toHaveLength(1);
@@ -118,26 +114,26 @@ describe('plateau dose', () => {
 
   it('reports bad input clearly', async () => {
     writeFileSync(path.join(dir, 'bad.json'), JSON.stringify({ id: 'b', covariates: { weight_lb: 150 }, doses: [{ time_h: 0, amount_mg: 1000, duration_h: 2 }, { time_h: 1, amount_mg: 1000, duration_h: 1 }], levels: [] }));
-    const t = io(dir);
+    const t = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', 'bad.json', '--target', 'vancomycin-auc24'], t.io)).toBe(1);
     expect(t.err()).toContain('bad.json');
     expect(t.err()).toContain('covariates.weight_lb: unknown unit');
     expect(t.err()).toContain('overlapping');
-    const t2 = io(dir);
+    const t2 = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'no-such-target'], t2.io)).toBe(1);
     expect(t2.err()).toContain('vancomycin-auc24');
-    const t3 = io(dir);
+    const t3 = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--evaluate', '1000 q12h'], t3.io)).toBe(2);
     expect(t3.err()).toContain('cannot read the regimen');
     writeFileSync(path.join(dir, 'nocov.json'), JSON.stringify({ id: 'n', covariates: { weight_kg: 70 }, doses: [{ time_h: 0, amount_mg: 1000, duration_h: 1 }] }));
-    const t4 = io(dir);
+    const t4 = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', 'nocov.json', '--target', 'vancomycin-auc24'], t4.io)).toBe(1);
     expect(t4.err()).toContain('crcl_mL_min');
   });
 
   it('carries the caution on every exit path, and writes a JSON error record with --out / --json', async () => {
     writeFileSync(path.join(dir, 'invalid.json'), JSON.stringify({ id: 'x', covariates: { weight_kg: 70 }, doses: [{ time_h: 0, amount_mg: 1000, duration_h: 1 }], levels: [{ time_h: 11, conc_mg_L: 'NaN' }] }));
-    const t = io(dir);
+    const t = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', 'invalid.json', '--target', 'vancomycin-auc24', '--out', 'error.json'], t.io)).toBe(1);
     expect(t.err()).toContain(CAUTION);
     expect(t.err()).toContain('levels[0].conc_mg_L: must be a number, got "NaN" (not a number)');
@@ -145,14 +141,14 @@ describe('plateau dose', () => {
     expect(rec).toMatchObject({ status: 'error', caution: CAUTION, engineVersion: '0.1.0' });
     expect(rec.errors.some((e: string) => e.includes('not a number'))).toBe(true);
     // --json prints the record; a usage error (bad --draws) carries the caution too.
-    const t2 = io(dir);
+    const t2 = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', 'invalid.json', '--json'], t2.io)).toBe(1);
     expect(JSON.parse(t2.out())).toMatchObject({ status: 'error', caution: CAUTION });
-    const t3 = io(dir);
+    const t3 = captureIo(dir);
     expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--draws', '5', '--out', 'usage.json'], t3.io)).toBe(2);
     expect(t3.err()).toContain(CAUTION);
     expect(JSON.parse(readFileSync(path.join(dir, 'usage.json'), 'utf8')).errors[0]).toContain('--draws');
-    const t4 = io(dir);
+    const t4 = captureIo(dir);
     expect(await runCli(['dose', '--model', 'missing-model.json', '--patient', PATIENT], t4.io)).toBe(1);
     expect(t4.err()).toContain(CAUTION);
   });

@@ -8,14 +8,10 @@ import * as os from 'node:os';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
+import { captureIo } from '../../helpers/captureIo.js';
 
 const theophCsv = path.resolve(__dirname, '../../reference/theoph/theoph.csv');
 
-function io(cwd: string) {
-  const out: string[] = [];
-  const err: string[] = [];
-  return { io: { stdout: (t: string) => out.push(t), stderr: (t: string) => err.push(t), cwd }, out: () => out.join(''), err: () => err.join('') };
-}
 
 describe('plateau dose with a fit.json', () => {
   it('uses the fitted estimates, records the fit provenance and checks the patient against the fitted covariate ranges', async () => {
@@ -29,7 +25,7 @@ describe('plateau dose with a fit.json', () => {
       estimation: { explorationMinIterations: 60, explorationMaxIterations: 100, averagingIterations: 50 },
     };
     writeFileSync(path.join(dir, 'spec.json'), JSON.stringify(spec));
-    const f = io(dir);
+    const f = captureIo(dir);
     expect(await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '3', '--out', 'fit.json'], f.io)).toBe(0);
     const fit = JSON.parse(readFileSync(path.join(dir, 'fit.json'), 'utf8'));
     const clFit = fit.population.find((e: { kind: string; parameter: string }) => e.kind === 'typical' && e.parameter === 'CL').estimate;
@@ -38,7 +34,7 @@ describe('plateau dose with a fit.json', () => {
       path.join(dir, 'patient.json'),
       JSON.stringify({ id: 'oral-1 (invented)', covariates: { weight_kg: 70 }, doses: [0, 12].map((t) => ({ time_h: t, amount_mg: 4, route: 'oral' })), levels: [{ time_h: 14, conc_mg_L: 7.5 }] }),
     );
-    const t = io(dir);
+    const t = captureIo(dir);
     const code = await runCli(['dose', '--model', 'fit.json', '--patient', 'patient.json', '--json', '--seed', '2'], t.io);
     expect(code).toBe(0);
     const a = JSON.parse(t.out());
@@ -62,7 +58,7 @@ describe('plateau dose with a fit.json', () => {
       path.join(dir, 'heavy.json'),
       JSON.stringify({ id: 'oral-2 (invented)', covariates: { weight_kg: 130 }, doses: [{ time_h: 0, amount_mg: 4, route: 'oral' }], levels: [{ time_h: 2, conc_mg_L: 5 }] }),
     );
-    const h = io(dir);
+    const h = captureIo(dir);
     expect(await runCli(['dose', '--model', 'fit.json', '--patient', 'heavy.json', '--json', '--seed', '2'], h.io)).toBe(1);
     const blocked = JSON.parse(h.out());
     expect(blocked.status).toBe('blocked');

@@ -3,14 +3,10 @@ import * as os from 'node:os';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
+import { captureIo } from '../../helpers/captureIo.js';
 
 const theophCsv = path.resolve(__dirname, '../../reference/theoph/theoph.csv');
 
-function io(cwd: string) {
-  const out: string[] = [];
-  const err: string[] = [];
-  return { io: { stdout: (t: string) => out.push(t), stderr: (t: string) => err.push(t), cwd }, out, err };
-}
 
 const spec = {
   structure: '1cmt',
@@ -24,11 +20,11 @@ describe('plateau fit', () => {
   writeFileSync(path.join(dir, 'spec.json'), JSON.stringify(spec));
 
   it('fits, prints a summary and writes fit.json with the documented fields', async () => {
-    const t = io(dir);
+    const t = captureIo(dir);
     const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '7', '--out', 'fit.json', '--progress'], t.io);
-    expect(t.err.join('')).toContain('[exploration 10/');
+    expect(t.err()).toContain('[exploration 10/');
     expect(code).toBe(0);
-    const text = t.out.join('');
+    const text = t.out();
     expect(text).toContain('CL (typical)');
     expect(text).toContain('BSV ka (omega)');
     const fit = JSON.parse(readFileSync(path.join(dir, 'fit.json'), 'utf8'));
@@ -42,23 +38,23 @@ describe('plateau fit', () => {
 
   it('explains a model that does not match the data (ka missing for oral doses)', async () => {
     writeFileSync(path.join(dir, 'noka.json'), JSON.stringify({ ...spec, parameters: { CL: spec.parameters.CL, V: spec.parameters.V } }));
-    const t = io(dir);
+    const t = captureIo(dir);
     const code = await runCli(['fit', '--data', theophCsv, '--model', 'noka.json'], t.io);
     expect(code).toBe(1);
-    expect(t.err.join('')).toMatch(/oral doses .* no absorption rate ka/);
+    expect(t.err()).toMatch(/oral doses .* no absorption rate ka/);
   });
 
   it('rejects a bad estimation setting with its JSON path', async () => {
     writeFileSync(path.join(dir, 'bad.json'), JSON.stringify({ ...spec, estimation: { chains: 0 } }));
-    const t = io(dir);
+    const t = captureIo(dir);
     const code = await runCli(['fit', '--data', theophCsv, '--model', 'bad.json'], t.io);
     expect(code).toBe(1);
-    expect(t.err.join('')).toContain('estimation.chains');
+    expect(t.err()).toContain('estimation.chains');
   });
 
   it('needs --data and --model', async () => {
-    const t = io(dir);
+    const t = captureIo(dir);
     expect(await runCli(['fit', '--model', 'spec.json'], t.io)).toBe(2);
-    expect(t.err.join('')).toContain('--data');
+    expect(t.err()).toContain('--data');
   });
 });

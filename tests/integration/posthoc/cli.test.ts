@@ -4,6 +4,7 @@ import * as os from 'node:os';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
+import { captureIo } from '../../helpers/captureIo.js';
 
 const theophCsv = path.resolve(__dirname, '../../reference/theoph/theoph.csv');
 const spec = {
@@ -12,22 +13,17 @@ const spec = {
   residual: { model: 'additive', a: 1 },
   estimation: { explorationMinIterations: 60, explorationMaxIterations: 100, averagingIterations: 50 },
 };
-function io(cwd: string) {
-  const out: string[] = [];
-  const err: string[] = [];
-  return { io: { stdout: (t: string) => out.push(t), stderr: (t: string) => err.push(t), cwd }, out, err };
-}
 
 describe('plateau fit: post-fit fields and --repeat', () => {
   const dir = mkdtempSync(path.join(os.tmpdir(), 'plateau-posthoc-'));
   writeFileSync(path.join(dir, 'spec.json'), JSON.stringify(spec));
 
   it('writes se, rsePercent, likelihood, per-subject conditional summaries, diagnostics and robustness', async () => {
-    const t = io(dir);
+    const t = captureIo(dir);
     const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '5', '--repeat', '2', '--out', 'fit.json'], t.io);
-    expect(t.err.join('')).toBe('');
+    expect(t.err()).toBe('');
     expect(code).toBe(0);
-    const text = t.out.join('');
+    const text = t.out();
     expect(text).toMatch(/Standard errors \(observed Fisher information by stochastic approximation \(Louis\)/);
     expect(text).toMatch(/-2LL \d+\.\d+ \(Monte Carlo SE/);
     expect(text).toMatch(/Robustness \(2 runs\): (stable|unstable)/);
@@ -50,9 +46,9 @@ describe('plateau fit: post-fit fields and --repeat', () => {
   }, 120_000);
 
   it('refuses --repeat below 2', async () => {
-    const t = io(dir);
+    const t = captureIo(dir);
     const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--repeat', '1'], t.io);
     expect(code).toBe(1);
-    expect(t.err.join('')).toMatch(/--repeat must be an integer >= 2/);
+    expect(t.err()).toMatch(/--repeat must be an integer >= 2/);
   });
 });

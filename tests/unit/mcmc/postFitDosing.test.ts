@@ -8,13 +8,10 @@ import * as os from 'node:os';
 import * as path from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
+import { captureIo } from '../../helpers/captureIo.js';
 
 const theophCsv = path.resolve(__dirname, '../../reference/theoph/theoph.csv');
 
-function io(cwd: string) {
-  const out: string[] = [];
-  return { io: { stdout: (t: string) => out.push(t), stderr: () => undefined, cwd }, out: () => out.join('') };
-}
 
 describe('dosing a fitted subject from its post-fit draws', () => {
   const dir = mkdtempSync(path.join(os.tmpdir(), 'plateau-postfit-'));
@@ -32,7 +29,7 @@ describe('dosing a fitted subject from its post-fit draws', () => {
   });
   const advise = async (name: string, p: object, json = true) => {
     writeFileSync(path.join(dir, name), JSON.stringify(p));
-    const t = io(dir);
+    const t = captureIo(dir);
     const code = await runCli(['dose', '--model', 'fit.json', '--patient', name, '--seed', '2', ...(json ? ['--json'] : [])], t.io);
     return { code, out: t.out() };
   };
@@ -47,7 +44,7 @@ describe('dosing a fitted subject from its post-fit draws', () => {
       estimation: { explorationMinIterations: 60, explorationMaxIterations: 100, averagingIterations: 50 },
     };
     writeFileSync(path.join(dir, 'spec.json'), JSON.stringify(spec));
-    expect(await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '3', '--out', 'fit.json'], io(dir).io)).toBe(0);
+    expect(await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '3', '--out', 'fit.json'], captureIo(dir).io)).toBe(0);
     fit = JSON.parse(readFileSync(path.join(dir, 'fit.json'), 'utf8'));
   }, 120_000);
 
