@@ -3,31 +3,20 @@
  * tests/reference/theoph/export_theoph.R), then plateau dose with its fit.json as the prior.
  * Mechanics only: the patient is invented, and Theoph doses are mg/kg.
  */
-import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, writeFileSync } from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
 import { captureIo } from '../../helpers/captureIo.js';
+import { fitTheophInto } from '../../helpers/theophFit.js';
 
-const theophCsv = path.resolve(__dirname, '../../reference/theoph/theoph.csv');
 
 
 describe('plateau dose with a fit.json', () => {
   it('uses the fitted estimates, records the fit provenance and checks the patient against the fitted covariate ranges', async () => {
     const dir = mkdtempSync(path.join(os.tmpdir(), 'plateau-dose-fit-'));
-    const spec = {
-      name: 'Theoph one-compartment (test)',
-      structure: '1cmt',
-      parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
-      covariates: [{ parameter: 'CL', covariate: 'weight_kg', relation: 'power', reference: 70, coefficient: 0.75, fixed: true }],
-      residual: { model: 'additive', a: 1 },
-      estimation: { explorationMinIterations: 60, explorationMaxIterations: 100, averagingIterations: 50 },
-    };
-    writeFileSync(path.join(dir, 'spec.json'), JSON.stringify(spec));
-    const f = captureIo(dir);
-    expect(await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '3', '--out', 'fit.json'], f.io)).toBe(0);
-    const fit = JSON.parse(readFileSync(path.join(dir, 'fit.json'), 'utf8'));
+    const fit = await fitTheophInto(dir);
     const clFit = fit.population.find((e: { kind: string; parameter: string }) => e.kind === 'typical' && e.parameter === 'CL').estimate;
 
     writeFileSync(

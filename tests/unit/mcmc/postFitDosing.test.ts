@@ -9,8 +9,8 @@ import * as path from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
 import { captureIo } from '../../helpers/captureIo.js';
+import { fitTheophInto, theophCsv } from '../../helpers/theophFit.js';
 
-const theophCsv = path.resolve(__dirname, '../../reference/theoph/theoph.csv');
 
 
 describe('dosing a fitted subject from its post-fit draws', () => {
@@ -35,17 +35,7 @@ describe('dosing a fitted subject from its post-fit draws', () => {
   };
 
   beforeAll(async () => {
-    const spec = {
-      name: 'Theoph one-compartment (test)',
-      structure: '1cmt',
-      parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
-      covariates: [{ parameter: 'CL', covariate: 'weight_kg', relation: 'power', reference: 70, coefficient: 0.75, fixed: true }],
-      residual: { model: 'additive', a: 1 },
-      estimation: { explorationMinIterations: 60, explorationMaxIterations: 100, averagingIterations: 50 },
-    };
-    writeFileSync(path.join(dir, 'spec.json'), JSON.stringify(spec));
-    expect(await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '3', '--out', 'fit.json'], captureIo(dir).io)).toBe(0);
-    fit = JSON.parse(readFileSync(path.join(dir, 'fit.json'), 'utf8'));
+    fit = await fitTheophInto(dir);
   }, 120_000);
 
   it('uses the draws, says so in the provenance, the notes and the printed advice', async () => {
