@@ -10,6 +10,7 @@ import { DataError } from '../../engine/data/types.js';
 import { SpecError } from '../../engine/spec/modelSpec.js';
 import { CovariateValueError } from '../../engine/spec/individual.js';
 import { DatasetLoadError } from '../services/datasetLoader.js';
+import { ServiceError } from '../services/serviceError.js';
 import { CliError, UsageError, type CliCommand, type CliIo } from './types.js';
 
 export interface RunOptions {
@@ -118,7 +119,7 @@ export function reportError(error: unknown, io: CliIo, debug: boolean, usage?: s
     return 1;
   }
   // Errors that already say what to do (ours, and the import service's by name) print as they are.
-  if (error instanceof CliError || error instanceof DatasetLoadError || error instanceof CovariateValueError || (error instanceof Error && EXPECTED_ERROR_NAMES.has(error.name))) {
+  if (error instanceof CliError || error instanceof ServiceError || error instanceof DatasetLoadError || error instanceof CovariateValueError || (error instanceof Error && EXPECTED_ERROR_NAMES.has(error.name))) {
     io.stderr(`plateau: ${withNewline(error.message)}`);
     if (debug && error.stack) io.stderr(`${error.stack}\n`);
     return 1;

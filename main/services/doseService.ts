@@ -10,8 +10,8 @@ import { parsePatient, type Patient } from '../../engine/dosing/patient.js';
 import { loadPopulationModel, type PopulationModel } from '../../engine/dosing/population.js';
 import { parseTarget, type TargetSpec } from '../../engine/dosing/targets.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
-import { readJsonFile } from '../cli/io.js';
-import { CliError } from '../cli/types.js';
+import { readJsonFile } from './files.js';
+import { ServiceError } from './serviceError.js';
 
 /** The repository (or installed app) folder holding resources/, found by walking up from here. */
 export function resourcesDir(): string {
@@ -23,14 +23,14 @@ export function resourcesDir(): string {
     if (up === dir) break;
     dir = up;
   }
-  throw new CliError('cannot find the resources folder (resources/cautions/dosing.json): the installation is incomplete');
+  throw new ServiceError('file', 'cannot find the resources folder (resources/cautions/dosing.json): the installation is incomplete');
 }
 
 /** The dosing caution text: one source of truth, resources/cautions/dosing.json. */
 export async function loadCaution(dir = resourcesDir()): Promise<string> {
   const file = path.join(dir, 'cautions', 'dosing.json');
   const json = (await readJsonFile(file)) as { text?: unknown };
-  if (typeof json?.text !== 'string' || !json.text.trim()) throw new CliError(`${file}: the caution text is missing; dose advice is never given without it`);
+  if (typeof json?.text !== 'string' || !json.text.trim()) throw new ServiceError('file', `${file}: the caution text is missing; dose advice is never given without it`);
   return json.text;
 }
 
@@ -44,12 +44,12 @@ export async function loadTarget(nameOrPath: string, cwd: string, dir = resource
   const presets = await listTargetPresets(dir);
   const file = presets.includes(nameOrPath) ? path.join(dir, 'targets', `${nameOrPath}.json`) : path.resolve(cwd, nameOrPath);
   if (!presets.includes(nameOrPath) && !existsSync(file))
-    throw new CliError(`target "${nameOrPath}" is neither a preset (${presets.join(', ')}) nor a file`);
+    throw new ServiceError('file', `target "${nameOrPath}" is neither a preset (${presets.join(', ')}) nor a file`);
   const json = await readJsonFile(file);
   try {
     return parseTarget(json);
   } catch (e) {
-    throw new CliError(`${file}: ${(e as Error).message}`);
+    throw new ServiceError('file', `${file}: ${(e as Error).message}`);
   }
 }
 

@@ -10,7 +10,7 @@ import { runSaem, type AbortSignalLike, type SaemProgress } from '../../engine/s
 import type { SaemSettings } from '../../engine/saem/settings.js';
 import { parseModelSpec, type ModelSpec } from '../../engine/spec/modelSpec.js';
 import { compileModel, type CompiledModel } from '../../engine/stats/model.js';
-import { readJsonFile } from '../cli/io.js';
+import { readJsonFile } from './files.js';
 import { loadDataset } from './datasetLoader.js';
 
 export interface FitFromFilesOptions {

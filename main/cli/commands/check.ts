@@ -4,7 +4,7 @@
  */
 import * as path from 'node:path';
 import { parseArgs, stringFlag, booleanFlag, numberFlag } from '../args.js';
-import { resolvePath, writeFileAtomic } from '../io.js';
+import { resolvePath, writeFileAtomic } from '../../services/files.js';
 import { CliError, UsageError, type CliCommand } from '../types.js';
 import type { ImportOptions, MappingTemplate } from '../../../engine/import/roles.js';
 import type { ImportReport } from '../../../engine/import/build.js';

@@ -4,7 +4,7 @@ import { parseRegimen, RegimenParseError } from '../../../engine/dosing/regimens
 import { ENGINE_VERSION } from '../../../engine/version.js';
 import { listTargetPresets, loadCaution, loadModelFile, loadPatientFile, loadTarget, runDoseAdvice } from '../../services/doseService.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
-import { resolvePath, writeFileAtomic } from '../io.js';
+import { resolvePath, writeFileAtomic } from '../../services/files.js';
 import { UsageError, type CliCommand, type CliIo } from '../types.js';
 
 const usage = `Usage: plateau dose --model <fit.json|model.json> --patient <patient.json> [--target <preset|target.json>]

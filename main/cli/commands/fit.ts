@@ -4,7 +4,7 @@ import { ModelDataError } from '../../../engine/stats/model.js';
 import { fitFromFiles } from '../../services/fitService.js';
 import { addPosthoc, formatPosthocSummary } from '../../services/fitPosthoc.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
-import { resolvePath, writeFileAtomic } from '../io.js';
+import { resolvePath, writeFileAtomic } from '../../services/files.js';
 import { CliError, type CliCommand } from '../types.js';
 
 const usage = `usage: plateau fit --data <canonical.csv|spreadsheet> --model <spec.json> [--mapping <template.json>]

@@ -4,7 +4,7 @@ import { writeCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { loadDataset } from '../../services/datasetLoader.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
-import { readJsonFile, resolvePath, writeFileAtomic } from '../io.js';
+import { readJsonFile, resolvePath, writeFileAtomic } from '../../services/files.js';
 import { parseTimeGrid, simulateDataset, type TimeGrid } from '../simulation.js';
 import { UsageError, type CliCommand } from '../types.js';
 

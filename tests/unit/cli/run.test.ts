@@ -3,7 +3,7 @@ import { tmpdir } from 'node:os';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
-import { parseJsonText, writeFileAtomic, readJsonFile } from '../../../main/cli/io.js';
+import { parseJsonText, writeFileAtomic, readJsonFile } from '../../../main/services/files.js';
 import type { CliIo } from '../../../main/cli/types.js';
 
 function captureIo(cwd = process.cwd()): CliIo & { out: string; err: string } {

@@ -1,8 +1,11 @@
-/** File helpers for commands: JSON reading with located errors, atomic writes, path resolution. */
+/**
+ * File helpers for every front door (CLI, worker, Electron, web host): JSON reading with located
+ * errors, the one atomic writer, path resolution. Failures are ServiceErrors of kind 'file'.
+ */
 import { randomBytes } from 'node:crypto';
 import { promises as fs } from 'node:fs';
 import * as path from 'node:path';
-import { CliError } from './types.js';
+import { ServiceError } from './serviceError.js';
 
 /** Resolve a user-given path against the command's working directory. */
 export function resolvePath(cwd: string, file: string): string {
@@ -15,9 +18,9 @@ export async function readTextFile(file: string): Promise<string> {
     return await fs.readFile(file, 'utf8');
   } catch (e) {
     const code = (e as NodeJS.ErrnoException).code;
-    if (code === 'ENOENT') throw new CliError(`file not found: ${file}`);
-    if (code === 'EISDIR') throw new CliError(`${file} is a folder, not a file`);
-    throw new CliError(`cannot read ${file}: ${(e as Error).message}`);
+    if (code === 'ENOENT') throw new ServiceError('file', `file not found: ${file}`);
+    if (code === 'EISDIR') throw new ServiceError('file', `${file} is a folder, not a file`);
+    throw new ServiceError('file', `cannot read ${file}: ${(e as Error).message}`);
   }
 }
 
@@ -134,9 +137,9 @@ export function parseJsonText(text: string, file: string): unknown {
     return JSON.parse(body);
   } catch (e) {
     const located = locateJsonError(body);
-    if (!located) throw new CliError(`${file} is not valid JSON: ${(e as Error).message}`);
+    if (!located) throw new ServiceError('file', `${file} is not valid JSON: ${(e as Error).message}`);
     const { line, column } = lineColumn(body, located.offset);
-    throw new CliError(`${file} is not valid JSON at line ${line}, column ${column}: ${located.reason}`);
+    throw new ServiceError('file', `${file} is not valid JSON at line ${line}, column ${column}: ${located.reason}`);
   }
 }
 
@@ -153,10 +156,10 @@ export async function writeFileAtomic(file: string, data: string | Uint8Array): 
   const dir = path.dirname(file);
   try {
     const st = await fs.stat(dir);
-    if (!st.isDirectory()) throw new CliError(`cannot write ${file}: ${dir} is not a folder`);
+    if (!st.isDirectory()) throw new ServiceError('file', `cannot write ${file}: ${dir} is not a folder`);
   } catch (e) {
-    if (e instanceof CliError) throw e;
-    throw new CliError(`cannot write ${file}: the folder ${dir} does not exist`);
+    if (e instanceof ServiceError) throw e;
+    throw new ServiceError('file', `cannot write ${file}: the folder ${dir} does not exist`);
   }
   const tmp = path.join(dir, `.${path.basename(file)}.${process.pid}.${randomBytes(4).toString('hex')}.tmp`);
   let handle: fs.FileHandle | undefined;
@@ -170,6 +173,6 @@ export async function writeFileAtomic(file: string, data: string | Uint8Array): 
   } catch (e) {
     if (handle) await handle.close().catch(() => undefined);
     await fs.rm(tmp, { force: true }).catch(() => undefined);
-    throw new CliError(`cannot write ${file}: ${(e as Error).message}`);
+    throw new ServiceError('file', `cannot write ${file}: ${(e as Error).message}`);
   }
 }
