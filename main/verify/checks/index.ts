@@ -2,6 +2,7 @@
 import type { CheckKind } from './common.js';
 import { dosingGrid, dosingMap } from './dosing.js';
 import { importWorkbook } from './importCheck.js';
+import { lmmFit } from './lmm.js';
 import { modelCurves, steadyStateMetrics } from './models.js';
 import { reproducibleFit } from './reproducibility.js';
 import { theophFit, theophFitPosthoc, theophLikelihood, theophModes, theophSe } from './theoph.js';
@@ -16,6 +17,7 @@ export const CHECK_KINDS: ReadonlyMap<string, CheckKind> = new Map<string, Check
   ['theoph-fit-posthoc', theophFitPosthoc],
   ['dosing-map', dosingMap],
   ['dosing-grid', dosingGrid],
+  ['lmm-fit', lmmFit],
   ['import-workbook', importWorkbook],
   ['reproducible-fit', reproducibleFit],
 ]);

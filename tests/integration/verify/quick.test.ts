@@ -86,6 +86,18 @@ describe('plateau verify --quick', () => {
   });
 });
 
+describe('plateau verify (full suite)', () => {
+  it('passes, runs every check of suite.json and lists the planned ones as not run', () => {
+    const run = runVerifyCli(distCli, ['--out', 'full.json'], dir);
+    const report = JSON.parse(readFileSync(path.join(dir, 'full.json'), 'utf8')) as VerificationReport;
+    expect(run.code, run.stdout + run.stderr).toBe(0);
+    expect(report.mode).toBe('full');
+    expect(report.checks.map((c) => c.id)).toEqual(suite.checks.map((c) => c.id));
+    for (const c of report.checks) expect(c.status, `${c.id}: ${c.found}`).toBe(suite.checks.find((s) => s.id === c.id)!.status === 'planned' ? 'not-run' : 'pass');
+    expect(report.checks.filter((c) => c.id.startsWith('estimator.theoph.seed-')).length).toBeGreaterThanOrEqual(3);
+  }, 300_000);
+});
+
 describe('the report as PDF', () => {
   const chromium = findChromium();
   it.skipIf(!chromium)('plateau verify --quick --out report.pdf prints the version, the engine hash and the signature lines (Chromium, text by pdftotext)', () => {
