@@ -7,7 +7,7 @@
 import { ENGINE_VERSION } from '../../engine/version.js';
 import { CHECK_KINDS } from './checks/index.js';
 import { throwIfAborted, type CheckContext } from './checks/common.js';
-import { TheophSession } from './checks/theophSession.js';
+import { FitSession } from './checks/fitSession.js';
 import { appVersion, engineFingerprint, machineInfo } from './environment.js';
 import { loadSuite, validationDir, ValidationFiles } from './suite.js';
 import type { CheckResult, CheckSpec, VerificationReport, VerifyProgress } from './types.js';
@@ -63,9 +63,9 @@ export async function runVerification(options: VerifyOptions = {}): Promise<Veri
   const quick = options.quick === true;
   let selected = suite.checks.filter((c) => !quick || c.quick);
   if (options.only) selected = selected.filter((c) => options.only!.includes(c.id));
-  const theoph = new TheophSession(files, suite.theophModel);
-  if (options.signal) theoph.signal = options.signal;
-  const ctx: CheckContext = { files, theoph, ...(options.signal ? { signal: options.signal } : {}) };
+  const fits = new FitSession(files, suite.datasets);
+  if (options.signal) fits.signal = options.signal;
+  const ctx: CheckContext = { files, fits, ...(options.signal ? { signal: options.signal } : {}) };
   const checks: CheckResult[] = [];
   for (let i = 0; i < selected.length; i++) {
     throwIfAborted(options.signal);

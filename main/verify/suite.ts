@@ -90,7 +90,7 @@ const KNOWN = new Set(['id', 'part', 'kind', 'title', 'purpose', 'source', 'refe
 export async function loadSuite(files: ValidationFiles): Promise<SuiteSpec> {
   const suite = await files.readJson<SuiteSpec>('suite.json');
   const where = path.join(files.dir, 'suite.json');
-  if (!suite || !Array.isArray(suite.checks) || typeof suite.title !== 'string') throw new VerifySetupError(`${where} has no "checks" list: the installation is damaged; reinstall Plateau`);
+  if (!suite || !Array.isArray(suite.checks) || typeof suite.title !== 'string' || typeof suite.datasets !== 'object') throw new VerifySetupError(`${where} has no "checks" list or "datasets": the installation is damaged; reinstall Plateau`);
   const ids = new Set<string>();
   suite.checks.forEach((c: CheckSpec, i) => {
     for (const k of KNOWN) if (!(k in c)) throw new VerifySetupError(`${where}: checks[${i}] has no "${k}"`);

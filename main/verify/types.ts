@@ -25,13 +25,38 @@ export interface CheckSpec {
   [extra: string]: unknown;
 }
 
+/** Map from one estimate of the fit record to its key in the reference file. */
+export interface EstimateMap {
+  kind: 'typical' | 'bsv' | 'correlation' | 'covariate' | 'residual';
+  parameter: string;
+  covariate?: string;
+  /** Key in the reference file's estimates (and standard errors). */
+  key: string;
+  label: string;
+  /** Name of the check's tolerance that applies. */
+  tolerance: string;
+}
+
+/** A dataset with its model and exact reference, shared by the population-fit checks. */
+export interface DatasetEntry {
+  data: string;
+  reference: string;
+  /** Dotted path of the estimates object in the reference file. */
+  referenceEstimates: string;
+  /** Dotted path of the natural-scale standard errors, when the reference has them. */
+  referenceSe?: string;
+  model: unknown;
+  estimates: EstimateMap[];
+  note?: string;
+}
+
 export interface SuiteSpec {
   format: string;
   title: string;
   scope: string;
   notes?: string;
   checks: CheckSpec[];
-  theophModel: unknown;
+  datasets: Record<string, DatasetEntry>;
 }
 
 /** One compared quantity of a check. */

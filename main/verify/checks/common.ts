@@ -1,13 +1,13 @@
 /** What every check implementation receives and returns, and small helpers for its rows. */
 import type { ValidationFiles } from '../suite.js';
 import type { CheckRow, CheckSpec, ToleranceValues } from '../types.js';
-import type { TheophSession } from './theophSession.js';
+import type { FitSession } from './fitSession.js';
 
 export interface CheckContext {
   files: ValidationFiles;
   signal?: AbortSignal;
-  /** Shared Theoph data, model and post-fit results, computed once per run. */
-  theoph: TheophSession;
+  /** Datasets, models and fits shared by checks, computed once per run. */
+  fits: FitSession;
 }
 
 export interface CheckOutcome {
@@ -60,6 +60,18 @@ export function summarise(rows: CheckRow[], what: string): string {
   if (failed.length === 0) return `all ${rows.length} ${what} within tolerance${worstText}`;
   const f = failed[0];
   return `${failed.length} of ${rows.length} ${what} outside tolerance: ${f.quantity} found ${typeof f.found === 'number' ? fmt(f.found) : f.found}, reference ${typeof f.reference === 'number' ? fmt(f.reference) : f.reference}${f.error !== undefined ? `, error ${fmt(f.error)}` : ''} (limit ${f.limit ?? 'exact'})`;
+}
+
+/** The dataset name of a check (suite.json "dataset"). */
+export function datasetOf(spec: CheckSpec): string {
+  if (typeof spec.dataset !== 'string') throw new Error(`suite.json: check ${spec.id} needs "dataset"`);
+  return spec.dataset;
+}
+
+/** The seed of a check (suite.json "seed", a whole number). */
+export function seedOf(spec: CheckSpec): number {
+  if (typeof spec.seed !== 'number' || !Number.isSafeInteger(spec.seed)) throw new Error(`suite.json: check ${spec.id} needs a whole-number "seed"`);
+  return spec.seed;
 }
 
 export function throwIfAborted(signal?: AbortSignal): void {

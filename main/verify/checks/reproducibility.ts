@@ -5,7 +5,7 @@
 import { fitDataset } from '../../services/fitService.js';
 import { addPosthoc } from '../../services/fitPosthoc.js';
 import { sha256 } from '../suite.js';
-import type { CheckKind } from './common.js';
+import { datasetOf, seedOf, type CheckKind } from './common.js';
 import type { CheckRow } from '../types.js';
 
 /** Keys that hold wall-clock times and so legitimately differ between runs. */
@@ -16,14 +16,14 @@ export const canonicalRecordHash = (record: unknown): string => sha256(JSON.stri
 export const reproducibleFit: CheckKind = {
   describe: () => 'identical SHA-256 of the two fit records (timing excluded)',
   async run(spec, ctx) {
-    if (typeof spec.seed !== 'number') throw new Error(`suite.json: check ${spec.id} needs "seed"`);
-    const { dataset, spec: model } = await ctx.theoph.load();
+    const seed = seedOf(spec);
+    const { dataset, spec: model } = await ctx.fits.load(datasetOf(spec));
     const hashes: string[] = [];
     for (let run = 0; run < 2; run++) {
-      const outcome = await fitDataset(dataset, model, { seed: spec.seed, ...(ctx.signal ? { signal: ctx.signal } : {}) });
+      const outcome = await fitDataset(dataset, model, { seed, ...(ctx.signal ? { signal: ctx.signal } : {}) });
       hashes.push(canonicalRecordHash(await addPosthoc(outcome)));
     }
-    const rows: CheckRow[] = [{ quantity: `SHA-256 of the fit record (seed ${spec.seed}), second run against first`, reference: hashes[0], found: hashes[1], limit: 'identical', pass: hashes[0] === hashes[1] }];
+    const rows: CheckRow[] = [{ quantity: `SHA-256 of the fit record (seed ${seed}), second run against first`, reference: hashes[0], found: hashes[1], limit: 'identical', pass: hashes[0] === hashes[1] }];
     return { rows, found: hashes[0] === hashes[1] ? `identical: ${hashes[0]}` : `DIFFERENT: ${hashes[0]} then ${hashes[1]}` };
   },
 };
