@@ -86,7 +86,7 @@ table.env th { width: 42mm; }
 table.summary { font-size: 8.5pt; }
 table.summary col.c1 { width: 27%; } table.summary col.c2 { width: 23%; } table.summary col.c3 { width: 22%; } table.summary col.c4 { width: 20%; } table.summary col.c5 { width: 8%; }
 table.rows col.c1 { width: 34%; } table.rows col.c2, table.rows col.c3 { width: 14%; } table.rows col.c4 { width: 10%; } table.rows col.c5 { width: 19%; } table.rows col.c6 { width: 9%; }
-table.files col.c1 { width: 40%; }
+table.files code { font-size: 7.2pt; } table.files col.c1 { width: 34%; }
 table.rows { font-size: 8pt; }
 tr.failed td { background: #fdecee; }
 code { font: 8pt ui-monospace, "DejaVu Sans Mono", monospace; word-break: break-all; }
