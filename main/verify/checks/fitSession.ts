@@ -98,7 +98,8 @@ export class FitSession {
    * error, no covariates): isolates the post-fit accuracy from the estimator's.
    */
   posthocAtReference(name: string, seed: number): Promise<PosthocResult> {
-    let r = this.atReference.get(name);
+    const key = `${name}:${seed}`;
+    let r = this.atReference.get(key);
     if (!r) {
       r = (async () => {
         const { model, reference, spec } = await this.load(name);
@@ -112,7 +113,7 @@ export class FitSession {
         const theta: PopulationParameters = { mu: Float64Array.from(t.slice(0, nTyp)), beta: new Float64Array(0), omega, a: Math.exp(t[2 * nTyp]), b: 0 };
         return runPosthoc(model, theta, { seed, diagnostics: false });
       })();
-      this.atReference.set(name, r);
+      this.atReference.set(key, r);
     }
     return r;
   }

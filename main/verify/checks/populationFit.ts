@@ -7,9 +7,6 @@ import { absoluteRow, datasetOf, fmt, relativeRow, seedOf, summarise, tol, type 
 import { dig, estimateOf } from './fitSession.js';
 import type { CheckRow } from '../types.js';
 
-/** Seed of the post-fit random streams at the reference optimum (any fixed seed; the tolerance covers its Monte Carlo error). */
-const POSTHOC_SEED = 11;
-
 function referenceSe(reference: unknown, path: string | undefined, dataset: string): Record<string, number> {
   const se = path ? dig(reference, path) : undefined;
   if (!se || typeof se !== 'object') throw new Error(`the "${dataset}" reference has no standard errors ("referenceSe" in suite.json)`);
@@ -45,7 +42,7 @@ export const likelihoodAtReference: CheckKind = {
   async run(spec, ctx) {
     const name = datasetOf(spec);
     const exact = (await ctx.fits.load(name)).reference as LikelihoodReference;
-    const r = await ctx.fits.posthocAtReference(name, POSTHOC_SEED);
+    const r = await ctx.fits.posthocAtReference(name, seedOf(spec));
     const is = r.likelihood.importance;
     const rows: CheckRow[] = [];
     const found = is ? is.minus2LL : NaN;
@@ -70,7 +67,7 @@ export const seAtReference: CheckKind = {
     const name = datasetOf(spec);
     const { entry, reference } = await ctx.fits.load(name);
     const refSe = referenceSe(reference, entry.referenceSe, name);
-    const r = await ctx.fits.posthocAtReference(name, POSTHOC_SEED);
+    const r = await ctx.fits.posthocAtReference(name, seedOf(spec));
     const limit = tol(spec.tolerance, 'relative');
     const rows: CheckRow[] = [];
     for (const [method, se] of [["Louis' formula", r.standardErrors], ['linearisation', r.standardErrorsLinearised]] as const) {
@@ -88,7 +85,7 @@ export const modesAtReference: CheckKind = {
     const name = datasetOf(spec);
     const { reference, model } = await ctx.fits.load(name);
     const exact = reference as LikelihoodReference;
-    const r = await ctx.fits.posthocAtReference(name, POSTHOC_SEED);
+    const r = await ctx.fits.posthocAtReference(name, seedOf(spec));
     const limit = tol(spec.tolerance, 'absolute');
     const d = model.nEta;
     const names = Array.from({ length: d }, (_, k) => `eta ${model.parameters[model.etaParameter[k]]?.name ?? k + 1}`);
