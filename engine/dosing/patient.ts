@@ -5,6 +5,8 @@
  * instead and converted. Units are carried in the key names (amount_mg, conc_mg_L, scr_umol_L).
  */
 import type { CovariateValue, Dose, Observation } from '../data/types.js';
+import { nearestKey, unknownKeyProblems } from '../json/knownKeys.js';
+import { wrongKindMessage } from '../spec/fileKind.js';
 import { COCKCROFT_GAULT_LABEL, cockcroftGault, scrUmolToMgDl, UMOL_L_PER_MG_DL, type Sex } from './renal.js';
 
 export interface PatientNote {
@@ -77,6 +79,14 @@ export function parseLocalClock(text: string): number | undefined {
   return ms / 60000;
 }
 
+/** Every key patient.json may have, at each level (unknown keys are errors naming the nearest). */
+export const PATIENT_KEYS = ['id', 'covariates', 'doses', 'levels', 'renal', 'next_dose_h', 'next_dose'] as const;
+export const DOSE_KEYS = ['time_h', 'time', 'amount_mg', 'amount_g', 'duration_h', 'duration_min', 'route', 'ss_interval_h'] as const;
+export const LEVEL_KEYS = ['time_h', 'time', 'conc_mg_L', 'conc_ug_mL', 'conc_ng_mL', 'censored', 'lloq_mg_L', 'kind'] as const;
+export const RENAL_KEYS = ['time_h', 'time', 'scr_mg_dL', 'scr_umol_L'] as const;
+/** Covariate names with a known meaning; another covariate may be any name the model uses. */
+export const CANONICAL_COVARIATES = ['weight_kg', 'height_cm', 'age_y', 'sex', 'scr_mg_dL', 'scr_umol_L', 'crcl_mL_min'] as const;
+
 interface TimeSpec {
   mode: 'hours' | 'clock' | undefined;
   originMin: number;
@@ -90,6 +100,9 @@ export function parsePatient(json: unknown): Patient {
   const problems: string[] = [];
   const notes: PatientNote[] = [];
   if (!isRecord(json)) throw new PatientError(['the patient file must be a JSON object {id, covariates, doses, levels}']);
+  const wrong = json.doses === undefined ? wrongKindMessage(json, ['patient file']) : undefined;
+  if (wrong) throw new PatientError([`${wrong}: give patient.json (id, covariates, doses, levels)`]);
+  problems.push(...unknownKeyProblems(json, PATIENT_KEYS));
 
   const id = typeof json.id === 'string' && json.id.trim() ? json.id.trim() : typeof json.id === 'number' ? String(json.id) : '';
   if (!id) problems.push('id: give the patient an identifier (text)');
@@ -104,9 +117,9 @@ export function parsePatient(json: unknown): Patient {
   if (rawRenal === null) problems.push('renal: must be a list of {time_h, scr_mg_dL | scr_umol_L}');
 
   const timed: Array<{ at: string; r: Record<string, unknown> }> = [];
-  rawDoses.forEach((r, i) => isRecord(r) && timed.push({ at: `doses[${i}]`, r }));
-  (rawLevels ?? []).forEach((r, i) => isRecord(r) && timed.push({ at: `levels[${i}]`, r }));
-  (rawRenal ?? []).forEach((r, i) => isRecord(r) && timed.push({ at: `renal[${i}]`, r }));
+  rawDoses.forEach((r, i) => isRecord(r) && timed.push({ at: `doses[${i}]`, r }) && problems.push(...unknownKeyProblems(r, DOSE_KEYS, `doses[${i}]`)));
+  (rawLevels ?? []).forEach((r, i) => isRecord(r) && timed.push({ at: `levels[${i}]`, r }) && problems.push(...unknownKeyProblems(r, LEVEL_KEYS, `levels[${i}]`)));
+  (rawRenal ?? []).forEach((r, i) => isRecord(r) && timed.push({ at: `renal[${i}]`, r }) && problems.push(...unknownKeyProblems(r, RENAL_KEYS, `renal[${i}]`)));
   const time: TimeSpec = { mode: undefined, originMin: 0 };
   let clockOrigin: string | undefined;
   const hasH = timed.some((t) => t.r.time_h !== undefined);
@@ -292,6 +305,12 @@ export function parsePatient(json: unknown): Patient {
       problems.push(`${at}: unknown unit; give ${known.join(' or ')}`);
       continue;
     }
+    // A near miss of a known name ("wieght_kg") is a typing error, not a new covariate.
+    const near = key.length >= 5 && !ALIAS_NAMES.has(key.toLowerCase()) ? nearestKey(key, CANONICAL_COVARIATES) : undefined;
+    if (near !== undefined && near !== key) {
+      problems.push(`${at}: unknown covariate (did you mean "${near}"?)`);
+      continue;
+    }
     if (!(finite(value) || typeof value === 'string')) {
       problems.push(`${at}: must be a number or text`);
       continue;
@@ -339,6 +358,8 @@ const ALIASES: Record<string, readonly string[]> = {
   scr_mg_dL: ['scr', 'creat', 'creatinine'],
   crcl_mL_min: ['crcl', 'clcr'],
 };
+
+const ALIAS_NAMES = new Set(Object.values(ALIASES).flat());
 
 /** Look up the patient's value for a model covariate name: exact, then case-insensitive, then aliases. */
 export function patientCovariate(patient: Patient, name: string): { value: CovariateValue; from: string } | undefined {

@@ -9,6 +9,8 @@ import { adviseDose, type Advice, type AdviceOptions } from '../../engine/dosing
 import { parsePatient, type Patient } from '../../engine/dosing/patient.js';
 import { loadPopulationModel, type PopulationModel } from '../../engine/dosing/population.js';
 import { parseTarget, type TargetSpec } from '../../engine/dosing/targets.js';
+import { jsonFileKind, type JsonFileKind } from '../../engine/spec/fileKind.js';
+import { printable } from '../../engine/text/printable.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
 import { readJsonFile } from './files.js';
 import { ServiceError } from './serviceError.js';
@@ -46,33 +48,46 @@ export async function loadTarget(nameOrPath: string, cwd: string, dir = resource
   if (!presets.includes(nameOrPath) && !existsSync(file))
     throw new ServiceError('file', `target "${nameOrPath}" is neither a preset (${presets.join(', ')}) nor a file`);
   const json = await readJsonFile(file);
+  checkKind(file, json, ['target file'], 'a target preset or target file', '--target');
+  return parseAs(file, () => parseTarget(json), 'invalid target');
+}
+
+/**
+ * Refuse a file of another kind with a sentence naming both kinds ("this looks like a patient
+ * file; --model expects a model spec or fit.json") instead of an error about a missing field.
+ */
+function checkKind(file: string, json: unknown, expected: readonly JsonFileKind[], expectedText: string, option: string): void {
+  const kind = jsonFileKind(json);
+  if (kind === undefined || expected.includes(kind)) return;
+  const article = (k: string) => (k === 'fit.json' ? 'a fit.json' : /^[aeiou]/.test(k) ? `an ${k}` : `a ${k}`);
+  throw new ServiceError('file', `${printable(file)}: this looks like ${article(kind)}; ${option} expects ${expectedText}${option === '--model' || option === '--patient' ? ' (were --model and --patient swapped?)' : ''}`);
+}
+
+/** Run a parser; its problems become a ServiceError naming the file, each printable. */
+function parseAs<T>(file: string, parse: () => T, what: string): T {
   try {
-    return parseTarget(json);
+    return parse();
   } catch (e) {
-    throw new ServiceError('file', `${file}: ${(e as Error).message}`);
+    const problems = (e as { problems?: unknown }).problems;
+    if (Array.isArray(problems)) {
+      const list = problems.map((p) => printable(String(p)));
+      throw new ServiceError('spec', `${printable(file)}: ${what}:\n${list.map((p) => `  ${p}`).join('\n')}`, list);
+    }
+    throw e;
   }
 }
 
-export async function loadModelFile(file: string): Promise<PopulationModel> {
+/** A site fit (fit.json) or a model spec, for --model. */
+export async function loadModelFile(file: string, option = '--model'): Promise<PopulationModel> {
   const json = await readJsonFile(file);
-  try {
-    return loadPopulationModel(json);
-  } catch (e) {
-    const err = e as Error;
-    err.message = `${file}: ${err.message}`;
-    throw err;
-  }
+  checkKind(file, json, ['model spec', 'fit.json'], 'a model spec or fit.json', option);
+  return parseAs(file, () => loadPopulationModel(json), 'invalid model file');
 }
 
-export async function loadPatientFile(file: string): Promise<Patient> {
+export async function loadPatientFile(file: string, option = '--patient'): Promise<Patient> {
   const json = await readJsonFile(file);
-  try {
-    return parsePatient(json);
-  } catch (e) {
-    const err = e as Error;
-    err.message = `${file}: ${err.message}`;
-    throw err;
-  }
+  checkKind(file, json, ['patient file'], 'a patient file (patient.json: id, covariates, doses, levels)', option);
+  return parseAs(file, () => parsePatient(json), 'invalid patient file');
 }
 
 export type DoseRequest = Omit<AdviceOptions, 'caution' | 'engineVersion'>;

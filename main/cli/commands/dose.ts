@@ -25,7 +25,7 @@ probability of reaching the target and of toxic exposure. Always printed with th
   --seed N              seed of the posterior draws (default 1); same seed, same advice
   --evaluate "<text>"   evaluate one regimen, e.g. "1000mg q12h 1h", "1g q24h 30min",
                         "load 2000mg 1000mg q12h 2h", "500mg q8h bolus"
-  --draws N             posterior draws (default 2000)
+  --draws N             posterior draws, 100 to 100000 (default 2000)
   --mic X               MIC (mg/L) for the target's per-MIC bounds (overrides the preset's)
   --peak-after H        also report the level H hours after the end of infusion (peakAt)
   --next-dose-h H       start of the next dose, hours from the first dose (overrides the file)
@@ -33,7 +33,11 @@ probability of reaching the target and of toxic exposure. Always printed with th
   --below X             report when the level falls below X mg/L after the last given dose
   --override-blocks     show the regimens even when a check blocks the advice (marked as blocked)
   --json                print the advice JSON instead of the text report
-Exit status: 0 advice given, 1 error or advice blocked, 2 bad usage.`;
+Bounds: a target's regimen settings must keep strengthMg 0.1-10000 mg, doses 0.1-20000 mg,
+at most 400 dose steps ((maxDoseMg - minDoseMg) / strengthMg + 1), 1-12 intervals of 1-168 h,
+1-8 infusion durations of 0.05-24 h; work beyond them is refused before it starts.
+Exit status: 0 advice given, 1 error or advice blocked (also when --override-blocks shows it),
+2 bad usage.`;
 
 const specs = {
   model: { type: 'string', required: true },
@@ -165,8 +169,13 @@ async function runDose(argv: readonly string[], io: CliIo, outputs: { out?: stri
   const out = stringFlag(args, 'out');
   if (out !== undefined) await writeFileAtomic(resolvePath(io.cwd, out), json);
   io.stdout(booleanFlag(args, 'json') ? json : formatAdvice(advice));
+  // Blocked advice exits 1 whether or not --override-blocks shows its regimens.
   if (advice.status === 'blocked') {
     io.stderr('plateau: dose advice blocked by the checks above (use --override-blocks to see the regimens anyway)\n');
+    return 1;
+  }
+  if (advice.status === 'blocked-shown-on-request') {
+    io.stderr('plateau: dose advice BLOCKED by the checks above; the regimens were shown on request only (--override-blocks)\n');
     return 1;
   }
   return 0;

@@ -80,7 +80,9 @@ describe('plateau dose', () => {
     expect(a.status).toBe('blocked');
     expect(a.regimens).toEqual([]);
     const t2 = captureIo(dir);
-    expect(await runCli(['dose', '--model', EXAMPLE_MODEL, '--patient', PATIENT, '--target', 'vancomycin-auc24', '--override-blocks'], t2.io)).toBe(0);
+    // Issue 9 finding 4: --override-blocks exited 0 on blocked advice; blocked is exit 1 either way.
+    expect(await runCli(['dose', '--model', EXAMPLE_MODEL, '--patient', PATIENT, '--target', 'vancomycin-auc24', '--override-blocks'], t2.io)).toBe(1);
+    expect(t2.err()).toContain('BLOCKED');
     expect(t2.out()).toContain('BLOCKED (regimens shown on request');
     expect(t2.out()).toContain('Ranked regimens');
   });
@@ -151,5 +153,17 @@ describe('plateau dose', () => {
     const t4 = captureIo(dir);
     expect(await runCli(['dose', '--model', 'missing-model.json', '--patient', PATIENT], t4.io)).toBe(1);
     expect(t4.err()).toContain(CAUTION);
+  });
+
+  it('issue 9 finding 8: swapping --model and --patient (the demo files) names both kinds', async () => {
+    const demoPatient = path.join(ROOT, 'resources/demo/patient.json');
+    const demoModel = path.join(ROOT, 'resources/demo/ward-model.json');
+    const t = captureIo(dir);
+    expect(await runCli(['dose', '--model', demoPatient, '--patient', demoModel], t.io)).toBe(1);
+    expect(t.err()).toContain('this looks like a patient file; --model expects a model spec or fit.json (were --model and --patient swapped?)');
+    expect(t.err()).not.toContain('undefined');
+    const t2 = captureIo(dir);
+    expect(await runCli(['dose', '--model', demoModel, '--patient', path.join(ROOT, 'resources/targets/vancomycin-auc24.json')], t2.io)).toBe(1);
+    expect(t2.err()).toContain('this looks like a target file; --patient expects a patient file');
   });
 });
