@@ -345,6 +345,16 @@ export function parsePatient(json: unknown): Patient {
   return { id, covariates, derived, doses, levels, levelKinds, renal, ...(clockOrigin ? { clockOrigin } : {}), ...(nextDoseH !== undefined ? { nextDoseH } : {}), notes };
 }
 
+/** Ward clock time "YYYY-MM-DD HH:MM" of h hours after the clock origin; undefined without one. */
+export function clockAt(origin: string | undefined, h: number): string | undefined {
+  if (origin === undefined || !Number.isFinite(h)) return undefined;
+  const m = parseLocalClock(origin);
+  if (m === undefined) return undefined;
+  const d = new Date(Math.round((m + h * 60) * 60000));
+  const p = (x: number) => String(x).padStart(2, '0');
+  return `${d.getUTCFullYear()}-${p(d.getUTCMonth() + 1)}-${p(d.getUTCDate())} ${p(d.getUTCHours())}:${p(d.getUTCMinutes())}`;
+}
+
 export function fmtH(h: number): string {
   return `${Number.isInteger(h) ? h : h.toFixed(2)} h`;
 }

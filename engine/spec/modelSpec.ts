@@ -252,8 +252,9 @@ export function parseModelSpec(json: unknown): ModelSpec {
     if (needB && !(finite(b) && b > 0)) problems.push(`residual.b: must be a number > 0 for ${model} error`);
     if (needA && finite(a) && a > PLAUSIBLE.residualAMax) problems.push(`residual.a: ${a} is implausible (at most ${PLAUSIBLE.residualAMax})`);
     if (needB && finite(b) && b > PLAUSIBLE.residualBMax) problems.push(`residual.b: ${b} is implausible (at most ${PLAUSIBLE.residualBMax})`);
-    if (!needA && a !== undefined) problems.push(`residual.a: not used by ${model} error; remove it`);
-    if (!needB && b !== undefined) problems.push(`residual.b: not used by ${model} error; remove it`);
+    // A value the error model does not use would be silently ignored: refused unless it is 0 (none).
+    if (!needA && a !== undefined && a !== 0) problems.push(`residual.a: not used by ${model} error; remove it`);
+    if (!needB && b !== undefined && b !== 0) problems.push(`residual.b: not used by ${model} error; remove it`);
     residual = { model, ...(needA ? { a: a as number } : {}), ...(needB ? { b: b as number } : {}) };
   }
 
