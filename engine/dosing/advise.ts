@@ -125,6 +125,8 @@ export interface Advice {
   now?: ExposureNow;
   /** When the exposure now is above a toxic limit: hold or delay the next dose. */
   hold?: HoldAdvice;
+  /** When the advised regimens start (the next dose time, or later after a hold). */
+  regimenStart: { timeH: number; clock?: string; delayed: boolean };
   model: ModelProvenance & { structure: string; covariatesUsed: Record<string, string> };
   target: TargetSpec;
   posterior: ParameterSummary & { nDraws: number; diagnostics: SamplerDiagnostics; mapObjective: number; levels: Array<{ timeH: number; concMgL: number; censored: boolean; predictedMap: number; priorPredictiveP: number; posteriorPredictiveP: number; iwres: number | null }> };
@@ -352,12 +354,34 @@ export function adviseDose(o: AdviceOptions): Advice {
     const note = loadingNotes.get(candidates[i]);
     if (note) r.loadingNote = note;
   });
-  const earlyInput = { model, draws: tableParams, nDraws: tableDraws, history: patient.doses, startH: next.h, target, threshold: ftThresholdOf(target) };
-  // P(toxic) over the intervals the forecast shows as well as at steady state. ODE models: the
-  // first-interval check runs on the best candidates by the steady-state ranking only.
   const preferIntervalH = currentTauOf(patient) ?? target.preferIntervalH;
   const centre = goalCentreOf(target);
   const rankOpts = { ...(preferIntervalH !== undefined ? { preferIntervalH } : {}), ...(centre ? { goalCentre: centre } : {}) };
+  // Exposure above a toxic limit now: said first, with the time to wait before the next dose;
+  // the new regimen then starts when the level has fallen (its first intervals are forecast from there).
+  let hold: HoldAdvice | undefined;
+  let startH = next.h;
+  if (toxicNow && now) {
+    const th = holdThreshold(target, o.belowMgL, rankRegimens(results, rankOpts)[0]);
+    if (th) {
+      const tb = timeToFallBelow(prior, patient.doses, draws.eta, nDraws, th.mgL, 168);
+      const belowAtH = Math.max(next.h, Math.ceil((tb.fromH + tb.hours.median) * 4) / 4);
+      const clock = clockAt(patient.clockOrigin, belowAtH);
+      hold = { thresholdMgL: th.mgL, thresholdReason: th.reason, fromH: tb.fromH, hours: tb.hours, belowAtH, ...(clock ? { belowAtClock: clock } : {}), pAboveAtHorizon: tb.pAboveAtHorizon, horizonH: tb.horizonH };
+      startH = belowAtH;
+    }
+    const when = hold
+      ? `; the level is predicted to fall below ${hold.thresholdMgL} mg/L (${hold.thresholdReason}) at about ${hold.belowAtClock ?? fmtH(hold.belowAtH)} (${fmtH(hold.belowAtH)} from the first dose; 80 % interval ${fmtH(sig(hold.fromH + hold.hours.q10, 3))}-${fmtH(sig(hold.fromH + hold.hours.q90, 3))}${hold.pAboveAtHorizon > 0 ? `; ${Math.round(100 * hold.pAboveAtHorizon)} % still above after ${hold.horizonH} h` : ''}); the regimens below start then`
+      : '';
+    warnings.push({
+      severity: 'flag',
+      code: 'toxic-now',
+      message: `exposure now is above the toxic limit (${now.exceeded.join('; ') || 'see the exposure now'}; P(toxic now) ${Math.round(100 * (now.pToxic ?? 0))} %): consider holding or delaying the next dose${when}; re-check a level before restarting`,
+    });
+  }
+  // P(toxic) over the intervals the forecast shows as well as at steady state. ODE models: the
+  // first-interval check runs on the best candidates by the steady-state ranking only.
+  const earlyInput = { model, draws: tableParams, nDraws: tableDraws, history: patient.doses, startH, target, threshold: ftThresholdOf(target) };
   const applyEarly = (list: RegimenResult[], flags: Uint8Array[], regs: Regimen[]) => {
     const early = earlyToxicity(earlyInput, regs, flags);
     list.forEach((r, i) => {
@@ -379,12 +403,17 @@ export function adviseDose(o: AdviceOptions): Advice {
     }
   }
   const ranked = single ? results : rankRegimens(results, rankOpts);
-  // The current regimen continued, against the target: shown first.
+  // The current regimen continued at the next dose time, against the target: shown first.
   let current: RegimenResult | undefined;
   if (o.target && !o.evaluate) {
     const flags: Uint8Array[] = [];
     current = evaluateRegimens(evalInput, [continuationOf(patient)], flags)[0];
-    if (target.toxic.length) applyEarly([current], flags, [continuationOf(patient)]);
+    if (target.toxic.length) {
+      const early = earlyToxicity({ ...earlyInput, startH: next.h }, [continuationOf(patient)], flags)[0];
+      current.pToxicSteadyState = current.pToxic;
+      current.pToxicFirstIntervals = sig(early.pToxicEarly, 4);
+      current.pToxic = sig(early.pToxicAny, 4);
+    }
     current.explanation = `Current regimen continued: ${explainRegimen(current, target)}`;
   }
   const failing = results.filter((r) => r.failedDraws > 0);
@@ -398,28 +427,10 @@ export function adviseDose(o: AdviceOptions): Advice {
   if (!single && ranked.length && ranked[0].pTarget < 0.5)
     warnings.push({ severity: 'flag', code: 'low-attainment', message: `no candidate reaches the target in half of the plausible versions of this patient (best ${Math.round(100 * ranked[0].pTarget)} %): widen the dose range or interval list, or review the target` });
 
-  // Exposure above a toxic limit now: said first, with the time to wait before the next dose.
-  let hold: HoldAdvice | undefined;
-  if (toxicNow && now) {
-    const th = holdThreshold(target, o.belowMgL, ranked[0]);
-    if (th) {
-      const tb = timeToFallBelow(prior, patient.doses, draws.eta, nDraws, th.mgL, 168);
-      const belowAtH = sig(tb.fromH + tb.hours.median, 4);
-      const clock = clockAt(patient.clockOrigin, belowAtH);
-      hold = { thresholdMgL: th.mgL, thresholdReason: th.reason, fromH: tb.fromH, hours: tb.hours, belowAtH, ...(clock ? { belowAtClock: clock } : {}), pAboveAtHorizon: tb.pAboveAtHorizon, horizonH: tb.horizonH };
-    }
-    const when = hold ? `; the level is predicted to fall below ${hold.thresholdMgL} mg/L (${hold.thresholdReason}) at about ${hold.belowAtClock ?? fmtH(hold.belowAtH)} (${fmtH(hold.belowAtH)} from the first dose; 80 % interval ${fmtH(sig(hold.fromH + hold.hours.q10, 3))}-${fmtH(sig(hold.fromH + hold.hours.q90, 3))})` : '';
-    warnings.push({
-      severity: 'flag',
-      code: 'toxic-now',
-      message: `exposure now is above the toxic limit (${now.exceeded.join('; ') || 'see the exposure now'}; P(toxic now) ${Math.round(100 * (now.pToxic ?? 0))} %): consider holding or delaying the next dose${when}, then re-check a level before restarting`,
-    });
-  }
-
   const blockedBefore = warnings.some((w) => w.severity === 'block');
   const chosen = ranked[0];
   const fc = chosen
-    ? forecast({ prior, history: patient.doses, etaDraws: draws.eta, nDraws, regimen: { doseMg: chosen.doseMg, intervalH: chosen.intervalH, durationH: chosen.durationH, route: chosen.route, ...(chosen.loadingDoseMg !== undefined ? { loadingDoseMg: chosen.loadingDoseMg } : {}) }, startH: next.h, nIntervals: EARLY_INTERVALS, target, ...(o.belowMgL !== undefined ? { belowMgL: o.belowMgL } : {}) })
+    ? forecast({ prior, history: patient.doses, etaDraws: draws.eta, nDraws, regimen: { doseMg: chosen.doseMg, intervalH: chosen.intervalH, durationH: chosen.durationH, route: chosen.route, ...(chosen.loadingDoseMg !== undefined ? { loadingDoseMg: chosen.loadingDoseMg } : {}) }, startH, nIntervals: EARLY_INTERVALS, target, ...(o.belowMgL !== undefined ? { belowMgL: o.belowMgL } : {}) })
     : null;
   // Any non-finite prediction, metric or probability blocks the advice with the reason.
   const nonFinite = nonFiniteFigures(target, chosen, current, fc, now, summaryRef);
@@ -452,6 +463,7 @@ export function adviseDose(o: AdviceOptions): Advice {
     ...(current && !(blocked && !o.overrideBlocks) ? { current } : {}),
     ...(now ? { now } : {}),
     ...(hold ? { hold } : {}),
+    regimenStart: { timeH: startH, ...(clockAt(patient.clockOrigin, startH) ? { clock: clockAt(patient.clockOrigin, startH) } : {}), delayed: startH !== next.h },
     model: { ...population.provenance, structure: model.id, covariatesUsed, ...(posteriorFrom ? { posteriorFrom } : {}) },
     target,
     posterior: {

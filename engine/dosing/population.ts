@@ -215,6 +215,15 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
 }
 
 /**
+ * Fit warnings about the post-fit diagnostics only (a second standard-error method, the
+ * likelihood by importance sampling or linearisation, NPDE and VPC simulation, conditional
+ * modes): they do not change the population values a prior uses, so they are notes, not FLAGs.
+ * Warnings about the estimates themselves (non-finite, cap reached, Omega, the primary
+ * standard errors) stay FLAGs.
+ */
+const POST_FIT_INTERNAL = /^\(second method\)|^linearis(ed|ation)\b|^importance sampling\b|^NPDE\b|^simulation:|^conditional mode\b/i;
+
+/**
  * Is the fit fit to be a prior? A fit whose own record says not to use it blocks; an exploration
  * that hit its iteration cap, missing standard errors and a collapsed BSV are flagged by name.
  * Every warning the fit reported is listed with its text.
@@ -223,6 +232,7 @@ function fitChecks(fit: Record<string, unknown>, fitWarnings: readonly string[])
   const out: ModelCheck[] = [];
   for (const w of fitWarnings) {
     if (/do not use/i.test(w)) out.push({ severity: 'block', code: 'fit-unusable', message: `the fit's record says it must not be used: "${w}"; refit the model before using it for dosing` });
+    else if (POST_FIT_INTERNAL.test(w)) out.push({ severity: 'note', code: 'fit-note', message: `the fit noted (about its diagnostics, not the population values this advice uses): "${w}"` });
     else out.push({ severity: 'flag', code: 'fit-warning', message: `the fit reported: "${w}"` });
   }
   const tr = isRecord(fit.trajectory) ? fit.trajectory : undefined;
