@@ -10,9 +10,11 @@ import { parsePatient, type Patient } from '../../engine/dosing/patient.js';
 import { loadPopulationModel, type PopulationModel } from '../../engine/dosing/population.js';
 import { parseTarget, type TargetSpec } from '../../engine/dosing/targets.js';
 import { jsonFileKind, type JsonFileKind } from '../../engine/spec/fileKind.js';
+import { literatureStatus, valuesFingerprint } from '../../engine/spec/literature.js';
+import { parseModelSpec } from '../../engine/spec/modelSpec.js';
 import { printable } from '../../engine/text/printable.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
-import { readJsonFile } from './files.js';
+import { readJsonFile, writeFileAtomic } from './files.js';
 import { ServiceError } from './serviceError.js';
 
 /** The repository (or installed app) folder holding resources/, found by walking up from here. */
@@ -96,4 +98,46 @@ export type DoseRequest = Omit<AdviceOptions, 'caution' | 'engineVersion'>;
 export async function runDoseAdvice(request: DoseRequest): Promise<Advice> {
   const caution = await loadCaution();
   return adviseDose({ ...request, caution, engineVersion: ENGINE_VERSION });
+}
+
+/**
+ * Record that a named user checked every value of a published model against the publication:
+ * writes `literature.verified` {by, date, values fingerprint} and `valuesFrom: "publication"`
+ * into the file (atomically). The spec must parse and carry a `literature` block.
+ */
+export async function verifyLiteratureModel(file: string, by: string, date: string): Promise<{ by: string; date: string; values: string }> {
+  if (!by.trim() || hasUnsafe(by)) throw new ServiceError('usage', '--by: give the name of the person who checked the values (printable text)');
+  if (!/^\d{4}-\d{2}-\d{2}$/.test(date)) throw new ServiceError('usage', `--date: ${printable(date)} is not YYYY-MM-DD`);
+  const json = await readJsonFile(file);
+  checkKind(file, json, ['model spec'], 'a model spec with a literature block', '--verify');
+  const spec = parseAs(file, () => parseModelSpec(json), 'invalid model spec');
+  if (!spec.literature) throw new ServiceError('spec', `${printable(file)}: the model has no "literature" block (citation, population, valuesFrom, status): only published models are verified this way`);
+  const raw = json as Record<string, unknown>;
+  const literature = raw.literature as Record<string, unknown>;
+  const verified = { by: by.trim(), date, values: valuesFingerprint(spec) };
+  literature.valuesFrom = 'publication';
+  literature.status = `verified: every value checked against the publication by ${verified.by} on ${date}`;
+  literature.verified = verified;
+  await writeFileAtomic(file, `${JSON.stringify(raw, null, 2)}\n`);
+  return verified;
+}
+
+function hasUnsafe(text: string): boolean {
+  return printable(text) !== text;
+}
+
+/** The literature models shipped in resources/models/literature, with their verification status. */
+export async function listLiteratureModels(dir = resourcesDir()): Promise<Array<{ file: string; drug: string; citation: string; verified: boolean; status: string }>> {
+  const folder = path.join(dir, 'models', 'literature');
+  const files = (await fs.readdir(folder).catch(() => [] as string[])).filter((f) => f.endsWith('.json')).sort();
+  const out: Array<{ file: string; drug: string; citation: string; verified: boolean; status: string }> = [];
+  for (const f of files) {
+    const file = path.join(folder, f);
+    const json = await readJsonFile(file);
+    const spec = parseAs(file, () => parseModelSpec(json), 'invalid model spec');
+    if (!spec.literature) continue;
+    const st = literatureStatus(spec.literature, spec);
+    out.push({ file, drug: spec.literature.drug, citation: spec.literature.citation, verified: st.verified, status: st.reason });
+  }
+  return out;
 }

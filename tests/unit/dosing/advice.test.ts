@@ -62,7 +62,7 @@ describe('resources', () => {
   it('the caution text exists once and the example models are labelled not for clinical use', () => {
     const c = JSON.parse(readFileSync(path.join(ROOT, 'resources/cautions/dosing.json'), 'utf8'));
     expect(c.text).toMatch(/decision support/);
-    for (const f of readdirSync(path.join(ROOT, 'resources/models'))) {
+    for (const f of readdirSync(path.join(ROOT, 'resources/models')).filter((x) => x.endsWith('.json'))) {
       const m = loadPopulationModel(JSON.parse(readFileSync(path.join(ROOT, 'resources/models', f), 'utf8')));
       expect(`${m.provenance.name} ${m.provenance.source}`).toMatch(/example, not for clinical use/);
     }
