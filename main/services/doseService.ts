@@ -48,7 +48,7 @@ export async function loadTarget(nameOrPath: string, cwd: string, dir = resource
   const presets = await listTargetPresets(dir);
   const file = presets.includes(nameOrPath) ? path.join(dir, 'targets', `${nameOrPath}.json`) : path.resolve(cwd, nameOrPath);
   if (!presets.includes(nameOrPath) && !existsSync(file))
-    throw new ServiceError('file', `target "${nameOrPath}" is neither a preset (${presets.join(', ')}) nor a file`);
+    throw new ServiceError('file', `target "${printable(nameOrPath)}" is neither a preset (${presets.join(', ')}) nor a file`);
   const json = await readJsonFile(file);
   checkKind(file, json, ['target file'], 'a target preset or target file', '--target');
   return parseAs(file, () => parseTarget(json), 'invalid target');
