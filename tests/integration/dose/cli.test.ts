@@ -167,4 +167,15 @@ describe('plateau dose', () => {
     expect(await runCli(['dose', '--model', demoModel, '--patient', path.join(ROOT, 'resources/targets/vancomycin-auc24.json')], t2.io)).toBe(1);
     expect(t2.err()).toContain('this looks like a target file; --patient expects a patient file');
   });
+
+  it('issue 11 finding 6: option bounds are stated in --help and enforced before any work', async () => {
+    const h = captureIo(dir);
+    expect(await runCli(['dose', '--help'], h.io)).toBe(0);
+    for (const text of ['100 to 100000', '0.1-10000 mg', 'at most 400 dose steps', '> 0 to 1024']) expect(h.out()).toContain(text);
+    for (const [flag, value] of [['--draws', '1000000000'], ['--mic', '1e308'], ['--below', '-1'], ['--peak-after', '1e9'], ['--next-dose-h', '1e9']]) {
+      const t = captureIo(dir);
+      expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', flag, value], t.io)).toBe(2);
+      expect(t.err()).toContain(flag);
+    }
+  });
 });
