@@ -13,11 +13,12 @@ export function jsonFileKind(json: unknown): JsonFileKind | undefined {
   if (!isRecord(json)) return undefined;
   const has = (k: string) => Object.prototype.hasOwnProperty.call(json, k);
   if (has('population') && has('spec')) return 'fit.json';
+  if (json.format === 'plateau-import-mapping') return 'import mapping template';
   if (has('status') && (has('regimens') || has('caution'))) return 'advice record';
   if (has('structure') || (has('parameters') && has('residual'))) return 'model spec';
   if (has('doses') || has('levels') || has('next_dose_h') || has('renal')) return 'patient file';
   if (has('goals') || has('toxic')) return 'target file';
-  if (has('roles') || has('columns')) return 'import mapping template';
+  if (json.format === 'plateau-import-mapping' || (has('sheets') && has('options'))) return 'import mapping template';
   return undefined;
 }
 

@@ -143,3 +143,12 @@ describe('a file of the wrong kind is named', () => {
     expect(problemsOf(() => parseTarget(read(DEMO_PATIENT))).join('\n')).toContain('this looks like a patient file, not a target file');
   });
 });
+
+describe('an import mapping template is recognised', () => {
+  it('given as a model or a patient', () => {
+    const template = { format: 'plateau-import-mapping', version: 1, sheets: [], options: {} };
+    expect(jsonFileKind(template)).toBe('import mapping template');
+    expect(problemsOf(() => loadPopulationModel(template)).join('\n')).toContain('this looks like an import mapping template');
+    expect(problemsOf(() => parsePatient(template)).join('\n')).toContain('this looks like an import mapping template');
+  });
+});
