@@ -18,6 +18,7 @@ import { bandOf, sig, type Band } from './summary.js';
 import { checkRegimenSettings, ftThresholdMgL, resolvedBounds, type RegimenSettings, type TargetSpec } from './targets.js';
 import { earlyToxicity, EARLY_INTERVALS, exposureNow, loadingDoseAtMap, LOADING_MIN_RATIO, type ExposureNow } from './transient.js';
 import { parameterUnit, UNITS } from './units.js';
+import { implausibleTypical } from '../spec/modelSpec.js';
 import {
   checkCovariateRanges,
   checkLevelTiming,
@@ -229,6 +230,11 @@ export function adviseDose(o: AdviceOptions): Advice {
   if (unused.length) warnings.push({ severity: 'note', code: 'covariate-unused', message: `covariates not used by the model: ${unused.join(', ')}` });
   const prior: PatientPrior = buildPatientPrior(population, covValues, model);
   warnings.push(...checkCovariateRanges(covValues, population.covariateRanges));
+  // The patient's typical values (covariates applied) must be plausible before any prediction.
+  for (const [name, v] of Object.entries(prior.typical)) {
+    const why = implausibleTypical(name, v);
+    if (why) warnings.push({ severity: 'block', code: 'implausible-typical', message: `the typical ${name} for this patient's covariates is ${why}: check the covariate values and the model's covariate relations` });
+  }
 
   // Posterior.
   const root = createStreams(o.seed);
@@ -441,6 +447,8 @@ export function adviseDose(o: AdviceOptions): Advice {
 
   const fMap = new Float64Array(obj.nLevels);
   obj.predict(map.eta, fMap);
+  // Ward clock times beside every time of the record in the checks' messages.
+  if (patient.clockOrigin) for (const w of warnings) w.message = withClockTimes(w.message, patient.clockOrigin);
   const sev = { block: 0, flag: 1, note: 2 };
   warnings.sort((a, b) => sev[a.severity] - sev[b.severity]);
   return {
@@ -480,6 +488,14 @@ export function adviseDose(o: AdviceOptions): Advice {
     seed: o.seed,
     engineVersion: o.engineVersion,
   };
+}
+
+/** "at 35.5 h" -> "at 35.5 h (2026-11-24 19:30)" for times counted from the first dose. */
+function withClockTimes(message: string, origin: string): string {
+  return message.replace(/\b(at|between|and|from|until|started at) (\d+(?:\.\d+)?) h\b(?! \(\d{4}-)/g, (m, word: string, h: string) => {
+    const clock = clockAt(origin, Number(h));
+    return clock ? `${word} ${h} h (${clock})` : m;
+  });
 }
 
 /** The last dose continued at the current interval. */

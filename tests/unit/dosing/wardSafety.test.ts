@@ -172,3 +172,11 @@ describe('fit warnings that bear on the prior are FLAGs, post-fit internal notes
     expect(byText('exploration reached its cap').severity).toBe('flag');
   });
 });
+
+describe('clock times in the checks (resources/demo/patient.json)', () => {
+  it('times in check messages carry the ward clock time', () => {
+    const a = advise({ nDraws: 200 });
+    const note = a.warnings.find((w) => w.code === 'next-dose-assumed')!;
+    expect(note.message).toContain('at 48 h (2026-11-25 08:00)');
+  });
+});
