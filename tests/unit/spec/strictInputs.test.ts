@@ -152,3 +152,35 @@ describe('an import mapping template is recognised', () => {
     expect(problemsOf(() => parsePatient(template)).join('\n')).toContain('this looks like an import mapping template');
   });
 });
+
+describe('prototype names as values give clean messages, never a TypeError (issue 11 finding 8)', () => {
+  const NAMES = ['toString', 'constructor', '__proto__', 'valueOf', 'hasOwnProperty', 'prototype'];
+  const cases: Array<[string, string, (o: Record<string, any>, v: string) => void, (o: unknown) => unknown]> = [
+    ['spec structure', DEMO_MODEL, (o, v) => (o.structure = v), parseModelSpec],
+    ['spec transform', DEMO_MODEL, (o, v) => (o.parameters.CL.transform = v), parseModelSpec],
+    ['spec covariate relation', DEMO_MODEL, (o, v) => (o.covariates[0].relation = v), parseModelSpec],
+    ['spec covariate parameter', DEMO_MODEL, (o, v) => (o.covariates[0].parameter = v), parseModelSpec],
+    ['spec residual model', DEMO_MODEL, (o, v) => (o.residual.model = v), parseModelSpec],
+    ['spec parameter name', DEMO_MODEL, (o, v) => (o.parameters = JSON.parse(`{"${v}": {"typical": 1}, "CL": {"typical": 1}, "V": {"typical": 1}}`)), parseModelSpec],
+    ['patient route', DEMO_PATIENT, (o, v) => (o.doses[0].route = v), parsePatient],
+    ['patient level kind', DEMO_PATIENT, (o, v) => (o.levels[0].kind = v), parsePatient],
+    ['patient sex', DEMO_PATIENT, (o, v) => (o.covariates.sex = v), parsePatient],
+    ['target metric', TARGET, (o, v) => (o.goals[0].metric = v), parseTarget],
+  ];
+  for (const [name, file, set, parse] of cases)
+    it(name, () => {
+      for (const v of NAMES) {
+        const o = read(file);
+        set(o, v);
+        let err: unknown;
+        try {
+          parse(o);
+        } catch (e) {
+          err = e;
+        }
+        expect(err, `${name} = ${v}`).toBeDefined();
+        expect(err).not.toBeInstanceOf(TypeError);
+        expect(Array.isArray((err as { problems?: unknown }).problems)).toBe(true);
+      }
+    });
+});
