@@ -354,6 +354,12 @@ export function adviseDose(o: AdviceOptions): Advice {
     else if (given === 0)
       warnings.push({ severity: 'note', code: 'loading-not-indicated', message: `no loading dose for any candidate: the drug already on board brings the first peak within ${Math.round((LOADING_MIN_RATIO - 1) * 100)} % of the steady-state peak (e.g. ${loadingNotes.get(candidates[0]) ?? ''})` });
   }
+  // A loading dose the user asked to evaluate: said when it is not indicated (its overshoot is in P(toxic)).
+  if (o.evaluate?.loadingDoseMg !== undefined) {
+    const dec = loadingDoseAtMap(model, mapVector, patient.doses, next.h, { ...o.evaluate, loadingDoseMg: undefined }, settings.strengthMg, Math.max(settings.maxDoseMg, o.evaluate.loadingDoseMg));
+    if (toxicNow || dec.loadingDoseMg === undefined)
+      warnings.push({ severity: 'flag', code: 'loading-not-indicated', message: `the loading dose of ${o.evaluate.loadingDoseMg} mg is not indicated: ${toxicNow ? 'the exposure now is already above the toxic limit' : dec.reason}; its overshoot in the first intervals is in P(toxic)` });
+  }
   const steadyToxic: Uint8Array[] = [];
   let results = evaluateRegimens(evalInput, regimensIn, steadyToxic);
   results.forEach((r, i) => {
@@ -411,7 +417,7 @@ export function adviseDose(o: AdviceOptions): Advice {
   const ranked = single ? results : rankRegimens(results, rankOpts);
   // The current regimen continued at the next dose time, against the target: shown first.
   let current: RegimenResult | undefined;
-  if (o.target && !o.evaluate) {
+  if (o.target) {
     const flags: Uint8Array[] = [];
     current = evaluateRegimens(evalInput, [continuationOf(patient)], flags)[0];
     if (target.toxic.length) {

@@ -117,6 +117,9 @@ describe('the loading-dose forecast agrees with its text', () => {
     expect(r.pToxicSteadyState!).toBeLessThan(0.3);
     expect(r.pToxic!).toBeGreaterThan(0.5);
     expect(r.pToxicFirstIntervals!).toBeGreaterThan(0.5);
+    expect(b.warnings.some((w) => w.code === 'loading-not-indicated' && w.severity === 'flag')).toBe(true);
+    // The current regimen is shown with --evaluate too.
+    expect(b.current).toMatchObject({ doseMg: 1250, intervalH: 12 });
   });
 });
 
