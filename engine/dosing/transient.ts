@@ -43,23 +43,44 @@ function intervalGrid(startH: number, regimen: Regimen, n: number, peakDelayH: n
   return { times, intervals };
 }
 
-/** Metrics of one interval from concentrations on its grid nodes. */
-function intervalMetrics(c: ArrayLike<number>, iv: Grid['intervals'][number], tau: number, threshold: number, out: Record<MetricId, number>): void {
+/** Which metrics a check needs (the others are not computed). */
+interface Needs {
+  auc24: boolean;
+  trough: boolean;
+  peak: boolean;
+  peakAt: boolean;
+  ftAbove: boolean;
+}
+
+/** Metrics of one interval from concentrations on its grid nodes (only those in `needs`). */
+function intervalMetrics(c: ArrayLike<number>, iv: Grid['intervals'][number], tau: number, threshold: number, out: Record<MetricId, number>, needs: Needs): void {
+  const d0 = iv.from + (iv.rise > 0 ? iv.rise + 1 : 0);
+  out.peak = c[d0];
+  out.trough = c[d0 + GRID];
+  out.peakAt = c[iv.peakAt];
+  if (!needs.auc24 && !needs.ftAbove) return;
   const hRise = iv.T / GRID;
   const hDecay = (tau - iv.T) / GRID;
   let a = 0;
   let above = 0;
   for (let i = 0; i <= iv.rise; i++) a += ((i === 0 || i === iv.rise ? 1 : i % 2 ? 4 : 2) * hRise * c[iv.from + i]) / 3;
-  const d0 = iv.from + (iv.rise > 0 ? iv.rise + 1 : 0);
   for (let i = 0; i <= GRID; i++) {
     a += ((i === 0 || i === GRID ? 1 : i % 2 ? 4 : 2) * hDecay * c[d0 + i]) / 3;
     if (i < GRID && c[d0 + i] > threshold) above += hDecay;
   }
   out.auc24 = (a * 24) / tau;
-  out.peak = c[d0];
-  out.trough = c[d0 + GRID];
-  out.peakAt = c[iv.peakAt];
   out.ftAbove = (100 * (above + (c[iv.from] > threshold ? iv.T : 0))) / tau;
+}
+
+/** Grid nodes a check reads: all of them for AUC or time above a threshold, else peaks and troughs. */
+function nodesNeeded(grid: Grid, needs: Needs): Int32Array {
+  if (needs.auc24 || needs.ftAbove) return Int32Array.from(grid.times, (_, i) => i);
+  const out: number[] = [];
+  for (const iv of grid.intervals) {
+    const d0 = iv.from + (iv.rise > 0 ? iv.rise + 1 : 0);
+    out.push(d0, d0 + GRID, iv.peakAt);
+  }
+  return Int32Array.from(out);
 }
 
 function toxicConditions(target: TargetSpec) {
@@ -99,6 +120,10 @@ export function earlyToxicity(input: EarlyInput, regimens: readonly Regimen[], s
   }
   const params = new Float64Array(nP);
   const m = { auc24: 0, trough: 0, peak: 0, peakAt: 0, ftAbove: 0 } as Record<MetricId, number>;
+  const needs: Needs = { auc24: false, trough: false, peak: false, peakAt: false, ftAbove: false };
+  for (const t of tox) needs[t.metric] = true;
+  const toxMetric = tox.map((t) => t.metric);
+  const toxMax = Float64Array.from(tox, (t) => t.max);
   const peakDelayH = target.peakDelayH ?? 0;
   const finish = (i: number, early: Uint8Array) => {
     let e = 0;
@@ -110,9 +135,9 @@ export function earlyToxicity(input: EarlyInput, regimens: readonly Regimen[], s
     out[i] = { pToxicEarly: nDraws ? e / nDraws : NaN, pToxicAny: nDraws ? any / nDraws : NaN };
   };
   const isToxic = (c: Float64Array, grid: Grid, tau: number) => {
-    for (const iv of grid.intervals) {
-      intervalMetrics(c, iv, tau, input.threshold, m);
-      for (const t of tox) if (!(m[t.metric] <= t.max)) return true;
+    for (let k = 0; k < grid.intervals.length; k++) {
+      intervalMetrics(c, grid.intervals[k], tau, input.threshold, m, needs);
+      for (let j = 0; j < toxMetric.length; j++) if (!(m[toxMetric[j]] <= toxMax[j])) return true;
     }
     return false;
   };
@@ -138,35 +163,50 @@ export function earlyToxicity(input: EarlyInput, regimens: readonly Regimen[], s
     if (g) g.push(i);
     else groups.set(key, [i]);
   });
+  // Buffers reused across groups (one grid size per rise / no rise).
+  let hist = new Float64Array(0);
+  let first = new Float64Array(0);
+  let rest = new Float64Array(0);
+  const ok = new Uint8Array(nDraws);
+  const early = new Uint8Array(nDraws);
   for (const idx of groups.values()) {
     const r0 = regimens[idx[0]];
     const grid = intervalGrid(input.startH, r0, EARLY_INTERVALS, peakDelayH);
+    const nodes = nodesNeeded(grid, needs);
+    const times = Array.from(nodes, (i) => grid.times[i]);
+    const nN = nodes.length;
     const nT = grid.times.length;
     const unit = regimenDoses({ ...r0, doseMg: 1, loadingDoseMg: undefined }, input.startH, EARLY_INTERVALS + 1);
-    const pHist = model.prepare(input.history, grid.times);
-    const pFirst = model.prepare(unit.slice(0, 1), grid.times);
-    const pRest = model.prepare(unit.slice(1), grid.times);
-    const hist = new Float64Array(nDraws * nT);
-    const first = new Float64Array(nDraws * nT);
-    const rest = new Float64Array(nDraws * nT);
-    const ok = new Uint8Array(nDraws);
+    const pHist = model.prepare(input.history, times);
+    const pFirst = model.prepare(unit.slice(0, 1), times);
+    const pRest = model.prepare(unit.slice(1), times);
+    if (hist.length < nDraws * nN) {
+      hist = new Float64Array(nDraws * nN);
+      first = new Float64Array(nDraws * nN);
+      rest = new Float64Array(nDraws * nN);
+    }
+    const h1 = new Float64Array(nN);
+    const f1 = new Float64Array(nN);
+    const r1 = new Float64Array(nN);
     for (let d = 0; d < nDraws; d++) {
       for (let p = 0; p < nP; p++) params[p] = draws[d * nP + p];
-      ok[d] = pHist(params, hist.subarray(d * nT, (d + 1) * nT)) && pFirst(params, first.subarray(d * nT, (d + 1) * nT)) && pRest(params, rest.subarray(d * nT, (d + 1) * nT)) ? 1 : 0;
+      ok[d] = pHist(params, h1) && pFirst(params, f1) && pRest(params, r1) ? 1 : 0;
+      hist.set(h1, d * nN);
+      first.set(f1, d * nN);
+      rest.set(r1, d * nN);
     }
     const c = new Float64Array(nT);
     for (const i of idx) {
       const r = regimens[i];
       const D = r.doseMg;
       const L = r.loadingDoseMg ?? D;
-      const early = new Uint8Array(nDraws);
       for (let d = 0; d < nDraws; d++) {
         if (!ok[d]) {
           early[d] = 1;
           continue;
         }
-        const o = d * nT;
-        for (let t = 0; t < nT; t++) c[t] = hist[o + t] + L * first[o + t] + D * rest[o + t];
+        const o = d * nN;
+        for (let t = 0; t < nN; t++) c[nodes[t]] = hist[o + t] + L * first[o + t] + D * rest[o + t];
         early[d] = isToxic(c, grid, r.intervalH) ? 1 : 0;
       }
       finish(i, early);
