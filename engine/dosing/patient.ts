@@ -87,6 +87,11 @@ export const RENAL_KEYS = ['time_h', 'time', 'scr_mg_dL', 'scr_umol_L'] as const
 /** Covariate names with a known meaning; another covariate may be any name the model uses. */
 export const CANONICAL_COVARIATES = ['weight_kg', 'height_cm', 'age_y', 'sex', 'scr_mg_dL', 'scr_umol_L', 'crcl_mL_min'] as const;
 
+/** Bounds on times (common practice, wide): beyond them a value is a unit or typing error. */
+const MAX_TIME_H = 35_000;
+const MAX_INFUSION_H = 720;
+const MAX_NEXT_DOSE_DELAY_H = 720;
+
 interface TimeSpec {
   mode: 'hours' | 'clock' | undefined;
   originMin: number;
@@ -161,6 +166,10 @@ export function parsePatient(json: unknown): Patient {
       problems.push(`${at}.time_h: must be a number of hours from the first dose`);
       return NaN;
     }
+    if (Math.abs(r.time_h) > MAX_TIME_H) {
+      problems.push(`${at}.time_h: ${r.time_h} h is implausible (more than ${MAX_TIME_H} h, about 4 years, from the first dose); check the unit (hours expected)`);
+      return NaN;
+    }
     return r.time_h;
   };
 
@@ -182,6 +191,7 @@ export function parsePatient(json: unknown): Patient {
     const routeRaw = r.route === undefined ? 'iv' : r.route;
     const durationRaw = r.duration_h === undefined ? (r.duration_min !== undefined && finite(r.duration_min) ? r.duration_min / 60 : 0) : r.duration_h;
     if (!finite(durationRaw) || durationRaw < 0) problems.push(`${at}.duration_h: must be a number of hours >= 0`);
+    else if (durationRaw > MAX_INFUSION_H) problems.push(`${at}.duration_h: ${durationRaw} h is implausible for one infusion (at most ${MAX_INFUSION_H} h); record a long continuous infusion as consecutive infusions, or check the unit`);
     let route: Dose['route'] = 'bolus';
     const duration = finite(durationRaw) && durationRaw > 0 ? durationRaw : 0;
     if (routeRaw === 'iv' || routeRaw === 'infusion' || routeRaw === 'bolus') route = duration > 0 ? 'infusion' : 'bolus';
@@ -192,7 +202,7 @@ export function parsePatient(json: unknown): Patient {
     if (duration > 48) notes.push({ severity: 'flag', code: 'long-infusion', message: `${at}: an infusion of ${duration} h is unusual; check duration_h is in hours` });
     const dose: Dose = { timeH: t, amountMg: amount, route, durationH: route === 'infusion' ? duration : 0, sourceRow: i + 1 };
     if (r.ss_interval_h !== undefined) {
-      if (!(finite(r.ss_interval_h) && r.ss_interval_h > 0)) problems.push(`${at}.ss_interval_h: must be the dosing interval (h) > 0`);
+      if (!(finite(r.ss_interval_h) && r.ss_interval_h > 0 && r.ss_interval_h <= 168)) problems.push(`${at}.ss_interval_h: must be the dosing interval in hours, > 0 and at most 168`);
       else if (i !== 0) problems.push(`${at}.ss_interval_h: only the first dose of the history can be marked as given at steady state`);
       else dose.steadyStateIntervalH = r.ss_interval_h;
     }
@@ -339,6 +349,7 @@ export function parsePatient(json: unknown): Patient {
   if (nextDoseH !== undefined && doses.length) {
     const last = doses[doses.length - 1];
     if (nextDoseH < last.timeH + last.durationH) problems.push(`next_dose_h: ${fmtH(nextDoseH)} is before the last dose has finished (${fmtH(last.timeH + last.durationH)})`);
+    else if (nextDoseH > last.timeH + MAX_NEXT_DOSE_DELAY_H) problems.push(`next_dose_h: ${fmtH(nextDoseH)} is more than ${MAX_NEXT_DOSE_DELAY_H} h after the last dose: the history no longer describes the patient then`);
   }
 
   if (problems.length) throw new PatientError(problems);

@@ -184,3 +184,13 @@ describe('prototype names as values give clean messages, never a TypeError (issu
       }
     });
 });
+
+describe('implausible times in patient.json are refused (issue 11 finding 6)', () => {
+  it('time_h, duration_h, ss_interval_h and next_dose_h beyond their bounds', () => {
+    const p = { id: 'x', covariates: {}, doses: [{ time_h: 0, amount_mg: 1000, duration_h: 1e308, ss_interval_h: 1e9 }, { time_h: 1e308, amount_mg: 1000 }], levels: [], next_dose_h: 1e12 };
+    const out = problemsOf(() => parsePatient(p)).join('\n');
+    expect(out).toContain('doses[0].duration_h: 1e+308 h is implausible');
+    expect(out).toContain('doses[0].ss_interval_h: must be the dosing interval in hours');
+    expect(out).toContain('doses[1].time_h: 1e+308 h is implausible');
+  });
+});
