@@ -17,7 +17,7 @@ import { DEFAULT_REGIMEN_SETTINGS, evaluateRegimens, explainRegimen, formatRegim
 import { bandOf, sig, type Band } from './summary.js';
 import { checkRegimenSettings, ftThresholdMgL, resolvedBounds, type RegimenSettings, type TargetSpec } from './targets.js';
 import { earlyToxicity, EARLY_INTERVALS, exposureNow, loadingDoseAtMap, LOADING_MIN_RATIO, type ExposureNow } from './transient.js';
-import { parameterUnit, UNITS } from './units.js';
+import { describeModelValues, parameterUnit, UNITS } from './units.js';
 import { implausibleTypical } from '../spec/modelSpec.js';
 import {
   checkCovariateRanges,
@@ -128,7 +128,7 @@ export interface Advice {
   hold?: HoldAdvice;
   /** When the advised regimens start (the next dose time, or later after a hold). */
   regimenStart: { timeH: number; clock?: string; delayed: boolean };
-  model: ModelProvenance & { structure: string; covariatesUsed: Record<string, string> };
+  model: ModelProvenance & { structure: string; covariatesUsed: Record<string, string>; /** Population values in words with units. */ values: string[] };
   target: TargetSpec;
   posterior: ParameterSummary & { nDraws: number; diagnostics: SamplerDiagnostics; mapObjective: number; levels: Array<{ timeH: number; concMgL: number; censored: boolean; predictedMap: number; priorPredictiveP: number; posteriorPredictiveP: number; iwres: number | null }> };
   regimens: RegimenResult[];
@@ -478,7 +478,7 @@ export function adviseDose(o: AdviceOptions): Advice {
     ...(now ? { now } : {}),
     ...(hold ? { hold } : {}),
     regimenStart: { timeH: startH, ...(clockAt(patient.clockOrigin, startH) ? { clock: clockAt(patient.clockOrigin, startH) } : {}), delayed: startH !== next.h },
-    model: { ...population.provenance, structure: model.id, covariatesUsed, ...(posteriorFrom ? { posteriorFrom } : {}) },
+    model: { ...population.provenance, structure: model.id, covariatesUsed, values: describeModelValues(population.spec), ...(posteriorFrom ? { posteriorFrom } : {}) },
     target,
     posterior: {
       ...summary,

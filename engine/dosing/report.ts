@@ -130,6 +130,8 @@ export function formatAdvice(a: Advice, maxRegimens = 10): string {
   out.push('');
 
   out.push('Details (statistics behind the advice):');
+  out.push('  Population model values (the prior):');
+  for (const v of m.values ?? []) out.push(wrap(`    ${t(v)}`, 96, '      '));
   const p = a.posterior;
   const d = p.diagnostics;
   out.push(`  Patient's parameters (${p.nDraws} draws; ${d.method === 'prior' ? 'from the population model alone: no levels' : d.method === 'post-fit' ? `post-fit draws of subject ${t(d.postFitSubject)} of the site fit` : 'from the levels by MCMC'}):`);

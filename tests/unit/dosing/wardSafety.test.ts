@@ -73,6 +73,11 @@ describe('demo patient on 1250 mg q12h, above target (resources/demo/patient.jso
     expect(text).toMatch(/CL L\/h\s/);
     expect(text).toMatch(/V L\s/);
     expect(text).toContain('AUC24 mg.h/L');
+    // Covariate effects named by their relation, residual error with its unit.
+    expect(a.model.values).toContain('CL: power exponent 0.75 on crcl_mL_min (CL x (crcl_mL_min / 80)^0.75)');
+    expect(a.model.values).toContain('CL typical 3.5 L/h, BSV 0.35 (SD on the log scale)');
+    expect(a.model.values.some((v) => v.includes('a 1 mg/L (additive SD)'))).toBe(true);
+    expect(text).toContain('power exponent 0.75 on crcl_mL_min');
   });
 
   it('finding 6: ward clock times, and the doses and levels echoed as interpreted', () => {
