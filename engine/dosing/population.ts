@@ -168,7 +168,11 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
         return;
       }
       case 'residual': {
-        if (name === 'a' || name === 'b') residual[name] = est;
+        if (name === 'a' || name === 'b') {
+          const max = name === 'a' ? PLAUSIBLE.residualAMax : PLAUSIBLE.residualBMax;
+          if (!(est > 0 && est <= max)) return void problems.push(`${at}: residual ${name} is ${est}, outside (0, ${max}]: a collapsed or exploded residual error; the fit cannot be used as a prior`);
+          residual[name] = est;
+        }
         else problems.push(`${at}: residual parameter must be a or b, got ${name}`);
         return;
       }

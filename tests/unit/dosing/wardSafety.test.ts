@@ -188,3 +188,29 @@ describe('clock times in the checks (resources/demo/patient.json)', () => {
     expect(note.message).toContain('at 48 h (2026-11-25 08:00)');
   });
 });
+
+describe('a fit whose values are not plausible cannot be a prior (issue 11 findings 1 and 5)', () => {
+  const base = {
+    spec: { structure: '1cmt', parameters: { CL: { typical: 3, bsv: 0.3 }, V: { typical: 50, bsv: 0.2 } }, covariates: [{ parameter: 'CL', covariate: 'crcl_mL_min', relation: 'power', reference: 80, coefficient: 0.5 }], residual: { model: 'combined', a: 1, b: 0.1 } },
+    population: [
+      { parameter: 'CL', kind: 'typical', estimate: 3.4 },
+      { parameter: 'V', kind: 'typical', estimate: 52 },
+    ],
+  };
+  const refused = (entry: object) => {
+    try {
+      loadPopulationModel({ ...base, population: [...base.population, entry] });
+    } catch (e) {
+      return ((e as { problems?: string[] }).problems ?? []).join('\n');
+    }
+    return 'accepted';
+  };
+  it('typical CL 1e-320, a covariate coefficient of 1e308, a collapsed residual error', () => {
+    expect(refused({ parameter: 'CL', kind: 'typical', estimate: 1e-320 })).toMatch(/typical CL .*outside the plausible range/);
+    expect(refused({ parameter: 'CL', kind: 'covariate', covariate: 'crcl_mL_min', estimate: 1e308 })).toMatch(/implausibly large/);
+    // A vanishing additive part of a combined error is accepted: the proportional part b carries the error.
+    expect(refused({ parameter: 'a', kind: 'residual', estimate: 1e-300 })).toBe('accepted');
+    expect(refused({ parameter: 'a', kind: 'residual', estimate: 0 })).toMatch(/residual a is 0/);
+    expect(refused({ parameter: 'CL', kind: 'bsv', estimate: 166 })).toMatch(/implausibly large/);
+  });
+});
