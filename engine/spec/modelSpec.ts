@@ -6,7 +6,7 @@
  */
 import { unknownKeyProblems } from '../json/knownKeys.js';
 import type { PkParameterName, SolverSettings, StructureId, Transform } from '../models/types.js';
-import { wrongKindMessage } from './fileKind.js';
+import { jsonFileKind, wrongKindMessage } from './fileKind.js';
 import { parseLiterature, type LiteratureInfo } from './literature.js';
 
 export type CovariateRelation = 'power' | 'linear' | 'categorical';
@@ -131,8 +131,8 @@ export function parseModelSpec(json: unknown): ModelSpec {
   const problems: string[] = [];
   if (!isRecord(json)) throw new SpecError(['the spec must be a JSON object']);
 
-  const kind = json.structure === undefined ? wrongKindMessage(json, ['model spec', 'fit.json']) : undefined;
-  if (kind) throw new SpecError([kind]);
+  const kind = json.structure === undefined ? wrongKindMessage(json, ['model spec']) : undefined;
+  if (kind) throw new SpecError([`${kind}${jsonFileKind(json) === 'fit.json' ? ' (its "spec" entry holds the spec it was fitted with)' : ''}`]);
   problems.push(...unknownKeyProblems(json, SPEC_KEYS));
   const structure = json.structure as StructureId;
   if (!(typeof structure === 'string' && Object.prototype.hasOwnProperty.call(STRUCTURE_PARAMETERS, structure))) {

@@ -194,3 +194,9 @@ describe('implausible times in patient.json are refused (issue 11 finding 6)', (
     expect(out).toContain('doses[1].time_h: 1e+308 h is implausible');
   });
 });
+
+describe('a fit.json where a model spec is expected (plateau simulate / fit --model)', () => {
+  it('is named, with where its spec is', () => {
+    expect(problemsOf(() => parseModelSpec({ population: [], spec: read(DEMO_MODEL) }))).toEqual(['this looks like a fit.json, not a model spec (its "spec" entry holds the spec it was fitted with)']);
+  });
+});
