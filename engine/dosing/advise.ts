@@ -321,7 +321,6 @@ export function adviseDose(o: AdviceOptions): Advice {
   const settings = o.regimenSettings ?? target.regimen ?? DEFAULT_REGIMEN_SETTINGS;
   const lastRoute = patient.doses[patient.doses.length - 1].route;
   const route = lastRoute === 'oral' ? 'oral' : 'infusion';
-  const last = patient.doses[patient.doses.length - 1];
   const continuation: Regimen | undefined = o.target ? undefined : continuationOf(patient);
   const single = o.evaluate ?? continuation;
   const candidates = single ? [single] : regimenGrid(settings, route);
@@ -340,19 +339,17 @@ export function adviseDose(o: AdviceOptions): Advice {
   let regimensIn: Regimen[] = candidates;
   if (o.loadingDose && !single) {
     let given = 0;
-    let first: string | undefined;
     regimensIn = candidates.map((r) => {
       if (toxicNow) return r;
       const dec = loadingDoseAtMap(model, mapVector, patient.doses, next.h, r, settings.strengthMg, settings.maxDoseMg);
       loadingNotes.set(r, dec.reason);
       if (dec.loadingDoseMg === undefined) return r;
       given++;
-      first ??= dec.reason;
       return { ...r, loadingDoseMg: dec.loadingDoseMg };
     });
     if (toxicNow) warnings.push({ severity: 'note', code: 'loading-not-indicated', message: 'no loading dose: the exposure now is already above the toxic limit' });
     else if (given === 0)
-      warnings.push({ severity: 'note', code: 'loading-not-indicated', message: `no loading dose for any candidate: the drug already on board brings the first peak within ${Math.round((LOADING_MIN_RATIO - 1) * 100)} % of the steady-state peak (e.g. ${loadingNotes.get(candidates[0]) ?? ''})` });
+      warnings.push({ severity: 'note', code: 'loading-not-indicated', message: `no loading dose for any candidate: with the drug already on board, the first dose that would reach the steady-state peak is less than ${Math.round((LOADING_MIN_RATIO - 1) * 100)} % above the maintenance dose (e.g. ${loadingNotes.get(candidates[0]) ?? ''})` });
   }
   // A loading dose the user asked to evaluate: said when it is not indicated (its overshoot is in P(toxic)).
   if (o.evaluate?.loadingDoseMg !== undefined) {
