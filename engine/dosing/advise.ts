@@ -3,7 +3,7 @@
  * posterior (MAP and draws), the forecast, the regimen table and the warnings. One entry point
  * for the CLI, the worker and the UI. Same inputs and seed give the same advice.
  */
-import type { CovariateValue, Dose } from '../data/types.js';
+import type { CovariateValue } from '../data/types.js';
 import { structuralModelWithSolver } from '../models/catalogue.js';
 import type { StructuralModel } from '../models/types.js';
 import { createStreams } from '../rng/index.js';
@@ -177,9 +177,6 @@ function thinRows(m: Float64Array, cols: number, rows: number, n: number): Float
 
 const NO_TARGET: TargetSpec = { id: 'none', label: 'no target', source: 'none', sourceStatus: 'from memory', localProtocol: 'check local protocol', goals: [], toxic: [] };
 
-function roundTo(x: number, step: number): number {
-  return Math.round(x / step) * step;
-}
 
 export function adviseDose(o: AdviceOptions): Advice {
   if (!o.caution || !o.caution.trim()) throw new AdviceError('the caution text is missing: dose advice is never given without it');
