@@ -8,6 +8,7 @@ import type { Dose } from '../data/types.js';
 import type { Regimen } from './metrics.js';
 import type { PatientPrior } from './prior.js';
 import { bandOf, sig, type Band } from './summary.js';
+import { resolvedBounds, type TargetSpec } from './targets.js';
 
 export interface CurveBands {
   timesH: number[];
@@ -30,6 +31,8 @@ export interface IntervalMetrics {
   /** AUC over the interval (mg.h/L) and scaled to 24 h. */
   auc: Band;
   auc24: Band;
+  /** Share of draws with a toxic exposure in this interval (AUC24, trough or peak limits of the target); null without toxic limits. */
+  pToxic: number | null;
 }
 
 export interface TimeBelow {
@@ -67,6 +70,8 @@ export interface ForecastInput {
   /** Compute the time to fall below this level after the last given dose. */
   belowMgL?: number;
   belowHorizonH?: number;
+  /** The target whose toxic limits give each interval's pToxic. */
+  target?: TargetSpec;
 }
 
 /** The future doses of a regimen from startH (the loading dose, when given, replaces the first). */
@@ -157,7 +162,14 @@ export function forecast(input: ForecastInput): Forecast {
       trough[m] = all[decayBase + GRID];
     }
     const r = (b: Band): Band => ({ median: sig(b.median), mean: sig(b.mean), q025: sig(b.q025), q10: sig(b.q10), q90: sig(b.q90), q975: sig(b.q975) });
-    intervals.push({ index: k + 1, startH: sig(iv.start, 6), endH: sig(iv.start + tau, 6), doseMg: iv.doseMg, trough: r(bandOf(trough, scratch)), peak: r(bandOf(peak, scratch)), auc: r(bandOf(auc, scratch)), auc24: r(bandOf(auc24, scratch)) });
+    // peakAt and ftAbove limits are read at steady state only; the interval check covers AUC24, trough and peak.
+    const tox = (input.target?.toxic ?? []).filter((c) => c.metric === 'auc24' || c.metric === 'trough' || c.metric === 'peak').map((c) => ({ metric: c.metric, max: resolvedBounds(input.target as TargetSpec, c).max }));
+    let nTox = 0;
+    for (let m = 0; m < nDraws; m++) {
+      const v = { auc24: auc24[m], trough: trough[m], peak: peak[m] } as Record<string, number>;
+      if (tox.some((t) => !(v[t.metric] <= t.max))) nTox++;
+    }
+    intervals.push({ index: k + 1, startH: sig(iv.start, 6), endH: sig(iv.start + tau, 6), doseMg: iv.doseMg, trough: r(bandOf(trough, scratch)), peak: r(bandOf(peak, scratch)), auc: r(bandOf(auc, scratch)), auc24: r(bandOf(auc24, scratch)), pToxic: tox.length && nDraws ? sig(nTox / nDraws, 4) : null });
   });
   const result: Forecast = { curve, futureDoses, intervals };
   if (input.belowMgL !== undefined && lastHistory) result.timeBelow = timeToFallBelow(prior, history, etaDraws, nDraws, input.belowMgL, input.belowHorizonH ?? 120);

@@ -5,6 +5,8 @@
  * instead and converted. Units are carried in the key names (amount_mg, conc_mg_L, scr_umol_L).
  */
 import type { CovariateValue, Dose, Observation } from '../data/types.js';
+import { nearestKey, unknownKeyProblems } from '../json/knownKeys.js';
+import { wrongKindMessage } from '../spec/fileKind.js';
 import { COCKCROFT_GAULT_LABEL, cockcroftGault, scrUmolToMgDl, UMOL_L_PER_MG_DL, type Sex } from './renal.js';
 
 export interface PatientNote {
@@ -77,6 +79,19 @@ export function parseLocalClock(text: string): number | undefined {
   return ms / 60000;
 }
 
+/** Every key patient.json may have, at each level (unknown keys are errors naming the nearest). */
+export const PATIENT_KEYS = ['id', 'covariates', 'doses', 'levels', 'renal', 'next_dose_h', 'next_dose'] as const;
+export const DOSE_KEYS = ['time_h', 'time', 'amount_mg', 'amount_g', 'duration_h', 'duration_min', 'route', 'ss_interval_h'] as const;
+export const LEVEL_KEYS = ['time_h', 'time', 'conc_mg_L', 'conc_ug_mL', 'conc_ng_mL', 'censored', 'lloq_mg_L', 'kind'] as const;
+export const RENAL_KEYS = ['time_h', 'time', 'scr_mg_dL', 'scr_umol_L'] as const;
+/** Covariate names with a known meaning; another covariate may be any name the model uses. */
+export const CANONICAL_COVARIATES = ['weight_kg', 'height_cm', 'age_y', 'sex', 'scr_mg_dL', 'scr_umol_L', 'crcl_mL_min'] as const;
+
+/** Bounds on times (common practice, wide): beyond them a value is a unit or typing error. */
+const MAX_TIME_H = 35_000;
+const MAX_INFUSION_H = 720;
+const MAX_NEXT_DOSE_DELAY_H = 720;
+
 interface TimeSpec {
   mode: 'hours' | 'clock' | undefined;
   originMin: number;
@@ -90,6 +105,9 @@ export function parsePatient(json: unknown): Patient {
   const problems: string[] = [];
   const notes: PatientNote[] = [];
   if (!isRecord(json)) throw new PatientError(['the patient file must be a JSON object {id, covariates, doses, levels}']);
+  const wrong = json.doses === undefined ? wrongKindMessage(json, ['patient file']) : undefined;
+  if (wrong) throw new PatientError([`${wrong}: give patient.json (id, covariates, doses, levels)`]);
+  problems.push(...unknownKeyProblems(json, PATIENT_KEYS));
 
   const id = typeof json.id === 'string' && json.id.trim() ? json.id.trim() : typeof json.id === 'number' ? String(json.id) : '';
   if (!id) problems.push('id: give the patient an identifier (text)');
@@ -104,9 +122,9 @@ export function parsePatient(json: unknown): Patient {
   if (rawRenal === null) problems.push('renal: must be a list of {time_h, scr_mg_dL | scr_umol_L}');
 
   const timed: Array<{ at: string; r: Record<string, unknown> }> = [];
-  rawDoses.forEach((r, i) => isRecord(r) && timed.push({ at: `doses[${i}]`, r }));
-  (rawLevels ?? []).forEach((r, i) => isRecord(r) && timed.push({ at: `levels[${i}]`, r }));
-  (rawRenal ?? []).forEach((r, i) => isRecord(r) && timed.push({ at: `renal[${i}]`, r }));
+  rawDoses.forEach((r, i) => isRecord(r) && timed.push({ at: `doses[${i}]`, r }) && problems.push(...unknownKeyProblems(r, DOSE_KEYS, `doses[${i}]`)));
+  (rawLevels ?? []).forEach((r, i) => isRecord(r) && timed.push({ at: `levels[${i}]`, r }) && problems.push(...unknownKeyProblems(r, LEVEL_KEYS, `levels[${i}]`)));
+  (rawRenal ?? []).forEach((r, i) => isRecord(r) && timed.push({ at: `renal[${i}]`, r }) && problems.push(...unknownKeyProblems(r, RENAL_KEYS, `renal[${i}]`)));
   const time: TimeSpec = { mode: undefined, originMin: 0 };
   let clockOrigin: string | undefined;
   const hasH = timed.some((t) => t.r.time_h !== undefined);
@@ -148,6 +166,10 @@ export function parsePatient(json: unknown): Patient {
       problems.push(`${at}.time_h: must be a number of hours from the first dose`);
       return NaN;
     }
+    if (Math.abs(r.time_h) > MAX_TIME_H) {
+      problems.push(`${at}.time_h: ${r.time_h} h is implausible (more than ${MAX_TIME_H} h, about 4 years, from the first dose); check the unit (hours expected)`);
+      return NaN;
+    }
     return r.time_h;
   };
 
@@ -169,6 +191,7 @@ export function parsePatient(json: unknown): Patient {
     const routeRaw = r.route === undefined ? 'iv' : r.route;
     const durationRaw = r.duration_h === undefined ? (r.duration_min !== undefined && finite(r.duration_min) ? r.duration_min / 60 : 0) : r.duration_h;
     if (!finite(durationRaw) || durationRaw < 0) problems.push(`${at}.duration_h: must be a number of hours >= 0`);
+    else if (durationRaw > MAX_INFUSION_H) problems.push(`${at}.duration_h: ${durationRaw} h is implausible for one infusion (at most ${MAX_INFUSION_H} h); record a long continuous infusion as consecutive infusions, or check the unit`);
     let route: Dose['route'] = 'bolus';
     const duration = finite(durationRaw) && durationRaw > 0 ? durationRaw : 0;
     if (routeRaw === 'iv' || routeRaw === 'infusion' || routeRaw === 'bolus') route = duration > 0 ? 'infusion' : 'bolus';
@@ -179,7 +202,7 @@ export function parsePatient(json: unknown): Patient {
     if (duration > 48) notes.push({ severity: 'flag', code: 'long-infusion', message: `${at}: an infusion of ${duration} h is unusual; check duration_h is in hours` });
     const dose: Dose = { timeH: t, amountMg: amount, route, durationH: route === 'infusion' ? duration : 0, sourceRow: i + 1 };
     if (r.ss_interval_h !== undefined) {
-      if (!(finite(r.ss_interval_h) && r.ss_interval_h > 0)) problems.push(`${at}.ss_interval_h: must be the dosing interval (h) > 0`);
+      if (!(finite(r.ss_interval_h) && r.ss_interval_h > 0 && r.ss_interval_h <= 168)) problems.push(`${at}.ss_interval_h: must be the dosing interval in hours, > 0 and at most 168`);
       else if (i !== 0) problems.push(`${at}.ss_interval_h: only the first dose of the history can be marked as given at steady state`);
       else dose.steadyStateIntervalH = r.ss_interval_h;
     }
@@ -292,6 +315,12 @@ export function parsePatient(json: unknown): Patient {
       problems.push(`${at}: unknown unit; give ${known.join(' or ')}`);
       continue;
     }
+    // A near miss of a known name ("wieght_kg") is a typing error, not a new covariate.
+    const near = key.length >= 5 && !ALIAS_NAMES.has(key.toLowerCase()) ? nearestKey(key, CANONICAL_COVARIATES) : undefined;
+    if (near !== undefined && near !== key) {
+      problems.push(`${at}: unknown covariate (did you mean "${near}"?)`);
+      continue;
+    }
     if (!(finite(value) || typeof value === 'string')) {
       problems.push(`${at}: must be a number or text`);
       continue;
@@ -320,10 +349,21 @@ export function parsePatient(json: unknown): Patient {
   if (nextDoseH !== undefined && doses.length) {
     const last = doses[doses.length - 1];
     if (nextDoseH < last.timeH + last.durationH) problems.push(`next_dose_h: ${fmtH(nextDoseH)} is before the last dose has finished (${fmtH(last.timeH + last.durationH)})`);
+    else if (nextDoseH > last.timeH + MAX_NEXT_DOSE_DELAY_H) problems.push(`next_dose_h: ${fmtH(nextDoseH)} is more than ${MAX_NEXT_DOSE_DELAY_H} h after the last dose: the history no longer describes the patient then`);
   }
 
   if (problems.length) throw new PatientError(problems);
   return { id, covariates, derived, doses, levels, levelKinds, renal, ...(clockOrigin ? { clockOrigin } : {}), ...(nextDoseH !== undefined ? { nextDoseH } : {}), notes };
+}
+
+/** Ward clock time "YYYY-MM-DD HH:MM" of h hours after the clock origin; undefined without one. */
+export function clockAt(origin: string | undefined, h: number): string | undefined {
+  if (origin === undefined || !Number.isFinite(h)) return undefined;
+  const m = parseLocalClock(origin);
+  if (m === undefined) return undefined;
+  const d = new Date(Math.round((m + h * 60) * 60000));
+  const p = (x: number) => String(x).padStart(2, '0');
+  return `${d.getUTCFullYear()}-${p(d.getUTCMonth() + 1)}-${p(d.getUTCDate())} ${p(d.getUTCHours())}:${p(d.getUTCMinutes())}`;
 }
 
 export function fmtH(h: number): string {
@@ -339,6 +379,8 @@ const ALIASES: Record<string, readonly string[]> = {
   scr_mg_dL: ['scr', 'creat', 'creatinine'],
   crcl_mL_min: ['crcl', 'clcr'],
 };
+
+const ALIAS_NAMES = new Set(Object.values(ALIASES).flat());
 
 /** Look up the patient's value for a model covariate name: exact, then case-insensitive, then aliases. */
 export function patientCovariate(patient: Patient, name: string): { value: CovariateValue; from: string } | undefined {

@@ -4,7 +4,9 @@
  * bsv, covariate and residual values are the population values). Carries its provenance and
  * the covariate ranges it was built on.
  */
-import { parseModelSpec, type ModelSpec } from '../spec/modelSpec.js';
+import { wrongKindMessage } from '../spec/fileKind.js';
+import { literatureStatus } from '../spec/literature.js';
+import { implausibleTypical, parseModelSpec, PLAUSIBLE, type ModelSpec } from '../spec/modelSpec.js';
 import { parseFitSubjects, type FitSubjectPosterior } from './posterior.js';
 
 export interface ModelProvenance {
@@ -57,6 +59,8 @@ const finite = (x: unknown): x is number => typeof x === 'number' && Number.isFi
 
 /** A fit.json or a model spec, told apart by the fit's `population` table. */
 export function loadPopulationModel(json: unknown): PopulationModel {
+  const wrong = wrongKindMessage(json, ['model spec', 'fit.json']);
+  if (wrong) throw new PopulationModelError([`${wrong}: give a model spec (JSON with structure, parameters, residual) or a fit.json written by plateau fit`]);
   if (isRecord(json) && Array.isArray(json.population) && json.spec !== undefined) return populationModelFromFit(json);
   return populationModelFromSpec(parseModelSpec(json));
 }
@@ -78,12 +82,25 @@ function parseRanges(raw: unknown, at: string, problems: string[]): Record<strin
 
 export function populationModelFromSpec(spec: ModelSpec): PopulationModel {
   const warnings: string[] = [];
-  if (!spec.source) warnings.push('the model spec has no "source": record where the model comes from (publication, site fit) before using it for dosing');
+  const checks: ModelCheck[] = [];
+  const source = spec.source ?? spec.literature?.citation;
+  if (!source) warnings.push('the model spec has no "source": record where the model comes from (publication, site fit) before using it for dosing');
+  if (spec.literature) {
+    const st = literatureStatus(spec.literature, spec);
+    if (st.verified) checks.push({ severity: 'note', code: 'literature-verified', message: `published model: ${st.reason}` });
+    else
+      checks.push({
+        severity: 'block',
+        code: 'literature-unverified',
+        message: `published model not verified: ${st.reason}. A named user checks every value against the publication, corrects the file, then records it with: plateau models --verify <file> --by <name>`,
+      });
+  }
   return {
     spec,
-    provenance: { kind: 'model spec', ...(spec.name ? { name: spec.name } : {}), ...(spec.source ? { source: spec.source } : {}) },
+    provenance: { kind: 'model spec', ...(spec.name ? { name: spec.name } : {}), ...(source ? { source } : {}) },
     covariateRanges: spec.covariateRanges ?? null,
     warnings,
+    checks,
   };
 }
 
@@ -119,6 +136,8 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
       case 'typical': {
         const p = params[name as keyof typeof params];
         if (!p) return void problems.push(`${at}: typical value for ${name}, which the spec does not have`);
+        const why = implausibleTypical(name, est);
+        if (why) return void problems.push(`${at}: the fitted typical ${name} ${why}: the fit cannot be used as a prior; refit the model`);
         p.typical = est;
         seenTypical.add(name);
         return;
@@ -127,6 +146,7 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
         const p = params[name as keyof typeof params];
         if (!p) return void problems.push(`${at}: BSV for ${name}, which the spec does not have`);
         if (!(est > 0)) return void problems.push(`${at}: BSV of ${name} must be > 0, got ${est}`);
+        if (est > PLAUSIBLE.bsvMax) return void problems.push(`${at}: BSV of ${name} is ${est}, implausibly large (at most ${PLAUSIBLE.bsvMax} on the transformed scale): the fit cannot be used as a prior`);
         p.bsv = est;
         return;
       }
@@ -140,6 +160,7 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
         const [cname, level] = cov.split('=');
         const c = covariates.find((x) => x.parameter === name && x.covariate === cname);
         if (!c) return void problems.push(`${at}: covariate effect ${name}~${cov} is not in the spec`);
+        if (Math.abs(est) > PLAUSIBLE.coefficientAbsMax) return void problems.push(`${at}: covariate effect ${name}~${cov} is ${est}, implausibly large (at most +-${PLAUSIBLE.coefficientAbsMax}): the fit cannot be used as a prior`);
         if (c.relation === 'categorical') {
           if (!level) return void problems.push(`${at}: categorical effect ${name}~${cname} needs covariate "${cname}=<level>"`);
           c.coefficients = { ...(c.coefficients ?? {}), [level]: est };
@@ -147,7 +168,11 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
         return;
       }
       case 'residual': {
-        if (name === 'a' || name === 'b') residual[name] = est;
+        if (name === 'a' || name === 'b') {
+          const max = name === 'a' ? PLAUSIBLE.residualAMax : PLAUSIBLE.residualBMax;
+          if (!(est > 0 && est <= max)) return void problems.push(`${at}: residual ${name} is ${est}, outside (0, ${max}]: a collapsed or exploded residual error; the fit cannot be used as a prior`);
+          residual[name] = est;
+        }
         else problems.push(`${at}: residual parameter must be a or b, got ${name}`);
         return;
       }
@@ -194,6 +219,15 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
 }
 
 /**
+ * Fit warnings about the post-fit diagnostics only (a second standard-error method, the
+ * likelihood by importance sampling or linearisation, NPDE and VPC simulation, conditional
+ * modes): they do not change the population values a prior uses, so they are notes, not FLAGs.
+ * Warnings about the estimates themselves (non-finite, cap reached, Omega, the primary
+ * standard errors) stay FLAGs.
+ */
+const POST_FIT_INTERNAL = /^\(second method\)|^linearis(ed|ation)\b|^importance sampling\b|^NPDE\b|^simulation:|^conditional mode\b/i;
+
+/**
  * Is the fit fit to be a prior? A fit whose own record says not to use it blocks; an exploration
  * that hit its iteration cap, missing standard errors and a collapsed BSV are flagged by name.
  * Every warning the fit reported is listed with its text.
@@ -202,6 +236,7 @@ function fitChecks(fit: Record<string, unknown>, fitWarnings: readonly string[])
   const out: ModelCheck[] = [];
   for (const w of fitWarnings) {
     if (/do not use/i.test(w)) out.push({ severity: 'block', code: 'fit-unusable', message: `the fit's record says it must not be used: "${w}"; refit the model before using it for dosing` });
+    else if (POST_FIT_INTERNAL.test(w)) out.push({ severity: 'note', code: 'fit-note', message: `the fit noted (about its diagnostics, not the population values this advice uses): "${w}"` });
     else out.push({ severity: 'flag', code: 'fit-warning', message: `the fit reported: "${w}"` });
   }
   const tr = isRecord(fit.trajectory) ? fit.trajectory : undefined;

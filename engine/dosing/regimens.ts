@@ -19,10 +19,20 @@ export interface RegimenResult {
   durationH: number;
   route: Route;
   loadingDoseMg?: number;
+  /** Why a loading dose was or was not given (with --loading-dose), in words with the predicted peaks. */
+  loadingNote?: string;
   dailyDoseMg: number;
   pTarget: number;
-  /** NaN without goals (no target). Null when the target defines no toxicity threshold. */
+  /**
+   * P(toxic exposure) at steady state or in any of the first intervals after the change (the
+   * intervals the forecast shows). NaN without goals (no target). Null when the target defines
+   * no toxicity threshold.
+   */
   pToxic: number | null;
+  /** P(toxic) at steady state only. */
+  pToxicSteadyState?: number | null;
+  /** P(toxic) in the first intervals after the change only (drug on board, loading dose). */
+  pToxicFirstIntervals?: number | null;
   /** Steady-state metrics with their bands; ftAbove only when a threshold is known. */
   metrics: Partial<Record<MetricId, Band>>;
   /** Draws the model could not evaluate: counted as not attained and as toxic. */
@@ -135,13 +145,15 @@ export interface EvaluationInput {
 /** Reusable buffers for many regimens over the same draws. */
 export interface EvaluationWorkspace {
   metrics: Float64Array;
+  /** Per draw: 1 when toxic (or failed) at steady state, for the last regimen summarised. */
+  toxic: Uint8Array;
   column: Float64Array;
   scratch: Float64Array;
   params: Float64Array;
 }
 
 export function createWorkspace(nDraws: number, nParams: number): EvaluationWorkspace {
-  return { metrics: new Float64Array(nDraws * METRIC_IDS.length), column: new Float64Array(nDraws), scratch: new Float64Array(nDraws), params: new Float64Array(nParams) };
+  return { metrics: new Float64Array(nDraws * METRIC_IDS.length), toxic: new Uint8Array(nDraws), column: new Float64Array(nDraws), scratch: new Float64Array(nDraws), params: new Float64Array(nParams) };
 }
 
 function thresholdFor(target: TargetSpec): number {
@@ -172,11 +184,16 @@ export function evaluateRegimen(input: EvaluationInput, regimen: Regimen, ws?: E
  * computed once per (interval, duration, route) and draw, then scaled to each dose
  * (superposition), so the cost grows with the distinct schedules, not the doses.
  */
-export function evaluateRegimens(input: EvaluationInput, regimens: readonly Regimen[]): RegimenResult[] {
+export function evaluateRegimens(input: EvaluationInput, regimens: readonly Regimen[], toxicOut?: Uint8Array[]): RegimenResult[] {
   const { model, draws, nDraws, target } = input;
   const nP = model.parameterOrder.length;
   const ws = createWorkspace(nDraws, nP);
-  if (!isDoseLinear(model)) return regimens.map((r) => evaluateRegimen(input, r, ws));
+  if (!isDoseLinear(model))
+    return regimens.map((r, i) => {
+      const res = evaluateRegimen(input, r, ws);
+      if (toxicOut) toxicOut[i] = ws.toxic.slice();
+      return res;
+    });
   const threshold = thresholdFor(target);
   const groups = new Map<string, number[]>();
   regimens.forEach((r, i) => {
@@ -234,6 +251,7 @@ export function evaluateRegimens(input: EvaluationInput, regimens: readonly Regi
         }
       }
       out[i] = summarise(input, r, ws, { bands: unitBands, scale: D });
+      if (toxicOut) toxicOut[i] = ws.toxic.slice();
     }
   }
   return out;
@@ -252,7 +270,9 @@ function summarise(input: EvaluationInput, regimen: Regimen, w: EvaluationWorksp
   let tox = 0;
   const m = w.metrics;
   for (let d = 0; d < nDraws; d++) {
+    w.toxic[d] = 1;
     if (!(m[d * nM] === m[d * nM])) continue;
+    w.toxic[d] = 0;
     ok++;
     let inTarget = true;
     for (const g of goals) {
@@ -263,6 +283,7 @@ function summarise(input: EvaluationInput, regimen: Regimen, w: EvaluationWorksp
     for (const c of toxic) {
       if (m[d * nM + c.j] > c.max) {
         tox++;
+        w.toxic[d] = 1;
         break;
       }
     }
@@ -357,16 +378,18 @@ export function explainRegimen(r: RegimenResult, target: TargetSpec, rank?: numb
   parts.push(`${rank !== undefined ? `${rank}. ` : ''}${formatRegimen(r)} (${r.dailyDoseMg} mg a day).`);
   const goals = target.goals.map((c) => describeCondition(target, c)).join(' and ');
   parts.push(`At steady state, ${pct(r.pTarget)} of plausible versions of this patient reach ${goals}`);
-  if (r.pToxic !== null) parts.push(`and ${pct(r.pToxic)} have ${target.toxic.map((c) => describeToxic(target, c)).join(' or ')}.`);
-  else parts[parts.length - 1] += '.';
+  if (r.pToxic !== null) {
+    const early = r.pToxicFirstIntervals !== undefined && r.pToxicFirstIntervals !== null && Number.isFinite(r.pToxicFirstIntervals);
+    parts.push(`and ${pct(r.pToxic)} have ${target.toxic.map((c) => describeToxic(target, c)).join(' or ')}${early ? ` at steady state or in the first intervals after the change (first intervals alone: ${pct(r.pToxicFirstIntervals as number)})` : ''}.`);
+  } else parts[parts.length - 1] += '.';
   const shown = new Set(target.goals.map((c) => c.metric));
   for (const c of target.toxic) shown.add(c.metric);
   for (const id of shown) {
     const b = r.metrics[id];
     if (!b) continue;
-    parts.push(`Predicted ${metricLabel(target, id)}: ${fmt(b.median)} ${METRIC_LABELS[id].unit} (80 % interval ${fmt(b.q10)}-${fmt(b.q90)}).`);
+    parts.push(`Predicted ${metricLabel(target, id)} at steady state: ${fmt(b.median)} ${METRIC_LABELS[id].unit} (80 % interval ${fmt(b.q10)}-${fmt(b.q90)}).`);
   }
-  if (r.loadingDoseMg !== undefined) parts.push(`The loading dose of ${r.loadingDoseMg} mg brings the first peak close to the steady-state peak.`);
+  if (r.loadingNote) parts.push(`${r.loadingNote.charAt(0).toUpperCase()}${r.loadingNote.slice(1)}.`);
   if (r.failedDraws > 0) parts.push(`(${r.failedDraws} draws reach no steady state or could not be evaluated; they count as toxic.)`);
   return parts.join(' ');
 }

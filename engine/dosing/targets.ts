@@ -3,6 +3,8 @@
  * live as JSON in resources/targets (each with its published source and "check local
  * protocol"); a user's own target file has the same shape. Validation reports JSON paths.
  */
+import { unknownKeyProblems } from '../json/knownKeys.js';
+import { wrongKindMessage } from '../spec/fileKind.js';
 
 /** Exposure metrics at steady state over one dosing interval. */
 export type MetricId = 'auc24' | 'trough' | 'peak' | 'peakAt' | 'ftAbove';
@@ -72,6 +74,29 @@ export class TargetError extends Error {
   }
 }
 
+
+/** Every key a target file may have, at each level (unknown keys are errors naming the nearest). */
+export const TARGET_KEYS = ['id', 'label', 'drug', 'source', 'sourceStatus', 'localProtocol', 'micMgL', 'unboundFraction', 'peakDelayH', 'thresholdMgL', 'goals', 'toxic', 'regimen', 'preferIntervalH', 'notes'] as const;
+export const CONDITION_KEYS = ['metric', 'min', 'max', 'perMic'] as const;
+export const REGIMEN_KEYS = ['strengthMg', 'minDoseMg', 'maxDoseMg', 'intervalsH', 'durationsH', 'maxRateMgPerH', 'maxDailyDoseMg'] as const;
+
+/**
+ * Bounds on regimen settings (common practice, wide): they keep the candidate grid to a size that
+ * is evaluated in seconds and refuse values no ward would give, stated in --help and the README.
+ */
+export const REGIMEN_BOUNDS = {
+  strengthMg: [0.1, 10_000],
+  doseMg: [0.1, 20_000],
+  intervalH: [1, 168],
+  durationH: [0.05, 24],
+  maxIntervals: 12,
+  maxDurations: 8,
+  maxRateMgPerH: [1, 100_000],
+  maxDailyDoseMg: [1, 100_000],
+  /** Doses per interval and duration: (maxDoseMg - minDoseMg) / strengthMg + 1. */
+  maxDoseSteps: 400,
+} as const;
+
 const METRICS = Object.keys(METRIC_LABELS) as MetricId[];
 const isRecord = (x: unknown): x is Record<string, unknown> => typeof x === 'object' && x !== null && !Array.isArray(x);
 const finite = (x: unknown): x is number => typeof x === 'number' && Number.isFinite(x);
@@ -86,6 +111,7 @@ function parseConditions(raw: unknown, at: string, problems: string[], needMax: 
   raw.forEach((c, i) => {
     const p = `${at}[${i}]`;
     if (!isRecord(c)) return void problems.push(`${p}: must be an object {metric, min?, max?}`);
+    problems.push(...unknownKeyProblems(c, CONDITION_KEYS, p));
     const metric = c.metric as MetricId;
     if (!METRICS.includes(metric)) problems.push(`${p}.metric: one of ${METRICS.join(', ')}`);
     if (c.min !== undefined && !finite(c.min)) problems.push(`${p}.min: must be a number`);
@@ -105,20 +131,50 @@ function parseRegimen(raw: unknown, problems: string[]): RegimenSettings | undef
     problems.push('regimen: must be an object {strengthMg, minDoseMg, maxDoseMg, intervalsH, durationsH}');
     return undefined;
   }
-  const pos = (k: string) => {
-    const v = raw[k];
-    if (!(finite(v) && v > 0)) problems.push(`regimen.${k}: must be a number > 0`);
-    return v as number;
+  problems.push(...unknownKeyProblems(raw, REGIMEN_KEYS, 'regimen'));
+  const at = (k: string) => `regimen.${k}`;
+  return checkRegimenSettings(
+    {
+      strengthMg: raw.strengthMg as number,
+      minDoseMg: raw.minDoseMg as number,
+      maxDoseMg: raw.maxDoseMg as number,
+      intervalsH: (Array.isArray(raw.intervalsH) ? raw.intervalsH.slice() : raw.intervalsH) as number[],
+      durationsH: (Array.isArray(raw.durationsH) ? raw.durationsH.slice() : raw.durationsH) as number[],
+      ...(raw.maxRateMgPerH !== undefined ? { maxRateMgPerH: raw.maxRateMgPerH as number } : {}),
+      ...(raw.maxDailyDoseMg !== undefined ? { maxDailyDoseMg: raw.maxDailyDoseMg as number } : {}),
+    },
+    problems,
+    at,
+  );
+}
+
+/**
+ * Check regimen settings against REGIMEN_BOUNDS (from a target file or a caller); every problem
+ * names the setting and the bound. Returns the settings (valid only when no problem was added).
+ */
+export function checkRegimenSettings(r: RegimenSettings, problems: string[], at: (k: string) => string = (k) => k): RegimenSettings {
+  const B = REGIMEN_BOUNDS;
+  const inRange = (k: string, v: unknown, [lo, hi]: readonly [number, number], unit: string) => {
+    if (!(finite(v) && v >= lo && v <= hi)) problems.push(`${at(k)}: must be a number from ${lo} to ${hi} ${unit}${finite(v) ? `, got ${v}` : ''}`);
   };
-  const list = (k: string) => {
-    const v = raw[k];
-    if (!(Array.isArray(v) && v.length > 0 && v.every((x) => finite(x) && x > 0))) problems.push(`regimen.${k}: must be a non-empty list of numbers > 0`);
-    return Array.isArray(v) ? (v as number[]).slice() : [];
+  inRange('strengthMg', r.strengthMg, B.strengthMg, 'mg');
+  inRange('minDoseMg', r.minDoseMg, B.doseMg, 'mg');
+  inRange('maxDoseMg', r.maxDoseMg, B.doseMg, 'mg');
+  const list = (k: 'intervalsH' | 'durationsH', bounds: readonly [number, number], max: number) => {
+    const v = r[k] as unknown;
+    if (!(Array.isArray(v) && v.length > 0 && v.length <= max && v.every((x) => finite(x) && x >= bounds[0] && x <= bounds[1])))
+      problems.push(`${at(k)}: must be a list of 1 to ${max} numbers from ${bounds[0]} to ${bounds[1]} h`);
   };
-  const r: RegimenSettings = { strengthMg: pos('strengthMg'), minDoseMg: pos('minDoseMg'), maxDoseMg: pos('maxDoseMg'), intervalsH: list('intervalsH'), durationsH: list('durationsH') };
-  if (raw.maxRateMgPerH !== undefined) r.maxRateMgPerH = pos('maxRateMgPerH');
-  if (raw.maxDailyDoseMg !== undefined) r.maxDailyDoseMg = pos('maxDailyDoseMg');
-  if (r.minDoseMg > r.maxDoseMg) problems.push('regimen: minDoseMg is above maxDoseMg');
+  list('intervalsH', B.intervalH, B.maxIntervals);
+  list('durationsH', B.durationH, B.maxDurations);
+  if (r.maxRateMgPerH !== undefined) inRange('maxRateMgPerH', r.maxRateMgPerH, B.maxRateMgPerH, 'mg/h');
+  if (r.maxDailyDoseMg !== undefined) inRange('maxDailyDoseMg', r.maxDailyDoseMg, B.maxDailyDoseMg, 'mg');
+  if (finite(r.minDoseMg) && finite(r.maxDoseMg) && r.minDoseMg > r.maxDoseMg) problems.push(`${at('minDoseMg')}: ${r.minDoseMg} mg is above maxDoseMg ${r.maxDoseMg} mg`);
+  else if (finite(r.strengthMg) && r.strengthMg > 0 && finite(r.minDoseMg) && finite(r.maxDoseMg)) {
+    const steps = Math.floor((r.maxDoseMg - r.minDoseMg) / r.strengthMg) + 1;
+    if (steps > B.maxDoseSteps)
+      problems.push(`${at('strengthMg')}: ${r.strengthMg} mg steps from ${r.minDoseMg} to ${r.maxDoseMg} mg give ${steps} doses to try, more than ${B.maxDoseSteps}; use a larger strength or a narrower dose range`);
+  }
   return r;
 }
 
@@ -126,6 +182,9 @@ function parseRegimen(raw: unknown, problems: string[]): RegimenSettings | undef
 export function parseTarget(json: unknown): TargetSpec {
   const problems: string[] = [];
   if (!isRecord(json)) throw new TargetError(['the target must be a JSON object {id, label, source, goals, toxic}']);
+  const wrong = json.goals === undefined ? wrongKindMessage(json, ['target file']) : undefined;
+  if (wrong) throw new TargetError([`${wrong}: give a target preset or file (id, label, source, goals, toxic)`]);
+  problems.push(...unknownKeyProblems(json, TARGET_KEYS));
   const text = (k: string, required: boolean): string => {
     const v = json[k];
     if (v === undefined && !required) return '';
@@ -136,6 +195,7 @@ export function parseTarget(json: unknown): TargetSpec {
   const label = text('label', true);
   const source = text('source', true);
   const localProtocol = typeof json.localProtocol === 'string' && /check local protocol/i.test(json.localProtocol) ? json.localProtocol : 'check local protocol';
+  if (json.sourceStatus !== undefined && json.sourceStatus !== 'verified' && json.sourceStatus !== 'from memory') problems.push('sourceStatus: must be "verified" or "from memory"');
   const sourceStatus = json.sourceStatus === 'verified' ? 'verified' : 'from memory';
   const num = (k: string): number | undefined => {
     const v = json[k];
@@ -156,6 +216,7 @@ export function parseTarget(json: unknown): TargetSpec {
   for (const c of [...goals, ...toxic]) if (c.perMic && micMgL === undefined) problems.push(`${c.metric}: bounds per MIC need micMgL`);
   if ([...goals, ...toxic].some((c) => c.metric === 'ftAbove') && micMgL === undefined && thresholdMgL === undefined) problems.push('ftAbove needs micMgL or thresholdMgL');
   const regimen = parseRegimen(json.regimen, problems);
+  if (json.notes !== undefined && !(Array.isArray(json.notes) && json.notes.every((n) => typeof n === 'string'))) problems.push('notes: must be a list of text');
   const notes = Array.isArray(json.notes) ? json.notes.filter((n): n is string => typeof n === 'string') : undefined;
   if (problems.length) throw new TargetError(problems);
   const drug = typeof json.drug === 'string' ? json.drug : undefined;

@@ -4,7 +4,10 @@
  * estimator settings). One parser for the CLI, the worker and the UI; it reports every problem
  * with its JSON path.
  */
+import { unknownKeyProblems } from '../json/knownKeys.js';
 import type { PkParameterName, SolverSettings, StructureId, Transform } from '../models/types.js';
+import { jsonFileKind, wrongKindMessage } from './fileKind.js';
+import { parseLiterature, type LiteratureInfo } from './literature.js';
 
 export type CovariateRelation = 'power' | 'linear' | 'categorical';
 export type ResidualModelId = 'additive' | 'proportional' | 'combined' | 'log-additive';
@@ -63,6 +66,38 @@ export interface ModelSpec {
   covariateRanges?: Record<string, [number, number]>;
   /** ODE solver settings for the numerically solved models (1cmt-mm); defaults in engine/models/types.ts. */
   solver?: Partial<SolverSettings>;
+  /** A published model: its citation, population, where its values come from, and who verified them. */
+  literature?: LiteratureInfo;
+}
+
+/** Every key a spec may have, at each level (unknown keys are errors: a misspelt "bvs" is never ignored). */
+export const SPEC_KEYS = ['name', 'source', 'structure', 'parameters', 'covariates', 'correlations', 'correlationValues', 'residual', 'estimation', 'covariateRanges', 'solver', 'literature'] as const;
+export const PARAMETER_KEYS = ['typical', 'transform', 'bsv', 'fixed'] as const;
+export const COVARIATE_EFFECT_KEYS = ['parameter', 'covariate', 'relation', 'reference', 'coefficient', 'coefficients', 'fixed'] as const;
+export const RESIDUAL_KEYS = ['model', 'a', 'b'] as const;
+export const SOLVER_KEYS = ['relTol', 'absTol', 'maxSteps'] as const;
+
+/**
+ * Plausible ranges of spec values (common practice, deliberately wide): a value outside them is a
+ * typing or unit error, and a value such as 1e-320 would turn every prediction into NaN or
+ * Infinity. Typical values of rates, clearances and volumes in their units (L/h, L, 1/h, mg/h, mg/L).
+ */
+export const PLAUSIBLE = {
+  typical: [1e-6, 1e6],
+  tlagMaxH: 48,
+  bsvMax: 3,
+  coefficientAbsMax: 10,
+  residualAMax: 1e4,
+  residualBMax: 10,
+} as const;
+
+/** A problem text when a natural-scale typical value is outside the plausible range, else undefined. */
+export function implausibleTypical(name: string, value: number): string | undefined {
+  if (!Number.isFinite(value)) return `${value} is not a finite number`;
+  if (name === 'F') return value > 0 && value <= 1 ? undefined : `${value} is outside (0, 1]`;
+  if (name === 'tlag') return value >= 0 && value <= PLAUSIBLE.tlagMaxH ? undefined : `${value} h is outside the plausible range 0-${PLAUSIBLE.tlagMaxH} h`;
+  const [lo, hi] = PLAUSIBLE.typical;
+  return value >= lo && value <= hi ? undefined : `${value} is outside the plausible range ${lo}-${hi} (check the value and its unit)`;
 }
 
 export class SpecError extends Error {
@@ -96,9 +131,13 @@ export function parseModelSpec(json: unknown): ModelSpec {
   const problems: string[] = [];
   if (!isRecord(json)) throw new SpecError(['the spec must be a JSON object']);
 
+  const kind = json.structure === undefined ? wrongKindMessage(json, ['model spec']) : undefined;
+  if (kind) throw new SpecError([`${kind}${jsonFileKind(json) === 'fit.json' ? ' (its "spec" entry holds the spec it was fitted with)' : ''}`]);
+  problems.push(...unknownKeyProblems(json, SPEC_KEYS));
   const structure = json.structure as StructureId;
-  if (!(typeof structure === 'string' && structure in STRUCTURE_PARAMETERS)) {
-    throw new SpecError([`structure: unknown model id ${JSON.stringify(json.structure)} (one of ${Object.keys(STRUCTURE_PARAMETERS).join(', ')})`]);
+  if (!(typeof structure === 'string' && Object.prototype.hasOwnProperty.call(STRUCTURE_PARAMETERS, structure))) {
+    const shown = typeof json.structure === 'string' ? JSON.stringify(json.structure) : json.structure === undefined ? 'missing' : `${JSON.stringify(json.structure)} (not text)`;
+    throw new SpecError([...problems, `structure: ${json.structure === undefined ? 'missing' : `unknown model id ${shown}`}; give one of ${Object.keys(STRUCTURE_PARAMETERS).join(', ')}`]);
   }
   const allowed = [...STRUCTURE_PARAMETERS[structure], ...ABSORPTION_PARAMETERS];
 
@@ -115,6 +154,7 @@ export function parseModelSpec(json: unknown): ModelSpec {
         problems.push(`${at}: must be an object {typical, transform, bsv, fixed}`);
         continue;
       }
+      problems.push(...unknownKeyProblems(raw, PARAMETER_KEYS, at));
       const transform = (raw.transform ?? (name === 'F' ? 'logit' : 'log')) as Transform;
       if (!TRANSFORMS.includes(transform)) problems.push(`${at}.transform: must be log, logit or none`);
       const typical = raw.typical;
@@ -123,8 +163,13 @@ export function parseModelSpec(json: unknown): ModelSpec {
       else if (transform === 'logit' && !(typical > 0 && typical < 1)) problems.push(`${at}.typical: must lie in (0, 1) for a logit transform`);
       else if (name !== 'tlag' && typical <= 0 && transform === 'none') problems.push(`${at}.typical: must be > 0`);
       else if (name === 'tlag' && typical < 0) problems.push(`${at}.typical: must be >= 0`);
+      else {
+        const why = implausibleTypical(name, typical);
+        if (why) problems.push(`${at}.typical: ${why}`);
+      }
       const bsv = raw.bsv ?? null;
       if (bsv !== null && !(finite(bsv) && bsv > 0)) problems.push(`${at}.bsv: must be a number > 0 or null`);
+      else if (bsv !== null && (bsv as number) > PLAUSIBLE.bsvMax) problems.push(`${at}.bsv: ${bsv} is implausible (the SD of the random effect on the transformed scale, at most ${PLAUSIBLE.bsvMax})`);
       const fixed = raw.fixed ?? false;
       if (typeof fixed !== 'boolean') problems.push(`${at}.fixed: must be true or false`);
       parameters[name as PkParameterName] = { typical: typical as number, transform, bsv: bsv as number | null, fixed: fixed as boolean };
@@ -141,6 +186,7 @@ export function parseModelSpec(json: unknown): ModelSpec {
     rawCov.forEach((c, i) => {
       const at = `covariates[${i}]`;
       if (!isRecord(c)) return problems.push(`${at}: must be an object`);
+      problems.push(...unknownKeyProblems(c, COVARIATE_EFFECT_KEYS, at));
       const parameter = c.parameter as PkParameterName;
       if (!(typeof parameter === 'string' && parameter in parameters)) problems.push(`${at}.parameter: ${JSON.stringify(c.parameter)} is not a parameter of this model`);
       if (!(typeof c.covariate === 'string' && c.covariate.length > 0)) problems.push(`${at}.covariate: must name a covariate column`);
@@ -152,6 +198,7 @@ export function parseModelSpec(json: unknown): ModelSpec {
         if (!(typeof c.reference === 'string' || finite(c.reference))) problems.push(`${at}.reference: the reference level is required`);
         const coefs = c.coefficients ?? {};
         if (!isRecord(coefs) || !Object.values(coefs).every(finite)) problems.push(`${at}.coefficients: must map level -> number`);
+        else if (!Object.values(coefs).every((v) => Math.abs(v as number) <= PLAUSIBLE.coefficientAbsMax)) problems.push(`${at}.coefficients: a shift beyond +-${PLAUSIBLE.coefficientAbsMax} on the transformed scale is implausible`);
         const coefficients: Record<string, number> = Object.create(null);
         if (isRecord(coefs)) for (const [k, v] of Object.entries(coefs)) coefficients[k] = v as number;
         covariates.push({ parameter, covariate: c.covariate as string, relation, reference: String(c.reference), coefficients, fixed: fixed as boolean });
@@ -160,6 +207,7 @@ export function parseModelSpec(json: unknown): ModelSpec {
         else if (relation === 'power' && c.reference <= 0) problems.push(`${at}.reference: must be > 0 for a power relation`);
         const coefficient = c.coefficient ?? 0;
         if (!finite(coefficient)) problems.push(`${at}.coefficient: must be a number`);
+        else if (Math.abs(coefficient) > PLAUSIBLE.coefficientAbsMax) problems.push(`${at}.coefficient: ${coefficient} is implausible (at most +-${PLAUSIBLE.coefficientAbsMax} on the transformed scale)`);
         covariates.push({ parameter, covariate: c.covariate as string, relation, reference: c.reference as number, coefficient: coefficient as number, fixed: fixed as boolean });
       }
     });
@@ -193,6 +241,7 @@ export function parseModelSpec(json: unknown): ModelSpec {
   let residual: ResidualSpec = { model: 'additive', a: 1 };
   if (!isRecord(json.residual)) problems.push('residual: must be an object {model, a, b}');
   else {
+    problems.push(...unknownKeyProblems(json.residual, RESIDUAL_KEYS, 'residual'));
     const model = json.residual.model as ResidualModelId;
     if (!RESIDUALS.includes(model)) problems.push('residual.model: must be additive, proportional, combined or log-additive');
     const a = json.residual.a;
@@ -201,6 +250,11 @@ export function parseModelSpec(json: unknown): ModelSpec {
     const needB = model === 'proportional' || model === 'combined';
     if (needA && !(finite(a) && a > 0)) problems.push(`residual.a: must be a number > 0 for ${model} error`);
     if (needB && !(finite(b) && b > 0)) problems.push(`residual.b: must be a number > 0 for ${model} error`);
+    if (needA && finite(a) && a > PLAUSIBLE.residualAMax) problems.push(`residual.a: ${a} is implausible (at most ${PLAUSIBLE.residualAMax})`);
+    if (needB && finite(b) && b > PLAUSIBLE.residualBMax) problems.push(`residual.b: ${b} is implausible (at most ${PLAUSIBLE.residualBMax})`);
+    // A value the error model does not use would be silently ignored: refused unless it is 0 (none).
+    if (!needA && a !== undefined && a !== 0) problems.push(`residual.a: not used by ${model} error; remove it`);
+    if (!needB && b !== undefined && b !== 0) problems.push(`residual.b: not used by ${model} error; remove it`);
     residual = { model, ...(needA ? { a: a as number } : {}), ...(needB ? { b: b as number } : {}) };
   }
 
@@ -224,6 +278,7 @@ export function parseModelSpec(json: unknown): ModelSpec {
     if (!isRecord(json.solver)) problems.push('solver: must be an object {relTol, absTol, maxSteps}');
     else {
       solver = {};
+      problems.push(...unknownKeyProblems(json.solver, SOLVER_KEYS, 'solver'));
       for (const [k, v] of Object.entries(json.solver)) {
         if (k === 'relTol' || k === 'absTol') {
           if (!(finite(v) && v > 0 && v < 1)) problems.push(`solver.${k}: must be a number in (0, 1)`);
@@ -231,7 +286,7 @@ export function parseModelSpec(json: unknown): ModelSpec {
         } else if (k === 'maxSteps') {
           if (!(finite(v) && Number.isInteger(v) && v >= 100)) problems.push('solver.maxSteps: must be an integer >= 100');
           else solver.maxSteps = v;
-        } else problems.push(`solver.${k}: unknown setting (relTol, absTol, maxSteps)`);
+        }
       }
     }
   }
@@ -239,6 +294,8 @@ export function parseModelSpec(json: unknown): ModelSpec {
   for (const key of ['name', 'source'] as const) {
     if (json[key] !== undefined && typeof json[key] !== 'string') problems.push(`${key}: must be text`);
   }
+
+  const literature = json.literature === undefined ? undefined : parseLiterature(json.literature, problems);
 
   if (problems.length) throw new SpecError(problems);
   return {
@@ -253,5 +310,6 @@ export function parseModelSpec(json: unknown): ModelSpec {
     estimation: estimation as Record<string, unknown>,
     ...(covariateRanges ? { covariateRanges } : {}),
     ...(solver ? { solver } : {}),
+    ...(literature ? { literature } : {}),
   };
 }

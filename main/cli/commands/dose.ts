@@ -25,15 +25,26 @@ probability of reaching the target and of toxic exposure. Always printed with th
   --seed N              seed of the posterior draws (default 1); same seed, same advice
   --evaluate "<text>"   evaluate one regimen, e.g. "1000mg q12h 1h", "1g q24h 30min",
                         "load 2000mg 1000mg q12h 2h", "500mg q8h bolus"
-  --draws N             posterior draws (default 2000)
-  --mic X               MIC (mg/L) for the target's per-MIC bounds (overrides the preset's)
-  --peak-after H        also report the level H hours after the end of infusion (peakAt)
-  --next-dose-h H       start of the next dose, hours from the first dose (overrides the file)
-  --loading-dose        suggest a loading dose with every candidate
-  --below X             report when the level falls below X mg/L after the last given dose
+  --draws N             posterior draws, 100 to 100000 (default 2000)
+  --mic X               MIC (mg/L, > 0 to 1024) for the target's per-MIC bounds (overrides the preset's)
+  --peak-after H        also report the level H hours (0-24) after the end of infusion (peakAt)
+  --next-dose-h H       start of the next dose, hours from the first dose (overrides the file;
+                        from the end of the last dose to 720 h after it)
+  --loading-dose        a loading dose where indicated: no drug on board or levels far below,
+                        so that the first peak reaches the steady-state peak (each regimen says
+                        what was decided); never when the exposure now is above a toxic limit
+  --below X             report when the level falls below X mg/L (> 0 to 2000) after the last
+                        given dose; also the level a hold waits for
   --override-blocks     show the regimens even when a check blocks the advice (marked as blocked)
   --json                print the advice JSON instead of the text report
-Exit status: 0 advice given, 1 error or advice blocked, 2 bad usage.`;
+Bounds: a target's regimen settings must keep strengthMg 0.1-10000 mg, doses 0.1-20000 mg,
+at most 400 dose steps ((maxDoseMg - minDoseMg) / strengthMg + 1), 1-12 intervals of 1-168 h,
+1-8 infusion durations of 0.05-24 h; work beyond them is refused before it starts.
+Exit status: 0 advice given, 1 error or advice blocked (also when --override-blocks shows it),
+2 bad usage.`;
+
+/** The next dose at most this long after the last one (30 days): beyond it the history is stale. */
+const MAX_NEXT_DOSE_DELAY_H = 720;
 
 const specs = {
   model: { type: 'string', required: true },
@@ -118,11 +129,11 @@ async function runDose(argv: readonly string[], io: CliIo, outputs: { out?: stri
   const draws = numberFlag(args, 'draws', { integer: true, usage });
   if (draws !== undefined && !(draws >= 100 && draws <= 100_000)) throw new UsageError('--draws must be between 100 and 100000', usage);
   const mic = numberFlag(args, 'mic', { usage });
-  if (mic !== undefined && !(mic > 0)) throw new UsageError('--mic must be > 0 (mg/L)', usage);
+  if (mic !== undefined && !(mic > 0 && mic <= 1024)) throw new UsageError('--mic must be a number > 0 and at most 1024 (mg/L)', usage);
   const below = numberFlag(args, 'below', { usage });
-  if (below !== undefined && !(below > 0)) throw new UsageError('--below must be > 0 (mg/L)', usage);
+  if (below !== undefined && !(below > 0 && below <= 2000)) throw new UsageError('--below must be a number > 0 and at most 2000 (mg/L)', usage);
   const peakAfter = numberFlag(args, 'peak-after', { usage });
-  if (peakAfter !== undefined && !(peakAfter >= 0)) throw new UsageError('--peak-after must be >= 0 (hours after the end of infusion)', usage);
+  if (peakAfter !== undefined && !(peakAfter >= 0 && peakAfter <= 24)) throw new UsageError('--peak-after must be from 0 to 24 (hours after the end of infusion)', usage);
   const nextDoseH = numberFlag(args, 'next-dose-h', { usage });
   let evaluate;
   const evalText = stringFlag(args, 'evaluate');
@@ -139,6 +150,7 @@ async function runDose(argv: readonly string[], io: CliIo, outputs: { out?: stri
   if (nextDoseH !== undefined) {
     const last = patient.doses[patient.doses.length - 1];
     if (nextDoseH < last.timeH + last.durationH) throw new UsageError(`--next-dose-h ${nextDoseH} is before the last dose has finished (${last.timeH + last.durationH} h)`, usage);
+    if (nextDoseH > last.timeH + MAX_NEXT_DOSE_DELAY_H) throw new UsageError(`--next-dose-h ${nextDoseH} is more than ${MAX_NEXT_DOSE_DELAY_H} h after the last dose (${last.timeH} h): the history no longer describes the patient then`, usage);
     patient.nextDoseH = nextDoseH;
   }
   const targetName = stringFlag(args, 'target');
@@ -165,8 +177,13 @@ async function runDose(argv: readonly string[], io: CliIo, outputs: { out?: stri
   const out = stringFlag(args, 'out');
   if (out !== undefined) await writeFileAtomic(resolvePath(io.cwd, out), json);
   io.stdout(booleanFlag(args, 'json') ? json : formatAdvice(advice));
+  // Blocked advice exits 1 whether or not --override-blocks shows its regimens.
   if (advice.status === 'blocked') {
     io.stderr('plateau: dose advice blocked by the checks above (use --override-blocks to see the regimens anyway)\n');
+    return 1;
+  }
+  if (advice.status === 'blocked-shown-on-request') {
+    io.stderr('plateau: dose advice BLOCKED by the checks above; the regimens were shown on request only (--override-blocks)\n');
     return 1;
   }
   return 0;

@@ -36,9 +36,10 @@ describe('plateau dose', () => {
     expect(code).toBe(0);
     const text = t.out();
     expect(text.startsWith('CAUTION')).toBe(true);
-    expect(text.trim().endsWith('check local protocol.')).toBe(true);
-    expect(text).toContain('Posterior (2000 draws');
-    expect(text).toContain('Ranked regimens');
+    // Issue 9 finding 7: the caution once at the top (and once in advice.json), not twice.
+    expect(text.split(CAUTION.slice(0, 40)).length - 1).toBe(1);
+    expect(text).toContain("Patient's parameters (2000 draws");
+    expect(text).toContain('Advised regimens');
     expect(text).toContain('Rybak');
     const a = JSON.parse(readFileSync(path.join(dir, 'advice.json'), 'utf8'));
     for (const k of ['map', 'mean', 'sd', 'q05', 'q95']) expect(a.posterior[k]).toHaveProperty('CL');
@@ -75,14 +76,16 @@ describe('plateau dose', () => {
     expect(await runCli(['dose', '--model', EXAMPLE_MODEL, '--patient', PATIENT, '--target', 'vancomycin-auc24', '--out', 'blocked.json'], t.io)).toBe(1);
     expect(t.out()).toContain('BLOCKED: NO DOSE ADVICE');
     expect(t.out()).toContain('CAUTION');
-    expect(t.out()).not.toContain('Ranked regimens');
+    expect(t.out()).not.toContain('Advised regimens');
     const a = JSON.parse(readFileSync(path.join(dir, 'blocked.json'), 'utf8'));
     expect(a.status).toBe('blocked');
     expect(a.regimens).toEqual([]);
     const t2 = captureIo(dir);
-    expect(await runCli(['dose', '--model', EXAMPLE_MODEL, '--patient', PATIENT, '--target', 'vancomycin-auc24', '--override-blocks'], t2.io)).toBe(0);
+    // Issue 9 finding 4: --override-blocks exited 0 on blocked advice; blocked is exit 1 either way.
+    expect(await runCli(['dose', '--model', EXAMPLE_MODEL, '--patient', PATIENT, '--target', 'vancomycin-auc24', '--override-blocks'], t2.io)).toBe(1);
+    expect(t2.err()).toContain('BLOCKED');
     expect(t2.out()).toContain('BLOCKED (regimens shown on request');
-    expect(t2.out()).toContain('Ranked regimens');
+    expect(t2.out()).toContain('Advised regimens');
   });
 
   it('takes the user\'s own target file and a --mic override', async () => {
@@ -151,5 +154,28 @@ describe('plateau dose', () => {
     const t4 = captureIo(dir);
     expect(await runCli(['dose', '--model', 'missing-model.json', '--patient', PATIENT], t4.io)).toBe(1);
     expect(t4.err()).toContain(CAUTION);
+  });
+
+  it('issue 9 finding 8: swapping --model and --patient (the demo files) names both kinds', async () => {
+    const demoPatient = path.join(ROOT, 'resources/demo/patient.json');
+    const demoModel = path.join(ROOT, 'resources/demo/ward-model.json');
+    const t = captureIo(dir);
+    expect(await runCli(['dose', '--model', demoPatient, '--patient', demoModel], t.io)).toBe(1);
+    expect(t.err()).toContain('this looks like a patient file; --model expects a model spec or fit.json (were --model and --patient swapped?)');
+    expect(t.err()).not.toContain('undefined');
+    const t2 = captureIo(dir);
+    expect(await runCli(['dose', '--model', demoModel, '--patient', path.join(ROOT, 'resources/targets/vancomycin-auc24.json')], t2.io)).toBe(1);
+    expect(t2.err()).toContain('this looks like a target file; --patient expects a patient file');
+  });
+
+  it('issue 11 finding 6: option bounds are stated in --help and enforced before any work', async () => {
+    const h = captureIo(dir);
+    expect(await runCli(['dose', '--help'], h.io)).toBe(0);
+    for (const text of ['100 to 100000', '0.1-10000 mg', 'at most 400 dose steps', '> 0 to 1024']) expect(h.out()).toContain(text);
+    for (const [flag, value] of [['--draws', '1000000000'], ['--mic', '1e308'], ['--below', '-1'], ['--peak-after', '1e9'], ['--next-dose-h', '1e9']]) {
+      const t = captureIo(dir);
+      expect(await runCli(['dose', '--model', 'model.json', '--patient', PATIENT, '--target', 'vancomycin-auc24', flag, value], t.io)).toBe(2);
+      expect(t.err()).toContain(flag);
+    }
   });
 });
