@@ -191,6 +191,17 @@ export function makeThreeCompartmentModes(): ModeFunction {
   };
 }
 
+/** The walks (see evaluate): the general one, and the specialised ones for common histories. */
+const PATH_GENERAL = 0;
+/** No oral dose and no steady-state reset (bolus and infusion histories). */
+const PATH_STATIC = 1;
+/** Exactly one dose, oral, not at steady state (the single-dose study design). */
+const PATH_ORAL_ONE = 2;
+
+const MODES_OTHER = 0;
+const MODES_ONE = 1;
+const MODES_TWO = 2;
+
 /**
  * Everything one prepared predictor needs, in one record of fixed shape. The walk is a
  * module-level function over this record rather than a closure per predictor: V8 shares
@@ -236,8 +247,12 @@ class LinearWork {
   readonly staticOnly: boolean;
   readonly lastOutput: number;
   readonly nLengthsUsed: number;
+  /** The walk that evaluates this history (PATH_*), chosen once here. */
+  readonly path: number;
+  /** Which disposition formula `modes` is (MODES_*), so each call site calls one function. */
+  readonly modeKind: number;
 
-  constructor(nModes: number, nDisposition: number, modes: ModeFunction, sc: Schedule) {
+  constructor(nModes: number, nDisposition: number, modes: ModeFunction, sc: Schedule, generalOnly: boolean) {
     const n = nModes;
     this.n = n;
     this.nDisposition = nDisposition;
@@ -311,6 +326,10 @@ class LinearWork {
     for (let k = 0; k <= lastOutput; k++) if (this.uniqueOf[k] + 1 > nLengthsUsed) nLengthsUsed = this.uniqueOf[k] + 1;
     this.lastOutput = lastOutput;
     this.nLengthsUsed = nLengthsUsed;
+    let outputsOnly = true;
+    for (let k = 0; k < ns; k++) if (kind[k] !== EV_OUTPUT) outputsOnly = false;
+    this.path = generalOnly ? PATH_GENERAL : this.staticOnly ? PATH_STATIC : sc.nOral === 1 && outputsOnly && ns > 0 ? PATH_ORAL_ONE : PATH_GENERAL;
+    this.modeKind = modes === oneCompartmentModes ? MODES_ONE : modes === twoCompartmentModes ? MODES_TWO : MODES_OTHER;
   }
 }
 
@@ -479,11 +498,250 @@ function evaluateStatic(wk: LinearWork, out: Float64Array): boolean {
   return true;
 }
 
-/** One evaluation of the prepared predictor (see Predictor). */
+/** A fresh evaluation id for the lazily filled tables (stamp[u] === id: filled in this evaluation). */
+function nextEvalId(wk: LinearWork): number {
+  const counter = wk.evalCount;
+  if (counter[0] === 0x7fffffff) {
+    // Wrap-around: forget every stamp so that no table from an old evaluation can look current.
+    wk.stamp.fill(0);
+    counter[0] = 0;
+  }
+  return ++counter[0];
+}
+
+/** wk.lam, wk.w from the parameters; one direct call per model kind keeps each call site monomorphic. */
+function computeModes(wk: LinearWork, params: Float64Array): boolean {
+  const kind = wk.modeKind;
+  if (kind === MODES_ONE) return oneCompartmentModes(params, wk.lam, wk.w);
+  if (kind === MODES_TWO) return twoCompartmentModes(params, wk.lam, wk.w);
+  return wk.modes(params, wk.lam, wk.w);
+}
+
+/**
+ * evaluateStatic for one mode, the state in a local: the same operations in the same order
+ * (so the same numbers to the last bit), without the loops over modes.
+ */
+function evaluateStatic1(wk: LinearWork, out: Float64Array): boolean {
+  const { uniqueOf, rateAfter, outIndex, tabE, tabG, lengthH } = wk;
+  const { kind, value } = wk.sc;
+  const nu = wk.nLengthsUsed;
+  const l = wk.lam[0];
+  const w0 = wk.w[0];
+  if (wk.hasInfusion) {
+    for (let u = 0; u < nu; u++) {
+      const x = l * lengthH[u];
+      const e = Math.exp(-x);
+      tabE[u] = e;
+      tabG[u] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
+    }
+  } else for (let u = 0; u < nu; u++) tabE[u] = Math.exp(-(l * lengthH[u]));
+  let s0 = 0;
+  let rate = 0;
+  const last = wk.lastOutput;
+  for (let k = 0; k <= last; k++) {
+    const u = uniqueOf[k];
+    if (u >= 0) {
+      if (rate === 0) s0 *= tabE[u];
+      else s0 = tabE[u] * s0 + rate * tabG[u];
+    }
+    const kd = kind[k];
+    if (kd === EV_OUTPUT) {
+      const c = 0 + w0 * s0;
+      out[outIndex[k]] = c < 0 ? 0 : c;
+    } else if (kd === EV_BOLUS) s0 += value[k];
+    rate = rateAfter[k];
+  }
+  return true;
+}
+
+/** evaluateStatic for two modes, the state in locals (same operations, same order). */
+function evaluateStatic2(wk: LinearWork, out: Float64Array): boolean {
+  const { uniqueOf, rateAfter, outIndex, tabE, tabG, lengthH } = wk;
+  const { kind, value } = wk.sc;
+  const nu = wk.nLengthsUsed;
+  const l0 = wk.lam[0];
+  const l1 = wk.lam[1];
+  const w0 = wk.w[0];
+  const w1 = wk.w[1];
+  const hasInfusion = wk.hasInfusion;
+  for (let u = 0; u < nu; u++) {
+    const dt = lengthH[u];
+    const b = 2 * u;
+    const x0 = l0 * dt;
+    const e0 = Math.exp(-x0);
+    const x1 = l1 * dt;
+    const e1 = Math.exp(-x1);
+    tabE[b] = e0;
+    tabE[b + 1] = e1;
+    if (hasInfusion) {
+      tabG[b] = (x0 < 0.5 ? -Math.expm1(-x0) : 1 - e0) / l0;
+      tabG[b + 1] = (x1 < 0.5 ? -Math.expm1(-x1) : 1 - e1) / l1;
+    }
+  }
+  let s0 = 0;
+  let s1 = 0;
+  let rate = 0;
+  const last = wk.lastOutput;
+  for (let k = 0; k <= last; k++) {
+    const u = uniqueOf[k];
+    if (u >= 0) {
+      const b = 2 * u;
+      if (rate === 0) {
+        s0 *= tabE[b];
+        s1 *= tabE[b + 1];
+      } else {
+        s0 = tabE[b] * s0 + rate * tabG[b];
+        s1 = tabE[b + 1] * s1 + rate * tabG[b + 1];
+      }
+    }
+    const kd = kind[k];
+    if (kd === EV_OUTPUT) {
+      const c = 0 + w0 * s0 + w1 * s1;
+      out[outIndex[k]] = c < 0 ? 0 : c;
+    } else if (kd === EV_BOLUS) {
+      const v = value[k];
+      s0 += v;
+      s1 += v;
+    }
+    rate = rateAfter[k];
+  }
+  return true;
+}
+
+/** Checks ka, tlag, F (the three parameters after the disposition ones). */
+function absorptionValid(ka: number, tlag: number, F: number): boolean {
+  return positive(ka) && tlag >= 0 && tlag < Infinity && positive(F);
+}
+
+/**
+ * One oral dose, any number of modes (wk.path === PATH_ORAL_ONE; modes computed): the general
+ * walk's operations for this history, without the merge of the oral stream. Levels up to the
+ * entry time (dose time + tlag; a level at that time comes first) see the zero state; the first
+ * level after it is reached by the advance() transition from the entry, the later ones by table
+ * steps, as in the general walk.
+ */
+function evaluateOralOne(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
+  const { n, s, w, cur, uniqueOf, outIndex, sc } = wk;
+  const nd = wk.nDisposition;
+  const ka = params[nd];
+  const tlag = params[nd + 1];
+  const F = params[nd + 2];
+  if (!absorptionValid(ka, tlag, F)) return fail(out);
+  cur[KA] = ka;
+  cur[RATE] = 0;
+  const id = nextEvalId(wk);
+  const timeH = sc.timeH;
+  const ns = sc.n;
+  const te = sc.oralTimeH[0] + tlag;
+  let k = 0;
+  for (; k < ns && timeH[k] <= te; k++) {
+    let c = 0;
+    for (let i = 0; i < n; i++) c += w[i] * 0;
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  if (k === ns) return true;
+  for (let i = 0; i < n; i++) s[i] = 0;
+  s[n] = 0 + F * sc.oralAmountMg[0];
+  cur[DT] = timeH[k] - te;
+  advance(s, n, wk.lam, cur);
+  for (let first = true; k < ns; k++, first = false) {
+    const u = uniqueOf[k];
+    if (!first && u >= 0) tableStep(wk, u, id);
+    let c = 0;
+    for (let i = 0; i < n; i++) c += w[i] * s[i];
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  return true;
+}
+
+/**
+ * evaluateOralOne for the one-compartment model, state, depot and modes in locals: the same
+ * operations in the same order as oneCompartmentModes, advance, fillTable and tableStep (so the
+ * same numbers to the last bit), with no loop over modes and no calls but Math.exp / expm1.
+ */
+function evaluateOralOne1(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
+  const cl = params[0];
+  const v = params[1];
+  if (!(positive(cl) && positive(v))) return fail(out);
+  const l = cl / v;
+  const w0 = 1 / v;
+  const ka = params[2];
+  const tlag = params[3];
+  const F = params[4];
+  if (!absorptionValid(ka, tlag, F)) return fail(out);
+  const { uniqueOf, outIndex, tabE, tabB, tabA, stamp, lengthH, sc } = wk;
+  const id = nextEvalId(wk);
+  const timeH = sc.timeH;
+  const ns = sc.n;
+  const te = sc.oralTimeH[0] + tlag;
+  let k = 0;
+  for (; k < ns && timeH[k] <= te; k++) {
+    const c = 0 + w0 * 0;
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  if (k === ns) return true;
+  // advance() from the entry to the first later level, from a zero state and a full depot.
+  let a = 0 + F * sc.oralAmountMg[0];
+  let s0: number;
+  {
+    const dt = timeH[k] - te;
+    const ea = a !== 0 ? Math.exp(-ka * dt) : 0;
+    const e = Math.exp(-(l * dt));
+    let z = e * 0;
+    if (a !== 0) {
+      const d = (ka - l) * dt;
+      const dd = d > 0.5 || d < -0.5 ? (e - ea) / (ka - l) : d >= 0 ? (d === 0 ? e * dt : (e * dt * -Math.expm1(-d)) / d) : (ea * dt * -Math.expm1(d)) / -d;
+      z += ka * a * dd;
+      a = a * ea;
+    }
+    s0 = z;
+    const c = 0 + w0 * s0;
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  for (k++; k < ns; k++) {
+    const u = uniqueOf[k];
+    if (u >= 0) {
+      if (stamp[u] !== id) {
+        // fillTable for one mode (tabG stays 0: no infusion in this history).
+        stamp[u] = id;
+        const dt = lengthH[u];
+        const ea = Math.exp(-ka * dt);
+        tabA[u] = ea;
+        const e = Math.exp(-(l * dt));
+        tabE[u] = e;
+        const d = (ka - l) * dt;
+        tabB[u] = ka * (d > 0.5 || d < -0.5 ? (e - ea) / (ka - l) : d >= 0 ? (d === 0 ? e * dt : (e * dt * -Math.expm1(-d)) / d) : (ea * dt * -Math.expm1(d)) / -d);
+      }
+      // tableStep: rate x tabG is 0 x 0 here, kept as "+ 0" for the same rounding of a -0.
+      if (a === 0) s0 *= tabE[u];
+      else {
+        s0 = tabE[u] * s0 + 0 + a * tabB[u];
+        a = a * tabA[u];
+      }
+    }
+    const c = 0 + w0 * s0;
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  return true;
+}
+
+/** One evaluation of the prepared predictor (see Predictor): the walk chosen for the history. */
 function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
+  const path = wk.path;
+  const modeKind = wk.modeKind;
+  if (path === PATH_ORAL_ONE && modeKind === MODES_ONE) return evaluateOralOne1(wk, params, out);
+  if (!computeModes(wk, params)) return fail(out);
+  if (path === PATH_STATIC) {
+    if (modeKind === MODES_ONE) return evaluateStatic1(wk, out);
+    if (modeKind === MODES_TWO) return evaluateStatic2(wk, out);
+    return evaluateStatic(wk, out);
+  }
+  if (path === PATH_ORAL_ONE) return evaluateOralOne(wk, params, out);
+  return evaluateGeneral(wk, params, out);
+}
+/** The general walk: any history (modes already computed into wk.lam, wk.w). */
+function evaluateGeneral(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
   const { n, s, lam, w, cur, pend, uniqueOf, rateAfter, outIndex, sc } = wk;
-  if (!wk.modes(params, lam, w)) return fail(out);
-  if (wk.staticOnly) return evaluateStatic(wk, out);
   const { timeH, kind, value, epoch: evEpoch, oralTimeH, oralAmountMg, oralEpoch, hasOral } = sc;
   const ns = sc.n;
   const no = sc.nOral;
@@ -502,13 +760,7 @@ function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): bool
   cur[BIO] = F;
   cur[RATE] = 0;
   for (let i = 0; i <= n; i++) s[i] = 0;
-  const counter = wk.evalCount;
-  if (counter[0] === 0x7fffffff) {
-    // Wrap-around: forget every stamp so that no table from an old evaluation can look current.
-    wk.stamp.fill(0);
-    counter[0] = 0;
-  }
-  const id = ++counter[0];
+  const id = nextEvalId(wk);
   pend[0] = 0;
   let epoch = 0;
   let left = sc.nOutputs;
@@ -585,6 +837,21 @@ export function prepareLinear(
   timesH: ArrayLike<number>,
   _solver?: Partial<SolverSettings>,
 ): Predictor {
-  const wk = new LinearWork(nModes, nDisposition, modes, buildSchedule(doses, timesH));
+  const wk = new LinearWork(nModes, nDisposition, modes, buildSchedule(doses, timesH), false);
   return (params: Float64Array, out: Float64Array): boolean => evaluate(wk, params, out);
+}
+
+/**
+ * The same model through the general walk only, whatever the history: the reference that the
+ * specialised walks are tested against bit for bit (tests/unit/models/specialisedPaths.test.ts).
+ */
+export function prepareLinearGeneral(
+  nModes: number,
+  nDisposition: number,
+  modes: ModeFunction,
+  doses: readonly Dose[],
+  timesH: ArrayLike<number>,
+): Predictor {
+  const wk = new LinearWork(nModes, nDisposition, modes, buildSchedule(doses, timesH), true);
+  return (params: Float64Array, out: Float64Array): boolean => (wk.modes(params, wk.lam, wk.w) ? evaluateGeneral(wk, params, out) : fail(out));
 }
