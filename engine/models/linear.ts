@@ -237,6 +237,19 @@ class LinearWork {
   readonly cur: Float64Array;
   /** Whether any infusion runs (else the infusion factors are never needed). */
   readonly hasInfusion: boolean;
+  /**
+   * Per distinct length: 1 when some step of that length runs with an infusion on (its factor
+   * (1 - e^{-lambda dt}) / lambda is used), else 0. The static walks fill only those.
+   */
+  readonly infusionLength: Uint8Array;
+  /**
+   * The static walks' program, one code per static point k <= lastOutput: (u + 1) << 3 for a
+   * step of distinct length u (0: no step), | 4 when an infusion runs during the step, | 1 for a
+   * level or 2 for a bolus at the point. One integer load tells the loop everything it branches on.
+   */
+  readonly stepOp: Int32Array;
+  /** The static walks' factors per distinct length u: e_0..e_{n-1}, then g_0..g_{n-1}, at 2 n u. */
+  readonly tabStatic: Float64Array;
   /** Index into `out` of each static output point (integer typed, for the store). */
   readonly outIndex: Int32Array;
   /**
@@ -309,6 +322,8 @@ class LinearWork {
       this.rateAfter[k] = rate;
     }
     const nu = lengths.length;
+    this.infusionLength = new Uint8Array(nu);
+    for (let k = 1; k < ns; k++) if (this.uniqueOf[k] >= 0 && this.rateAfter[k - 1] !== 0) this.infusionLength[this.uniqueOf[k]] = 1;
     this.lengthH = Float64Array.from(lengths);
     this.stamp = new Int32Array(nu);
     this.evalCount = new Int32Array(1);
@@ -326,6 +341,13 @@ class LinearWork {
     for (let k = 0; k <= lastOutput; k++) if (this.uniqueOf[k] + 1 > nLengthsUsed) nLengthsUsed = this.uniqueOf[k] + 1;
     this.lastOutput = lastOutput;
     this.nLengthsUsed = nLengthsUsed;
+    this.stepOp = new Int32Array(lastOutput + 1);
+    for (let k = 0; k <= lastOutput; k++) {
+      const on = k > 0 && this.rateAfter[k - 1] !== 0 ? 4 : 0;
+      const ev = kind[k] === EV_OUTPUT ? 1 : kind[k] === EV_BOLUS ? 2 : 0;
+      this.stepOp[k] = ((this.uniqueOf[k] + 1) << 3) | on | ev;
+    }
+    this.tabStatic = new Float64Array(2 * n * nu);
     let outputsOnly = true;
     for (let k = 0; k < ns; k++) if (kind[k] !== EV_OUTPUT) outputsOnly = false;
     this.path = generalOnly ? PATH_GENERAL : this.staticOnly ? PATH_STATIC : sc.nOral === 1 && outputsOnly && ns > 0 ? PATH_ORAL_ONE : PATH_GENERAL;
@@ -459,19 +481,22 @@ function fail(out: Float64Array): boolean {
  * arithmetic as tableStep and fillTable, so the same numbers to the last bit.
  */
 function evaluateStatic(wk: LinearWork, out: Float64Array): boolean {
-  const { n, s, lam, w, uniqueOf, rateAfter, outIndex, tabE, tabG, lengthH } = wk;
+  const { n, s, lam, w, uniqueOf, rateAfter, outIndex, tabE, tabG, lengthH, infusionLength } = wk;
   const { kind, value } = wk.sc;
   const nu = wk.nLengthsUsed;
-  const hasInfusion = wk.hasInfusion;
+  // Imported constants read through a checked module cell on every use; locals are registers.
+  const outputKind = EV_OUTPUT;
+  const bolusKind = EV_BOLUS;
   for (let u = 0; u < nu; u++) {
     const dt = lengthH[u];
     const b = u * n;
+    const withInfusion = infusionLength[u] !== 0;
     for (let i = 0; i < n; i++) {
       const l = lam[i];
       const x = l * dt;
       const e = Math.exp(-x);
       tabE[b + i] = e;
-      if (hasInfusion) tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
+      if (withInfusion) tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
     }
   }
   for (let i = 0; i < n; i++) s[i] = 0;
@@ -485,11 +510,11 @@ function evaluateStatic(wk: LinearWork, out: Float64Array): boolean {
       else for (let i = 0; i < n; i++) s[i] = tabE[b + i] * s[i] + rate * tabG[b + i];
     }
     const kd = kind[k];
-    if (kd === EV_OUTPUT) {
+    if (kd === outputKind) {
       let c = 0;
       for (let i = 0; i < n; i++) c += w[i] * s[i];
       out[outIndex[k]] = c < 0 ? 0 : c;
-    } else if (kd === EV_BOLUS) {
+    } else if (kd === bolusKind) {
       const v = value[k];
       for (let i = 0; i < n; i++) s[i] += v;
     }
@@ -518,92 +543,91 @@ function computeModes(wk: LinearWork, params: Float64Array): boolean {
 }
 
 /**
- * evaluateStatic for one mode, the state in a local: the same operations in the same order
- * (so the same numbers to the last bit), without the loops over modes.
+ * evaluateStatic for one mode, the state in a local and the walk driven by wk.stepOp: the same
+ * operations in the same order (so the same numbers to the last bit), fewer loads and branches.
  */
 function evaluateStatic1(wk: LinearWork, out: Float64Array): boolean {
-  const { uniqueOf, rateAfter, outIndex, tabE, tabG, lengthH } = wk;
-  const { kind, value } = wk.sc;
+  const { rateAfter, outIndex, lengthH, infusionLength, stepOp } = wk;
+  const tab = wk.tabStatic;
+  const value = wk.sc.value;
   const nu = wk.nLengthsUsed;
   const l = wk.lam[0];
   const w0 = wk.w[0];
-  if (wk.hasInfusion) {
-    for (let u = 0; u < nu; u++) {
-      const x = l * lengthH[u];
-      const e = Math.exp(-x);
-      tabE[u] = e;
-      tabG[u] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
-    }
-  } else for (let u = 0; u < nu; u++) tabE[u] = Math.exp(-(l * lengthH[u]));
+  for (let u = 0; u < nu; u++) {
+    const x = l * lengthH[u];
+    const e = Math.exp(-x);
+    tab[2 * u] = e;
+    if (infusionLength[u] !== 0) tab[2 * u + 1] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
+  }
   let s0 = 0;
-  let rate = 0;
   const last = wk.lastOutput;
   for (let k = 0; k <= last; k++) {
-    const u = uniqueOf[k];
-    if (u >= 0) {
-      if (rate === 0) s0 *= tabE[u];
-      else s0 = tabE[u] * s0 + rate * tabG[u];
+    const op = stepOp[k];
+    const u1 = op >> 3;
+    if (u1 !== 0) {
+      const b = 2 * u1 - 2;
+      if ((op & 4) === 0) s0 *= tab[b];
+      else s0 = tab[b] * s0 + rateAfter[k - 1] * tab[b + 1];
     }
-    const kd = kind[k];
-    if (kd === EV_OUTPUT) {
+    const ev = op & 3;
+    if (ev === 1) {
       const c = 0 + w0 * s0;
       out[outIndex[k]] = c < 0 ? 0 : c;
-    } else if (kd === EV_BOLUS) s0 += value[k];
-    rate = rateAfter[k];
+    } else if (ev === 2) s0 += value[k];
   }
   return true;
 }
 
-/** evaluateStatic for two modes, the state in locals (same operations, same order). */
+/** evaluateStatic for two modes, the state in locals, driven by wk.stepOp (same operations, same order). */
 function evaluateStatic2(wk: LinearWork, out: Float64Array): boolean {
-  const { uniqueOf, rateAfter, outIndex, tabE, tabG, lengthH } = wk;
-  const { kind, value } = wk.sc;
+  const { rateAfter, outIndex, lengthH, infusionLength, stepOp } = wk;
+  const tab = wk.tabStatic;
+  const value = wk.sc.value;
   const nu = wk.nLengthsUsed;
   const l0 = wk.lam[0];
   const l1 = wk.lam[1];
   const w0 = wk.w[0];
   const w1 = wk.w[1];
-  const hasInfusion = wk.hasInfusion;
   for (let u = 0; u < nu; u++) {
     const dt = lengthH[u];
-    const b = 2 * u;
+    const b = 4 * u;
     const x0 = l0 * dt;
     const e0 = Math.exp(-x0);
     const x1 = l1 * dt;
     const e1 = Math.exp(-x1);
-    tabE[b] = e0;
-    tabE[b + 1] = e1;
-    if (hasInfusion) {
-      tabG[b] = (x0 < 0.5 ? -Math.expm1(-x0) : 1 - e0) / l0;
-      tabG[b + 1] = (x1 < 0.5 ? -Math.expm1(-x1) : 1 - e1) / l1;
+    tab[b] = e0;
+    tab[b + 1] = e1;
+    if (infusionLength[u] !== 0) {
+      tab[b + 2] = (x0 < 0.5 ? -Math.expm1(-x0) : 1 - e0) / l0;
+      tab[b + 3] = (x1 < 0.5 ? -Math.expm1(-x1) : 1 - e1) / l1;
     }
   }
   let s0 = 0;
   let s1 = 0;
-  let rate = 0;
   const last = wk.lastOutput;
   for (let k = 0; k <= last; k++) {
-    const u = uniqueOf[k];
-    if (u >= 0) {
-      const b = 2 * u;
-      if (rate === 0) {
-        s0 *= tabE[b];
-        s1 *= tabE[b + 1];
+    const op = stepOp[k];
+    const u1 = op >> 3;
+    if (u1 !== 0) {
+      const b = 4 * u1 - 4;
+      if ((op & 4) === 0) {
+        s0 *= tab[b];
+        s1 *= tab[b + 1];
       } else {
-        s0 = tabE[b] * s0 + rate * tabG[b];
-        s1 = tabE[b + 1] * s1 + rate * tabG[b + 1];
+        const rate = rateAfter[k - 1];
+        s0 = tab[b] * s0 + rate * tab[b + 2];
+        s1 = tab[b + 1] * s1 + rate * tab[b + 3];
       }
     }
-    const kd = kind[k];
-    if (kd === EV_OUTPUT) {
+    const ev = op & 3;
+    if (ev === 1) {
       const c = 0 + w0 * s0 + w1 * s1;
       out[outIndex[k]] = c < 0 ? 0 : c;
-    } else if (kd === EV_BOLUS) {
+    } else if (ev === 2) {
       const v = value[k];
       s0 += v;
       s1 += v;
     }
-    rate = rateAfter[k];
   }
   return true;
 }
