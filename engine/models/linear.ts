@@ -197,6 +197,18 @@ const PATH_GENERAL = 0;
 const PATH_STATIC = 1;
 /** Exactly one dose, oral, not at steady state (the single-dose study design). */
 const PATH_ORAL_ONE = 2;
+/** PATH_STATIC whose factor table fits STATIC_TABLE; one or two modes take the fastest walks. */
+const PATH_STATIC_SHARED = 3;
+
+/**
+ * The factor table of the one- and two-mode static walks, per distinct length u: e_0..e_{n-1},
+ * then g_0..g_{n-1}, at 2 n u. Filled in full at the start of every evaluation and read only
+ * during it, so one table serves every predictor of this module instance (evaluations never
+ * interleave: JavaScript runs one at a time per thread, and each worker thread has its own
+ * module instance). A module constant: the optimiser embeds it, with no per-access map check.
+ */
+const STATIC_TABLE_CAPACITY = 1 << 15;
+const STATIC_TABLE = new Float64Array(STATIC_TABLE_CAPACITY);
 
 const MODES_OTHER = 0;
 const MODES_ONE = 1;
@@ -248,8 +260,6 @@ class LinearWork {
    * level or 2 for a bolus at the point. One integer load tells the loop everything it branches on.
    */
   readonly stepOp: Int32Array;
-  /** The static walks' factors per distinct length u: e_0..e_{n-1}, then g_0..g_{n-1}, at 2 n u. */
-  readonly tabStatic: Float64Array;
   /** Index into `out` of each static output point (integer typed, for the store). */
   readonly outIndex: Int32Array;
   /**
@@ -347,10 +357,10 @@ class LinearWork {
       const ev = kind[k] === EV_OUTPUT ? 1 : kind[k] === EV_BOLUS ? 2 : 0;
       this.stepOp[k] = ((this.uniqueOf[k] + 1) << 3) | on | ev;
     }
-    this.tabStatic = new Float64Array(2 * n * nu);
     let outputsOnly = true;
     for (let k = 0; k < ns; k++) if (kind[k] !== EV_OUTPUT) outputsOnly = false;
-    this.path = generalOnly ? PATH_GENERAL : this.staticOnly ? PATH_STATIC : sc.nOral === 1 && outputsOnly && ns > 0 ? PATH_ORAL_ONE : PATH_GENERAL;
+    const sharedTable = 2 * n * nu <= STATIC_TABLE_CAPACITY;
+    this.path = generalOnly ? PATH_GENERAL : this.staticOnly ? (sharedTable ? PATH_STATIC_SHARED : PATH_STATIC) : sc.nOral === 1 && outputsOnly && ns > 0 ? PATH_ORAL_ONE : PATH_GENERAL;
     this.modeKind = modes === oneCompartmentModes ? MODES_ONE : modes === twoCompartmentModes ? MODES_TWO : MODES_OTHER;
   }
 }
@@ -548,7 +558,7 @@ function computeModes(wk: LinearWork, params: Float64Array): boolean {
  */
 function evaluateStatic1(wk: LinearWork, out: Float64Array): boolean {
   const { rateAfter, outIndex, lengthH, infusionLength, stepOp } = wk;
-  const tab = wk.tabStatic;
+  const tab = STATIC_TABLE;
   const value = wk.sc.value;
   const nu = wk.nLengthsUsed;
   const l = wk.lam[0];
@@ -581,7 +591,7 @@ function evaluateStatic1(wk: LinearWork, out: Float64Array): boolean {
 /** evaluateStatic for two modes, the state in locals, driven by wk.stepOp (same operations, same order). */
 function evaluateStatic2(wk: LinearWork, out: Float64Array): boolean {
   const { rateAfter, outIndex, lengthH, infusionLength, stepOp } = wk;
-  const tab = wk.tabStatic;
+  const tab = STATIC_TABLE;
   const value = wk.sc.value;
   const nu = wk.nLengthsUsed;
   const l0 = wk.lam[0];
@@ -755,11 +765,12 @@ function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): bool
   const modeKind = wk.modeKind;
   if (path === PATH_ORAL_ONE && modeKind === MODES_ONE) return evaluateOralOne1(wk, params, out);
   if (!computeModes(wk, params)) return fail(out);
-  if (path === PATH_STATIC) {
+  if (path === PATH_STATIC_SHARED) {
     if (modeKind === MODES_ONE) return evaluateStatic1(wk, out);
     if (modeKind === MODES_TWO) return evaluateStatic2(wk, out);
     return evaluateStatic(wk, out);
   }
+  if (path === PATH_STATIC) return evaluateStatic(wk, out);
   if (path === PATH_ORAL_ONE) return evaluateOralOne(wk, params, out);
   return evaluateGeneral(wk, params, out);
 }

@@ -90,4 +90,21 @@ describe('specialised walks give the general walk\'s numbers to the last bit', (
       });
     }
   }
+
+  it('a bolus history too long for the shared factor table (every interval length distinct) takes the table of its own', () => {
+    const r = lcg(99);
+    const doses: Dose[] = Array.from({ length: 17_000 }, (_, i) => ({ timeH: i + r() * 0.9, amountMg: 100, route: 'bolus' as const, durationH: 0 }));
+    const times = [5, 16_999.95, 17_000.5];
+    for (const id of ['1cmt', '2cmt'] as const) {
+      const { n, nd, modes } = MODES[id];
+      const model = getStructuralModel(id);
+      const p = Float64Array.from(model.parameters.map((info) => info.defaultInitial));
+      const a = new Float64Array(times.length);
+      const b = new Float64Array(times.length);
+      expect(model.prepare(doses, times)(p, a)).toBe(true);
+      expect(prepareLinearGeneral(n, nd, modes(), doses, times)(p, b)).toBe(true);
+      expect(sameBits(a, b)).toBe(true);
+      expect(a[2]).toBeGreaterThan(0);
+    }
+  });
 });
