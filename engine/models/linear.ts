@@ -210,6 +210,22 @@ const PATH_STATIC_SHARED = 3;
 const STATIC_TABLE_CAPACITY = 1 << 15;
 const STATIC_TABLE = new Float64Array(STATIC_TABLE_CAPACITY);
 
+/** PATH_ORAL_ONE whose distinct lengths fit the shared ORAL_TABLE_* (one mode takes evaluateOralOne1). */
+const PATH_ORAL_ONE_SHARED = 4;
+
+/**
+ * The lazily filled factor tables of the one-mode single-oral-dose walk (e, ka-weighted divided
+ * difference, depot factor per distinct length) with their stamps: shared by every predictor of
+ * this module instance as STATIC_TABLE is. The evaluation id is one counter for all of them, so
+ * a stamp written by another predictor's evaluation never matches.
+ */
+const ORAL_TABLE_CAPACITY = 4096;
+const ORAL_TABLE_E = new Float64Array(ORAL_TABLE_CAPACITY);
+const ORAL_TABLE_B = new Float64Array(ORAL_TABLE_CAPACITY);
+const ORAL_TABLE_A = new Float64Array(ORAL_TABLE_CAPACITY);
+const ORAL_TABLE_STAMP = new Int32Array(ORAL_TABLE_CAPACITY);
+const ORAL_TABLE_ID = new Int32Array(1);
+
 const MODES_OTHER = 0;
 const MODES_ONE = 1;
 const MODES_TWO = 2;
@@ -360,7 +376,11 @@ class LinearWork {
     let outputsOnly = true;
     for (let k = 0; k < ns; k++) if (kind[k] !== EV_OUTPUT) outputsOnly = false;
     const sharedTable = 2 * n * nu <= STATIC_TABLE_CAPACITY;
-    this.path = generalOnly ? PATH_GENERAL : this.staticOnly ? (sharedTable ? PATH_STATIC_SHARED : PATH_STATIC) : sc.nOral === 1 && outputsOnly && ns > 0 ? PATH_ORAL_ONE : PATH_GENERAL;
+    const oralOne = sc.nOral === 1 && outputsOnly && ns > 0;
+    if (generalOnly) this.path = PATH_GENERAL;
+    else if (this.staticOnly) this.path = sharedTable ? PATH_STATIC_SHARED : PATH_STATIC;
+    else if (oralOne) this.path = nu <= ORAL_TABLE_CAPACITY ? PATH_ORAL_ONE_SHARED : PATH_ORAL_ONE;
+    else this.path = PATH_GENERAL;
     this.modeKind = modes === oneCompartmentModes ? MODES_ONE : modes === twoCompartmentModes ? MODES_TWO : MODES_OTHER;
   }
 }
@@ -689,9 +709,10 @@ function evaluateOralOne(wk: LinearWork, params: Float64Array, out: Float64Array
 }
 
 /**
- * evaluateOralOne for the one-compartment model, state, depot and modes in locals: the same
- * operations in the same order as oneCompartmentModes, advance, fillTable and tableStep (so the
- * same numbers to the last bit), with no loop over modes and no calls but Math.exp / expm1.
+ * evaluateOralOne for the one-compartment model, state, depot and modes in locals, factors in
+ * the shared ORAL_TABLE_*: the same operations in the same order as oneCompartmentModes,
+ * advance, fillTable and tableStep (so the same numbers to the last bit), with no loop over
+ * modes and no calls but Math.exp / expm1.
  */
 function evaluateOralOne1(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
   const cl = params[0];
@@ -703,8 +724,17 @@ function evaluateOralOne1(wk: LinearWork, params: Float64Array, out: Float64Arra
   const tlag = params[3];
   const F = params[4];
   if (!absorptionValid(ka, tlag, F)) return fail(out);
-  const { uniqueOf, outIndex, tabE, tabB, tabA, stamp, lengthH, sc } = wk;
-  const id = nextEvalId(wk);
+  const { uniqueOf, outIndex, lengthH, sc } = wk;
+  const tabE = ORAL_TABLE_E;
+  const tabB = ORAL_TABLE_B;
+  const tabA = ORAL_TABLE_A;
+  const stamp = ORAL_TABLE_STAMP;
+  if (ORAL_TABLE_ID[0] === 0x7fffffff) {
+    // Wrap-around: forget every stamp so that no table entry from an old evaluation can look current.
+    stamp.fill(0);
+    ORAL_TABLE_ID[0] = 0;
+  }
+  const id = ++ORAL_TABLE_ID[0];
   const timeH = sc.timeH;
   const ns = sc.n;
   const te = sc.oralTimeH[0] + tlag;
@@ -763,7 +793,7 @@ function evaluateOralOne1(wk: LinearWork, params: Float64Array, out: Float64Arra
 function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
   const path = wk.path;
   const modeKind = wk.modeKind;
-  if (path === PATH_ORAL_ONE && modeKind === MODES_ONE) return evaluateOralOne1(wk, params, out);
+  if (path === PATH_ORAL_ONE_SHARED && modeKind === MODES_ONE) return evaluateOralOne1(wk, params, out);
   if (!computeModes(wk, params)) return fail(out);
   if (path === PATH_STATIC_SHARED) {
     if (modeKind === MODES_ONE) return evaluateStatic1(wk, out);
@@ -771,7 +801,7 @@ function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): bool
     return evaluateStatic(wk, out);
   }
   if (path === PATH_STATIC) return evaluateStatic(wk, out);
-  if (path === PATH_ORAL_ONE) return evaluateOralOne(wk, params, out);
+  if (path === PATH_ORAL_ONE || path === PATH_ORAL_ONE_SHARED) return evaluateOralOne(wk, params, out);
   return evaluateGeneral(wk, params, out);
 }
 /** The general walk: any history (modes already computed into wk.lam, wk.w). */

@@ -107,4 +107,18 @@ describe('specialised walks give the general walk\'s numbers to the last bit', (
       expect(a[2]).toBeGreaterThan(0);
     }
   });
+
+  it('one oral dose with more distinct level spacings than the shared table holds takes tables of its own', () => {
+    const times = Array.from({ length: 4200 }, (_, i) => 0.5 + i * 0.01 + (i * i) * 1e-7);
+    const doses: Dose[] = [{ timeH: 0, amountMg: 500, route: 'oral', durationH: 0 }];
+    const { n, nd, modes } = MODES['1cmt'];
+    const model = getStructuralModel('1cmt');
+    const p = Float64Array.from([4, 50, 1.2, 0.3, 0.8]);
+    const a = new Float64Array(times.length);
+    const b = new Float64Array(times.length);
+    expect(model.prepare(doses, times)(p, a)).toBe(true);
+    expect(prepareLinearGeneral(n, nd, modes(), doses, times)(p, b)).toBe(true);
+    expect(sameBits(a, b)).toBe(true);
+    expect(a[100]).toBeGreaterThan(0);
+  });
 });
