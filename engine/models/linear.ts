@@ -210,6 +210,24 @@ const PATH_STATIC_SHARED = 3;
 const STATIC_TABLE_CAPACITY = 1 << 15;
 const STATIC_TABLE = new Float64Array(STATIC_TABLE_CAPACITY);
 
+/**
+ * Per-evaluation scratch (mode rates and weights, modal state, the state kept across an additive
+ * reset, pending lagged doses, the current-interval cells): written and read within one
+ * evaluation only, so shared by every predictor of this module instance (sized for 3 modes and
+ * the depot). Each predictor keeps only what outlives an evaluation (its schedule, its step
+ * program, its tables and their stamps).
+ */
+const SCRATCH_RATES = new Float64Array(3);
+const SCRATCH_WEIGHTS = new Float64Array(3);
+const SCRATCH_STATE = new Float64Array(4);
+const SCRATCH_KEEP = new Float64Array(4);
+const SCRATCH_PENDING = new Float64Array(4);
+const SCRATCH_CURRENT = new Float64Array(6);
+
+/** The empty tables of predictors whose walk uses the module-level ones (never read or written). */
+const NO_FACTORS = new Float64Array(0);
+const NO_STAMPS = new Int32Array(0);
+
 /** PATH_ORAL_ONE whose distinct lengths fit the shared ORAL_TABLE_* (one mode takes evaluateOralOne1). */
 const PATH_ORAL_ONE_SHARED = 4;
 
@@ -293,13 +311,14 @@ class LinearWork {
 
   constructor(nModes: number, nDisposition: number, modes: ModeFunction, sc: Schedule, generalOnly: boolean) {
     const n = nModes;
+    if (!(Number.isInteger(n) && n >= 1 && n <= 3)) throw new Error(`linear models have 1 to 3 modes, got ${n}`);
     this.n = n;
     this.nDisposition = nDisposition;
     this.modes = modes;
-    this.lam = new Float64Array(n);
-    this.w = new Float64Array(n);
-    this.s = new Float64Array(n + 1);
-    this.keep = new Float64Array(n + 1);
+    this.lam = SCRATCH_RATES;
+    this.w = SCRATCH_WEIGHTS;
+    this.s = SCRATCH_STATE;
+    this.keep = SCRATCH_KEEP;
     this.sc = sc;
     const { timeH, kind, value, epoch: evEpoch } = sc;
     const ns = sc.n;
@@ -351,14 +370,9 @@ class LinearWork {
     this.infusionLength = new Uint8Array(nu);
     for (let k = 1; k < ns; k++) if (this.uniqueOf[k] >= 0 && this.rateAfter[k - 1] !== 0) this.infusionLength[this.uniqueOf[k]] = 1;
     this.lengthH = Float64Array.from(lengths);
-    this.stamp = new Int32Array(nu);
     this.evalCount = new Int32Array(1);
-    this.tabE = new Float64Array(nu * n);
-    this.tabG = new Float64Array(nu * n);
-    this.tabB = new Float64Array(nu * n);
-    this.tabA = new Float64Array(nu);
-    this.pend = new Float64Array(4);
-    this.cur = new Float64Array(6);
+    this.pend = SCRATCH_PENDING;
+    this.cur = SCRATCH_CURRENT;
     this.staticOnly = !sc.hasOral && !kind.includes(EV_RESET);
     let lastOutput = -1;
     let nLengthsUsed = 0;
@@ -382,6 +396,15 @@ class LinearWork {
     else if (oralOne) this.path = nu <= ORAL_TABLE_CAPACITY ? PATH_ORAL_ONE_SHARED : PATH_ORAL_ONE;
     else this.path = PATH_GENERAL;
     this.modeKind = modes === oneCompartmentModes ? MODES_ONE : modes === twoCompartmentModes ? MODES_TWO : MODES_OTHER;
+    // The walks on module-level tables need none of their own (a fifth of a predictor's memory).
+    const sharedOnly =
+      (this.path === PATH_STATIC_SHARED && (this.modeKind === MODES_ONE || this.modeKind === MODES_TWO)) ||
+      (this.path === PATH_ORAL_ONE_SHARED && this.modeKind === MODES_ONE);
+    this.stamp = sharedOnly ? NO_STAMPS : new Int32Array(nu);
+    this.tabE = sharedOnly ? NO_FACTORS : new Float64Array(nu * n);
+    this.tabG = sharedOnly ? NO_FACTORS : new Float64Array(nu * n);
+    this.tabB = sharedOnly ? NO_FACTORS : new Float64Array(nu * n);
+    this.tabA = sharedOnly ? NO_FACTORS : new Float64Array(nu);
   }
 }
 
