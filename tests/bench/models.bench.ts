@@ -185,7 +185,7 @@ function bytesPerPatient(make: () => Predictor[]): { heap: number; buffers: numb
 }
 
 /**
- * Memory of prepared predictors (schedule, interval tables, step program, scratch state) per
+ * Memory of prepared predictors (schedule, step program, interval tables where they keep their own) per
  * 1,000 patients: the sparse TDM design (2cmt, 12 infusions, 2-4 levels) and a single oral dose
  * with 10 levels (1cmt); the median of 3 rounds of 5,000 patients.
  */
