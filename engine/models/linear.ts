@@ -209,6 +209,11 @@ const PATH_STATIC_SHARED = 3;
  */
 const STATIC_TABLE_CAPACITY = 1 << 15;
 const STATIC_TABLE = new Float64Array(STATIC_TABLE_CAPACITY);
+/** Distinct infusion rates one step program can name, and where its length index starts. */
+const STEP_RATES = 2047;
+const STEP_LENGTH_SHIFT = 13;
+/** The running predictor's stepRates, copied in at the start of each static evaluation. */
+const STATIC_RATES = new Float64Array(STEP_RATES);
 
 /**
  * Per-evaluation scratch (mode rates and weights, modal state, the state kept across an additive
@@ -289,11 +294,14 @@ class LinearWork {
    */
   readonly infusionLength: Uint8Array;
   /**
-   * The static walks' program, one code per static point k <= lastOutput: (u + 1) << 3 for a
-   * step of distinct length u (0: no step), | 4 when an infusion runs during the step, | 1 for a
-   * level or 2 for a bolus at the point. One integer load tells the loop everything it branches on.
+   * The static walks' program, one code per static point k <= lastOutput: (u + 1) << 13 for a
+   * step of distinct length u (0: no step), | r << 2 with r the index in stepRates of the
+   * infusion rate running during the step (0: none), | 1 for a level or 2 for a bolus at the
+   * point. One integer load tells the loop everything it branches on.
    */
   readonly stepOp: Int32Array;
+  /** The distinct infusion rates (mg/h) the step program refers to; index 0 is "no infusion". */
+  readonly stepRates: Float64Array;
   /** Index into `out` of each static output point (integer typed, for the store). */
   readonly outIndex: Int32Array;
   /**
@@ -382,14 +390,25 @@ class LinearWork {
     this.lastOutput = lastOutput;
     this.nLengthsUsed = nLengthsUsed;
     this.stepOp = new Int32Array(lastOutput + 1);
+    const rateIndex = new Map<number, number>();
+    const rates: number[] = [0];
     for (let k = 0; k <= lastOutput; k++) {
-      const on = k > 0 && this.rateAfter[k - 1] !== 0 ? 4 : 0;
+      const r = k > 0 ? this.rateAfter[k - 1] : 0;
+      let ri = 0;
+      if (r !== 0) {
+        ri = rateIndex.get(r) ?? rates.length;
+        if (ri === rates.length) {
+          rateIndex.set(r, ri);
+          rates.push(r);
+        }
+      }
       const ev = kind[k] === EV_OUTPUT ? 1 : kind[k] === EV_BOLUS ? 2 : 0;
-      this.stepOp[k] = ((this.uniqueOf[k] + 1) << 3) | on | ev;
+      this.stepOp[k] = ((this.uniqueOf[k] + 1) << STEP_LENGTH_SHIFT) | (Math.min(ri, STEP_RATES) << 2) | ev;
     }
+    this.stepRates = Float64Array.from(rates);
     let outputsOnly = true;
     for (let k = 0; k < ns; k++) if (kind[k] !== EV_OUTPUT) outputsOnly = false;
-    const sharedTable = 2 * n * nu <= STATIC_TABLE_CAPACITY;
+    const sharedTable = 2 * n * nu <= STATIC_TABLE_CAPACITY && rates.length < STEP_RATES && nu < 1 << (31 - STEP_LENGTH_SHIFT);
     const oralOne = sc.nOral === 1 && outputsOnly && ns > 0;
     if (generalOnly) this.path = PATH_GENERAL;
     else if (this.staticOnly) this.path = sharedTable ? PATH_STATIC_SHARED : PATH_STATIC;
@@ -600,7 +619,10 @@ function computeModes(wk: LinearWork, params: Float64Array): boolean {
  * operations in the same order (so the same numbers to the last bit), fewer loads and branches.
  */
 function evaluateStatic1(wk: LinearWork, out: Float64Array): boolean {
-  const { rateAfter, outIndex, lengthH, infusionLength, stepOp } = wk;
+  const { outIndex, lengthH, infusionLength, stepOp } = wk;
+  const rates = STATIC_RATES;
+  const ownRates = wk.stepRates;
+  for (let r = 1; r < ownRates.length; r++) rates[r] = ownRates[r];
   const tab = STATIC_TABLE;
   const value = wk.sc.value;
   const nu = wk.nLengthsUsed;
@@ -616,11 +638,12 @@ function evaluateStatic1(wk: LinearWork, out: Float64Array): boolean {
   const last = wk.lastOutput;
   for (let k = 0; k <= last; k++) {
     const op = stepOp[k];
-    const u1 = op >> 3;
+    const u1 = op >> 13;
     if (u1 !== 0) {
       const b = 2 * u1 - 2;
-      if ((op & 4) === 0) s0 *= tab[b];
-      else s0 = tab[b] * s0 + rateAfter[k - 1] * tab[b + 1];
+      const ri = (op >> 2) & 2047;
+      if (ri === 0) s0 *= tab[b];
+      else s0 = tab[b] * s0 + rates[ri] * tab[b + 1];
     }
     const ev = op & 3;
     if (ev === 1) {
@@ -633,7 +656,10 @@ function evaluateStatic1(wk: LinearWork, out: Float64Array): boolean {
 
 /** evaluateStatic for two modes, the state in locals, driven by wk.stepOp (same operations, same order). */
 function evaluateStatic2(wk: LinearWork, out: Float64Array): boolean {
-  const { rateAfter, outIndex, lengthH, infusionLength, stepOp } = wk;
+  const { outIndex, lengthH, infusionLength, stepOp } = wk;
+  const rates = STATIC_RATES;
+  const ownRates = wk.stepRates;
+  for (let r = 1; r < ownRates.length; r++) rates[r] = ownRates[r];
   const tab = STATIC_TABLE;
   const value = wk.sc.value;
   const nu = wk.nLengthsUsed;
@@ -660,14 +686,15 @@ function evaluateStatic2(wk: LinearWork, out: Float64Array): boolean {
   const last = wk.lastOutput;
   for (let k = 0; k <= last; k++) {
     const op = stepOp[k];
-    const u1 = op >> 3;
+    const u1 = op >> 13;
     if (u1 !== 0) {
       const b = 4 * u1 - 4;
-      if ((op & 4) === 0) {
+      const ri = (op >> 2) & 2047;
+      if (ri === 0) {
         s0 *= tab[b];
         s1 *= tab[b + 1];
       } else {
-        const rate = rateAfter[k - 1];
+        const rate = rates[ri];
         s0 = tab[b] * s0 + rate * tab[b + 2];
         s1 = tab[b + 1] * s1 + rate * tab[b + 3];
       }

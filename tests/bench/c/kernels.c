@@ -5,8 +5,9 @@
  *   oral: one-compartment, one oral dose of 500 mg at 0 h, levels at 0.5 ... 24 h
  *         (evaluateOralOne1: lazily filled table of transition factors per distinct interval)
  *   inf:  two-compartment, 60 one-hour infusions of 1000 mg every 8 h, 4 levels in the last
- *         interval (twoCompartmentModes + evaluateStatic2: the step program stepOp, the
- *         factors of each distinct interval length computed once per evaluation)
+ *         interval (twoCompartmentModes + evaluateStatic2: the step program stepOp naming an
+ *         interval length and an infusion rate per point, the factors of each distinct
+ *         interval length computed once per evaluation)
  * Built by the bench with `cc -O2` (no -ffast-math, no -march: plain IEEE double arithmetic
  * as in JavaScript). Usage: kernels oral|inf SECONDS. Prints one JSON line: calls per
  * CPU-second and the levels of parameter vector 0, which the bench compares with the engine's.
@@ -32,7 +33,8 @@ static double cpu_ms(void) {
 static int ns, nu, last_output, infusion_length[MAXP], step_op[MAXP], unique_of[MAXP], kind[MAXP], out_index[MAXP], stamp[MAXP], eval_id;
 static double time_h[MAXP], length_h[MAXP], rate_after[MAXP], value[MAXP];
 static double tab_e[MAXP], tab_b[MAXP], tab_a[MAXP], tab_static[4 * MAXP];
-static double oral_time_h, oral_amount_mg;
+static double oral_time_h, oral_amount_mg, step_rates[MAXP];
+static int n_rates;
 
 /* Distinct interval lengths in order of first occurrence (LinearWork's constructor). */
 static void number_lengths(void) {
@@ -131,14 +133,15 @@ static int eval_inf2(const double *p, double *out) {
   double s0 = 0, s1 = 0;
   for (int k = 0; k <= last_output; k++) {
     int op = step_op[k];
-    int u1 = op >> 3;
+    int u1 = op >> 13;
     if (u1 != 0) {
       int b = 4 * u1 - 4;
-      if ((op & 4) == 0) {
+      int ri = (op >> 2) & 2047;
+      if (ri == 0) {
         s0 *= tab_static[b];
         s1 *= tab_static[b + 1];
       } else {
-        double rate = rate_after[k - 1];
+        double rate = step_rates[ri];
         s0 = tab_static[b] * s0 + rate * tab_static[b + 2];
         s1 = tab_static[b + 1] * s1 + rate * tab_static[b + 3];
       }
@@ -204,10 +207,17 @@ static void prepare_inf(void) {
   nu = used;
   for (int k = 1; k < ns; k++)
     if (unique_of[k] >= 0 && rate_after[k - 1] != 0) infusion_length[unique_of[k]] = 1;
+  n_rates = 1;
+  step_rates[0] = 0;
   for (int k = 0; k <= last_output; k++) {
-    int on = k > 0 && rate_after[k - 1] != 0 ? 4 : 0;
+    double r = k > 0 ? rate_after[k - 1] : 0;
+    int ri = 0;
+    if (r != 0) {
+      while (ri < n_rates && step_rates[ri] != r) ri++;
+      if (ri == n_rates) step_rates[n_rates++] = r;
+    }
     int ev = kind[k] == EV_OUTPUT ? 1 : 0;
-    step_op[k] = ((unique_of[k] + 1) << 3) | on | ev;
+    step_op[k] = ((unique_of[k] + 1) << 13) | (ri << 2) | ev;
   }
 }
 

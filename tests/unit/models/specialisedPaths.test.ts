@@ -121,4 +121,20 @@ describe('specialised walks give the general walk\'s numbers to the last bit', (
     expect(sameBits(a, b)).toBe(true);
     expect(a[100]).toBeGreaterThan(0);
   });
+
+  it('an infusion history with more distinct rates than the step program can name takes the array-loop walk', () => {
+    const doses: Dose[] = Array.from({ length: 2_200 }, (_, i) => ({ timeH: 4 * i, amountMg: 100 + i, route: 'infusion' as const, durationH: 1 }));
+    const times = [3, 4_401.5, 8_799.5];
+    for (const id of ['1cmt', '2cmt'] as const) {
+      const { n, nd, modes } = MODES[id];
+      const model = getStructuralModel(id);
+      const p = Float64Array.from(model.parameters.map((info) => info.defaultInitial));
+      const a = new Float64Array(times.length);
+      const b = new Float64Array(times.length);
+      expect(model.prepare(doses, times)(p, a)).toBe(true);
+      expect(prepareLinearGeneral(n, nd, modes(), doses, times)(p, b)).toBe(true);
+      expect(sameBits(a, b)).toBe(true);
+      expect(a[2]).toBeGreaterThan(0);
+    }
+  });
 });
