@@ -191,6 +191,68 @@ export function makeThreeCompartmentModes(): ModeFunction {
   };
 }
 
+/** The walks (see evaluate): the general one, and the specialised ones for common histories. */
+const PATH_GENERAL = 0;
+/** No oral dose and no steady-state reset (bolus and infusion histories). */
+const PATH_STATIC = 1;
+/** Exactly one dose, oral, not at steady state (the single-dose study design). */
+const PATH_ORAL_ONE = 2;
+/** PATH_STATIC whose factor table fits STATIC_TABLE; one or two modes take the fastest walks. */
+const PATH_STATIC_SHARED = 3;
+
+/**
+ * The factor table of the one- and two-mode static walks, per distinct length u: e_0..e_{n-1},
+ * then g_0..g_{n-1}, at 2 n u. Filled in full at the start of every evaluation and read only
+ * during it, so one table serves every predictor of this module instance (evaluations never
+ * interleave: JavaScript runs one at a time per thread, and each worker thread has its own
+ * module instance). A module constant: the optimiser embeds it, with no per-access map check.
+ */
+const STATIC_TABLE_CAPACITY = 1 << 15;
+const STATIC_TABLE = new Float64Array(STATIC_TABLE_CAPACITY);
+/** Distinct infusion rates one step program can name, and where its length index starts. */
+const STEP_RATES = 2047;
+const STEP_LENGTH_SHIFT = 13;
+/** The running predictor's stepRates, copied in at the start of each static evaluation. */
+const STATIC_RATES = new Float64Array(STEP_RATES);
+
+/**
+ * Per-evaluation scratch (mode rates and weights, modal state, the state kept across an additive
+ * reset, pending lagged doses, the current-interval cells): written and read within one
+ * evaluation only, so shared by every predictor of this module instance (sized for 3 modes and
+ * the depot). Each predictor keeps only what outlives an evaluation (its schedule, its step
+ * program, its tables and their stamps).
+ */
+const SCRATCH_RATES = new Float64Array(3);
+const SCRATCH_WEIGHTS = new Float64Array(3);
+const SCRATCH_STATE = new Float64Array(4);
+const SCRATCH_KEEP = new Float64Array(4);
+const SCRATCH_PENDING = new Float64Array(4);
+const SCRATCH_CURRENT = new Float64Array(6);
+
+/** The empty tables of predictors whose walk uses the module-level ones (never read or written). */
+const NO_FACTORS = new Float64Array(0);
+const NO_STAMPS = new Int32Array(0);
+
+/** PATH_ORAL_ONE whose distinct lengths fit the shared ORAL_TABLE_* (one mode takes evaluateOralOne1). */
+const PATH_ORAL_ONE_SHARED = 4;
+
+/**
+ * The lazily filled factor tables of the one-mode single-oral-dose walk (e, ka-weighted divided
+ * difference, depot factor per distinct length) with their stamps: shared by every predictor of
+ * this module instance as STATIC_TABLE is. The evaluation id is one counter for all of them, so
+ * a stamp written by another predictor's evaluation never matches.
+ */
+const ORAL_TABLE_CAPACITY = 4096;
+const ORAL_TABLE_E = new Float64Array(ORAL_TABLE_CAPACITY);
+const ORAL_TABLE_B = new Float64Array(ORAL_TABLE_CAPACITY);
+const ORAL_TABLE_A = new Float64Array(ORAL_TABLE_CAPACITY);
+const ORAL_TABLE_STAMP = new Int32Array(ORAL_TABLE_CAPACITY);
+const ORAL_TABLE_ID = new Int32Array(1);
+
+const MODES_OTHER = 0;
+const MODES_ONE = 1;
+const MODES_TWO = 2;
+
 /**
  * Everything one prepared predictor needs, in one record of fixed shape. The walk is a
  * module-level function over this record rather than a closure per predictor: V8 shares
@@ -226,6 +288,20 @@ class LinearWork {
   readonly cur: Float64Array;
   /** Whether any infusion runs (else the infusion factors are never needed). */
   readonly hasInfusion: boolean;
+  /**
+   * Per distinct length: 1 when some step of that length runs with an infusion on (its factor
+   * (1 - e^{-lambda dt}) / lambda is used), else 0. The static walks fill only those.
+   */
+  readonly infusionLength: Uint8Array;
+  /**
+   * The static walks' program, one code per static point k <= lastOutput: (u + 1) << 13 for a
+   * step of distinct length u (0: no step), | r << 2 with r the index in stepRates of the
+   * infusion rate running during the step (0: none), | 1 for a level or 2 for a bolus at the
+   * point. One integer load tells the loop everything it branches on.
+   */
+  readonly stepOp: Int32Array;
+  /** The distinct infusion rates (mg/h) the step program refers to; index 0 is "no infusion". */
+  readonly stepRates: Float64Array;
   /** Index into `out` of each static output point (integer typed, for the store). */
   readonly outIndex: Int32Array;
   /**
@@ -236,16 +312,21 @@ class LinearWork {
   readonly staticOnly: boolean;
   readonly lastOutput: number;
   readonly nLengthsUsed: number;
+  /** The walk that evaluates this history (PATH_*), chosen once here. */
+  readonly path: number;
+  /** Which disposition formula `modes` is (MODES_*), so each call site calls one function. */
+  readonly modeKind: number;
 
-  constructor(nModes: number, nDisposition: number, modes: ModeFunction, sc: Schedule) {
+  constructor(nModes: number, nDisposition: number, modes: ModeFunction, sc: Schedule, generalOnly: boolean) {
     const n = nModes;
+    if (!(Number.isInteger(n) && n >= 1 && n <= 3)) throw new Error(`linear models have 1 to 3 modes, got ${n}`);
     this.n = n;
     this.nDisposition = nDisposition;
     this.modes = modes;
-    this.lam = new Float64Array(n);
-    this.w = new Float64Array(n);
-    this.s = new Float64Array(n + 1);
-    this.keep = new Float64Array(n + 1);
+    this.lam = SCRATCH_RATES;
+    this.w = SCRATCH_WEIGHTS;
+    this.s = SCRATCH_STATE;
+    this.keep = SCRATCH_KEEP;
     this.sc = sc;
     const { timeH, kind, value, epoch: evEpoch } = sc;
     const ns = sc.n;
@@ -294,15 +375,12 @@ class LinearWork {
       this.rateAfter[k] = rate;
     }
     const nu = lengths.length;
+    this.infusionLength = new Uint8Array(nu);
+    for (let k = 1; k < ns; k++) if (this.uniqueOf[k] >= 0 && this.rateAfter[k - 1] !== 0) this.infusionLength[this.uniqueOf[k]] = 1;
     this.lengthH = Float64Array.from(lengths);
-    this.stamp = new Int32Array(nu);
     this.evalCount = new Int32Array(1);
-    this.tabE = new Float64Array(nu * n);
-    this.tabG = new Float64Array(nu * n);
-    this.tabB = new Float64Array(nu * n);
-    this.tabA = new Float64Array(nu);
-    this.pend = new Float64Array(4);
-    this.cur = new Float64Array(6);
+    this.pend = SCRATCH_PENDING;
+    this.cur = SCRATCH_CURRENT;
     this.staticOnly = !sc.hasOral && !kind.includes(EV_RESET);
     let lastOutput = -1;
     let nLengthsUsed = 0;
@@ -311,6 +389,41 @@ class LinearWork {
     for (let k = 0; k <= lastOutput; k++) if (this.uniqueOf[k] + 1 > nLengthsUsed) nLengthsUsed = this.uniqueOf[k] + 1;
     this.lastOutput = lastOutput;
     this.nLengthsUsed = nLengthsUsed;
+    this.stepOp = new Int32Array(lastOutput + 1);
+    const rateIndex = new Map<number, number>();
+    const rates: number[] = [0];
+    for (let k = 0; k <= lastOutput; k++) {
+      const r = k > 0 ? this.rateAfter[k - 1] : 0;
+      let ri = 0;
+      if (r !== 0) {
+        ri = rateIndex.get(r) ?? rates.length;
+        if (ri === rates.length) {
+          rateIndex.set(r, ri);
+          rates.push(r);
+        }
+      }
+      const ev = kind[k] === EV_OUTPUT ? 1 : kind[k] === EV_BOLUS ? 2 : 0;
+      this.stepOp[k] = ((this.uniqueOf[k] + 1) << STEP_LENGTH_SHIFT) | (Math.min(ri, STEP_RATES) << 2) | ev;
+    }
+    this.stepRates = Float64Array.from(rates);
+    let outputsOnly = true;
+    for (let k = 0; k < ns; k++) if (kind[k] !== EV_OUTPUT) outputsOnly = false;
+    const sharedTable = 2 * n * nu <= STATIC_TABLE_CAPACITY && rates.length < STEP_RATES && nu < 1 << (31 - STEP_LENGTH_SHIFT);
+    const oralOne = sc.nOral === 1 && outputsOnly && ns > 0;
+    if (generalOnly) this.path = PATH_GENERAL;
+    else if (this.staticOnly) this.path = sharedTable ? PATH_STATIC_SHARED : PATH_STATIC;
+    else if (oralOne) this.path = nu <= ORAL_TABLE_CAPACITY ? PATH_ORAL_ONE_SHARED : PATH_ORAL_ONE;
+    else this.path = PATH_GENERAL;
+    this.modeKind = modes === oneCompartmentModes ? MODES_ONE : modes === twoCompartmentModes ? MODES_TWO : MODES_OTHER;
+    // The walks on module-level tables need none of their own (a fifth of a predictor's memory).
+    const sharedOnly =
+      (this.path === PATH_STATIC_SHARED && (this.modeKind === MODES_ONE || this.modeKind === MODES_TWO)) ||
+      (this.path === PATH_ORAL_ONE_SHARED && this.modeKind === MODES_ONE);
+    this.stamp = sharedOnly ? NO_STAMPS : new Int32Array(nu);
+    this.tabE = sharedOnly ? NO_FACTORS : new Float64Array(nu * n);
+    this.tabG = sharedOnly ? NO_FACTORS : new Float64Array(nu * n);
+    this.tabB = sharedOnly ? NO_FACTORS : new Float64Array(nu * n);
+    this.tabA = sharedOnly ? NO_FACTORS : new Float64Array(nu);
   }
 }
 
@@ -440,19 +553,22 @@ function fail(out: Float64Array): boolean {
  * arithmetic as tableStep and fillTable, so the same numbers to the last bit.
  */
 function evaluateStatic(wk: LinearWork, out: Float64Array): boolean {
-  const { n, s, lam, w, uniqueOf, rateAfter, outIndex, tabE, tabG, lengthH } = wk;
+  const { n, s, lam, w, uniqueOf, rateAfter, outIndex, tabE, tabG, lengthH, infusionLength } = wk;
   const { kind, value } = wk.sc;
   const nu = wk.nLengthsUsed;
-  const hasInfusion = wk.hasInfusion;
+  // Imported constants read through a checked module cell on every use; locals are registers.
+  const outputKind = EV_OUTPUT;
+  const bolusKind = EV_BOLUS;
   for (let u = 0; u < nu; u++) {
     const dt = lengthH[u];
     const b = u * n;
+    const withInfusion = infusionLength[u] !== 0;
     for (let i = 0; i < n; i++) {
       const l = lam[i];
       const x = l * dt;
       const e = Math.exp(-x);
       tabE[b + i] = e;
-      if (hasInfusion) tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
+      if (withInfusion) tabG[b + i] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
     }
   }
   for (let i = 0; i < n; i++) s[i] = 0;
@@ -466,11 +582,11 @@ function evaluateStatic(wk: LinearWork, out: Float64Array): boolean {
       else for (let i = 0; i < n; i++) s[i] = tabE[b + i] * s[i] + rate * tabG[b + i];
     }
     const kd = kind[k];
-    if (kd === EV_OUTPUT) {
+    if (kd === outputKind) {
       let c = 0;
       for (let i = 0; i < n; i++) c += w[i] * s[i];
       out[outIndex[k]] = c < 0 ? 0 : c;
-    } else if (kd === EV_BOLUS) {
+    } else if (kd === bolusKind) {
       const v = value[k];
       for (let i = 0; i < n; i++) s[i] += v;
     }
@@ -479,11 +595,268 @@ function evaluateStatic(wk: LinearWork, out: Float64Array): boolean {
   return true;
 }
 
-/** One evaluation of the prepared predictor (see Predictor). */
+/** A fresh evaluation id for the lazily filled tables (stamp[u] === id: filled in this evaluation). */
+function nextEvalId(wk: LinearWork): number {
+  const counter = wk.evalCount;
+  if (counter[0] === 0x7fffffff) {
+    // Wrap-around: forget every stamp so that no table from an old evaluation can look current.
+    wk.stamp.fill(0);
+    counter[0] = 0;
+  }
+  return ++counter[0];
+}
+
+/** wk.lam, wk.w from the parameters; one direct call per model kind keeps each call site monomorphic. */
+function computeModes(wk: LinearWork, params: Float64Array): boolean {
+  const kind = wk.modeKind;
+  if (kind === MODES_ONE) return oneCompartmentModes(params, wk.lam, wk.w);
+  if (kind === MODES_TWO) return twoCompartmentModes(params, wk.lam, wk.w);
+  return wk.modes(params, wk.lam, wk.w);
+}
+
+/**
+ * evaluateStatic for one mode, the state in a local and the walk driven by wk.stepOp: the same
+ * operations in the same order (so the same numbers to the last bit), fewer loads and branches.
+ */
+function evaluateStatic1(wk: LinearWork, out: Float64Array): boolean {
+  const { outIndex, lengthH, infusionLength, stepOp } = wk;
+  const rates = STATIC_RATES;
+  const ownRates = wk.stepRates;
+  for (let r = 1; r < ownRates.length; r++) rates[r] = ownRates[r];
+  const tab = STATIC_TABLE;
+  const value = wk.sc.value;
+  const nu = wk.nLengthsUsed;
+  const l = wk.lam[0];
+  const w0 = wk.w[0];
+  for (let u = 0; u < nu; u++) {
+    const x = l * lengthH[u];
+    const e = Math.exp(-x);
+    tab[2 * u] = e;
+    if (infusionLength[u] !== 0) tab[2 * u + 1] = (x < 0.5 ? -Math.expm1(-x) : 1 - e) / l;
+  }
+  let s0 = 0;
+  const last = wk.lastOutput;
+  for (let k = 0; k <= last; k++) {
+    const op = stepOp[k];
+    const u1 = op >> 13;
+    if (u1 !== 0) {
+      const b = 2 * u1 - 2;
+      const ri = (op >> 2) & 2047;
+      if (ri === 0) s0 *= tab[b];
+      else s0 = tab[b] * s0 + rates[ri] * tab[b + 1];
+    }
+    const ev = op & 3;
+    if (ev === 1) {
+      const c = 0 + w0 * s0;
+      out[outIndex[k]] = c < 0 ? 0 : c;
+    } else if (ev === 2) s0 += value[k];
+  }
+  return true;
+}
+
+/** evaluateStatic for two modes, the state in locals, driven by wk.stepOp (same operations, same order). */
+function evaluateStatic2(wk: LinearWork, out: Float64Array): boolean {
+  const { outIndex, lengthH, infusionLength, stepOp } = wk;
+  const rates = STATIC_RATES;
+  const ownRates = wk.stepRates;
+  for (let r = 1; r < ownRates.length; r++) rates[r] = ownRates[r];
+  const tab = STATIC_TABLE;
+  const value = wk.sc.value;
+  const nu = wk.nLengthsUsed;
+  const l0 = wk.lam[0];
+  const l1 = wk.lam[1];
+  const w0 = wk.w[0];
+  const w1 = wk.w[1];
+  for (let u = 0; u < nu; u++) {
+    const dt = lengthH[u];
+    const b = 4 * u;
+    const x0 = l0 * dt;
+    const e0 = Math.exp(-x0);
+    const x1 = l1 * dt;
+    const e1 = Math.exp(-x1);
+    tab[b] = e0;
+    tab[b + 1] = e1;
+    if (infusionLength[u] !== 0) {
+      tab[b + 2] = (x0 < 0.5 ? -Math.expm1(-x0) : 1 - e0) / l0;
+      tab[b + 3] = (x1 < 0.5 ? -Math.expm1(-x1) : 1 - e1) / l1;
+    }
+  }
+  let s0 = 0;
+  let s1 = 0;
+  const last = wk.lastOutput;
+  for (let k = 0; k <= last; k++) {
+    const op = stepOp[k];
+    const u1 = op >> 13;
+    if (u1 !== 0) {
+      const b = 4 * u1 - 4;
+      const ri = (op >> 2) & 2047;
+      if (ri === 0) {
+        s0 *= tab[b];
+        s1 *= tab[b + 1];
+      } else {
+        const rate = rates[ri];
+        s0 = tab[b] * s0 + rate * tab[b + 2];
+        s1 = tab[b + 1] * s1 + rate * tab[b + 3];
+      }
+    }
+    const ev = op & 3;
+    if (ev === 1) {
+      const c = 0 + w0 * s0 + w1 * s1;
+      out[outIndex[k]] = c < 0 ? 0 : c;
+    } else if (ev === 2) {
+      const v = value[k];
+      s0 += v;
+      s1 += v;
+    }
+  }
+  return true;
+}
+
+/** Checks ka, tlag, F (the three parameters after the disposition ones). */
+function absorptionValid(ka: number, tlag: number, F: number): boolean {
+  return positive(ka) && tlag >= 0 && tlag < Infinity && positive(F);
+}
+
+/**
+ * One oral dose, any number of modes (wk.path === PATH_ORAL_ONE; modes computed): the general
+ * walk's operations for this history, without the merge of the oral stream. Levels up to the
+ * entry time (dose time + tlag; a level at that time comes first) see the zero state; the first
+ * level after it is reached by the advance() transition from the entry, the later ones by table
+ * steps, as in the general walk.
+ */
+function evaluateOralOne(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
+  const { n, s, w, cur, uniqueOf, outIndex, sc } = wk;
+  const nd = wk.nDisposition;
+  const ka = params[nd];
+  const tlag = params[nd + 1];
+  const F = params[nd + 2];
+  if (!absorptionValid(ka, tlag, F)) return fail(out);
+  cur[KA] = ka;
+  cur[RATE] = 0;
+  const id = nextEvalId(wk);
+  const timeH = sc.timeH;
+  const ns = sc.n;
+  const te = sc.oralTimeH[0] + tlag;
+  let k = 0;
+  for (; k < ns && timeH[k] <= te; k++) {
+    let c = 0;
+    for (let i = 0; i < n; i++) c += w[i] * 0;
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  if (k === ns) return true;
+  for (let i = 0; i < n; i++) s[i] = 0;
+  s[n] = 0 + F * sc.oralAmountMg[0];
+  cur[DT] = timeH[k] - te;
+  advance(s, n, wk.lam, cur);
+  for (let first = true; k < ns; k++, first = false) {
+    const u = uniqueOf[k];
+    if (!first && u >= 0) tableStep(wk, u, id);
+    let c = 0;
+    for (let i = 0; i < n; i++) c += w[i] * s[i];
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  return true;
+}
+
+/**
+ * evaluateOralOne for the one-compartment model, state, depot and modes in locals, factors in
+ * the shared ORAL_TABLE_*: the same operations in the same order as oneCompartmentModes,
+ * advance, fillTable and tableStep (so the same numbers to the last bit), with no loop over
+ * modes and no calls but Math.exp / expm1.
+ */
+function evaluateOralOne1(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
+  const cl = params[0];
+  const v = params[1];
+  if (!(positive(cl) && positive(v))) return fail(out);
+  const l = cl / v;
+  const w0 = 1 / v;
+  const ka = params[2];
+  const tlag = params[3];
+  const F = params[4];
+  if (!absorptionValid(ka, tlag, F)) return fail(out);
+  const { uniqueOf, outIndex, lengthH, sc } = wk;
+  const tabE = ORAL_TABLE_E;
+  const tabB = ORAL_TABLE_B;
+  const tabA = ORAL_TABLE_A;
+  const stamp = ORAL_TABLE_STAMP;
+  if (ORAL_TABLE_ID[0] === 0x7fffffff) {
+    // Wrap-around: forget every stamp so that no table entry from an old evaluation can look current.
+    stamp.fill(0);
+    ORAL_TABLE_ID[0] = 0;
+  }
+  const id = ++ORAL_TABLE_ID[0];
+  const timeH = sc.timeH;
+  const ns = sc.n;
+  const te = sc.oralTimeH[0] + tlag;
+  let k = 0;
+  for (; k < ns && timeH[k] <= te; k++) {
+    const c = 0 + w0 * 0;
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  if (k === ns) return true;
+  // advance() from the entry to the first later level, from a zero state and a full depot.
+  let a = 0 + F * sc.oralAmountMg[0];
+  let s0: number;
+  {
+    const dt = timeH[k] - te;
+    const ea = a !== 0 ? Math.exp(-ka * dt) : 0;
+    const e = Math.exp(-(l * dt));
+    let z = e * 0;
+    if (a !== 0) {
+      const d = (ka - l) * dt;
+      const dd = d > 0.5 || d < -0.5 ? (e - ea) / (ka - l) : d >= 0 ? (d === 0 ? e * dt : (e * dt * -Math.expm1(-d)) / d) : (ea * dt * -Math.expm1(d)) / -d;
+      z += ka * a * dd;
+      a = a * ea;
+    }
+    s0 = z;
+    const c = 0 + w0 * s0;
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  for (k++; k < ns; k++) {
+    const u = uniqueOf[k];
+    if (u >= 0) {
+      if (stamp[u] !== id) {
+        // fillTable for one mode (tabG stays 0: no infusion in this history).
+        stamp[u] = id;
+        const dt = lengthH[u];
+        const ea = Math.exp(-ka * dt);
+        tabA[u] = ea;
+        const e = Math.exp(-(l * dt));
+        tabE[u] = e;
+        const d = (ka - l) * dt;
+        tabB[u] = ka * (d > 0.5 || d < -0.5 ? (e - ea) / (ka - l) : d >= 0 ? (d === 0 ? e * dt : (e * dt * -Math.expm1(-d)) / d) : (ea * dt * -Math.expm1(d)) / -d);
+      }
+      // tableStep: rate x tabG is 0 x 0 here, kept as "+ 0" for the same rounding of a -0.
+      if (a === 0) s0 *= tabE[u];
+      else {
+        s0 = tabE[u] * s0 + 0 + a * tabB[u];
+        a = a * tabA[u];
+      }
+    }
+    const c = 0 + w0 * s0;
+    out[outIndex[k]] = c < 0 ? 0 : c;
+  }
+  return true;
+}
+
+/** One evaluation of the prepared predictor (see Predictor): the walk chosen for the history. */
 function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
+  const path = wk.path;
+  const modeKind = wk.modeKind;
+  if (path === PATH_ORAL_ONE_SHARED && modeKind === MODES_ONE) return evaluateOralOne1(wk, params, out);
+  if (!computeModes(wk, params)) return fail(out);
+  if (path === PATH_STATIC_SHARED) {
+    if (modeKind === MODES_ONE) return evaluateStatic1(wk, out);
+    if (modeKind === MODES_TWO) return evaluateStatic2(wk, out);
+    return evaluateStatic(wk, out);
+  }
+  if (path === PATH_STATIC) return evaluateStatic(wk, out);
+  if (path === PATH_ORAL_ONE || path === PATH_ORAL_ONE_SHARED) return evaluateOralOne(wk, params, out);
+  return evaluateGeneral(wk, params, out);
+}
+/** The general walk: any history (modes already computed into wk.lam, wk.w). */
+function evaluateGeneral(wk: LinearWork, params: Float64Array, out: Float64Array): boolean {
   const { n, s, lam, w, cur, pend, uniqueOf, rateAfter, outIndex, sc } = wk;
-  if (!wk.modes(params, lam, w)) return fail(out);
-  if (wk.staticOnly) return evaluateStatic(wk, out);
   const { timeH, kind, value, epoch: evEpoch, oralTimeH, oralAmountMg, oralEpoch, hasOral } = sc;
   const ns = sc.n;
   const no = sc.nOral;
@@ -502,13 +875,7 @@ function evaluate(wk: LinearWork, params: Float64Array, out: Float64Array): bool
   cur[BIO] = F;
   cur[RATE] = 0;
   for (let i = 0; i <= n; i++) s[i] = 0;
-  const counter = wk.evalCount;
-  if (counter[0] === 0x7fffffff) {
-    // Wrap-around: forget every stamp so that no table from an old evaluation can look current.
-    wk.stamp.fill(0);
-    counter[0] = 0;
-  }
-  const id = ++counter[0];
+  const id = nextEvalId(wk);
   pend[0] = 0;
   let epoch = 0;
   let left = sc.nOutputs;
@@ -585,6 +952,21 @@ export function prepareLinear(
   timesH: ArrayLike<number>,
   _solver?: Partial<SolverSettings>,
 ): Predictor {
-  const wk = new LinearWork(nModes, nDisposition, modes, buildSchedule(doses, timesH));
+  const wk = new LinearWork(nModes, nDisposition, modes, buildSchedule(doses, timesH), false);
   return (params: Float64Array, out: Float64Array): boolean => evaluate(wk, params, out);
+}
+
+/**
+ * The same model through the general walk only, whatever the history: the reference that the
+ * specialised walks are tested against bit for bit (tests/unit/models/specialisedPaths.test.ts).
+ */
+export function prepareLinearGeneral(
+  nModes: number,
+  nDisposition: number,
+  modes: ModeFunction,
+  doses: readonly Dose[],
+  timesH: ArrayLike<number>,
+): Predictor {
+  const wk = new LinearWork(nModes, nDisposition, modes, buildSchedule(doses, timesH), true);
+  return (params: Float64Array, out: Float64Array): boolean => (wk.modes(params, wk.lam, wk.w) ? evaluateGeneral(wk, params, out) : fail(out));
 }

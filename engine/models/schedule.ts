@@ -41,7 +41,10 @@ export interface Schedule {
   oralAmountMg: Float64Array;
   oralEpoch: Int32Array;
   hasOral: boolean;
-  /** Per dose record (for steady-state resets). */
+  /**
+   * Per dose record, read only by steady-state resets: without a steady-state dose these are one
+   * shared empty array each (every typed array costs about 180 bytes of heap however short).
+   */
   doseRoute: Int32Array;
   doseAmountMg: Float64Array;
   doseDurationH: Float64Array;
@@ -49,6 +52,9 @@ export interface Schedule {
   /** Latest output time (h). */
   lastOutputH: number;
 }
+
+const NO_INTEGERS = new Int32Array(0);
+const NO_NUMBERS = new Float64Array(0);
 
 function where(d: Dose, i: number): string {
   return d.sourceRow !== undefined ? `dose ${i + 1} (row ${d.sourceRow})` : `dose ${i + 1}`;
@@ -86,18 +92,21 @@ export function buildSchedule(doses: readonly Dose[], timesH: ArrayLike<number>)
   interface Ev { t: number; kind: number; value: number; epoch: number; order: number }
   const evs: Ev[] = [];
   const oral: { t: number; amount: number; epoch: number; order: number }[] = [];
-  const doseRoute = new Int32Array(nd);
-  const doseAmountMg = new Float64Array(nd);
-  const doseDurationH = new Float64Array(nd);
-  const doseIntervalH = new Float64Array(nd);
+  const withResets = ssTimes.length > 0;
+  const doseRoute = withResets ? new Int32Array(nd) : NO_INTEGERS;
+  const doseAmountMg = withResets ? new Float64Array(nd) : NO_NUMBERS;
+  const doseDurationH = withResets ? new Float64Array(nd) : NO_NUMBERS;
+  const doseIntervalH = withResets ? new Float64Array(nd) : NO_NUMBERS;
   let order = 0;
   for (let i = 0; i < nd; i++) {
     const d = doses[i];
     const epoch = epochOf(d.timeH);
-    doseRoute[i] = d.route === 'bolus' ? ROUTE_BOLUS : d.route === 'infusion' ? ROUTE_INFUSION : ROUTE_ORAL;
-    doseAmountMg[i] = d.amountMg;
-    doseDurationH[i] = d.route === 'infusion' ? d.durationH : 0;
-    doseIntervalH[i] = d.steadyStateIntervalH ?? 0;
+    if (withResets) {
+      doseRoute[i] = d.route === 'bolus' ? ROUTE_BOLUS : d.route === 'infusion' ? ROUTE_INFUSION : ROUTE_ORAL;
+      doseAmountMg[i] = d.amountMg;
+      doseDurationH[i] = d.route === 'infusion' ? d.durationH : 0;
+      doseIntervalH[i] = d.steadyStateIntervalH ?? 0;
+    }
     if (d.steadyStateIntervalH !== undefined) evs.push({ t: d.timeH, kind: EV_RESET, value: i, epoch, order: order++ });
     if (d.route === 'bolus') evs.push({ t: d.timeH, kind: EV_BOLUS, value: d.amountMg, epoch, order: order++ });
     else if (d.route === 'infusion') {
