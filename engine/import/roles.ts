@@ -121,6 +121,8 @@ const HEADER_RULES: readonly [Role, RegExp][] = [
   ['covariate', CRCL_HEADER],
   ['creatinine', /(creat|krea|\bscr\b)/],
   ['infusionDuration', /(duration|dauer|duree|\blength of infusion|infusion time|over \(?(min|h))/],
+  // "Infusion (min)", "Perfusion [h]": an infusion column whose header names a time unit is its duration.
+  ['infusionDuration', /(infus|perfus|drip).*[([]\s*(min|mins|minutes|h|hr|hrs|hours|std)\s*[)\]]/],
   ['infusionRate', /(\brate\b|infusion speed|laufrate|debit|snelheid)/],
   ['infusionStart', /(infusion|infus).*(start|begin)|^(start|begin)(\s|$)/],
   ['infusionEnd', /(infusion|infus).*(end|stop|finish)|^(end|stop|ende|fin)(\s|$)/],

@@ -6,6 +6,8 @@
 import * as XLSX from 'xlsx';
 import { readXlsxEntries, type ZipEntries } from './xlsxFast.js';
 import { serialToWallMs } from './values.js';
+import { compareWithParsed, walkXls, type XlsWalk } from './xlsCheck.js';
+import { lastLineMessage } from '../data/rules.js';
 
 export type CellKind = 'number' | 'date' | 'text' | 'boolean' | 'error';
 
@@ -27,9 +29,19 @@ export interface SheetModel {
   truncated: boolean;
 }
 
+/** Damage found by comparing what the file declares with what was read: always an error. */
+export interface SheetDamage {
+  sheet: string;
+  /** 1-based row of the first unreadable place, when known. */
+  row?: number;
+  message: string;
+}
+
 export interface WorkbookModel {
   format: 'xlsx' | 'xls' | 'ods' | 'csv' | 'other';
   sheets: SheetModel[];
+  /** Damage found while reading (the rows read are then not the whole file). */
+  damage?: SheetDamage[];
   /** Workbook uses the 1904 date system (serials then count from 1904-01-01). */
   date1904: boolean;
 }
@@ -213,9 +225,16 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
     const fast = readXlsxFast(bytes, options, maxChars);
     if (fast) return fast;
   }
+  let walk: XlsWalk | undefined;
+  if (format === 'xls') {
+    // BIFF has no checksums: walk the records first, so damage is named instead of read as data.
+    walk = walkXls(bytes);
+    if (walk.fatal) throw new WorkbookError(walk.fatal);
+  }
+  const text = format === 'csv' ? decodeText(bytes) : undefined;
   let wb: XLSX.WorkBook;
   try {
-    const input = format === 'csv' ? decodeText(bytes) : bytes;
+    const input = text ?? bytes;
     wb = XLSX.read(input, {
       type: format === 'csv' ? 'string' : 'array',
       dense: true,
@@ -230,13 +249,15 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
       raw: format === 'csv',
       sheetRows: options.maxRows !== undefined ? options.maxRows + 1 : 0,
     });
-  } catch (e) {
-    const why = e instanceof Error ? e.message : String(e);
-    throw new WorkbookError(`the file could not be read as a ${format === 'csv' ? 'text (CSV)' : format} spreadsheet (${why}): it may be damaged, password-protected or truncated; save it again as .xlsx or .csv`);
+  } catch {
+    // The parser's own exception text means nothing to a user ("Cannot set properties of undefined").
+    throw new WorkbookError(`the file could not be read as a ${format === 'csv' ? 'text (CSV)' : `.${format}`} spreadsheet: it is damaged, cut short or password-protected; save it again from the spreadsheet program as .xlsx or .csv`);
   }
   const names = Array.isArray(wb.SheetNames) ? wb.SheetNames : [];
   if (names.length === 0) throw new WorkbookError('the workbook has no sheets');
   const sheets: SheetModel[] = [];
+  const damage: SheetDamage[] = [];
+  const rawData = new Map<string, XLSX.CellObject[][]>();
   const date1904 = Boolean((wb as { Workbook?: { WBProps?: { date1904?: boolean } } }).Workbook?.WBProps?.date1904);
   const formatIsDate = new Map<string, boolean>();
   const isDateFormat = (fmt: string): boolean => {
@@ -250,6 +271,7 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
   for (const name of names) {
     const ws = (wb.Sheets as Record<string, XLSX.WorkSheet | undefined>)[name];
     const data = ws ? ((ws as unknown as { '!data'?: XLSX.CellObject[][] })['!data'] ?? []) : [];
+    if (ws) rawData.set(String(name), data);
     const rows: (Cell | undefined)[][] = new Array(data.length);
     let columnCount = 0;
     const cap = options.maxRows ?? Infinity;
@@ -272,7 +294,29 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
     rows.length = n;
     sheets.push({ name: String(name), rows, columnCount, truncated: data.length > cap });
   }
-  return { format, sheets, date1904 };
+  if (walk) {
+    const cap = options.maxRows ?? Infinity;
+    damage.push(...walk.damage);
+    damage.push(
+      ...compareWithParsed(
+        walk,
+        names.map((nm) => {
+          const data = rawData.get(String(nm));
+          return { name: String(nm), sheetExists: data !== undefined, rowsWithCells: (r: number) => r >= cap || Boolean(data?.[r]?.some((c) => c !== undefined && c !== null)) };
+        }),
+      ),
+    );
+  }
+  if (text !== undefined && sheets.length > 0) {
+    // A text file cut short ends inside a row, without its line break.
+    const last = text.charCodeAt(text.length - 1);
+    const body = text.replace(/^\uFEFF/, '');
+    if (body.trim() !== '' && last !== 10 && last !== 13) {
+      const lines = body.split(/\r\n|\r|\n/).length;
+      damage.push({ sheet: sheets[0].name, row: lines, message: lastLineMessage(lines) });
+    }
+  }
+  return damage.length ? { format, sheets, date1904, damage } : { format, sheets, date1904 };
 }
 
 function readXlsxFast(bytes: Uint8Array, options: ReadOptions, maxCellChars: number): WorkbookModel | undefined {
@@ -287,7 +331,8 @@ function readXlsxFast(bytes: Uint8Array, options: ReadOptions, maxCellChars: num
       };
     }
     const r = readXlsxEntries(entries, { maxRows: options.maxRows, maxCellChars, serialText, decode: options.decodeUtf8 ?? decodeText });
-    return r ? { format: 'xlsx', sheets: r.sheets, date1904: r.date1904 } : undefined;
+    if (!r) return undefined;
+    return r.damage.length ? { format: 'xlsx', sheets: r.sheets, date1904: r.date1904, damage: r.damage } : { format: 'xlsx', sheets: r.sheets, date1904: r.date1904 };
   } catch {
     // Not a package the direct reader understands: SheetJS gets it (and reports what is wrong).
     return undefined;

@@ -8,6 +8,7 @@
 import { promises as fs } from 'node:fs';
 import * as path from 'node:path';
 import { parseCanonicalCsv } from '../../engine/data/canonicalCsv.js';
+import { isCanonicalCsv } from '../../engine/import/analyse.js';
 import { DataError, type Dataset } from '../../engine/data/types.js';
 
 export interface LoadDatasetOptions {
@@ -73,6 +74,8 @@ export async function loadDataset(file: string, options: LoadDatasetOptions = {}
     if (code === 'EISDIR') throw new DatasetLoadError(file, `${file} is a folder, not a data file`);
     throw new DatasetLoadError(file, `cannot read ${file}: ${(e as Error).message}`);
   }
+  // Any other CSV is an export: it goes the way `check` reads it (suggested mapping, same rules).
+  if (!isCanonicalCsv(text)) return (await spreadsheetLoader(file))(file, undefined);
   try {
     return parseCanonicalCsv(text);
   } catch (e) {
