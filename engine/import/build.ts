@@ -128,6 +128,8 @@ interface PatientAcc {
   covariates: Map<string, CovEntry>;
   covariateWarned: Set<string>;
   birthMs?: CovEntry & { ms: number };
+  /** Dose rows of this patient refused with an error (the first-dose rule is then not judged). */
+  refusedDoseRows: number;
 }
 
 /** Import: bind the template, read every row, check, and build the dataset. */
@@ -154,7 +156,7 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
   const patientOf = (id: string): PatientAcc => {
     let p = patients.get(id);
     if (!p) {
-      p = { id, order: patients.size, events: [], covariates: new Map(), covariateWarned: new Set() };
+      p = { id, order: patients.size, events: [], covariates: new Map(), covariateWarned: new Set(), refusedDoseRows: 0 };
       patients.set(id, p);
     }
     return p;
@@ -265,6 +267,7 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
         if (level && time) ev = { kind, t: time.t, basis: time.basis, sheet: sheetName, row: ctx.row, timeColumn: time.column, level, key: levelKey(time.t, level.valueMgL, level.censored) };
       }
       if (ctx.errors > 0 || !ev) {
+        if (kind === 'dose') pat.refusedDoseRows++;
         excluded.push({ sheet: sheetName, row: ctx.row, reason: firstError(problems, ctx) });
         continue;
       }
@@ -341,6 +344,10 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
         const where = firstDose ? `${describeT(firstDose)}, ${firstDose.sheet} row ${firstDose.row}` : undefined;
         if (e.level!.censored && where) {
           evProblem(e, 'warning', censoredBeforeFirstDoseMessage(pat.id, where));
+        } else if (pat.refusedDoseRows > 0) {
+          // The patient's dose rows have errors of their own: the level cannot be judged until they are fixed.
+          rowExcluded(e.sheet, e.row, `patient ${pat.id}'s dose rows have errors (see the problems), so this level cannot be placed yet`);
+          continue;
         } else {
           evProblem(e, 'error', levelBeforeFirstDoseMessage(pat.id, where));
           rowExcluded(e.sheet, e.row, firstDose ? 'level before the first dose' : 'no dose for this patient');

@@ -7,6 +7,7 @@ import type { Route } from '../data/types.js';
 import { detectHeaderRow, profileColumns, columnLetter, type ColumnProfile, type ColumnType, type SheetModel, type WorkbookModel } from './workbook.js';
 import { foldText, normaliseUnit, levelFactorToMgL, doseFactorToMg, creatinineFactorToUmolL, DEFAULT_EXCLUDE_WORDS, type ClockChangeRule, type DateOrder, type DecimalSeparator } from './values.js';
 import defaults from '../../resources/import/importDefaults.json' with { type: 'json' };
+import { unknownKeyProblems } from '../json/knownKeys.js';
 
 export const ROLES = [
   'patientId',
@@ -379,10 +380,17 @@ function isRecord(x: unknown): x is Record<string, unknown> {
   return typeof x === 'object' && x !== null && !Array.isArray(x);
 }
 
+const TEMPLATE_KEYS = ['format', 'version', 'sheets', 'options'];
+const SHEET_KEYS = ['sheet', 'content', 'headerRow', 'columns'];
+const COLUMN_KEYS = ['role', 'header', 'column', 'name', 'unit', 'type', 'note'];
+const OPTION_KEYS = ['dateOrder', 'decimalSeparator', 'drug', 'molarMassGPerMol', 'defaultLloqMgL', 'defaultRoute', 'clockChanges', 'maxGapH', 'excludeCommentWords'];
+
 /** Validate a parsed JSON value as a mapping template; every problem with its JSON path. */
 export function parseTemplate(json: unknown): MappingTemplate {
   const p: string[] = [];
   if (!isRecord(json)) throw new TemplateError(['$: expected an object']);
+  // Strict keys: a misspelt key ("defaultRout") is named with the nearest known key, never ignored.
+  p.push(...unknownKeyProblems(json, TEMPLATE_KEYS, '$'));
   if (json.format !== 'plateau-import-mapping') p.push('$.format: expected "plateau-import-mapping"');
   if (json.version !== 1) p.push(`$.version: expected 1, got ${JSON.stringify(json.version)}`);
   const sheets: SheetMapping[] = [];
@@ -391,6 +399,7 @@ export function parseTemplate(json: unknown): MappingTemplate {
     json.sheets.forEach((s: unknown, i: number) => {
       const at = `$.sheets[${i}]`;
       if (!isRecord(s)) return void p.push(`${at}: expected an object`);
+      p.push(...unknownKeyProblems(s, SHEET_KEYS, at));
       if (typeof s.sheet !== 'string' || s.sheet === '') p.push(`${at}.sheet: expected the sheet name`);
       if (typeof s.content !== 'string' || !CONTENTS.has(s.content)) p.push(`${at}.content: expected doses, levels, events or patients`);
       if (!(Number.isInteger(s.headerRow) && (s.headerRow as number) >= 1)) p.push(`${at}.headerRow: expected a row number >= 1`);
@@ -400,6 +409,7 @@ export function parseTemplate(json: unknown): MappingTemplate {
         s.columns.forEach((c: unknown, j: number) => {
           const cat = `${at}.columns[${j}]`;
           if (!isRecord(c)) return void p.push(`${cat}: expected an object`);
+          p.push(...unknownKeyProblems(c, COLUMN_KEYS, cat));
           if (typeof c.role !== 'string' || !ROLE_SET.has(c.role)) p.push(`${cat}.role: unknown role ${JSON.stringify(c.role)} (one of ${ROLES.join(', ')})`);
           if (typeof c.header !== 'string') p.push(`${cat}.header: expected the header text`);
           if (c.column !== undefined && typeof c.column !== 'string') p.push(`${cat}.column: expected a column letter`);
@@ -415,6 +425,7 @@ export function parseTemplate(json: unknown): MappingTemplate {
     });
   const o = isRecord(json.options) ? json.options : {};
   if (json.options !== undefined && !isRecord(json.options)) p.push('$.options: expected an object');
+  p.push(...unknownKeyProblems(o, OPTION_KEYS, '$.options'));
   const options = defaultOptions();
   if (o.dateOrder !== undefined) {
     if (o.dateOrder === 'dayFirst' || o.dateOrder === 'monthFirst' || o.dateOrder === 'auto') options.dateOrder = o.dateOrder;
