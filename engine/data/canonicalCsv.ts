@@ -148,8 +148,9 @@ export function parseCanonicalCsv(text: string): Dataset {
   return parseCanonicalCsvDetailed(text).dataset;
 }
 
-export function parseCanonicalCsvDetailed(text: string): CanonicalCsvParseResult {
-  const problems: DataProblem[] = [];
+export function parseCanonicalCsvDetailed(text: string, encodingDamage?: { line: number; message: string }): CanonicalCsvParseResult {
+  // Bytes that were not valid text (found by the caller that decoded them) are damage like any other.
+  const problems: DataProblem[] = encodingDamage ? [{ row: encodingDamage.line, message: encodingDamage.message }] : [];
   if (typeof text !== 'string' || text.replace(/^\uFEFF/, '').trim() === '') {
     throw new DataError([{ message: 'the file is empty: expected a header line with subject, time_h, event, ...' }]);
   }

@@ -8,7 +8,7 @@ import { suggestMapping, parseTemplate, type ImportOptions, type MappingTemplate
 import { importWorkbook, type ImportReport } from './build.js';
 import { DataError, type Dataset } from '../data/types.js';
 import { parseCanonicalCsvDetailed, parseCsvRecords } from '../data/canonicalCsv.js';
-import { decodeText } from './workbook.js';
+import { decodeTextChecked } from './workbook.js';
 import type { ReportProblem } from './roles.js';
 
 export interface AnalyseOptions extends ReadOptions {
@@ -49,8 +49,8 @@ export function analyseWorkbook(bytes: Uint8Array, options: AnalyseOptions = {})
   // Overrides come from flags or a message: validate them like a template's options.
   if (template.sheets.length > 0) template = parseTemplate(JSON.parse(JSON.stringify(template)));
   if (model.format === 'csv' && options.mapping === undefined) {
-    const text = decodeText(bytes);
-    if (isCanonicalCsv(text)) return analyseCanonical(text, preview, template, skippedSheets);
+    const decoded = decodeTextChecked(bytes);
+    if (isCanonicalCsv(decoded.text)) return analyseCanonical(decoded.text, preview, template, skippedSheets, decoded.damage);
   }
   if (template.sheets.length === 0) {
     const report: ImportReport = {
@@ -104,13 +104,13 @@ export function isCanonicalCsv(text: string): boolean {
  * A canonical CSV is read by the canonical reader, the one `fit` and `simulate` use, so `check`
  * and those commands accept and refuse the same files with the same messages.
  */
-function analyseCanonical(text: string, preview: Analysis['preview'], suggestion: MappingTemplate, skippedSheets: string[]): Analysis {
+function analyseCanonical(text: string, preview: Analysis['preview'], suggestion: MappingTemplate, skippedSheets: string[], encodingDamage?: { line: number; message: string }): Analysis {
   const notes = [
     "The file is Plateau's canonical CSV (columns subject, time_h, event): it is read by the same reader as fit and simulate, with the same rules. The mapping shown is only a starting point if you save one.",
   ];
   const base = { preview, mapping: suggestion, suggested: true, skippedSheets };
   try {
-    const r = parseCanonicalCsvDetailed(text);
+    const r = parseCanonicalCsvDetailed(text, encodingDamage);
     let doses = 0;
     let levels = 0;
     let censored = 0;

@@ -12,7 +12,7 @@
 import { createDataset, type SubjectInput } from '../data/dataset.js';
 import { censoredBeforeFirstDoseMessage, censoredDisagreement, doseKey, duplicateMessage, levelBeforeFirstDoseMessage, levelKey, parseCensoredFlag } from '../data/rules.js';
 import { DataError, type CovariateValue, type Dataset, type Dose, type Observation, type Route } from '../data/types.js';
-import type { Cell, WorkbookModel } from './workbook.js';
+import { columnLetter, type Cell, type WorkbookModel } from './workbook.js';
 import { bindTemplate, columnLabel, refreshTemplate, type BoundColumn, type BoundSheet, type MappingTemplate, type ReportProblem, type Role } from './roles.js';
 import { cockcroftGault, scrUmolToMgDl, COCKCROFT_GAULT_LABEL } from '../dosing/renal.js';
 import {
@@ -182,6 +182,7 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
     const sheetName = b.sheet.name;
     const rows = b.sheet.rows;
     const mappedIdx: number[] = [...b.columns.values(), ...b.covariates].map((c) => c.index);
+    const headerWidth = (rows[b.headerIndex] ?? []).length;
 
     for (let r = b.headerIndex + 1; r < rows.length; r++) {
       const cells = rows[r] ?? [];
@@ -196,6 +197,15 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
         continue;
       }
       const ctx: RowCtx = { sheet: sheetName, row: r + 1, cells, errors: 0 };
+      if (model.format === 'csv' && cells.length > headerWidth) {
+        // A CSV line with more fields than its header: two lines merged by a damaged line break,
+        // or a stray separator. Its values cannot be placed in columns: an error, never ignored.
+        for (let c = headerWidth; c < cells.length; c++)
+          if (!isBlank(cells[c])) {
+            problem(ctx, undefined, 'error', `this line has a value in column ${columnLetter(c)}, beyond the header's last column (${columnLetter(headerWidth - 1)}): a separator or line break in the file may be damaged; compare the line with the source`, cellText(cells[c]).slice(0, 200));
+            break;
+          }
+      }
       const pid = cellText(cells[cPid.index]);
       if (pid === '') {
         problem(ctx, cPid, 'error', 'the patient id is empty: fill it in or delete the row');

@@ -139,3 +139,17 @@ describe('a bad shared-string index (tests/fixtures/import/ward7b_one_sheet.xlsx
     expect(model.damage?.[0].message).toMatch(/shared string/);
   });
 });
+
+describe('a broken byte in a UTF-8 file (tests/fixtures/import/ward7b_german.csv)', () => {
+  it('is named as damage, not read as Latin-1 (which changed every accented letter silently)', () => {
+    const bytes = new Uint8Array(fixtureBytes('ward7b_german.csv'));
+    const text = new TextDecoder().decode(bytes);
+    expect(text).toMatch(/[äöüÄÖÜß]/); // the fixture holds UTF-8 letters
+    const at = bytes.indexOf(0x0a, 200) + 3; // inside a data line
+    bytes[at] = 0xff; // never valid in UTF-8
+    const a = analyseWorkbook(bytes);
+    const damage = a.report.problems.filter((p) => p.severity === 'error' && /not valid UTF-8/.test(p.message));
+    expect(damage.length).toBe(1);
+    expect(damage[0].message).toMatch(/line \d+/);
+  });
+});
