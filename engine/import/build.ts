@@ -815,7 +815,7 @@ function readCovariates(b: BoundSheet, ctx: RowCtx, pat: PatientAcc, problem: Pr
   };
   numeric('weight', 'kg', weightFactorToKg);
   numeric('height', 'cm', heightFactorToCm);
-  numeric('age', 'years', (u) => (u === '' || /^(y|yr|yrs|year|years|jahre|ans|jaar)$/i.test(u.trim()) ? { ok: true, value: 1 } : { ok: false, message: `unknown age unit "${u}" (years)` }));
+  numeric('age', 'years', ageFactorToYears);
   numeric('creatinine', 'umol/L', (u) => (u === '' ? { ok: false, message: 'the creatinine unit is missing: write it in the column header, e.g. "Creatinine (umol/L)" or "(mg/dL)", or add a unit column' } : creatinineFactorToUmolL(u)), 'creatinineUnit');
 
   const cs = b.columns.get('sex');
@@ -840,6 +840,16 @@ function readCovariates(b: BoundSheet, ctx: RowCtx, pat: PatientAcc, problem: Pr
     const n = parseNumberCell(cell);
     setCov(name, n.ok ? n.value : cellText(cell).slice(0, 200), col, false);
   }
+}
+
+/** Age units to years (a month is 1/12 year; a week 7 and a day 1 of 365.25 days, common practice). */
+function ageFactorToYears(unit: string): Parsed<number> {
+  const u = unit.trim().toLowerCase();
+  if (u === '' || /^(y|yr|yrs|year|years|jahre|ans|jaar|a)$/.test(u)) return { ok: true, value: 1 };
+  if (/^(mo|mon|month|months|monate|mois|maanden)$/.test(u)) return { ok: true, value: 1 / 12 };
+  if (/^(w|wk|wks|week|weeks|wochen|semaines)$/.test(u)) return { ok: true, value: 7 / 365.25 };
+  if (/^(d|day|days|tage|jours|dagen)$/.test(u)) return { ok: true, value: 1 / 365.25 };
+  return { ok: false, message: `unknown age unit "${unit}" (years, months, weeks or days): write the unit in the column header, e.g. "Age (years)"` };
 }
 
 /** Columns of a bound sheet that are not imported, each named with the reason (nothing is left out silently). */

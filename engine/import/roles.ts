@@ -159,7 +159,7 @@ export function unitFromHeader(header: string): string | undefined {
   if (tail) candidates.push(tail[1]);
   for (const c of candidates) {
     const u = normaliseUnit(c);
-    if (levelFactorToMgL(u, 1).ok || doseFactorToMg(u).ok || creatinineFactorToUmolL(u).ok || ['kg', 'g', 'lb', 'cm', 'm', 'in', 'h', 'min', 'mg/h', 'y', 'years'].includes(u))
+    if (levelFactorToMgL(u, 1).ok || doseFactorToMg(u).ok || creatinineFactorToUmolL(u).ok || ['kg', 'g', 'lb', 'cm', 'm', 'in', 'h', 'min', 'mg/h', 'y', 'years', 'months', 'weeks', 'days'].includes(u))
       return c.trim();
   }
   return undefined;
@@ -295,7 +295,13 @@ export function suggestSheet(sheet: SheetModel): SheetSuggestion {
     if (note) col.note = note;
     if (role === 'covariate') col.name = CRCL_HEADER.test(h) && !/l\s*\/\s*h/.test(h) ? 'crcl_mL_min' : canonicalCovariateName(p.header);
     const unit = unitFromHeader(p.header);
-    if (unit && ['doseAmount', 'levelValue', 'lloq', 'creatinine', 'weight', 'height', 'infusionDuration', 'infusionRate', 'elapsedH'].includes(role)) col.unit = unit;
+    if (unit && ['doseAmount', 'levelValue', 'lloq', 'creatinine', 'weight', 'height', 'age', 'infusionDuration', 'infusionRate', 'elapsedH'].includes(role)) col.unit = unit;
+    else if (['weight', 'height', 'age'].includes(role)) {
+      // These have a default unit (kg, cm, years): a bracketed unit Plateau does not know
+      // ("Age (months)", "Weight (st)") is kept, so the import names it instead of assuming the default.
+      const bracket = /[([]\s*([^)\]]{1,16})\s*[)\]]/.exec(p.header);
+      if (bracket) col.unit = bracket[1].trim();
+    }
     columns.push(col);
   }
   // A date column that carries times of day is a date-time column.

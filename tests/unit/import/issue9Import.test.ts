@@ -107,3 +107,21 @@ describe('mapping templates are strict', () => {
     expect(problems).toContain('$.options.defaultRout: unknown key (did you mean "defaultRoute"?)');
   });
 });
+
+describe('any unit in a header is read and converted, or named when unknown', () => {
+  it('"Age (months)" is converted to years; "Weight (st)" is an error, not kilograms', () => {
+    const r = exportRows();
+    const a = col(r, 'age_y');
+    r[0][a] = 'Age (months)';
+    for (let i = 1; i < r.length; i++) r[i][a] = String(Number(r[i][a]) * 12);
+    const res = analyseWorkbook(enc(toCsv(r)));
+    expect(res.report.problems.filter((p) => p.severity === 'error')).toEqual([]);
+    expect(res.dataset!.subjects[0].covariates.age_y).toBeCloseTo(57, 9); // the demo's first patient: 57 years
+    const w = exportRows();
+    w[0][col(w, 'weight_kg')] = 'Weight (st)';
+    const bad = analyseWorkbook(enc(toCsv(w)));
+    const errors = bad.report.problems.filter((p) => p.severity === 'error');
+    expect(errors.length).toBeGreaterThan(0);
+    expect(errors.some((e) => /unknown weight unit "st"/.test(e.message))).toBe(true);
+  });
+});
