@@ -10,6 +10,7 @@
  */
 import { createDataset, type SubjectInput } from './dataset.js';
 import { DataError, type CovariateValue, type DataProblem, type Dataset, type Dose, type Observation, type Route } from './types.js';
+import { doseKey, duplicateMessage, lastLineMessage, levelBeforeFirstDoseMessage, levelKey, parseCensoredFlag } from './rules.js';
 
 export const CANONICAL_COLUMNS = ['subject', 'time_h', 'event', 'amount_mg', 'duration_h', 'conc_mg_L', 'censored', 'lloq_mg_L'] as const;
 export const OPTIONAL_COLUMNS = ['route', 'ss_interval_h', 'grid'] as const;
@@ -147,13 +148,17 @@ export function parseCanonicalCsv(text: string): Dataset {
   return parseCanonicalCsvDetailed(text).dataset;
 }
 
-export function parseCanonicalCsvDetailed(text: string): CanonicalCsvParseResult {
-  const problems: DataProblem[] = [];
+export function parseCanonicalCsvDetailed(text: string, encodingDamage?: { line: number; message: string }): CanonicalCsvParseResult {
+  // Bytes that were not valid text (found by the caller that decoded them) are damage like any other.
+  const problems: DataProblem[] = encodingDamage ? [{ row: encodingDamage.line, message: encodingDamage.message }] : [];
   if (typeof text !== 'string' || text.replace(/^\uFEFF/, '').trim() === '') {
     throw new DataError([{ message: 'the file is empty: expected a header line with subject, time_h, event, ...' }]);
   }
   const records = parseCsvRecords(text, problems);
   if (records.length === 0) throw new DataError(problems.length ? problems : [{ message: 'the file has no header line' }]);
+  // Damage: a text file cut short usually ends inside a row, without its line break.
+  const lastChar = text.charCodeAt(text.length - 1);
+  if (lastChar !== 10 && lastChar !== 13) problems.push({ row: records[records.length - 1].line, message: lastLineMessage(records[records.length - 1].line) });
 
   const header = records[0];
   const columnOf = new Map<KnownColumn, number>();
@@ -201,6 +206,7 @@ export function parseCanonicalCsvDetailed(text: string): CanonicalCsvParseResult
   }
   const subjects = new Map<string, Building>();
   let skippedGridRows = 0;
+  const subjectsWithRowErrors = new Set<string>();
 
   for (const record of records.slice(1)) {
     const { line, fields } = record;
@@ -261,8 +267,9 @@ export function parseCanonicalCsvDetailed(text: string): CanonicalCsvParseResult
       } else problems.push({ ...at('route', sid), message: `route must be iv or oral, got "${get(fields, 'route')}"` });
       const ss = optionalNumber('ss_interval_h', 'positive');
       if (get(fields, 'conc_mg_L') !== '') problems.push({ ...at('conc_mg_L', sid), message: 'a dose row has no level: leave conc_mg_L empty (put the level on its own "level" row)' });
-      const cens = get(fields, 'censored').toLowerCase();
-      if (cens === '1' || cens === 'true') problems.push({ ...at('censored', sid), message: 'a dose row cannot be censored' });
+      const cens = parseCensoredFlag(get(fields, 'censored'));
+      if (!cens.ok) problems.push({ ...at('censored', sid), message: cens.message });
+      else if (cens.value) problems.push({ ...at('censored', sid), message: 'a dose row cannot be censored' });
       if (problems.length === before && timeH !== undefined && amountMg !== undefined) {
         dose = {
           timeH,
@@ -274,11 +281,9 @@ export function parseCanonicalCsvDetailed(text: string): CanonicalCsvParseResult
         };
       }
     } else if (eventText === 'level') {
-      const censText = get(fields, 'censored').toLowerCase();
-      let censored = false;
-      if (censText === '1' || censText === 'true') censored = true;
-      else if (!(censText === '' || censText === '0' || censText === 'false'))
-        problems.push({ ...at('censored', sid), message: `censored must be 1, 0, true, false or empty, got "${get(fields, 'censored')}"` });
+      const flag = parseCensoredFlag(get(fields, 'censored'));
+      const censored = flag.ok && flag.value;
+      if (!flag.ok) problems.push({ ...at('censored', sid), message: flag.message });
       const lloq = optionalNumber('lloq_mg_L', 'positive');
       const concText = get(fields, 'conc_mg_L');
       let value: number | undefined;
@@ -305,6 +310,7 @@ export function parseCanonicalCsvDetailed(text: string): CanonicalCsvParseResult
     }
 
     if (!sid) continue;
+    if (problems.length > before) subjectsWithRowErrors.add(sid);
     let b = subjects.get(sid);
     if (!b) {
       b = { input: { id: sid, covariates: Object.create(null) as Record<string, CovariateValue>, doses: [], observations: [] }, covLines: new Map() };
@@ -331,10 +337,37 @@ export function parseCanonicalCsvDetailed(text: string): CanonicalCsvParseResult
     if (observation) b.input.observations.push(observation);
   }
 
-  if (problems.length) throw new DataError(problems);
+  // The first-dose rule is only meaningful on a subject whose rows all read (a refused dose row would mislead it).
+  for (const b of subjects.values()) problems.push(...timelineProblems(b.input, !subjectsWithRowErrors.has(b.input.id)));
+  if (problems.length) throw new DataError(problems.sort((a, b) => (a.row ?? 0) - (b.row ?? 0)));
   if (subjects.size === 0) throw new DataError([{ message: skippedGridRows ? 'the file holds only grid rows (simulated curve points), no data' : 'the file has a header but no data rows' }]);
   const dataset = createDataset([...subjects.values()].map((b) => b.input), covariateColumns.map((c) => c.name));
   return { dataset, skippedGridRows };
+}
+
+/** The shared rules on one subject's rows (engine/data/rules.ts): duplicates, levels before the first dose. */
+function timelineProblems(s: SubjectInput, checkFirstDose: boolean): DataProblem[] {
+  const out: DataProblem[] = [];
+  const seen = new Map<string, number | undefined>();
+  for (const d of s.doses) {
+    const k = doseKey(d.timeH, d.amountMg, d.route, d.durationH);
+    if (seen.has(k)) out.push({ row: d.sourceRow, subject: s.id, field: 'time_h', message: duplicateMessage('dose', `line ${seen.get(k)}`) });
+    else seen.set(k, d.sourceRow);
+  }
+  for (const o of s.observations) {
+    const k = levelKey(o.timeH, o.valueMgL, o.censored);
+    if (seen.has(k)) out.push({ row: o.sourceRow, subject: s.id, field: 'time_h', message: duplicateMessage('level', `line ${seen.get(k)}`) });
+    else seen.set(k, o.sourceRow);
+  }
+  if (!checkFirstDose) return out;
+  let first: Dose | undefined;
+  for (const d of s.doses) if (!first || d.timeH < first.timeH) first = d;
+  for (const o of s.observations) {
+    if (first && o.timeH >= first.timeH) continue;
+    if (first && o.censored) continue; // a pre-dose level below the LLOQ is consistent with no drug
+    out.push({ row: o.sourceRow, subject: s.id, field: 'time_h', message: levelBeforeFirstDoseMessage(s.id, first ? `time_h ${first.timeH}, line ${first.sourceRow}` : undefined) });
+  }
+  return out;
 }
 
 export interface WriteCanonicalCsvOptions {

@@ -3,6 +3,7 @@
  * amounts mg, concentrations mg/L. Build datasets through `createDataset` (dataset.ts), which
  * validates every record; the types alone promise nothing about the values.
  */
+import { printable } from '../text/printable.js';
 
 /** How a dose enters the body. `bolus` and `infusion` go into the central compartment. */
 export type Route = 'bolus' | 'infusion' | 'oral';
@@ -73,6 +74,7 @@ export class DataError extends Error {
     this.problems = problems;
     if (source !== undefined) this.source = source;
   }
+  /** Text from files (subject ids, cell values) is printed with control characters escaped. */
   static describe(problems: readonly DataProblem[], source?: string): string {
     const shown = problems.slice(0, 20).map((p) => {
       const where = [
@@ -82,9 +84,9 @@ export class DataError extends Error {
       ]
         .filter(Boolean)
         .join(', ');
-      return where ? `${where}: ${p.message}` : p.message;
+      return printable(where ? `${where}: ${p.message}` : p.message);
     });
     const more = problems.length > 20 ? `\n... and ${problems.length - 20} more` : '';
-    return `${problems.length} problem(s) in the data${source !== undefined ? ` (${source})` : ''}:\n${shown.join('\n')}${more}`;
+    return `${problems.length} problem(s) in the data${source !== undefined ? ` (${printable(source)})` : ''}:\n${shown.join('\n')}${more}`;
   }
 }

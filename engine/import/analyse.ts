@@ -6,7 +6,10 @@
 import { readWorkbook, previewWorkbook, type ReadOptions, type SheetPreview } from './workbook.js';
 import { suggestMapping, parseTemplate, type ImportOptions, type MappingTemplate } from './roles.js';
 import { importWorkbook, type ImportReport } from './build.js';
-import type { Dataset } from '../data/types.js';
+import { DataError, type Dataset } from '../data/types.js';
+import { parseCanonicalCsvDetailed, parseCsvRecords } from '../data/canonicalCsv.js';
+import { decodeTextChecked } from './workbook.js';
+import type { ReportProblem } from './roles.js';
 
 export interface AnalyseOptions extends ReadOptions {
   /** A template to apply (parsed JSON, validated here); without one the suggestion is used. */
@@ -45,6 +48,10 @@ export function analyseWorkbook(bytes: Uint8Array, options: AnalyseOptions = {})
   }
   // Overrides come from flags or a message: validate them like a template's options.
   if (template.sheets.length > 0) template = parseTemplate(JSON.parse(JSON.stringify(template)));
+  if (model.format === 'csv' && options.mapping === undefined) {
+    const decoded = decodeTextChecked(bytes);
+    if (isCanonicalCsv(decoded.text)) return analyseCanonical(decoded.text, preview, template, skippedSheets, decoded.damage);
+  }
   if (template.sheets.length === 0) {
     const report: ImportReport = {
       mapping: template,
@@ -53,6 +60,7 @@ export function analyseWorkbook(bytes: Uint8Array, options: AnalyseOptions = {})
       excluded: [],
       notes: skippedSheets.map((s) => `Left out: ${s}.`),
     };
+    for (const d of model.damage ?? []) report.problems.push({ sheet: d.sheet, row: d.row ?? 0, column: '', value: '', severity: 'error', message: `damaged file: ${d.message}` });
     listUnimported(report, unimported);
     return { preview, mapping: template, suggested, skippedSheets, dataset: undefined, report };
   }
@@ -81,5 +89,63 @@ function listUnimported(report: ImportReport, unimported: ReturnType<typeof sugg
         report.excluded.push({ sheet: u.sheet.name, row: r + 1, reason: 'sheet not imported: no patient id column' });
         report.summary.excludedRows++;
       }
+  }
+}
+
+/** True when the first line of a CSV is Plateau's canonical header (subject, time_h and event columns). */
+export function isCanonicalCsv(text: string): boolean {
+  const firstLine = text.slice(0, Math.min(text.length, 10_000)).split(/\r\n|\r|\n/)[0] ?? '';
+  const records = parseCsvRecords(firstLine + '\n', []);
+  const names = new Set((records[0]?.fields ?? []).map((f) => f.trim().toLowerCase()));
+  return names.has('subject') && names.has('time_h') && names.has('event');
+}
+
+/**
+ * A canonical CSV is read by the canonical reader, the one `fit` and `simulate` use, so `check`
+ * and those commands accept and refuse the same files with the same messages.
+ */
+function analyseCanonical(text: string, preview: Analysis['preview'], suggestion: MappingTemplate, skippedSheets: string[], encodingDamage?: { line: number; message: string }): Analysis {
+  const notes = [
+    "The file is Plateau's canonical CSV (columns subject, time_h, event): it is read by the same reader as fit and simulate, with the same rules. The mapping shown is only a starting point if you save one.",
+  ];
+  const base = { preview, mapping: suggestion, suggested: true, skippedSheets };
+  try {
+    const r = parseCanonicalCsvDetailed(text, encodingDamage);
+    let doses = 0;
+    let levels = 0;
+    let censored = 0;
+    for (const s of r.dataset.subjects) {
+      doses += s.doses.length;
+      levels += s.observations.length;
+      for (const o of s.observations) if (o.censored) censored++;
+    }
+    if (r.skippedGridRows > 0) notes.push(`${r.skippedGridRows} row(s) marked grid = 1 (simulated curve points) are not data and were skipped.`);
+    return {
+      ...base,
+      dataset: r.dataset,
+      report: { mapping: suggestion, summary: { patients: r.dataset.subjects.length, doses, levels, censored, excludedRows: 0 }, problems: [], excluded: [], notes },
+    };
+  } catch (e) {
+    if (!(e instanceof DataError)) throw e;
+    const problems: ReportProblem[] = e.problems.map((p) => ({
+      sheet: '',
+      row: p.row ?? 0,
+      column: p.field ?? '',
+      value: '',
+      severity: 'error',
+      message: `${p.subject !== undefined ? `subject ${p.subject}: ` : ''}${p.message}`,
+    }));
+    const rows = new Set(problems.filter((p) => p.row > 0).map((p) => p.row));
+    return {
+      ...base,
+      dataset: undefined,
+      report: {
+        mapping: suggestion,
+        summary: { patients: 0, doses: 0, levels: 0, censored: 0, excludedRows: rows.size },
+        problems,
+        excluded: [...rows].sort((a, b) => a - b).map((row) => ({ sheet: '', row, reason: 'see the problems on this line; the file is refused until they are fixed' })),
+        notes,
+      },
+    };
   }
 }

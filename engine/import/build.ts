@@ -10,8 +10,9 @@
  * as they are (not shifted).
  */
 import { createDataset, type SubjectInput } from '../data/dataset.js';
+import { censoredBeforeFirstDoseMessage, censoredDisagreement, doseKey, duplicateMessage, levelBeforeFirstDoseMessage, levelKey, parseCensoredFlag } from '../data/rules.js';
 import { DataError, type CovariateValue, type Dataset, type Dose, type Observation, type Route } from '../data/types.js';
-import type { Cell, WorkbookModel } from './workbook.js';
+import { columnLetter, type Cell, type WorkbookModel } from './workbook.js';
 import { bindTemplate, columnLabel, refreshTemplate, type BoundColumn, type BoundSheet, type MappingTemplate, type ReportProblem, type Role } from './roles.js';
 import { cockcroftGault, scrUmolToMgDl, COCKCROFT_GAULT_LABEL } from '../dosing/renal.js';
 import {
@@ -127,6 +128,8 @@ interface PatientAcc {
   covariates: Map<string, CovEntry>;
   covariateWarned: Set<string>;
   birthMs?: CovEntry & { ms: number };
+  /** Dose rows of this patient refused with an error (the first-dose rule is then not judged). */
+  refusedDoseRows: number;
 }
 
 /** Import: bind the template, read every row, check, and build the dataset. */
@@ -136,6 +139,8 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
   const notes: string[] = [
     'Times are taken as written (the ward clock): no time zone is applied and clock changes are not corrected; an interval across a daylight-saving change is reported.',
   ];
+  // Damage first: the rows below are then not the whole file, and the report says so.
+  for (const d of model.damage ?? []) problems.push({ sheet: d.sheet, row: d.row ?? 0, column: '', value: '', severity: 'error', message: `damaged file: ${d.message}` });
   const { bound, unbound, problems: bindProblems } = bindTemplate(model, template);
   problems.push(...bindProblems);
   // A sheet that cannot be imported: every row with content is listed, none vanishes.
@@ -151,7 +156,7 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
   const patientOf = (id: string): PatientAcc => {
     let p = patients.get(id);
     if (!p) {
-      p = { id, order: patients.size, events: [], covariates: new Map(), covariateWarned: new Set() };
+      p = { id, order: patients.size, events: [], covariates: new Map(), covariateWarned: new Set(), refusedDoseRows: 0 };
       patients.set(id, p);
     }
     return p;
@@ -177,6 +182,7 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
     const sheetName = b.sheet.name;
     const rows = b.sheet.rows;
     const mappedIdx: number[] = [...b.columns.values(), ...b.covariates].map((c) => c.index);
+    const headerWidth = (rows[b.headerIndex] ?? []).length;
 
     for (let r = b.headerIndex + 1; r < rows.length; r++) {
       const cells = rows[r] ?? [];
@@ -191,6 +197,15 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
         continue;
       }
       const ctx: RowCtx = { sheet: sheetName, row: r + 1, cells, errors: 0 };
+      if (model.format === 'csv' && cells.length > headerWidth) {
+        // A CSV line with more fields than its header: two lines merged by a damaged line break,
+        // or a stray separator. Its values cannot be placed in columns: an error, never ignored.
+        for (let c = headerWidth; c < cells.length; c++)
+          if (!isBlank(cells[c])) {
+            problem(ctx, undefined, 'error', `this line has a value in column ${columnLetter(c)}, beyond the header's last column (${columnLetter(headerWidth - 1)}): a separator or line break in the file may be damaged; compare the line with the source`, cellText(cells[c]).slice(0, 200));
+            break;
+          }
+      }
       const pid = cellText(cells[cPid.index]);
       if (pid === '') {
         problem(ctx, cPid, 'error', 'the patient id is empty: fill it in or delete the row');
@@ -224,7 +239,15 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
           if (hasDose && !hasLevel) kind = 'dose';
           else if (hasLevel && !hasDose) kind = 'level';
           else if (!hasDose && !hasLevel) {
-            // A row with covariates only (e.g. a weight recorded on the ward sheet).
+            // A row with covariates only (e.g. a weight recorded on the ward sheet) feeds the
+            // covariates; a row with nothing but an id and a time has lost its value: reported.
+            const covariateIdx = b.covariates.map((c) => c.index);
+            for (const role of ['weight', 'height', 'age', 'birthDate', 'sex', 'creatinine'] as const) {
+              const c = get(role);
+              if (c) covariateIdx.push(c.index);
+            }
+            if (!covariateIdx.some((i) => !isBlank(cells[i])))
+              problem(ctx, get('doseAmount') ?? get('levelValue'), 'error', 'the row has a patient id but neither a dose amount nor a level: fill in the value, or delete the row');
             if (ctx.errors > 0) excluded.push({ sheet: sheetName, row: ctx.row, reason: firstError(problems, ctx) });
             continue;
           } else problem(ctx, ck, 'error', 'the row has both a dose amount and a level and no event kind: split it into two rows or map a kind column');
@@ -248,12 +271,13 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
       let ev: PendingEvent | undefined;
       if (kind === 'dose') {
         const dose = readDose(b, ctx, time, problem, dateOrder, model.date1904, opts.defaultRoute);
-        if (dose && time) ev = { kind, t: time.t, basis: time.basis, sheet: sheetName, row: ctx.row, timeColumn: time.column, dose, key: `d|${time.t}|${dose.amountMg}|${dose.route}|${dose.durationH}` };
+        if (dose && time) ev = { kind, t: time.t, basis: time.basis, sheet: sheetName, row: ctx.row, timeColumn: time.column, dose, key: doseKey(time.t, dose.amountMg, dose.route, dose.durationH) };
       } else {
         const level = readLevel(b, ctx, problem, molarMass, opts.defaultLloqMgL, opts.decimalSeparator);
-        if (level && time) ev = { kind, t: time.t, basis: time.basis, sheet: sheetName, row: ctx.row, timeColumn: time.column, level, key: `l|${time.t}|${level.valueMgL}|${level.censored}` };
+        if (level && time) ev = { kind, t: time.t, basis: time.basis, sheet: sheetName, row: ctx.row, timeColumn: time.column, level, key: levelKey(time.t, level.valueMgL, level.censored) };
       }
       if (ctx.errors > 0 || !ev) {
+        if (kind === 'dose') pat.refusedDoseRows++;
         excluded.push({ sheet: sheetName, row: ctx.row, reason: firstError(problems, ctx) });
         continue;
       }
@@ -310,7 +334,7 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
     for (const e of kept) {
       const first = seen.get(e.key);
       if (first) {
-        evProblem(e, 'error', `duplicate of ${first.sheet} row ${first.row} (same patient, time and ${e.kind === 'dose' ? 'dose' : 'level'}): remove one of them`);
+        evProblem(e, 'error', duplicateMessage(e.kind, `${first.sheet} row ${first.row}`));
         rowExcluded(e.sheet, e.row, `duplicate of ${first.sheet} row ${first.row}`);
         continue;
       }
@@ -327,11 +351,15 @@ export function importWorkbook(model: WorkbookModel, template: MappingTemplate):
     const timeline: PendingEvent[] = [];
     for (const e of deduped) {
       if (e.kind === 'level' && (!firstDose || e.t < firstDose.t)) {
-        const why = firstDose ? `the level is before the first dose of patient ${pat.id} (${describeT(firstDose)}, ${firstDose.sheet} row ${firstDose.row})` : `patient ${pat.id} has no dose rows`;
-        if (e.level!.censored && firstDose) {
-          evProblem(e, 'warning', `${why}; kept as a pre-dose level below the LLOQ`);
+        const where = firstDose ? `${describeT(firstDose)}, ${firstDose.sheet} row ${firstDose.row}` : undefined;
+        if (e.level!.censored && where) {
+          evProblem(e, 'warning', censoredBeforeFirstDoseMessage(pat.id, where));
+        } else if (pat.refusedDoseRows > 0) {
+          // The patient's dose rows have errors of their own: the level cannot be judged until they are fixed.
+          rowExcluded(e.sheet, e.row, `patient ${pat.id}'s dose rows have errors (see the problems), so this level cannot be placed yet`);
+          continue;
         } else {
-          evProblem(e, 'error', `${why}: check the date, or add the missing dose`);
+          evProblem(e, 'error', levelBeforeFirstDoseMessage(pat.id, where));
           rowExcluded(e.sheet, e.row, firstDose ? 'level before the first dose' : 'no dose for this patient');
           continue;
         }
@@ -681,7 +709,7 @@ function readDose(
     if (!route) return void problem(ctx, cr, 'error', `route "${cellText(cells[cr.index])}" is not known: use e.g. IV infusion, IV bolus or oral`);
   }
   if (route === undefined) route = durationH !== undefined && durationH > 0 ? 'infusion' : defaultRoute;
-  if (route === undefined) return void problem(ctx, cr, 'error', 'the route is missing: map a route column or set defaultRoute in the mapping');
+  if (route === undefined) return void problem(ctx, cr, 'error', 'the route is missing: give the route of such doses with --default-route bolus|infusion|oral (plateau check, then --save-mapping), or map a route column');
   if (route === 'bolus' && durationH !== undefined && durationH > 0) route = 'infusion'; // "IV" given over a stated time
   if (route === 'oral' && durationH !== undefined && durationH > 0) return void problem(ctx, cr, 'error', 'an oral dose has an infusion duration: check the route');
   if (route === 'infusion' && !(durationH !== undefined && durationH > 0))
@@ -725,15 +753,24 @@ function readLevel(
     lloqMgL = l.value * lu.value;
   }
   const cf = b.columns.get('censoredFlag');
-  if (cf && v.value.kind === 'value' && /^(1|true|yes|y|ja|oui|x)$/i.test(cellText(cells[cf.index]))) {
+  let flag: boolean | undefined;
+  if (cf && !isBlank(cells[cf.index])) {
+    const pf = parseCensoredFlag(cellText(cells[cf.index]));
+    if (!pf.ok) return void problem(ctx, cf, 'error', pf.message);
+    flag = pf.value;
+  }
+  if (flag === true && v.value.kind === 'value') {
     // A flag column (canonical CSV style): the level is below the LLOQ; the limit is the LLOQ column or the value.
     const limit = lloqMgL ?? v.value.value * f.value;
     if (!(limit > 0)) return void problem(ctx, cf, 'error', 'a censored level needs its LLOQ (> 0): fill in the LLOQ column');
     return { valueMgL: limit, censored: true, lloqMgL: limit };
   }
   if (v.value.kind === 'censored') {
+    const disagree = censoredDisagreement(v.value.limit !== undefined ? v.value.limit * f.value : undefined, flag, lloqMgL);
+    if (disagree?.severity === 'error') return void problem(ctx, cv, 'error', disagree.message);
+    if (disagree) problem(ctx, cv, 'warning', disagree.message);
     const limit = v.value.limit !== undefined ? v.value.limit * f.value : (lloqMgL ?? defaultLloqMgL);
-    if (limit === undefined) return void problem(ctx, cv, 'error', `"${v.value.text}" is below the limit, but no limit is known: add an LLOQ column or set defaultLloqMgL in the mapping`);
+    if (limit === undefined) return void problem(ctx, cv, 'error', `"${v.value.text}" is below the limit, but no limit is known: give the LLOQ with --lloq <mg/L> (plateau check, then --save-mapping), or add an LLOQ column`);
     if (!(limit > 0)) return void problem(ctx, cv, 'error', `the stated limit in "${v.value.text}" must be > 0`);
     return { valueMgL: limit, censored: true, lloqMgL: limit };
   }
@@ -778,8 +815,8 @@ function readCovariates(b: BoundSheet, ctx: RowCtx, pat: PatientAcc, problem: Pr
   };
   numeric('weight', 'kg', weightFactorToKg);
   numeric('height', 'cm', heightFactorToCm);
-  numeric('age', 'years', (u) => (u === '' || /^(y|yr|yrs|year|years|jahre|ans|jaar)$/i.test(u.trim()) ? { ok: true, value: 1 } : { ok: false, message: `unknown age unit "${u}" (years)` }));
-  numeric('creatinine', 'umol/L', (u) => (u === '' ? { ok: false, message: 'the creatinine unit is missing: add a unit column or set the unit (umol/L or mg/dL) in the mapping' } : creatinineFactorToUmolL(u)), 'creatinineUnit');
+  numeric('age', 'years', ageFactorToYears);
+  numeric('creatinine', 'umol/L', (u) => (u === '' ? { ok: false, message: 'the creatinine unit is missing: write it in the column header, e.g. "Creatinine (umol/L)" or "(mg/dL)", or add a unit column' } : creatinineFactorToUmolL(u)), 'creatinineUnit');
 
   const cs = b.columns.get('sex');
   if (cs && !isBlank(cells[cs.index])) {
@@ -803,6 +840,16 @@ function readCovariates(b: BoundSheet, ctx: RowCtx, pat: PatientAcc, problem: Pr
     const n = parseNumberCell(cell);
     setCov(name, n.ok ? n.value : cellText(cell).slice(0, 200), col, false);
   }
+}
+
+/** Age units to years (a month is 1/12 year; a week 7 and a day 1 of 365.25 days, common practice). */
+function ageFactorToYears(unit: string): Parsed<number> {
+  const u = unit.trim().toLowerCase();
+  if (u === '' || /^(y|yr|yrs|year|years|jahre|ans|jaar|a)$/.test(u)) return { ok: true, value: 1 };
+  if (/^(mo|mon|month|months|monate|mois|maanden)$/.test(u)) return { ok: true, value: 1 / 12 };
+  if (/^(w|wk|wks|week|weeks|wochen|semaines)$/.test(u)) return { ok: true, value: 7 / 365.25 };
+  if (/^(d|day|days|tage|jours|dagen)$/.test(u)) return { ok: true, value: 1 / 365.25 };
+  return { ok: false, message: `unknown age unit "${unit}" (years, months, weeks or days): write the unit in the column header, e.g. "Age (years)"` };
 }
 
 /** Columns of a bound sheet that are not imported, each named with the reason (nothing is left out silently). */

@@ -5,3 +5,4 @@ export * from './roles.js';
 export * from './build.js';
 export * from './export.js';
 export { analyseWorkbook, type AnalyseOptions, type Analysis } from './analyse.js';
+export * from './group.js';

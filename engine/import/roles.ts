@@ -7,6 +7,7 @@ import type { Route } from '../data/types.js';
 import { detectHeaderRow, profileColumns, columnLetter, type ColumnProfile, type ColumnType, type SheetModel, type WorkbookModel } from './workbook.js';
 import { foldText, normaliseUnit, levelFactorToMgL, doseFactorToMg, creatinineFactorToUmolL, DEFAULT_EXCLUDE_WORDS, type ClockChangeRule, type DateOrder, type DecimalSeparator } from './values.js';
 import defaults from '../../resources/import/importDefaults.json' with { type: 'json' };
+import { unknownKeyProblems } from '../json/knownKeys.js';
 
 export const ROLES = [
   'patientId',
@@ -121,6 +122,8 @@ const HEADER_RULES: readonly [Role, RegExp][] = [
   ['covariate', CRCL_HEADER],
   ['creatinine', /(creat|krea|\bscr\b)/],
   ['infusionDuration', /(duration|dauer|duree|\blength of infusion|infusion time|over \(?(min|h))/],
+  // "Infusion (min)", "Perfusion [h]": an infusion column whose header names a time unit is its duration.
+  ['infusionDuration', /(infus|perfus|drip).*[([]\s*(min|mins|minutes|h|hr|hrs|hours|std)\s*[)\]]/],
   ['infusionRate', /(\brate\b|infusion speed|laufrate|debit|snelheid)/],
   ['infusionStart', /(infusion|infus).*(start|begin)|^(start|begin)(\s|$)/],
   ['infusionEnd', /(infusion|infus).*(end|stop|finish)|^(end|stop|ende|fin)(\s|$)/],
@@ -156,7 +159,7 @@ export function unitFromHeader(header: string): string | undefined {
   if (tail) candidates.push(tail[1]);
   for (const c of candidates) {
     const u = normaliseUnit(c);
-    if (levelFactorToMgL(u, 1).ok || doseFactorToMg(u).ok || creatinineFactorToUmolL(u).ok || ['kg', 'g', 'lb', 'cm', 'm', 'in', 'h', 'min', 'mg/h', 'y', 'years'].includes(u))
+    if (levelFactorToMgL(u, 1).ok || doseFactorToMg(u).ok || creatinineFactorToUmolL(u).ok || ['kg', 'g', 'lb', 'cm', 'm', 'in', 'h', 'min', 'mg/h', 'y', 'years', 'months', 'weeks', 'days'].includes(u))
       return c.trim();
   }
   return undefined;
@@ -292,7 +295,13 @@ export function suggestSheet(sheet: SheetModel): SheetSuggestion {
     if (note) col.note = note;
     if (role === 'covariate') col.name = CRCL_HEADER.test(h) && !/l\s*\/\s*h/.test(h) ? 'crcl_mL_min' : canonicalCovariateName(p.header);
     const unit = unitFromHeader(p.header);
-    if (unit && ['doseAmount', 'levelValue', 'lloq', 'creatinine', 'weight', 'height', 'infusionDuration', 'infusionRate', 'elapsedH'].includes(role)) col.unit = unit;
+    if (unit && ['doseAmount', 'levelValue', 'lloq', 'creatinine', 'weight', 'height', 'age', 'infusionDuration', 'infusionRate', 'elapsedH'].includes(role)) col.unit = unit;
+    else if (['weight', 'height', 'age'].includes(role)) {
+      // These have a default unit (kg, cm, years): a bracketed unit Plateau does not know
+      // ("Age (months)", "Weight (st)") is kept, so the import names it instead of assuming the default.
+      const bracket = /[([]\s*([^)\]]{1,16})\s*[)\]]/.exec(p.header);
+      if (bracket) col.unit = bracket[1].trim();
+    }
     columns.push(col);
   }
   // A date column that carries times of day is a date-time column.
@@ -377,10 +386,17 @@ function isRecord(x: unknown): x is Record<string, unknown> {
   return typeof x === 'object' && x !== null && !Array.isArray(x);
 }
 
+const TEMPLATE_KEYS = ['format', 'version', 'sheets', 'options'];
+const SHEET_KEYS = ['sheet', 'content', 'headerRow', 'columns'];
+const COLUMN_KEYS = ['role', 'header', 'column', 'name', 'unit', 'type', 'note'];
+const OPTION_KEYS = ['dateOrder', 'decimalSeparator', 'drug', 'molarMassGPerMol', 'defaultLloqMgL', 'defaultRoute', 'clockChanges', 'maxGapH', 'excludeCommentWords'];
+
 /** Validate a parsed JSON value as a mapping template; every problem with its JSON path. */
 export function parseTemplate(json: unknown): MappingTemplate {
   const p: string[] = [];
   if (!isRecord(json)) throw new TemplateError(['$: expected an object']);
+  // Strict keys: a misspelt key ("defaultRout") is named with the nearest known key, never ignored.
+  p.push(...unknownKeyProblems(json, TEMPLATE_KEYS, '$'));
   if (json.format !== 'plateau-import-mapping') p.push('$.format: expected "plateau-import-mapping"');
   if (json.version !== 1) p.push(`$.version: expected 1, got ${JSON.stringify(json.version)}`);
   const sheets: SheetMapping[] = [];
@@ -389,6 +405,7 @@ export function parseTemplate(json: unknown): MappingTemplate {
     json.sheets.forEach((s: unknown, i: number) => {
       const at = `$.sheets[${i}]`;
       if (!isRecord(s)) return void p.push(`${at}: expected an object`);
+      p.push(...unknownKeyProblems(s, SHEET_KEYS, at));
       if (typeof s.sheet !== 'string' || s.sheet === '') p.push(`${at}.sheet: expected the sheet name`);
       if (typeof s.content !== 'string' || !CONTENTS.has(s.content)) p.push(`${at}.content: expected doses, levels, events or patients`);
       if (!(Number.isInteger(s.headerRow) && (s.headerRow as number) >= 1)) p.push(`${at}.headerRow: expected a row number >= 1`);
@@ -398,6 +415,7 @@ export function parseTemplate(json: unknown): MappingTemplate {
         s.columns.forEach((c: unknown, j: number) => {
           const cat = `${at}.columns[${j}]`;
           if (!isRecord(c)) return void p.push(`${cat}: expected an object`);
+          p.push(...unknownKeyProblems(c, COLUMN_KEYS, cat));
           if (typeof c.role !== 'string' || !ROLE_SET.has(c.role)) p.push(`${cat}.role: unknown role ${JSON.stringify(c.role)} (one of ${ROLES.join(', ')})`);
           if (typeof c.header !== 'string') p.push(`${cat}.header: expected the header text`);
           if (c.column !== undefined && typeof c.column !== 'string') p.push(`${cat}.column: expected a column letter`);
@@ -413,6 +431,7 @@ export function parseTemplate(json: unknown): MappingTemplate {
     });
   const o = isRecord(json.options) ? json.options : {};
   if (json.options !== undefined && !isRecord(json.options)) p.push('$.options: expected an object');
+  p.push(...unknownKeyProblems(o, OPTION_KEYS, '$.options'));
   const options = defaultOptions();
   if (o.dateOrder !== undefined) {
     if (o.dateOrder === 'dayFirst' || o.dateOrder === 'monthFirst' || o.dateOrder === 'auto') options.dateOrder = o.dateOrder;

@@ -54,7 +54,7 @@ export function parseNumberText(text: string, sep: DecimalSeparator = 'auto'): P
   if (sep === 'auto') {
     if (NUM_COMMA.test(s)) {
       if (/^[-+]?\d{1,3},\d{3}$/.test(s))
-        return fail(`"${text}" could be ${s.replace(',', '.')} (decimal comma) or ${s.replace(',', '')} (thousands separator): set the decimal separator in the mapping`);
+        return fail(`"${text}" could be ${s.replace(',', '.')} (decimal comma) or ${s.replace(',', '')} (thousands separator): give --decimal-comma if the file writes decimals with a comma`);
       return ok(Number(s.replace(',', '.')));
     }
     if (/^[-+]?\d{1,3}(\.\d{3})+,\d+$/.test(s)) return ok(Number(s.replace(/\./g, '').replace(',', '.')));
@@ -189,7 +189,7 @@ export const KNOWN_LEVEL_UNITS = [...LEVEL_FACTORS.keys(), ...MOLAR_FACTORS.keys
 /** Factor f so that value [unit] * f = value [mg/L]. Molar units need the molar mass (g/mol). */
 export function levelFactorToMgL(unit: string, molarMassGPerMol?: number): Parsed<number> {
   const u = normaliseUnit(unit);
-  if (u === '') return fail('the level unit is missing: add a unit column or set the unit of the level column in the mapping');
+  if (u === '') return fail('the level unit is missing: write it in the column header, e.g. "Level (mg/L)", or add a unit column');
   const f = LEVEL_FACTORS.get(u);
   if (f !== undefined) return ok(f);
   const fm = MOLAR_FACTORS.get(u);
@@ -213,7 +213,7 @@ const DOSE_FACTORS: ReadonlyMap<string, number> = new Map([
 
 export function doseFactorToMg(unit: string): Parsed<number> {
   const u = normaliseUnit(unit);
-  if (u === '') return fail('the dose unit is missing: add a unit column or set the unit of the dose column in the mapping');
+  if (u === '') return fail('the dose unit is missing: write it in the column header, e.g. "Dose (mg)", or add a unit column');
   const f = DOSE_FACTORS.get(u);
   if (f !== undefined) return ok(f);
   if (/\/kg$/.test(u)) return fail(`dose unit "${unit}" is per kilogram: export the absolute dose (mg) instead`);
@@ -230,7 +230,7 @@ export const CREATININE_UMOL_L_PER_MG_DL = 88.4;
 
 export function creatinineFactorToUmolL(unit: string): Parsed<number> {
   const u = normaliseUnit(unit);
-  if (u === '') return fail('the creatinine unit is missing: add a unit column or set the unit (umol/L or mg/dL) in the mapping');
+  if (u === '') return fail('the creatinine unit is missing: write it in the column header, e.g. "Creatinine (umol/L)" or "(mg/dL)", or add a unit column');
   if (u === 'umol/l') return ok(1);
   if (u === 'mmol/l') return ok(1000);
   if (u === 'mg/dl') return ok(CREATININE_UMOL_L_PER_MG_DL);

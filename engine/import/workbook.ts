@@ -6,6 +6,8 @@
 import * as XLSX from 'xlsx';
 import { readXlsxEntries, type ZipEntries } from './xlsxFast.js';
 import { serialToWallMs } from './values.js';
+import { compareWithParsed, walkXls, type XlsWalk } from './xlsCheck.js';
+import { lastLineMessage } from '../data/rules.js';
 
 export type CellKind = 'number' | 'date' | 'text' | 'boolean' | 'error';
 
@@ -27,9 +29,19 @@ export interface SheetModel {
   truncated: boolean;
 }
 
+/** Damage found by comparing what the file declares with what was read: always an error. */
+export interface SheetDamage {
+  sheet: string;
+  /** 1-based row of the first unreadable place, when known. */
+  row?: number;
+  message: string;
+}
+
 export interface WorkbookModel {
   format: 'xlsx' | 'xls' | 'ods' | 'csv' | 'other';
   sheets: SheetModel[];
+  /** Damage found while reading (the rows read are then not the whole file). */
+  damage?: SheetDamage[];
   /** Workbook uses the 1904 date system (serials then count from 1904-01-01). */
   date1904: boolean;
 }
@@ -60,6 +72,73 @@ export class WorkbookError extends Error {
  * Latin-1 (older exports from Windows systems). SheetJS would read UTF-8 without a BOM as Latin-1.
  */
 export function decodeText(bytes: Uint8Array): string {
+  return decodeTextChecked(bytes).text;
+}
+
+/**
+ * As decodeText, and when the bytes are UTF-8 (they hold valid multi-byte sequences) but some
+ * sequence is broken, the text is decoded as UTF-8 with U+FFFD in the broken places and the
+ * damage is named: reading such a file as Latin-1 would silently change every accented letter
+ * ("hämolysiert" would no longer match its exclusion word).
+ */
+export function decodeTextChecked(bytes: Uint8Array): { text: string; damage?: { line: number; message: string } } {
+  const text = decodeTextLoose(bytes);
+  if (text.kind !== 'latin1' || !hasValidMultibyte(bytes)) return { text: text.text };
+  // Damaged UTF-8: decode leniently and say where.
+  const out: string[] = [];
+  let firstBad = -1;
+  let i = bytes.length >= 3 && bytes[0] === 0xef && bytes[1] === 0xbb && bytes[2] === 0xbf ? 3 : 0;
+  let chunk: number[] = [];
+  const flush = () => {
+    out.push(String.fromCharCode.apply(null, chunk));
+    chunk = [];
+  };
+  while (i < bytes.length) {
+    if (chunk.length >= 8190) flush();
+    const n = utf8Sequence(bytes, i);
+    if (n === 0) {
+      if (firstBad < 0) firstBad = i;
+      chunk.push(0xfffd);
+      i++;
+      continue;
+    }
+    const b = bytes[i];
+    if (n === 1) chunk.push(b);
+    else if (n === 2) chunk.push(((b & 0x1f) << 6) | (bytes[i + 1] & 0x3f));
+    else if (n === 3) chunk.push(((b & 0x0f) << 12) | ((bytes[i + 1] & 0x3f) << 6) | (bytes[i + 2] & 0x3f));
+    else {
+      const cp = (((b & 0x07) << 18) | ((bytes[i + 1] & 0x3f) << 12) | ((bytes[i + 2] & 0x3f) << 6) | (bytes[i + 3] & 0x3f)) - 0x10000;
+      chunk.push(0xd800 + (cp >> 10), 0xdc00 + (cp & 0x3ff));
+    }
+    i += n;
+  }
+  flush();
+  let line = 1;
+  for (let k = 0; k < firstBad; k++) if (bytes[k] === 10) line++;
+  return {
+    text: out.join(''),
+    damage: { line, message: `the file is UTF-8 text, but byte ${firstBad} (line ${line}) is not valid UTF-8: the file is damaged; compare that line with the source and save the file again` },
+  };
+}
+
+/** Length of the valid UTF-8 sequence at i (1-4), or 0 when it is broken. */
+function utf8Sequence(bytes: Uint8Array, i: number): number {
+  const n = bytes.length;
+  const b = bytes[i];
+  if (b < 0x80) return 1;
+  const cont = (k: number) => i + k < n && (bytes[i + k] & 0xc0) === 0x80;
+  if (b >= 0xc2 && b < 0xe0) return cont(1) ? 2 : 0;
+  if (b >= 0xe0 && b < 0xf0) return cont(1) && cont(2) ? 3 : 0;
+  if (b >= 0xf0 && b < 0xf5) return cont(1) && cont(2) && cont(3) ? 4 : 0;
+  return 0;
+}
+
+function hasValidMultibyte(bytes: Uint8Array): boolean {
+  for (let i = 0; i < bytes.length; i++) if (bytes[i] >= 0xc2 && utf8Sequence(bytes, i) > 1) return true;
+  return false;
+}
+
+function decodeTextLoose(bytes: Uint8Array): { text: string; kind: 'utf16' | 'utf8' | 'latin1' } {
   if (bytes.length >= 2 && ((bytes[0] === 0xff && bytes[1] === 0xfe) || (bytes[0] === 0xfe && bytes[1] === 0xff))) {
     const le = bytes[0] === 0xff;
     const parts: string[] = [];
@@ -72,7 +151,7 @@ export function decodeText(bytes: Uint8Array): string {
       }
     }
     parts.push(String.fromCharCode(...chunk));
-    return parts.join('');
+    return { text: parts.join(''), kind: 'utf16' };
   }
   let i = bytes.length >= 3 && bytes[0] === 0xef && bytes[1] === 0xbb && bytes[2] === 0xbf ? 3 : 0;
   const start = i;
@@ -108,11 +187,11 @@ export function decodeText(bytes: Uint8Array): string {
   }
   if (valid) {
     parts.push(String.fromCharCode.apply(null, buf.subarray(0, k) as unknown as number[]));
-    return parts.join('');
+    return { text: parts.join(''), kind: 'utf8' };
   }
   const latin: string[] = [];
   for (let j = start; j < n; j += 8192) latin.push(String.fromCharCode.apply(null, bytes.subarray(j, Math.min(n, j + 8192)) as unknown as number[]));
-  return latin.join('');
+  return { text: latin.join(''), kind: 'latin1' };
 }
 
 function sniffFormat(bytes: Uint8Array): WorkbookModel['format'] {
@@ -213,9 +292,17 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
     const fast = readXlsxFast(bytes, options, maxChars);
     if (fast) return fast;
   }
+  let walk: XlsWalk | undefined;
+  if (format === 'xls') {
+    // BIFF has no checksums: walk the records first, so damage is named instead of read as data.
+    walk = walkXls(bytes);
+    if (walk.fatal) throw new WorkbookError(walk.fatal);
+  }
+  const decoded = format === 'csv' ? decodeTextChecked(bytes) : undefined;
+  const text = decoded?.text;
   let wb: XLSX.WorkBook;
   try {
-    const input = format === 'csv' ? decodeText(bytes) : bytes;
+    const input = text ?? bytes;
     wb = XLSX.read(input, {
       type: format === 'csv' ? 'string' : 'array',
       dense: true,
@@ -230,13 +317,15 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
       raw: format === 'csv',
       sheetRows: options.maxRows !== undefined ? options.maxRows + 1 : 0,
     });
-  } catch (e) {
-    const why = e instanceof Error ? e.message : String(e);
-    throw new WorkbookError(`the file could not be read as a ${format === 'csv' ? 'text (CSV)' : format} spreadsheet (${why}): it may be damaged, password-protected or truncated; save it again as .xlsx or .csv`);
+  } catch {
+    // The parser's own exception text means nothing to a user ("Cannot set properties of undefined").
+    throw new WorkbookError(`the file could not be read as a ${format === 'csv' ? 'text (CSV)' : `.${format}`} spreadsheet: it is damaged, cut short or password-protected; save it again from the spreadsheet program as .xlsx or .csv`);
   }
   const names = Array.isArray(wb.SheetNames) ? wb.SheetNames : [];
   if (names.length === 0) throw new WorkbookError('the workbook has no sheets');
   const sheets: SheetModel[] = [];
+  const damage: SheetDamage[] = [];
+  const rawData = new Map<string, XLSX.CellObject[][]>();
   const date1904 = Boolean((wb as { Workbook?: { WBProps?: { date1904?: boolean } } }).Workbook?.WBProps?.date1904);
   const formatIsDate = new Map<string, boolean>();
   const isDateFormat = (fmt: string): boolean => {
@@ -250,6 +339,7 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
   for (const name of names) {
     const ws = (wb.Sheets as Record<string, XLSX.WorkSheet | undefined>)[name];
     const data = ws ? ((ws as unknown as { '!data'?: XLSX.CellObject[][] })['!data'] ?? []) : [];
+    if (ws) rawData.set(String(name), data);
     const rows: (Cell | undefined)[][] = new Array(data.length);
     let columnCount = 0;
     const cap = options.maxRows ?? Infinity;
@@ -272,7 +362,30 @@ export function readWorkbook(bytes: Uint8Array, options: ReadOptions = {}): Work
     rows.length = n;
     sheets.push({ name: String(name), rows, columnCount, truncated: data.length > cap });
   }
-  return { format, sheets, date1904 };
+  if (walk) {
+    const cap = options.maxRows ?? Infinity;
+    damage.push(...walk.damage);
+    damage.push(
+      ...compareWithParsed(
+        walk,
+        names.map((nm) => {
+          const data = rawData.get(String(nm));
+          return { name: String(nm), sheetExists: data !== undefined, rowsWithCells: (r: number) => r >= cap || Boolean(data?.[r]?.some((c) => c !== undefined && c !== null)) };
+        }),
+      ),
+    );
+  }
+  if (decoded?.damage && sheets.length > 0) damage.push({ sheet: sheets[0].name, row: decoded.damage.line, message: decoded.damage.message });
+  if (text !== undefined && sheets.length > 0) {
+    // A text file cut short ends inside a row, without its line break.
+    const last = text.charCodeAt(text.length - 1);
+    const body = text.replace(/^\uFEFF/, '');
+    if (body.trim() !== '' && last !== 10 && last !== 13) {
+      const lines = body.split(/\r\n|\r|\n/).length;
+      damage.push({ sheet: sheets[0].name, row: lines, message: lastLineMessage(lines) });
+    }
+  }
+  return damage.length ? { format, sheets, date1904, damage } : { format, sheets, date1904 };
 }
 
 function readXlsxFast(bytes: Uint8Array, options: ReadOptions, maxCellChars: number): WorkbookModel | undefined {
@@ -287,7 +400,8 @@ function readXlsxFast(bytes: Uint8Array, options: ReadOptions, maxCellChars: num
       };
     }
     const r = readXlsxEntries(entries, { maxRows: options.maxRows, maxCellChars, serialText, decode: options.decodeUtf8 ?? decodeText });
-    return r ? { format: 'xlsx', sheets: r.sheets, date1904: r.date1904 } : undefined;
+    if (!r) return undefined;
+    return r.damage.length ? { format: 'xlsx', sheets: r.sheets, date1904: r.date1904, damage: r.damage } : { format: 'xlsx', sheets: r.sheets, date1904: r.date1904 };
   } catch {
     // Not a package the direct reader understands: SheetJS gets it (and reports what is wrong).
     return undefined;

@@ -6,7 +6,7 @@
  * does not expect makes it give up (undefined), and readWorkbook falls back to SheetJS.
  */
 import * as XLSX from 'xlsx';
-import type { Cell, SheetModel } from './workbook.js';
+import type { Cell, SheetDamage, SheetModel } from './workbook.js';
 
 export type ZipEntries = (path: string) => Uint8Array | undefined;
 
@@ -125,6 +125,8 @@ export interface FastReadOptions {
 export interface FastWorkbook {
   sheets: SheetModel[];
   date1904: boolean;
+  /** Places where the file disagrees with itself (a shared-string index past the table, a cut-short sheet). */
+  damage: SheetDamage[];
 }
 
 /** Read an .xlsx from its zip entries; undefined when the package is not one this reader handles. */
@@ -148,6 +150,7 @@ export function readXlsxEntries(entry: ZipEntries, options: FastReadOptions): Fa
   }
 
   const shared: string[] = [];
+  const damage: SheetDamage[] = [];
   const sstTarget = [...rels.values()].find((t) => /sharedStrings\.xml$/i.test(t)) ?? 'xl/sharedStrings.xml';
   const sstXml = text(sstTarget);
   if (sstXml) {
@@ -166,6 +169,10 @@ export function readXlsxEntries(entry: ZipEntries, options: FastReadOptions): Fa
       shared.push(textRuns(sstXml.slice(s, e)));
       i = e + 5;
     }
+    const sst = /<(?:\w+:)?sst\b[^>]*>/.exec(sstXml);
+    const unique = sst ? attr(sst[0], 'uniqueCount') : undefined;
+    if (unique !== undefined && Number(unique) !== shared.length)
+      damage.push({ sheet: 'workbook', message: `the shared-string table declares ${unique} strings but holds ${shared.length}: the file is damaged` });
   }
 
   const xfIsDate: boolean[] = [];
@@ -196,18 +203,38 @@ export function readXlsxEntries(entry: ZipEntries, options: FastReadOptions): Fa
     if (!target) return undefined;
     const xml = text(target);
     if (xml === undefined) return undefined;
-    const sheet = readSheetXml(xml, name, shared, xfIsDate, date1904, options);
+    const sheet = readSheetXml(xml, name, shared, xfIsDate, date1904, options, (row, message) => damage.push({ sheet: name, row, message }));
     if (!sheet) return undefined;
     sheets.push(sheet);
   }
   if (sheets.length === 0) return undefined;
-  return { sheets, date1904 };
+  return { sheets, date1904, damage: firstPerSheet(damage) };
 }
 
-function readSheetXml(xml: string, name: string, shared: readonly string[], xfIsDate: readonly boolean[], date1904: boolean, o: FastReadOptions): SheetModel | undefined {
+/** The first damaged place per sheet, with how many more there are. */
+function firstPerSheet(damage: SheetDamage[]): SheetDamage[] {
+  const out = new Map<string, { first: SheetDamage; more: number }>();
+  for (const d of damage) {
+    const e = out.get(d.sheet);
+    if (e) e.more++;
+    else out.set(d.sheet, { first: d, more: 0 });
+  }
+  return [...out.values()].map(({ first, more }) => (more ? { ...first, message: `${first.message} (and ${more} more damaged place(s) in this sheet)` } : first));
+}
+
+function readSheetXml(
+  xml: string,
+  name: string,
+  shared: readonly string[],
+  xfIsDate: readonly boolean[],
+  date1904: boolean,
+  o: FastReadOptions,
+  onDamage: (row: number | undefined, message: string) => void,
+): SheetModel | undefined {
   const start = xml.indexOf('<sheetData');
   if (start < 0) return { name, rows: [], columnCount: 0, truncated: false };
   const end = xml.indexOf('</sheetData>', start);
+  if (end < 0 && !/<sheetData[^>]*\/>/.test(xml.slice(start, start + 200))) onDamage(undefined, 'the sheet ends before its data does (cut short): the file is damaged');
   const stop = end < 0 ? xml.length : end;
   const cap = o.maxRows ?? Infinity;
   const rows: (Cell | undefined)[][] = [];
@@ -256,7 +283,11 @@ function readSheetXml(xml: string, name: string, shared: readonly string[], xfIs
         body = xml.slice(gt + 1, close);
         i = close + 3;
       } else i = gt;
-      const cell = readCell(tag, body, shared, xfIsDate, date1904, o);
+      let cell = readCell(tag, body, shared, xfIsDate, date1904, o);
+      if (cell === 'bad-shared-string') {
+        onDamage(rowIndex + 1, `the cell ${ref ?? `in column ${col + 1}`} points to shared string ${body.replace(/<[^>]*>/g, '').trim().slice(0, 12)}, but the file holds ${shared.length}: the file is damaged`);
+        cell = { kind: 'error', raw: '#DAMAGED', text: '#DAMAGED' };
+      }
       if (cell === null) return undefined;
       if (cell) {
         current[col] = cell;
@@ -271,7 +302,7 @@ function readSheetXml(xml: string, name: string, shared: readonly string[], xfIs
 }
 
 /** One cell; undefined for an empty cell, null when the cell is not understood. */
-function readCell(tag: string, body: string, shared: readonly string[], xfIsDate: readonly boolean[], date1904: boolean, o: FastReadOptions): Cell | undefined | null {
+function readCell(tag: string, body: string, shared: readonly string[], xfIsDate: readonly boolean[], date1904: boolean, o: FastReadOptions): Cell | undefined | null | 'bad-shared-string' {
   const t = attr(tag, 't') ?? 'n';
   const vStart = body.indexOf('<v');
   let v: string | undefined;
@@ -296,7 +327,8 @@ function readCell(tag: string, body: string, shared: readonly string[], xfIsDate
     case 's': {
       if (v === undefined) return undefined;
       const k = Number(v);
-      if (!(Number.isInteger(k) && k >= 0 && k < shared.length)) return null;
+      if (!(Number.isInteger(k) && k >= 0)) return null;
+      if (k >= shared.length) return 'bad-shared-string';
       const str = shared[k];
       return str === '' ? undefined : { kind: 'text', raw: cap(str), text: cap(str) };
     }

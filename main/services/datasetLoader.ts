@@ -7,7 +7,9 @@
  */
 import { promises as fs } from 'node:fs';
 import * as path from 'node:path';
-import { parseCanonicalCsv } from '../../engine/data/canonicalCsv.js';
+import { parseCanonicalCsvDetailed } from '../../engine/data/canonicalCsv.js';
+import { decodeTextChecked } from '../../engine/import/workbook.js';
+import { isCanonicalCsv } from '../../engine/import/analyse.js';
 import { DataError, type Dataset } from '../../engine/data/types.js';
 
 export interface LoadDatasetOptions {
@@ -65,16 +67,22 @@ async function spreadsheetLoader(file: string): Promise<SpreadsheetDatasetLoader
 export async function loadDataset(file: string, options: LoadDatasetOptions = {}): Promise<Dataset> {
   if (isSpreadsheetPath(file, options)) return (await spreadsheetLoader(file))(file, options.mapping);
   let text: string;
+  let encodingDamage: { line: number; message: string } | undefined;
   try {
-    text = await fs.readFile(file, 'utf8');
+    // Decoded as check decodes it (UTF-8, UTF-16 by BOM, Latin-1), damaged UTF-8 named, not replaced silently.
+    const decoded = decodeTextChecked(new Uint8Array(await fs.readFile(file)));
+    text = decoded.text;
+    encodingDamage = decoded.damage;
   } catch (e) {
     const code = (e as NodeJS.ErrnoException).code;
     if (code === 'ENOENT') throw new DatasetLoadError(file, `data file not found: ${file}`);
     if (code === 'EISDIR') throw new DatasetLoadError(file, `${file} is a folder, not a data file`);
     throw new DatasetLoadError(file, `cannot read ${file}: ${(e as Error).message}`);
   }
+  // Any other CSV is an export: it goes the way `check` reads it (suggested mapping, same rules).
+  if (!isCanonicalCsv(text)) return (await spreadsheetLoader(file))(file, undefined);
   try {
-    return parseCanonicalCsv(text);
+    return parseCanonicalCsvDetailed(text, encodingDamage).dataset;
   } catch (e) {
     if (e instanceof DataError) throw new DataError(e.problems, file);
     throw e;

@@ -7,6 +7,7 @@
 import { promises as fs } from 'node:fs';
 import { DataError, type Dataset } from '../../engine/data/types.js';
 import { importSpreadsheetFile, ImportError, type ImportFileOptions, type ImportOutcome } from './importService.js';
+import { formatRows, groupProblems } from '../../engine/import/group.js';
 
 export async function readMappingFile(mappingPath: string): Promise<unknown> {
   let text: string;
@@ -34,7 +35,15 @@ export async function loadSpreadsheetDataset(path: string, mappingPath: string |
   if (errors.length > 0 || !outcome.dataset) {
     throw new DataError(
       errors.length > 0
-        ? errors.map((p) => ({ row: p.row || undefined, field: p.column || undefined, message: `${p.sheet ? `sheet "${p.sheet}": ` : ''}${p.message}${mappingPath ? '' : ' (suggested mapping; run plateau check --data <file> --save-mapping <template.json> to confirm it)'}` }))
+        ? // One line per repeated problem, with the count and the rows (a missing role touches every row).
+          groupProblems(errors).map((g) => {
+            const rows = g.rows.filter((r) => r > 0);
+            return {
+              row: rows.length === 1 ? rows[0] : undefined,
+              field: g.column || undefined,
+              message: `${g.sheet ? `sheet "${g.sheet}": ` : ''}${rows.length > 1 ? `${rows.length} rows (${formatRows(rows)}): ` : ''}${g.message}${mappingPath ? '' : ' (suggested mapping; run plateau check --data <file> --save-mapping <template.json> to confirm it)'}`,
+            };
+          })
         : [{ message: 'the spreadsheet gave no usable rows: run plateau check --data <file> to see why' }],
       path,
     );

@@ -12,6 +12,8 @@ import { importWithMappingFile } from '../../services/spreadsheetDataset.js';
 import { ImportError } from '../../services/importService.js';
 import { exportDataset, exportReport, reportJson } from '../../services/importExport.js';
 import { lookupMolarMass } from '../../../engine/import/values.js';
+import { describePlace, formatRows, groupProblems } from '../../../engine/import/group.js';
+import { printable } from '../../../engine/text/printable.js';
 
 const usage = `Usage: plateau check --data <file> [options]
 
@@ -41,10 +43,10 @@ const MAX_PRINTED_PROBLEMS = 200;
 
 function printMapping(t: MappingTemplate, out: (s: string) => void): void {
   for (const s of t.sheets) {
-    out(`  sheet "${s.sheet}" (${s.content}), header row ${s.headerRow}\n`);
+    out(printable(`  sheet "${s.sheet}" (${s.content}), header row ${s.headerRow}`) + '\n');
     for (const c of s.columns) {
       if (c.role === 'ignore') continue;
-      out(`    ${c.column.padEnd(3)} ${JSON.stringify(c.header).padEnd(28)} -> ${c.role}${c.name ? ` "${c.name}"` : ''}${c.unit ? ` [${c.unit}]` : ''}\n`);
+      out(printable(`    ${c.column.padEnd(3)} ${JSON.stringify(c.header).padEnd(28)} -> ${c.role}${c.name ? ` "${c.name}"` : ''}${c.unit ? ` [${c.unit}]` : ''}`) + '\n');
     }
   }
   const o = t.options;
@@ -54,18 +56,30 @@ function printMapping(t: MappingTemplate, out: (s: string) => void): void {
 function printReport(report: ImportReport, out: (s: string) => void): void {
   const s = report.summary;
   out(`Summary: ${s.patients} patients, ${s.doses} doses, ${s.levels} levels (${s.censored} censored), ${s.excludedRows} rows excluded\n`);
-  for (const n of report.notes) out(`Note: ${n}\n`);
+  for (const n of report.notes) out(printable(`Note: ${n}`) + '\n');
   const errors = report.problems.filter((p) => p.severity === 'error').length;
   out(`Problems: ${errors} error(s), ${report.problems.length - errors} warning(s)\n`);
-  for (const p of report.problems.slice(0, MAX_PRINTED_PROBLEMS)) {
-    const where = [p.sheet ? `sheet "${p.sheet}"` : '', p.row ? `row ${p.row}` : '', p.column ? `column ${p.column}` : ''].filter(Boolean).join(', ');
-    out(`  ${p.severity === 'error' ? 'ERROR  ' : 'warning'} ${where}${where ? ': ' : ''}${p.message}${p.value ? ` [${p.value.slice(0, 60)}]` : ''}\n`);
+  // A problem repeated on many rows is one line with the count and the rows. Text from the file
+  // is printed with control characters escaped, so a cell cannot forge a line of output.
+  const lines = groupProblems(report.problems);
+  for (const g of lines.slice(0, MAX_PRINTED_PROBLEMS)) {
+    const where = describePlace(g);
+    out(printable(`  ${g.severity === 'error' ? 'ERROR  ' : 'warning'} ${where}${where ? ': ' : ''}${g.message}${g.value ? ` [${g.value.slice(0, 60)}]` : ''}`) + '\n');
   }
-  if (report.problems.length > MAX_PRINTED_PROBLEMS) out(`  ... and ${report.problems.length - MAX_PRINTED_PROBLEMS} more (write them all with --report)\n`);
+  if (lines.length > MAX_PRINTED_PROBLEMS) out(`  ... and ${lines.length - MAX_PRINTED_PROBLEMS} more (write them all with --report)\n`);
   if (report.excluded.length > 0) {
     out(`Excluded rows:\n`);
-    for (const x of report.excluded.slice(0, MAX_PRINTED_PROBLEMS)) out(`  sheet "${x.sheet}" row ${x.row}: ${x.reason}\n`);
-    if (report.excluded.length > MAX_PRINTED_PROBLEMS) out(`  ... and ${report.excluded.length - MAX_PRINTED_PROBLEMS} more\n`);
+    const reasons = new Map<string, { sheet: string; reason: string; rows: number[] }>();
+    for (const x of report.excluded) {
+      const k = `${x.sheet}\u0000${x.reason}`;
+      const r = reasons.get(k) ?? { sheet: x.sheet, reason: x.reason, rows: [] };
+      r.rows.push(x.row);
+      reasons.set(k, r);
+    }
+    const grouped = [...reasons.values()];
+    for (const r of grouped.slice(0, MAX_PRINTED_PROBLEMS))
+      out(printable(`  ${r.sheet ? `sheet "${r.sheet}" ` : ''}${r.rows.length === 1 ? `row ${r.rows[0]}` : `${r.rows.length} rows (${formatRows(r.rows)})`}: ${r.reason}`) + '\n');
+    if (grouped.length > MAX_PRINTED_PROBLEMS) out(`  ... and ${grouped.length - MAX_PRINTED_PROBLEMS} more\n`);
   }
 }
 
@@ -145,14 +159,14 @@ export const command: CliCommand = {
     } catch (e) {
       if (e instanceof ImportError) {
         const extra = e.problems.length ? '\n' + e.problems.map((p) => `  ${p}`).join('\n') : '';
-        throw new CliError(e.message + extra);
+        throw new CliError(printable(e.message + extra));
       }
       throw e;
     }
     const out = io.stdout;
     out(`${path.basename(dataPath)}: ${outcome.preview.length} sheet(s)\n`);
-    for (const p of outcome.preview) out(`  "${p.name}": header row ${p.headerRow}, ${p.dataRowCount} data rows, columns ${p.columns.filter((c) => c.type !== 'empty').map((c) => `${c.letter}:${c.type}`).join(' ')}\n`);
-    for (const s of outcome.skippedSheets) out(`  left out: ${s}\n`);
+    for (const p of outcome.preview) out(printable(`  "${p.name}": header row ${p.headerRow}, ${p.dataRowCount} data rows, columns ${p.columns.filter((c) => c.type !== 'empty').map((c) => `${c.letter}:${c.type}`).join(' ')}`) + '\n');
+    for (const s of outcome.skippedSheets) out(printable(`  left out: ${s}`) + '\n');
     out(outcome.suggested ? 'Suggested mapping (check it; save it with --save-mapping):\n' : 'Mapping:\n');
     printMapping(outcome.mapping, out);
     printReport(outcome.report, out);

@@ -36,7 +36,7 @@ function workspace(): string {
       'B,6,level,,,7,,,,40',
       'C,0,dose,250,,,,,oral,80',
       'C,3,level,,,2,,,,80',
-    ].join('\n'),
+    ].join('\n') + '\n',
   );
   return dir;
 }

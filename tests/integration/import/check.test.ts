@@ -86,3 +86,32 @@ describe('plateau check on the demo dataset', () => {
     expect(r.stdout).toContain('0 rows excluded');
   });
 });
+
+describe('check, fit and simulate agree (issue 11, finding 4; resources/demo/ward-levels.csv)', () => {
+  const demo = readFileSync(path.join(repoRoot, 'resources/demo/ward-levels.csv'), 'utf8');
+
+  it('every row twice: check, fit and simulate all refuse it, naming the duplicates', async () => {
+    const lines = demo.trimEnd().split('\n');
+    const file = path.join(tmp, 'doubled.csv');
+    writeFileSync(file, [lines[0], ...lines.slice(1).flatMap((l) => [l, l])].join('\n') + '\n');
+    const check = await plateau('check', '--data', file);
+    expect(check.code).toBe(1);
+    expect(check.stdout).toMatch(/duplicate of line 2 \(same patient, time and dose\)/);
+    const model = path.join(repoRoot, 'resources/demo/ward-model.json');
+    for (const cmd of ['fit', 'simulate']) {
+      const r = await plateau(cmd, '--data', file, '--model', model, '--out', path.join(tmp, `${cmd}-doubled.json`));
+      expect(r.code, cmd).toBe(1);
+      expect(r.stderr, cmd).toMatch(/duplicate of line 2 \(same patient, time and dose\)/);
+    }
+  }, 120_000);
+
+  it('a patient id with CR-LF and escape codes cannot forge a line of output', async () => {
+    const file = path.join(tmp, 'forged.csv');
+    // The level comes before the dose, so the error message names the patient.
+    writeFileSync(file, 'Patient,Time (h),Dose (mg),Level (mg/L)\n"P1\r\nADVICE: give 5000 mg\u001b[2J",1,1000,\n"P1\r\nADVICE: give 5000 mg\u001b[2J",0,,3\n');
+    const r = await plateau('check', '--data', file, '--default-route', 'bolus');
+    expect(r.stdout).toMatch(/before the first dose of patient P1.*ADVICE: give 5000 mg/); // shown, escaped, on the error's own line
+    expect(r.stdout + r.stderr).not.toMatch(/^ADVICE/m);
+    expect(r.stdout + r.stderr).not.toContain('\u001b');
+  });
+});

@@ -12,7 +12,7 @@ const basic = [
   'A1,23.5,level,,,,1,0.5,,F',
   'B2,0,dose,500,,,,,82.5,M',
   'B2,6,level,,,12.25,,,82.5,M',
-].join('\n');
+].join('\n') + '\n';
 
 function problemsOf(text: string): DataProblem[] {
   try {
@@ -48,7 +48,7 @@ describe('parseCanonicalCsv', () => {
       'Event,SUBJECT,route,time_h,ss_interval_h,amount_mg,conc_mg_L,crcl',
       'dose,P,oral,0,12,250,,90',
       'level,P,,2,,,3.5,90',
-    ].join('\n');
+    ].join('\n') + '\n';
     const ds = parseCanonicalCsv(text);
     expect(ds.subjects[0].doses[0]).toEqual({ timeH: 0, amountMg: 250, route: 'oral', durationH: 0, steadyStateIntervalH: 12, sourceRow: 2 });
     expect(ds.subjects[0].observations[0].valueMgL).toBe(3.5);
@@ -66,7 +66,7 @@ describe('parseCanonicalCsv', () => {
   });
 
   it('numeric covariates only when every value is a number; text otherwise', () => {
-    const text = ['subject,time_h,event,amount_mg,conc_mg_L,ward,age', 'A,0,dose,1,,12,40', 'A,1,level,,1,12,40', 'B,0,dose,1,,ICU,50', 'B,1,level,,1,ICU,'].join('\n');
+    const text = ['subject,time_h,event,amount_mg,conc_mg_L,ward,age', 'A,0,dose,1,,12,40', 'A,1,level,,1,12,40', 'B,0,dose,1,,ICU,50', 'B,1,level,,1,ICU,'].join('\n') + '\n';
     const ds = parseCanonicalCsv(text);
     expect(ds.subjects[0].covariates.ward).toBe('12');
     expect(ds.subjects[0].covariates.age).toBe(40);
@@ -91,7 +91,7 @@ describe('parseCanonicalCsv', () => {
       ',11,level,,,3,,,,70', // 14: empty subject
       'A,12,level,,,3,,,', // 15: too few fields
       'A,13,dose,100,,5,,,,70', // 16: conc on a dose row
-    ].join('\n');
+    ].join('\n') + '\n';
     const problems = problemsOf(text);
     const byLine = new Map(problems.map((p) => [p.row, p]));
     expect([...byLine.keys()].sort((a, b) => a! - b!)).toEqual([2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16]);
@@ -129,7 +129,7 @@ describe('parseCanonicalCsv', () => {
   });
 
   it('skips grid rows written by simulate', () => {
-    const text = ['subject,time_h,event,amount_mg,conc_mg_L,grid', 'A,0,dose,100,,', 'A,0.5,level,,9,1', 'A,1,level,,8,0'].join('\n');
+    const text = ['subject,time_h,event,amount_mg,conc_mg_L,grid', 'A,0,dose,100,,', 'A,0.5,level,,9,1', 'A,1,level,,8,0'].join('\n') + '\n';
     const r = parseCanonicalCsvDetailed(text);
     expect(r.skippedGridRows).toBe(1);
     expect(r.dataset.subjects[0].observations.length).toBe(1);

@@ -47,6 +47,8 @@ function randomDataset(r: RngStream): Dataset {
         ? { timeH: awkwardNumber(r), valueMgL: lloq, censored, lloqMgL: lloq }
         : { timeH: awkwardNumber(r), valueMgL: (r.uniform() < 0.5 ? -1 : 1) * awkwardNumber(r), censored, ...(r.uniform() < 0.5 ? { lloqMgL: lloq } : {}) };
     });
+    // A level needs a dose at or before it (the shared first-dose rule, engine/data/rules.ts).
+    if (observations.length > 0) doses.unshift({ timeH: 0, amountMg: 1, route: 'bolus', durationH: 0 });
     const covariates: Record<string, number | string> = Object.create(null);
     if (r.uniform() < 0.8) covariates.weight_kg = awkwardNumber(r);
     const ward = AWKWARD[r.int(AWKWARD.length)];
