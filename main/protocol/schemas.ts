@@ -32,7 +32,7 @@ export const ImportOptionsInput = z.strictObject({
   decimalComma: z.boolean().optional(),
   molarMassGPerMol: z.number().positive().max(1e6).optional(),
   lloqMgL: z.number().positive().max(1e6).optional(),
-  defaultRoute: z.enum(['iv', 'oral', 'im', 'sc']).optional(),
+  defaultRoute: z.enum(['bolus', 'infusion', 'oral']).optional(),
   drug: z.string().max(100).optional(),
 });
 
@@ -80,6 +80,8 @@ export const DosingOptionsInput = z.strictObject({
   micMgL: z.number().positive().max(1e4).optional(),
   belowMgL: z.number().positive().max(1e6).optional(),
   overrideBlocks: z.boolean().optional(),
+  peakDelayH: z.number().min(0).max(1000).optional(),
+  nextDoseH: z.number().min(0).max(1e6).optional(),
 });
 
 /** Request payload schema of every channel. */

@@ -63,6 +63,8 @@ export const AdviseJob = z.strictObject({
   micMgL: z.number().positive().max(1e4).optional(),
   belowMgL: z.number().positive().max(1e6).optional(),
   overrideBlocks: z.boolean().optional(),
+  peakDelayH: z.number().min(0).max(1000).optional(),
+  nextDoseH: z.number().min(0).max(1e6).optional(),
 });
 /** Sleeps (cancellably) or spins: a job for tests and benchmarks of the process machinery. */
 export const ProbeJob = z.strictObject({ kind: z.literal('probe'), mode: z.enum(['echo', 'sleep', 'spin', 'crash', 'hang']), ms: z.number().min(0).max(600_000).optional(), value: z.unknown().optional() });
