@@ -145,6 +145,23 @@ export async function readJsonFile(file: string): Promise<unknown> {
 /** Temp files of writes in flight, removed if the process exits before they are renamed. */
 const inFlightTemps = new Set<string>();
 let exitHookInstalled = false;
+let tempObserver: ((file: string, active: boolean) => void) | undefined;
+let writesRefusedAfter: AbortSignal | undefined;
+
+/** Be told of every temp file created and finished (the CLI supervisor removes them if it kills its child). */
+export function setTempFileObserver(observer: ((file: string, active: boolean) => void) | undefined): void {
+  tempObserver = observer;
+}
+
+/** Once `signal` aborts (Ctrl-C), writeFileAtomic refuses to write: no output appears after the user stopped. */
+export function refuseWritesAfter(signal: AbortSignal | undefined): void {
+  writesRefusedAfter = signal;
+}
+
+function checkNotCancelled(file: string): void {
+  if (writesRefusedAfter?.aborted) throw new ServiceError('cancelled', `stopped: ${file} was not written`);
+}
+
 function trackTemp(tmp: string): void {
   if (!exitHookInstalled) {
     exitHookInstalled = true;
@@ -153,6 +170,12 @@ function trackTemp(tmp: string): void {
     });
   }
   inFlightTemps.add(tmp);
+  tempObserver?.(tmp, true);
+}
+
+function untrackTemp(tmp: string): void {
+  inFlightTemps.delete(tmp);
+  tempObserver?.(tmp, false);
 }
 
 /**
@@ -178,6 +201,7 @@ export async function checkOutputPath(file: string): Promise<void> {
  * target, so a reader never sees half a file and a crash leaves the old file intact.
  */
 export async function writeFileAtomic(file: string, data: string | Uint8Array): Promise<void> {
+  checkNotCancelled(file);
   const dir = path.dirname(file);
   try {
     const st = await fs.stat(dir);
@@ -195,12 +219,14 @@ export async function writeFileAtomic(file: string, data: string | Uint8Array): 
     await handle.sync();
     await handle.close();
     handle = undefined;
+    checkNotCancelled(file);
     await fs.rename(tmp, file);
   } catch (e) {
     if (handle) await handle.close().catch(() => undefined);
     await fs.rm(tmp, { force: true }).catch(() => undefined);
+    if (e instanceof ServiceError) throw e;
     throw new ServiceError('file', `cannot write ${file}: ${(e as Error).message}`);
   } finally {
-    inFlightTemps.delete(tmp);
+    untrackTemp(tmp);
   }
 }
