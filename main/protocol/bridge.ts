@@ -94,8 +94,11 @@ export interface TimelineSubject {
 export interface ImportPreview {
   importId: string;
   fileName: string;
-  /** Per sheet: header row, column profiles with up to five sample values each. */
-  sheets: SheetPreview[];
+  /**
+   * Per sheet: header row (1-based), column profiles with up to five sample values each, and
+   * the first 50 rows as the spreadsheet shows them (control characters escaped).
+   */
+  sheets: (SheetPreview & { previewRows: string[][] })[];
   /** The mapping in use (column roles per sheet, options): edit it and send import.remap. */
   mapping: MappingTemplate;
   /** True when the mapping is Plateau's suggestion (not a template or the user's). */

@@ -54,6 +54,7 @@ interface ImportSession {
   options: Record<string, unknown>;
   analysis: Analysis;
   dataset: Dataset | undefined;
+  previewRows: { sheet: string; rows: string[][] }[];
 }
 const MAX_IMPORT_SESSIONS = 4;
 const ADVICE_TIME_LIMIT_MS = 10 * 60_000;
@@ -131,11 +132,14 @@ export class AppService {
   }
 
   private async parse(fileName: string, bytes: Uint8Array, options: Record<string, unknown>, mapping: unknown): Promise<ImportSession> {
-    const analysis = (await this.runJob({ kind: 'parse', fileName, bytes: bytes as Uint8Array<ArrayBuffer>, options, ...(mapping !== undefined ? { mapping } : {}) }, DEFAULT_PARSE_TIME_LIMIT_MS)) as Analysis;
+    const analysis = (await this.runJob({ kind: 'parse', fileName, bytes: bytes as Uint8Array<ArrayBuffer>, options, ...(mapping !== undefined ? { mapping } : {}) }, DEFAULT_PARSE_TIME_LIMIT_MS)) as Analysis & { previewRows?: unknown };
     if (typeof analysis !== 'object' || analysis === null || !Array.isArray(analysis.preview) || typeof analysis.report !== 'object')
       throw new ServiceError('worker', 'the import worker answered with an incomplete analysis; the file was not imported');
     const dataset = analysis.dataset ? datasetFromWire(analysis.dataset) : undefined;
-    return { fileName, bytes, options, analysis, dataset };
+    const previewRows = Array.isArray(analysis.previewRows)
+      ? (analysis.previewRows as { sheet: unknown; rows: unknown }[]).filter((r) => typeof r.sheet === 'string' && Array.isArray(r.rows) && (r.rows as unknown[]).every((row) => Array.isArray(row) && row.every((c) => typeof c === 'string'))) as { sheet: string; rows: string[][] }[]
+      : [];
+    return { fileName, bytes, options, analysis, dataset, previewRows };
   }
 
   private remember(importId: string, session: ImportSession): void {
@@ -158,7 +162,9 @@ export class AppService {
       levels: sub.observations.map((o) => ({ timeH: o.timeH, concMgL: o.valueMgL, censored: o.censored })),
     }));
     const hasErrors = a.report.problems.some((p) => p.severity === 'error');
-    return { importId, fileName: s.fileName, sheets: a.preview, mapping: a.mapping, suggested: a.suggested, skippedSheets: a.skippedSheets, report: a.report, timeline, canAdd: s.dataset !== undefined && !hasErrors };
+    const rows = new Map(s.previewRows.map((r) => [r.sheet, r.rows]));
+    const sheets = a.preview.map((sh) => ({ ...sh, previewRows: rows.get(sh.name) ?? [] }));
+    return { importId, fileName: s.fileName, sheets, mapping: a.mapping, suggested: a.suggested, skippedSheets: a.skippedSheets, report: a.report, timeline, canAdd: s.dataset !== undefined && !hasErrors };
   }
 
   // --- channels ----------------------------------------------------------------------------

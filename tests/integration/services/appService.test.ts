@@ -43,6 +43,12 @@ describe('application service', () => {
     expect(preview.report.summary).toMatchObject({ patients: 8, doses: 14, levels: 10, censored: 2 });
     expect(preview.timeline).toHaveLength(8);
     expect(preview.sheets.length).toBeGreaterThanOrEqual(2);
+    for (const sh of preview.sheets) {
+      expect(sh.previewRows.length).toBeGreaterThan(0);
+      expect(sh.previewRows.length).toBeLessThanOrEqual(50);
+      // The header row as the spreadsheet shows it.
+      expect(sh.previewRows[sh.headerRow - 1].filter(Boolean)).toEqual(sh.columns.map((c: { header: string }) => c.header).filter(Boolean));
+    }
     const { templateId } = await ok('import.saveTemplate', { importId: preview.importId, name: 'Ward 7b export' });
     expect((await ok('import.templates')).map((t: { templateId: string }) => t.templateId)).toContain(templateId);
     const again = await ok('import.remap', { importId: preview.importId, mapping: preview.mapping });
