@@ -29,6 +29,18 @@ export interface ErrorValue {
 
 export type Result<T> = { ok: true; value: T } | { ok: false; error: ErrorValue };
 
+/** On the wire (WebSocket): a request, its answer, and an event. */
+export interface RequestEnvelope<C extends Channel = Channel> {
+  id: string;
+  channel: C;
+  payload?: RequestOf<C>;
+}
+export type ResponseEnvelope<T = unknown> = { id: string } & Result<T>;
+export interface EventEnvelope<E extends EventName = EventName> {
+  event: E;
+  payload: EventPayload<E>;
+}
+
 export interface AppInfo {
   appVersion: string;
   engineVersion: string;

@@ -119,6 +119,13 @@ describe('application service', () => {
     expect(cat.map((m: { id: string }) => m.id)).toEqual(expect.arrayContaining(['1cmt', '2cmt']));
   });
 
+  it('answers wire envelopes, and malformed ones with a usage error', async () => {
+    expect(await app.handleEnvelope({ id: 'r1', channel: 'queue.list', payload: {} })).toMatchObject({ id: 'r1', ok: true, value: { jobs: expect.any(Array) } });
+    expect(await app.handleEnvelope({ id: 'r2', channel: 'queue.list', payload: {}, extra: 1 })).toMatchObject({ id: 'r2', ok: false, error: { kind: 'usage' } });
+    expect(await app.handleEnvelope(JSON.parse('{"id":"r3","channel":"app.info","__proto__":{}}'))).toMatchObject({ id: 'r3', ok: false });
+    expect(await app.handleEnvelope('nonsense')).toMatchObject({ id: '', ok: false, error: { kind: 'usage' } });
+  });
+
   it('answers bad requests with usage errors', async () => {
     for (const [c, p] of [
       ['fits.get', { fitId: 'f-nope' }],
