@@ -30,13 +30,13 @@ export interface ErrorValue {
 export type Result<T> = { ok: true; value: T } | { ok: false; error: ErrorValue };
 
 /** On the wire (WebSocket): a request, its answer, and an event. */
-export interface RequestEnvelope<C extends Channel = Channel> {
+export interface WireRequest<C extends Channel = Channel> {
   id: string;
   channel: C;
   payload?: RequestOf<C>;
 }
-export type ResponseEnvelope<T = unknown> = { id: string } & Result<T>;
-export interface EventEnvelope<E extends EventName = EventName> {
+export type WireResponse<T = unknown> = { id: string } & Result<T>;
+export interface WireEvent<E extends EventName = EventName> {
   event: E;
   payload: EventPayload<E>;
 }

@@ -123,8 +123,8 @@ export function isChannel(x: unknown): x is Channel {
 }
 
 /** The envelope of a request from the renderer. */
-export const RequestEnvelopeSchema = z.strictObject({ id: z.string().min(1).max(100), channel: z.string().max(100), payload: z.unknown().optional() });
+export const RequestEnvelope = z.strictObject({ id: z.string().min(1).max(100), channel: z.string().max(100), payload: z.unknown().optional() });
 
 export const EVENT_NAMES = ['queue', 'progress', 'verify-progress'] as const;
 export type EventName = (typeof EVENT_NAMES)[number];
-export const SubscribeEnvelopeSchema = z.strictObject({ id: z.string().min(1).max(100), subscribe: z.enum(EVENT_NAMES) });
+export const SubscribeEnvelope = z.strictObject({ id: z.string().min(1).max(100), subscribe: z.enum(EVENT_NAMES) });

@@ -13,9 +13,9 @@ import { parseTarget } from '../../engine/dosing/targets.js';
 import type { Analysis } from '../../engine/import/analyse.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
-import type { CatalogueEntry, EventName, EventPayload, ImportPreview, LiteratureModel, ResponseEnvelope, Result, TargetPreset, TimelineSubject } from '../protocol/bridge.js';
+import type { CatalogueEntry, EventName, EventPayload, ImportPreview, LiteratureModel, WireResponse, Result, TargetPreset, TimelineSubject } from '../protocol/bridge.js';
 import { guardPlainData } from '../protocol/guard.js';
-import { RequestEnvelopeSchema, type Channel, type RequestOf } from '../protocol/schemas.js';
+import { RequestEnvelope, type Channel, type RequestOf } from '../protocol/schemas.js';
 import { validateRequest } from '../protocol/validate.js';
 import type { JobRequest } from '../protocol/worker.js';
 import { datasetFromWire } from './datasetWire.js';
@@ -102,9 +102,9 @@ export class AppService {
    * Answer one wire message `{id, channel, payload}` (the web host's WebSocket): the envelope is
    * checked too; a message without a usable id is answered with id "".
    */
-  async handleEnvelope(raw: unknown): Promise<ResponseEnvelope> {
+  async handleEnvelope(raw: unknown): Promise<WireResponse> {
     const why = guardPlainData(raw);
-    const env = why === undefined ? RequestEnvelopeSchema.safeParse(raw) : undefined;
+    const env = why === undefined ? RequestEnvelope.safeParse(raw) : undefined;
     if (!env?.success) {
       const id = typeof raw === 'object' && raw !== null && typeof (raw as { id?: unknown }).id === 'string' ? (raw as { id: string }).id.slice(0, 100) : '';
       const reason = why ?? env?.error.issues.slice(0, 3).map((i) => `${i.path.join('.') || '(message)'}: ${i.message}`).join('; ') ?? 'malformed';
