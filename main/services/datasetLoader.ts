@@ -5,12 +5,12 @@
  *   loadSpreadsheetDataset(path: string, mappingPath: string | undefined): Promise<Dataset>
  * and is loaded only when needed, so this module works before that branch exists.
  */
-import { promises as fs } from 'node:fs';
 import * as path from 'node:path';
 import { parseCanonicalCsvDetailed } from '../../engine/data/canonicalCsv.js';
 import { decodeTextChecked } from '../../engine/import/workbook.js';
 import { isCanonicalCsv } from '../../engine/import/analyse.js';
 import { DataError, type Dataset } from '../../engine/data/types.js';
+import { readRegularFile } from './fileGuard.js';
 
 export interface LoadDatasetOptions {
   /** Spreadsheet mapping template file. Sends even a .csv to the spreadsheet branch. */
@@ -69,15 +69,13 @@ export async function loadDataset(file: string, options: LoadDatasetOptions = {}
   let text: string;
   let encodingDamage: { line: number; message: string } | undefined;
   try {
-    // Decoded as check decodes it (UTF-8, UTF-16 by BOM, Latin-1), damaged UTF-8 named, not replaced silently.
-    const decoded = decodeTextChecked(new Uint8Array(await fs.readFile(file)));
+    // Regular files only, size checked before reading (fileGuard.ts); decoded as check decodes
+    // it (UTF-8, UTF-16 by BOM, Latin-1), damaged UTF-8 named, not replaced silently.
+    const decoded = decodeTextChecked(new Uint8Array(await readRegularFile(file, { what: 'data file' })));
     text = decoded.text;
     encodingDamage = decoded.damage;
   } catch (e) {
-    const code = (e as NodeJS.ErrnoException).code;
-    if (code === 'ENOENT') throw new DatasetLoadError(file, `data file not found: ${file}`);
-    if (code === 'EISDIR') throw new DatasetLoadError(file, `${file} is a folder, not a data file`);
-    throw new DatasetLoadError(file, `cannot read ${file}: ${(e as Error).message}`);
+    throw new DatasetLoadError(file, (e as Error).message);
   }
   // Any other CSV is an export: it goes the way `check` reads it (suggested mapping, same rules).
   if (!isCanonicalCsv(text)) return (await spreadsheetLoader(file))(file, undefined);
