@@ -34,7 +34,8 @@ export function hardenSession(ses: Session, log: Log): void {
   ses.setDevicePermissionHandler(() => false);
   ses.webRequest.onBeforeRequest((details, callback) => {
     // devtools:// only exists when the developer tools are open in a development run.
-    const allowed = isAppUrl(details.url) || details.url.startsWith('devtools://');
+    // data: and blob: are local (inline images, downloads the page builds itself).
+    const allowed = isAppUrl(details.url) || /^(data|blob|devtools):/.test(details.url);
     if (!allowed) log(`blocked a network request to ${details.url.slice(0, 200)}`);
     callback({ cancel: !allowed });
   });
@@ -47,7 +48,11 @@ export function hardenSession(ses: Session, log: Log): void {
     callback({ responseHeaders: headers });
   });
   ses.on('will-download', (event, item) => {
-    log(`blocked a download of ${item.getFilename()}`);
+    // A file the page built (blob:/data:) is saved through the native save dialog, as the web
+    // renderer's download; nothing else is ever downloaded.
+    const url = item.getURL();
+    if (url.startsWith(`blob:${APP_ORIGIN}/`) || url.startsWith('data:')) return;
+    log(`blocked a download from ${url.slice(0, 200)}`);
     event.preventDefault();
   });
 }
