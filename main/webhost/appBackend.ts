@@ -5,23 +5,17 @@
 import * as os from 'node:os';
 import * as path from 'node:path';
 import { EVENT_NAMES } from '../protocol/index.js';
+import { AppService } from '../services/appService.js';
 import type { SpawnWorker } from '../services/workerSpawner.js';
 import type { AppPaths } from './appPaths.js';
-import { parseBridgeRequest, type BridgeBackend, type BridgeReply } from './backend.js';
+import { parseBridgeRequest, type BridgeBackend } from './backend.js';
 
-/** The part of the application service a host uses (main/services/appService.ts). */
-export interface AppServiceLike {
-  handle(channel: unknown, payload: unknown): Promise<BridgeReply>;
-  subscribe(event: (typeof EVENT_NAMES)[number], listener: (payload: never) => void): () => void;
-  close(): Promise<void>;
-}
-
-export function backendFromService(service: AppServiceLike): BridgeBackend {
+export function backendFromService(service: Pick<AppService, 'handle' | 'subscribe'>): BridgeBackend {
   return {
     parseRequest: parseBridgeRequest,
     handle: (channel, payload) => service.handle(channel, payload),
     subscribe(listener) {
-      const offs = EVENT_NAMES.map((event) => service.subscribe(event, ((payload: unknown) => listener(event, payload)) as (payload: never) => void));
+      const offs = EVENT_NAMES.map((event) => service.subscribe(event, (payload: unknown) => listener(event, payload)));
       return () => {
         for (const off of offs) off();
       };
@@ -49,10 +43,15 @@ export interface RunningBackend {
 }
 
 export async function startAppBackend(options: AppBackendOptions): Promise<RunningBackend> {
-  void options;
-  const notYet = { kind: 'usage' as const, message: 'the application services are not wired into this build yet', problems: [] };
-  return {
-    backend: { parseRequest: parseBridgeRequest, handle: async () => ({ ok: false, error: notYet }), subscribe: () => () => {} },
-    stop: async () => {},
-  };
+  const service = await AppService.start({
+    workerEntry: path.join(options.paths.mainDir, 'worker', 'engineWorker.js'),
+    resourcesDir: options.paths.resourcesDir,
+    projectDir: options.projectDir,
+    rendererDir: options.paths.rendererDir,
+    host: options.host,
+    appVersion: options.appVersion,
+    ...(options.spawn ? { spawn: options.spawn } : {}),
+    ...(options.log ? { log: options.log } : {}),
+  });
+  return { backend: backendFromService(service), stop: () => service.close() };
 }
