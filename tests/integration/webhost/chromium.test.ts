@@ -15,7 +15,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startAppBackend, type RunningBackend } from '../../../main/webhost/appBackend.js';
 import { appPathsFromRoot } from '../../../main/webhost/appPaths.js';
 import { startWebHost, type WebHost } from '../../../main/webhost/server.js';
-import { ensureBuilt, repoRoot } from '../services/build.js';
+import { ensureBuilt, repoRoot } from './built.js';
 
 const CHROMIUM = '/usr/bin/chromium';
 const ARGS = ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];

@@ -9,7 +9,7 @@ import * as os from 'node:os';
 import * as path from 'node:path';
 import { afterAll, describe, expect, it, vi } from 'vitest';
 import { CHANNELS } from '../../../main/protocol/index.js';
-import { ensureBuilt, repoRoot } from '../../integration/services/build.js';
+import { ensureBuilt, repoRoot } from '../../integration/webhost/built.js';
 
 vi.mock('electron', () => import('./fakeElectron.js'));
 const fake = await import('./fakeElectron.js');
