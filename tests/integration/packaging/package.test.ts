@@ -29,10 +29,13 @@ let builderLog = '';
 beforeAll(() => {
   if (distIsStale()) buildMain();
   dir = mkdtempSync(path.join(os.tmpdir(), 'plateau-pack-'));
-  // A stub Electron distribution: just the files electron-builder copies and renames.
+  // A stub Electron distribution: just the files electron-builder copies and renames. The
+  // "binary" carries a fuse wire as Electron's does (the sentinel of @electron/fuses, version 1,
+  // 8 fuses in Electron's default states), so the fuses of the config are flipped for real.
   const stub = path.join(dir, 'electron-stub');
   mkdirSync(path.join(stub, 'locales'), { recursive: true });
-  writeFileSync(path.join(stub, 'electron'), '#!/bin/sh\necho stub\n');
+  const { SENTINEL } = require('@electron/fuses/dist/constants.js') as { SENTINEL: string };
+  writeFileSync(path.join(stub, 'electron'), Buffer.concat([Buffer.from('#!/bin/sh\necho stub\nexit 0\n'), Buffer.from(SENTINEL), Buffer.from([1, 8]), Buffer.from('10110001')]));
   chmodSync(path.join(stub, 'electron'), 0o755);
   writeFileSync(path.join(stub, 'version'), 'v41.7.1');
   writeFileSync(path.join(stub, 'locales', 'en-US.pak'), '');
@@ -136,6 +139,19 @@ describe('linux dir package with a stub Electron', () => {
         /^\/node_modules\/(electron|electron-builder|vitest|vite|typescript|svelte|@types|playwright-core|chart\.js)(\/|$)/.test(e),
     );
     expect(bad).toEqual([]);
+  });
+
+  it('flips the Electron fuses: no run-as-node, no NODE_OPTIONS, no inspector, app only from app.asar', async () => {
+    const { getCurrentFuseWire, FuseV1Options } = require('@electron/fuses');
+    const { FuseState } = require('@electron/fuses/dist/constants.js');
+    const wire = await getCurrentFuseWire(path.join(dir, 'out', 'linux-unpacked', 'plateau'));
+    expect(wire[FuseV1Options.RunAsNode]).toBe(FuseState.DISABLE);
+    expect(wire[FuseV1Options.EnableNodeOptionsEnvironmentVariable]).toBe(FuseState.DISABLE);
+    expect(wire[FuseV1Options.EnableNodeCliInspectArguments]).toBe(FuseState.DISABLE);
+    expect(wire[FuseV1Options.OnlyLoadAppFromAsar]).toBe(FuseState.ENABLE);
+    expect(wire[FuseV1Options.EnableEmbeddedAsarIntegrityValidation]).toBe(FuseState.ENABLE);
+    expect(wire[FuseV1Options.EnableCookieEncryption]).toBe(FuseState.ENABLE);
+    expect(wire[FuseV1Options.GrantFileProtocolExtraPrivileges]).toBe(FuseState.DISABLE);
   });
 
   it('carries no build-machine paths in the app code', () => {
