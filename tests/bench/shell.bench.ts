@@ -61,12 +61,14 @@ export const suite = {
     await queue.whenIdle();
     const queueMs = (performance.now() - t0) / K;
     const failed = queue.snapshot().jobs.filter((j) => j.state !== 'done').length;
+    const inWorkerMs = [...queue.workerWallMs.values()].reduce((a, b) => a + b, 0) / Math.max(1, queue.workerWallMs.size);
     await queue.close();
     rmSync(dir, { recursive: true, force: true });
     return [
       { name: 'worker spawn to ready (median of 7)', value: median(spawnMs), unit: 'ms', target: '< 300' },
       { name: 'job round trip in a ready worker (median of 15)', value: median(echoMs), unit: 'ms', note: 'the job thread is kept between jobs' },
-      { name: 'queue overhead per job', value: queueMs - median(directMs), unit: 'ms', target: '< 50', note: `${K} tiny fits, concurrency 1, worker reused; store writes included${failed ? `; ${failed} FAILED` : ''}` },
+      { name: 'queue overhead per job', value: queueMs - inWorkerMs, unit: 'ms', target: '< 50', note: `queue wall time per job minus the job's time in its worker; ${K} tiny fits, concurrency 1, worker reused; store reads and writes (fsync) included${failed ? `; ${failed} FAILED` : ''}` },
+      { name: 'tiny fit: in the worker vs in this process', value: inWorkerMs - median(directMs), unit: 'ms', note: 'difference of the job itself (cold code in the job thread)' },
     ];
   },
 };
