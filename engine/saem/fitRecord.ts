@@ -4,6 +4,8 @@
  * phase boundary, timing and warnings. Later stages (standard errors, likelihood,
  * diagnostics) add fields to the same record.
  */
+import type { DegeneracyReport } from '../posthoc/degeneracy.js';
+import { formatDegeneracy } from '../posthoc/degeneracy.js';
 import type { ModelSpec } from '../spec/modelSpec.js';
 import type { CompiledModel } from '../stats/model.js';
 import { ENGINE_VERSION } from '../version.js';
@@ -50,6 +52,8 @@ export interface FitRecord {
   acceptance: { independent: number | null; randomWalk: number | null; adaptive: number | null; component: Record<string, number | null> };
   timing: { totalMs: number; explorationMs: number; averagingMs: number };
   warnings: string[];
+  /** Collapse and degeneracy checks (added after the post-fit steps): usableAsPrior false means do not use as a prior. */
+  degeneracy?: DegeneracyReport;
 }
 
 const finiteOrNull = (x: number): number | null => (Number.isFinite(x) ? x : null);
@@ -111,7 +115,7 @@ export function buildFitRecord(
 
 /** A plain-text summary of a fit for the terminal. */
 export function formatFitSummary(record: FitRecord): string {
-  const lines: string[] = [];
+  const lines: string[] = [...formatDegeneracy(record.degeneracy)];
   const fmt = (x: number) => (Number.isFinite(x) ? (Math.abs(x) >= 1e4 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(4) : x.toPrecision(5)) : String(x));
   lines.push(`Plateau fit (engine ${record.engineVersion}, seed ${record.seed})`);
   lines.push(`  ${record.nSubjects} subjects, ${record.nObservations} levels (${record.nCensored} below the LLOQ), ${record.chainsPerSubject} chain(s) per subject`);

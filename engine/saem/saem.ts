@@ -119,7 +119,7 @@ export class SaemCancelledError extends Error {
 export function estimateNamesOf(model: CompiledModel): string[] {
   const names: string[] = model.parameters.map((p) => p.name);
   for (const t of model.covariateTerms) names.push(t.label);
-  for (let k = 0; k < model.nEta; k++) names.push(`omega_${model.parameters[model.etaParameter[k]].name}`);
+  for (let k = 0; k < model.nEta; k++) names.push(`bsv_${model.parameters[model.etaParameter[k]].name}`);
   for (const b of model.blocks)
     for (let x = 0; x < b.length; x++)
       for (let y = x + 1; y < b.length; y++) names.push(`corr_${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`);

@@ -4,6 +4,7 @@
  * merged into the fit record. One entry point for the CLI, the worker and the tests.
  */
 import { mergePosthoc, posthocRecordFields, PosthocError, runPosthoc, thetaFromPopulation, type PosthocOptions, type WithPosthoc } from '../../engine/posthoc/index.js';
+import { assessDegeneracy, type DegeneracyReport } from '../../engine/posthoc/degeneracy.js';
 import { runRepeatedFits, type RepeatOptions, type RepeatSummary } from '../../engine/posthoc/robustness.js';
 import { naturalToTransformed } from '../../engine/spec/individual.js';
 import type { FitOutcome } from './fitService.js';
@@ -32,9 +33,13 @@ export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions
   try {
     const r = runPosthoc(model, theta, { seed, startPhi, ...(options.posthoc ?? {}) });
     merged = mergePosthoc(record, posthocRecordFields(model, r, seed));
+    const minus2LL = r.likelihood.importance ? r.likelihood.importance.minus2LL : Number.isFinite(r.likelihood.linearisedMinus2LL) ? r.likelihood.linearisedMinus2LL : null;
+    markDegeneracy(merged, assessDegeneracy({ model, theta, density: r.density, modes: r.modes, minus2LL }));
   } catch (e) {
     if (!(e instanceof PosthocError)) throw e;
-    return { ...record, warnings: [...record.warnings, `post-fit steps not run: ${e.message}`] } as unknown as PosthocFitRecord;
+    const failed = { ...record, warnings: [...record.warnings, `post-fit steps not run: ${e.message}`] } as unknown as PosthocFitRecord;
+    markDegeneracy(failed, assessDegeneracy({ model, theta, minus2LL: null }));
+    return failed;
   }
   if (options.repeat !== undefined) {
     merged.robustness = await runRepeatedFits(outcome.spec, outcome.dataset, {
@@ -56,6 +61,13 @@ export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions
     if (!merged.robustness.stable) merged.warnings.push(`robustness: ${merged.robustness.verdict}`);
   }
   return merged;
+}
+
+/** Attach the degeneracy report; a degenerate fit gets a warning that blocks its use as a prior. */
+function markDegeneracy(record: { degeneracy?: DegeneracyReport; warnings: string[] }, report: DegeneracyReport): void {
+  record.degeneracy = report;
+  if (!report.usableAsPrior)
+    record.warnings.push(`degenerate fit (${report.findings.map((f) => `${f.code} ${f.parameter}`).join('; ')}): do not use this fit as a prior`);
 }
 
 const fmt = (x: number | null | undefined, digits = 5): string =>

@@ -56,6 +56,6 @@ describe('numerical M-step (simulation, invented data)', () => {
     expect(rel(e('CL'), 5)).toBeLessThan(0.08);
     expect(rel(e('ka'), 1.2)).toBeLessThan(0.1);
     expect(rel(e('a'), 0.15)).toBeLessThan(0.1);
-    expect(rel(e('omega_CL'), 0.3)).toBeLessThan(0.2);
+    expect(rel(e('bsv_CL'), 0.3)).toBeLessThan(0.2);
   });
 });
