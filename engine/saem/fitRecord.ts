@@ -43,14 +43,14 @@ export interface FitRecord {
   individual: { subject: string; parameters: Record<string, number> }[];
   trajectory: {
     names: string[];
-    explorationEnd: number;
-    explorationSettled: boolean;
+    searchEnd: number;
+    searchSettled: boolean;
     iterations: number;
     /** One row per iteration, columns as `names`. */
     values: number[][];
   };
   acceptance: { independent: number | null; randomWalk: number | null; adaptive: number | null; component: Record<string, number | null> };
-  timing: { totalMs: number; explorationMs: number; averagingMs: number };
+  timing: { totalMs: number; searchMs: number; averagingMs: number };
   warnings: string[];
   /** Collapse and degeneracy checks (added after the post-fit steps): usableAsPrior false means do not use as a prior. */
   degeneracy?: DegeneracyReport;
@@ -106,20 +106,20 @@ export function buildFitRecord(
     covariateRanges: ranges,
     population,
     individual,
-    trajectory: { names: [...result.estimateNames], explorationEnd: result.explorationEnd, explorationSettled: result.explorationSettled, iterations: result.iterations, values },
+    trajectory: { names: [...result.estimateNames], searchEnd: result.searchEnd, searchSettled: result.searchSettled, iterations: result.iterations, values },
     acceptance: { independent: finiteOrNull(result.acceptance.independent), randomWalk: finiteOrNull(result.acceptance.randomWalk), adaptive: finiteOrNull(result.acceptance.adaptive), component },
-    timing: { totalMs: result.timingMs.total, explorationMs: result.timingMs.exploration, averagingMs: result.timingMs.averaging },
+    timing: { totalMs: result.timingMs.total, searchMs: result.timingMs.search, averagingMs: result.timingMs.averaging },
     warnings,
   };
 }
 
 /** A plain-text summary of a fit for the terminal. */
-export function formatFitSummary(record: FitRecord): string {
-  const lines: string[] = [...formatDegeneracy(record.degeneracy)];
+export function formatFitSummary(record: FitRecord, afterFindings: readonly string[] = []): string {
+  const lines: string[] = [...formatDegeneracy(record.degeneracy), ...afterFindings];
   const fmt = (x: number) => (Number.isFinite(x) ? (Math.abs(x) >= 1e4 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(4) : x.toPrecision(5)) : String(x));
   lines.push(`Plateau fit (engine ${record.engineVersion}, seed ${record.seed})`);
   lines.push(`  ${record.nSubjects} subjects, ${record.nObservations} levels (${record.nCensored} below the LLOQ), ${record.chainsPerSubject} chain(s) per subject`);
-  lines.push(`  exploration ${record.trajectory.explorationEnd} iterations${record.trajectory.explorationSettled ? ' (settled)' : ' (cap reached)'}, averaging ${record.trajectory.iterations - record.trajectory.explorationEnd}; ${(record.timing.totalMs / 1000).toFixed(2)} s`);
+  lines.push(`  search ${record.trajectory.searchEnd} iterations${record.trajectory.searchSettled ? ' (settled)' : ' (cap reached)'}, averaging ${record.trajectory.iterations - record.trajectory.searchEnd}; ${(record.timing.totalMs / 1000).toFixed(2)} s`);
   lines.push('');
   for (const e of record.population) {
     let label: string;

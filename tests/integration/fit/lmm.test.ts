@@ -100,7 +100,7 @@ describe('the MCMC kernels sample the exact conditional distribution', () => {
     const mu = [fit.fixedEffects['(Intercept)'], fit.fixedEffects.age_c];
     const s2 = fit.residualSD ** 2;
     const spec = linearSpec({ b0: { typical: mu[0], bsv: Math.sqrt(om[0]) }, b1: { typical: mu[1], bsv: Math.sqrt(om[1]) } }, Math.sqrt(s2), false, {
-      chains: 10, explorationMinIterations: 50, explorationMaxIterations: 50, averagingIterations: 400, individualDraws: 400,
+      chains: 10, searchMinIterations: 50, searchMaxIterations: 50, averagingIterations: 400, individualDraws: 400,
     });
     const model = compileModel(spec, dataset, { structuralModel: linearModel(11) });
     const r = await runSaem(model, { seed: 3, freezePopulation: true });

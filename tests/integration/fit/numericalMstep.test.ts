@@ -18,7 +18,7 @@ const designs: SimSubjectDesign[] = Array.from({ length: 80 }, (_, i) => ({
   timesH: [0.5, 1, 2, 4, 8, 13, 16, 24],
 }));
 const rel = (x: number, y: number) => Math.abs(x / y - 1);
-const settings = { explorationMinIterations: 100, explorationMaxIterations: 300, averagingIterations: 150 };
+const settings = { searchMinIterations: 100, searchMaxIterations: 300, averagingIterations: 150 };
 
 describe('numerical M-step (simulation, invented data)', () => {
   it('recovers ka without BSV and combined error (a, b)', async () => {

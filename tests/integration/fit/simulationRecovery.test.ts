@@ -27,7 +27,7 @@ const fitSpec = parseModelSpec({
   residual: { model: 'proportional', b: 0.3 },
 });
 // Short runs: 30 replicates must stay quick.
-const fast = { explorationMinIterations: 80, explorationMaxIterations: 250, averagingIterations: 100, settleWindow: 30 };
+const fast = { searchMinIterations: 80, searchMaxIterations: 250, averagingIterations: 100, settleWindow: 30 };
 
 interface Estimates {
   CL: number;
