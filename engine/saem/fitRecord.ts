@@ -8,6 +8,7 @@ import type { DegeneracyReport } from '../posthoc/degeneracy.js';
 import { formatDegeneracy } from '../posthoc/degeneracy.js';
 import type { ModelSpec } from '../spec/modelSpec.js';
 import type { CompiledModel } from '../stats/model.js';
+import { getStructuralModel } from '../models/catalogue.js';
 import { ENGINE_VERSION } from '../version.js';
 import type { SaemResult } from './saem.js';
 import type { SaemSettings } from './settings.js';
@@ -24,6 +25,10 @@ export interface PopulationEstimate {
   estimate: number;
   /** Held at its spec value, not estimated. */
   fixed: boolean;
+  /** Unit of `estimate` ("L/h", "mg/L", "SD on the log scale", "power exponent"...). */
+  unit: string;
+  /** What the number is, in words ("power exponent on crcl_mL_min"). */
+  meaning: string;
 }
 
 export interface FitRecord {
@@ -67,16 +72,50 @@ export function buildFitRecord(
   const nEst = result.estimateNames.length;
   const last = result.estimates;
   const population: PopulationEstimate[] = [];
+  let catalogueUnits: Map<string, string>;
+  try {
+    catalogueUnits = new Map(getStructuralModel(model.spec.structure).parameters.map((q) => [q.name as string, q.unit]));
+  } catch {
+    catalogueUnits = new Map();
+  }
+  const scaleOf = (transform: string) => (transform === 'log' ? 'log' : transform === 'logit' ? 'logit' : 'natural');
   let q = 0;
-  for (const p of model.parameters) population.push({ parameter: p.name, kind: 'typical', estimate: last[q++], fixed: p.fixed });
-  for (const t of model.covariateTerms)
-    population.push({ parameter: model.parameters[t.parameterIndex].name, kind: 'covariate', covariate: t.level !== undefined ? `${t.covariate}=${t.level}` : t.covariate, estimate: last[q++], fixed: t.fixed });
-  for (let k = 0; k < model.nEta; k++) population.push({ parameter: model.parameters[model.etaParameter[k]].name, kind: 'bsv', estimate: last[q++], fixed: false });
+  for (const p of model.parameters) {
+    const unit = catalogueUnits.get(p.name) || (p.name === 'F' ? 'fraction' : '');
+    population.push({ parameter: p.name, kind: 'typical', estimate: last[q++], fixed: p.fixed, unit, meaning: `typical ${p.name}${unit ? ` (${unit})` : ''}` });
+  }
+  for (const t of model.covariateTerms) {
+    const par = model.parameters[t.parameterIndex];
+    const scale = scaleOf(par.transform);
+    const covariate = t.level !== undefined ? `${t.covariate}=${t.level}` : t.covariate;
+    const meaning =
+      t.relation === 'power'
+        ? `power exponent on ${t.covariate} (${par.name} x (${t.covariate} / ${t.reference})^exponent)`
+        : t.relation === 'linear'
+          ? `linear coefficient on ${t.covariate}: change of ${scale}-scale ${par.name} per unit of ${t.covariate} from ${t.reference}`
+          : `shift of ${scale}-scale ${par.name} for ${covariate} (reference ${t.reference})`;
+    const unit = t.relation === 'power' ? 'power exponent' : t.relation === 'linear' ? `${scale}-scale ${par.name} per unit of ${t.covariate}` : `${scale}-scale ${par.name}`;
+    population.push({ parameter: par.name, kind: 'covariate', covariate, estimate: last[q++], fixed: t.fixed, unit, meaning });
+  }
+  for (let k = 0; k < model.nEta; k++) {
+    const par = model.parameters[model.etaParameter[k]];
+    const unit = `SD on the ${scaleOf(par.transform)} scale`;
+    population.push({ parameter: par.name, kind: 'bsv', estimate: last[q++], fixed: false, unit, meaning: `between-subject variability of ${par.name} (${unit})` });
+  }
   for (const b of model.blocks)
     for (let x = 0; x < b.length; x++)
-      for (let y = x + 1; y < b.length; y++)
-        population.push({ parameter: `${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`, kind: 'correlation', estimate: last[q++], fixed: false });
-  for (; q < nEst; q++) population.push({ parameter: result.estimateNames[q], kind: 'residual', estimate: last[q], fixed: false });
+      for (let y = x + 1; y < b.length; y++) {
+        const pair = `${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`;
+        population.push({ parameter: pair, kind: 'correlation', estimate: last[q++], fixed: false, unit: 'correlation', meaning: `correlation of the random effects of ${pair}` });
+      }
+  const rm = model.residualModel;
+  for (; q < nEst; q++) {
+    const name = result.estimateNames[q];
+    const isB = name === 'b';
+    const unit = isB ? 'fraction of the prediction (SD)' : rm === 'log-additive' ? 'SD on the log scale' : 'mg/L';
+    const meaning = isB ? 'proportional residual error' : rm === 'log-additive' ? 'residual error on the log scale' : 'additive residual error';
+    population.push({ parameter: name, kind: 'residual', estimate: last[q], fixed: false, unit, meaning });
+  }
 
   const p = model.nParams;
   const individual = model.subjects.map((s, i) => {
@@ -131,8 +170,10 @@ export function formatFitSummary(record: FitRecord, afterFindings: readonly stri
       if (transform === 'log') extra = `  CV ${(100 * Math.sqrt(Math.expm1(e.estimate * e.estimate))).toFixed(1)}%`;
     } else if (e.kind === 'correlation') label = `correlation ${e.parameter}`;
     else if (e.kind === 'covariate') label = `${e.parameter} ~ ${e.covariate}`;
+    if (e.kind === 'typical' && e.unit === '') label = `${e.parameter} (typical)`;
     else label = e.parameter === 'b' ? 'residual: proportional b' : record.spec.residual.model === 'log-additive' ? 'residual: log-scale SD a' : 'residual: additive a';
-    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)}${e.fixed ? '  (fixed)' : ''}${extra}`);
+    const unit = e.kind === 'typical' || e.kind === 'residual' || e.kind === 'covariate' ? e.unit : e.kind === 'bsv' ? e.unit : '';
+    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)} ${unit}${e.fixed ? '  (fixed)' : ''}${extra}`);
   }
   if (record.warnings.length) {
     lines.push('');

@@ -81,7 +81,7 @@ export function formatPosthocSummary(record: PosthocFitRecord): string {
   lines.push(`Standard errors (${record.uncertainty.method}):`);
   for (const e of record.population) {
     const label = e.kind === 'typical' ? `${e.parameter} (typical)` : e.kind === 'bsv' ? `BSV ${e.parameter} (omega)` : e.kind === 'covariate' ? `${e.parameter} ~ ${e.covariate}` : e.kind === 'correlation' ? `correlation ${e.parameter}` : `residual ${e.parameter}`;
-    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)}  SE ${fmt(e.se, 3).padStart(10)}  RSE ${e.rsePercent === null ? '-' : `${e.rsePercent.toFixed(1)}%`}`);
+    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)}  SE ${fmt(e.se, 3).padStart(10)} ${(e.unit ?? "").padEnd(12)} RSE ${e.rsePercent === null ? '-' : `${e.rsePercent.toFixed(1)}%`}`);
   }
   if (record.uncertainty.conditionNumber !== null) lines.push(`  condition number of the information: ${fmt(record.uncertainty.conditionNumber, 3)}`);
   const l = record.likelihood;
