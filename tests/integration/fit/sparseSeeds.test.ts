@@ -18,33 +18,12 @@ import { beforeAll, describe, expect, it } from 'vitest';
 import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { runPosthoc } from '../../../engine/posthoc/index.js';
 import { runSaem, type SaemResult } from '../../../engine/saem/saem.js';
-import { parseModelSpec, type ModelSpec } from '../../../engine/spec/modelSpec.js';
+import type { ModelSpec } from '../../../engine/spec/modelSpec.js';
 import { compileModel } from '../../../engine/stats/model.js';
+import { phenobarbSpec, sparseTdmSpec } from '../../helpers/sparseSpecs.js';
 
 const ref = path.resolve(__dirname, '../../reference');
 const SEEDS = [1, 2, 3, 4, 5];
-
-export const phenobarbSpec: ModelSpec = parseModelSpec({
-  name: 'Phenobarb 1cmt IV, weight exponents',
-  structure: '1cmt',
-  parameters: { CL: { typical: 0.006, bsv: 0.3 }, V: { typical: 1.3, bsv: 0.3 } },
-  covariates: [
-    { parameter: 'CL', covariate: 'weight_kg', relation: 'power', reference: 1.3, coefficient: 1 },
-    { parameter: 'V', covariate: 'weight_kg', relation: 'power', reference: 1.3, coefficient: 1 },
-  ],
-  residual: { model: 'additive', a: 3 },
-});
-
-export const sparseTdmSpec: ModelSpec = parseModelSpec({
-  name: 'sparse TDM 2cmt infusion (simulation)',
-  structure: '2cmt',
-  parameters: { CL: { typical: 3, bsv: 0.5 }, V1: { typical: 20, bsv: 0.5 }, Q: { typical: 4, bsv: null }, V2: { typical: 40, bsv: null, fixed: true } },
-  covariates: [
-    { parameter: 'CL', covariate: 'crcl_mL_min', relation: 'power', reference: 80, coefficient: 0.7, fixed: true },
-    { parameter: 'V1', covariate: 'weight_kg', relation: 'power', reference: 70, coefficient: 1, fixed: true },
-  ],
-  residual: { model: 'combined', a: 1, b: 0.2 },
-});
 
 interface Case {
   name: string;
@@ -84,6 +63,8 @@ for (const c of CASES) {
         const post = runPosthoc(model, result.theta, { seed, diagnostics: false, linearisedSe: false });
         fits.push({ seed, result, minus2LL: post.likelihood.importance?.minus2LL ?? NaN });
       }
+      for (const f of fits)
+        console.log(`${c.name} seed ${f.seed}: ${Object.keys(c.keys).map((k) => `${k} ${f.result.estimates[f.result.estimateNames.indexOf(k)].toPrecision(4)}`).join(', ')}; -2LL ${f.minus2LL.toFixed(2)} (exact ${exactMinus2LL.toFixed(2)})`);
     }, 600_000);
 
     it('quadrature reference converged (exact_mle.json: 21 and 25 nodes per dimension agree to 0.01)', () => {
