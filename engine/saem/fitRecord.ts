@@ -10,7 +10,7 @@ import type { ModelSpec } from '../spec/modelSpec.js';
 import type { CompiledModel } from '../stats/model.js';
 import { getStructuralModel } from '../models/catalogue.js';
 import { ENGINE_VERSION } from '../version.js';
-import type { SaemResult } from './saem.js';
+import { residualKeyOf, type SaemResult } from './saem.js';
 import type { SaemSettings } from './settings.js';
 
 export type PopulationKind = 'typical' | 'bsv' | 'correlation' | 'covariate' | 'residual';
@@ -110,7 +110,7 @@ export function buildFitRecord(
       }
   const rm = model.residualModel;
   for (; q < nEst; q++) {
-    const name = result.estimateNames[q];
+    const name = residualKeyOf(result.estimateNames[q]) ?? result.estimateNames[q];
     const isB = name === 'b';
     const unit = isB ? 'fraction of the prediction (SD)' : rm === 'log-additive' ? 'SD on the log scale' : 'mg/L';
     const meaning = isB ? 'proportional residual error' : rm === 'log-additive' ? 'residual error on the log scale' : 'additive residual error';

@@ -115,6 +115,18 @@ export class SaemCancelledError extends Error {
   }
 }
 
+/**
+ * Trajectory columns of the residual terms, named by what they are (the spec's residual keys
+ * are `a` and `b`: additive SD in mg/L, or the SD on the log scale for log-additive error, and
+ * the proportional SD).
+ */
+export const RESIDUAL_COLUMN = Object.freeze({ additive: 'residual_additive_mg_L', logScale: 'residual_log_sd', proportional: 'residual_proportional' });
+
+/** The spec key (`a` or `b`) of a residual trajectory column, or null for other columns. */
+export function residualKeyOf(column: string): 'a' | 'b' | null {
+  return column === RESIDUAL_COLUMN.proportional ? 'b' : column === RESIDUAL_COLUMN.additive || column === RESIDUAL_COLUMN.logScale ? 'a' : null;
+}
+
 /** Names of the estimates in the trajectory (and the progress callback), in order. */
 export function estimateNamesOf(model: CompiledModel): string[] {
   const names: string[] = model.parameters.map((p) => p.name);
@@ -124,8 +136,9 @@ export function estimateNamesOf(model: CompiledModel): string[] {
     for (let x = 0; x < b.length; x++)
       for (let y = x + 1; y < b.length; y++) names.push(`corr_${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`);
   const rm = model.residualModel;
-  if (rm === 'additive' || rm === 'combined' || rm === 'log-additive') names.push('a');
-  if (rm === 'proportional' || rm === 'combined') names.push('b');
+  if (rm === 'additive' || rm === 'combined') names.push(RESIDUAL_COLUMN.additive);
+  if (rm === 'log-additive') names.push(RESIDUAL_COLUMN.logScale);
+  if (rm === 'proportional' || rm === 'combined') names.push(RESIDUAL_COLUMN.proportional);
   return names;
 }
 
@@ -795,7 +808,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     for (let j = 0; j < p; j++) positive[q++] = model.parameters[j].transform === 'log' ? 1 : 0;
     q += T;
     for (let k = 0; k < nEta; k++) positive[q++] = 1;
-    for (; q < nEst; q++) positive[q] = estimateNames[q] === 'a' || estimateNames[q] === 'b' ? 1 : 0;
+    for (; q < nEst; q++) positive[q] = residualKeyOf(estimateNames[q]) !== null ? 1 : 0;
   }
   /** The settle window, at most half the minimum search length (so a short search can still settle). */
   const settleWindow = Math.max(5, Math.min(settings.settleWindow, Math.floor(settings.searchMinIterations / 2)));

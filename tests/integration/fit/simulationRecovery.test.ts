@@ -42,7 +42,7 @@ async function fit(dataset: Dataset, seed: number): Promise<Estimates> {
   const model = compileModel(fitSpec, dataset);
   const r = await runSaem(model, { seed, settings: fast });
   const e = (name: string) => r.estimates[r.estimateNames.indexOf(name)];
-  return { CL: e('CL'), V: e('V'), omegaCL: e('bsv_CL'), omegaV: e('bsv_V'), exponent: e('CL~weight_kg'), b: e('b') };
+  return { CL: e('CL'), V: e('V'), omegaCL: e('bsv_CL'), omegaV: e('bsv_V'), exponent: e('CL~weight_kg'), b: e('residual_proportional') };
 }
 
 function summary(runs: Estimates[]) {

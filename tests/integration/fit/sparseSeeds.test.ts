@@ -40,14 +40,14 @@ const CASES: Case[] = [
     csv: 'phenobarb/phenobarb.csv',
     json: 'phenobarb/exact_mle.json',
     spec: phenobarbSpec,
-    keys: { CL: 'CL_L_per_h', V: 'V_L', 'CL~weight_kg': 'CL_weight_exponent', 'V~weight_kg': 'V_weight_exponent', bsv_CL: 'omega_CL', bsv_V: 'omega_V', a: 'a_mg_L' },
+    keys: { CL: 'CL_L_per_h', V: 'V_L', 'CL~weight_kg': 'CL_weight_exponent', 'V~weight_kg': 'V_weight_exponent', bsv_CL: 'omega_CL', bsv_V: 'omega_V', residual_additive_mg_L: 'a_mg_L' },
   },
   {
     name: 'sparse 2-cmt TDM design (simulation)',
     csv: 'tdm-sparse/tdm_sparse.csv',
     json: 'tdm-sparse/exact_mle.json',
     spec: sparseTdmSpec,
-    keys: { CL: 'CL_L_per_h', V1: 'V1_L', Q: 'Q_L_per_h', bsv_CL: 'omega_CL', bsv_V1: 'omega_V1', a: 'a_mg_L', b: 'b' },
+    keys: { CL: 'CL_L_per_h', V1: 'V1_L', Q: 'Q_L_per_h', bsv_CL: 'omega_CL', bsv_V1: 'omega_V1', residual_additive_mg_L: 'a_mg_L', residual_proportional: 'b' },
   },
 ];
 
