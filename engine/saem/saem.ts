@@ -34,6 +34,8 @@ import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import { choleskyLower, invertFromCholesky, solveWithCholesky } from '../stats/dense.js';
 import { combinedErrorDerivatives, residualSd } from '../stats/residual.js';
 import { truncatedNormalBelow } from '../stats/normalTail.js';
+import { estimateNamesOf, numericalComponents, positiveEstimates, readNumerical, writeEstimates as writeEstimatesOf, writeNumerical } from './layout.js';
+import { effectiveSettleWindow, settledAt, stepSize } from './schedules.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
 import { buildComponentwiseKernel, buildIndependenceKernel, buildRandomWalkKernel, scaleAdaptation, type ChainState, type LogDensityTarget } from '../mcmc/kernels.js';
 
@@ -115,32 +117,7 @@ export class SaemCancelledError extends Error {
   }
 }
 
-/**
- * Trajectory columns of the residual terms, named by what they are (the spec's residual keys
- * are `a` and `b`: additive SD in mg/L, or the SD on the log scale for log-additive error, and
- * the proportional SD).
- */
-export const RESIDUAL_COLUMN = Object.freeze({ additive: 'residual_additive_mg_L', logScale: 'residual_log_sd', proportional: 'residual_proportional' });
-
-/** The spec key (`a` or `b`) of a residual trajectory column, or null for other columns. */
-export function residualKeyOf(column: string): 'a' | 'b' | null {
-  return column === RESIDUAL_COLUMN.proportional ? 'b' : column === RESIDUAL_COLUMN.additive || column === RESIDUAL_COLUMN.logScale ? 'a' : null;
-}
-
-/** Names of the estimates in the trajectory (and the progress callback), in order. */
-export function estimateNamesOf(model: CompiledModel): string[] {
-  const names: string[] = model.parameters.map((p) => p.name);
-  for (const t of model.covariateTerms) names.push(t.label);
-  for (let k = 0; k < model.nEta; k++) names.push(`bsv_${model.parameters[model.etaParameter[k]].name}`);
-  for (const b of model.blocks)
-    for (let x = 0; x < b.length; x++)
-      for (let y = x + 1; y < b.length; y++) names.push(`corr_${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`);
-  const rm = model.residualModel;
-  if (rm === 'additive' || rm === 'combined') names.push(RESIDUAL_COLUMN.additive);
-  if (rm === 'log-additive') names.push(RESIDUAL_COLUMN.logScale);
-  if (rm === 'proportional' || rm === 'combined') names.push(RESIDUAL_COLUMN.proportional);
-  return names;
-}
+export { estimateNamesOf, RESIDUAL_COLUMN, residualKeyOf } from './layout.js';
 
 /** A prepared SAEM run: `step()` performs one iteration; the caller decides when to stop. */
 export interface SaemRun {
@@ -231,16 +208,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const bMat = new Float64Array(R * nEta);
 
   // Numerical block: typical values / coefficients of parameters without BSV, combined-error (log a, log b).
-  interface NumComp {
-    kind: 'mu' | 'beta' | 'loga' | 'logb';
-    index: number;
-  }
-  const numComps: NumComp[] = [];
-  for (let j = 0; j < p; j++) if (!hasEta[j] && !model.parameters[j].fixed) numComps.push({ kind: 'mu', index: j });
-  for (let t = 0; t < T; t++) if (!hasEta[termParam[t]] && !model.covariateTerms[t].fixed) numComps.push({ kind: 'beta', index: t });
-  const numStructural = numComps.length > 0;
-  // Fixed parameters without BSV still need predictions refreshed only if something structural moves.
-  if (rm === 'combined') numComps.push({ kind: 'loga', index: 0 }, { kind: 'logb', index: 0 });
+  const { components: numComps, structural: numStructural } = numericalComponents(model);
   const nNum = numComps.length;
   const numTheta = new Float64Array(nNum);
   const numGrad = new Float64Array(nNum);
@@ -642,10 +610,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 
   const xTmp = new Float64Array(nNum);
   function numericalStep(gamma: number): void {
-    for (let m = 0; m < nNum; m++) {
-      const nc = numComps[m];
-      numTheta[m] = nc.kind === 'mu' ? theta.mu[nc.index] : nc.kind === 'beta' ? theta.beta[nc.index] : nc.kind === 'loga' ? Math.log(theta.a) : Math.log(theta.b);
-    }
+    readNumerical(numComps, theta, numTheta);
     if (!numStructural && rm === 'combined') {
       if (!combinedDerivatives()) return;
     } else if (!finiteDifferenceDerivatives()) return;
@@ -657,12 +622,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     for (let m = 0; m < nNum; m++) {
       const cap = Math.max(1, Math.abs(numTheta[m]) * 0.5);
       const d = Math.max(-cap, Math.min(cap, numStep[m]));
-      const v = numTheta[m] + gamma * d;
-      const nc = numComps[m];
-      if (nc.kind === 'mu') theta.mu[nc.index] = v;
-      else if (nc.kind === 'beta') theta.beta[nc.index] = v;
-      else if (nc.kind === 'loga') theta.a = Math.exp(v);
-      else theta.b = Math.exp(v);
+      writeNumerical(numComps[m], numTheta[m] + gamma * d, theta);
     }
   }
 
@@ -789,47 +749,11 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       }
   }
 
-  function writeEstimates(out: Float64Array): void {
-    let q = 0;
-    for (let j = 0; j < p; j++) out[q++] = model.parameters[j].transform === 'log' ? Math.exp(theta.mu[j]) : model.parameters[j].transform === 'logit' ? 1 / (1 + Math.exp(-theta.mu[j])) : theta.mu[j];
-    for (let t = 0; t < T; t++) out[q++] = theta.beta[t];
-    for (let k = 0; k < nEta; k++) out[q++] = Math.sqrt(theta.omega[k * nEta + k]);
-    for (const b of model.blocks)
-      for (let x = 0; x < b.length; x++)
-        for (let y = x + 1; y < b.length; y++) out[q++] = theta.omega[b[x] * nEta + b[y]] / Math.sqrt(theta.omega[b[x] * nEta + b[x]] * theta.omega[b[y] * nEta + b[y]]);
-    if (rm === 'additive' || rm === 'combined' || rm === 'log-additive') out[q++] = theta.a;
-    if (rm === 'proportional' || rm === 'combined') out[q++] = theta.b;
-  }
-
+  const writeEstimates = (out: Float64Array): void => writeEstimatesOf(model, theta, out);
   /** Working scale of each estimate for the settle test: log of positive quantities. */
-  const positive = new Uint8Array(nEst);
-  {
-    let q = 0;
-    for (let j = 0; j < p; j++) positive[q++] = model.parameters[j].transform === 'log' ? 1 : 0;
-    q += T;
-    for (let k = 0; k < nEta; k++) positive[q++] = 1;
-    for (; q < nEst; q++) positive[q] = residualKeyOf(estimateNames[q]) !== null ? 1 : 0;
-  }
-  /** The settle window, at most half the minimum search length (so a short search can still settle). */
-  const settleWindow = Math.max(5, Math.min(settings.settleWindow, Math.floor(settings.searchMinIterations / 2)));
-  function settled(k: number): boolean {
-    const W = settleWindow;
-    if (k < 2 * W) return false;
-    for (let e = 0; e < nEst; e++) {
-      let s1 = 0, s2 = 0, q1 = 0, q2 = 0;
-      for (let it = k - 2 * W; it < k; it++) {
-        let v = trajectory[it * nEst + e];
-        if (positive[e]) v = Math.log(v);
-        if (it < k - W) (s1 += v), (q1 += v * v);
-        else (s2 += v), (q2 += v * v);
-      }
-      const m1 = s1 / W, m2 = s2 / W;
-      const sd1 = Math.sqrt(Math.max(0, q1 / W - m1 * m1));
-      const sd2 = Math.sqrt(Math.max(0, q2 / W - m2 * m2));
-      if (Math.abs(m2 - m1) > settings.settleTolerance * 0.5 * (sd1 + sd2) + 1e-4 * (1 + Math.abs(m2))) return false;
-    }
-    return true;
-  }
+  const positive = positiveEstimates(model, estimateNames);
+  const settleWindow = effectiveSettleWindow(settings.settleWindow, settings.searchMinIterations);
+  const settled = (k: number): boolean => settledAt(k, trajectory, nEst, positive, settleWindow, settings.settleTolerance);
 
   // The last settleWindow search iterations (judged stationary by the settle test) open
   // the averaging phase: its statistics start as their mean and gamma_k = 1/(k - K1 + W), so the
@@ -848,11 +772,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     ringSres[slot] = sres;
   }
   function storeWindowNumerical(k: number): void {
-    const slot = (k - 1) % W;
-    for (let m = 0; m < nNum; m++) {
-      const nc = numComps[m];
-      ringNum[slot * nNum + m] = nc.kind === 'mu' ? theta.mu[nc.index] : nc.kind === 'beta' ? theta.beta[nc.index] : nc.kind === 'loga' ? Math.log(theta.a) : Math.log(theta.b);
-    }
+    readNumerical(numComps, theta, ringNum, ((k - 1) % W) * nNum);
   }
   function warmStart(k: number): void {
     const n = Math.min(W, k);
@@ -868,11 +788,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     for (let m = 0; m < nNum; m++) {
       let v = 0;
       for (let slot = 0; slot < n; slot++) v += ringNum[slot * nNum + m] / n;
-      const nc = numComps[m];
-      if (nc.kind === 'mu') theta.mu[nc.index] = v;
-      else if (nc.kind === 'beta') theta.beta[nc.index] = v;
-      else if (nc.kind === 'loga') theta.a = Math.exp(v);
-      else theta.b = Math.exp(v);
+      writeNumerical(numComps[m], v, theta);
     }
     // M-step from the window means (gamma 0 keeps the statistics as set).
     sres = sresBar;
@@ -921,7 +837,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       simulate(exploring);
       computeStatistics();
       if (exploring) storeWindowStatistics(iteration);
-      const gamma = exploring ? 1 : Math.pow(iteration - (searchEnd as number) + warmCount, -settings.stepExponent);
+      const gamma = stepSize(iteration, searchEnd, warmCount, settings.stepExponent);
       if (!options.freezePopulation) mStep(gamma, exploring && iteration <= annealingIterations);
       if (exploring) storeWindowNumerical(iteration);
       writeEstimates(current);
