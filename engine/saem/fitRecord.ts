@@ -170,7 +170,6 @@ export function formatFitSummary(record: FitRecord, afterFindings: readonly stri
       if (transform === 'log') extra = `  CV ${(100 * Math.sqrt(Math.expm1(e.estimate * e.estimate))).toFixed(1)}%`;
     } else if (e.kind === 'correlation') label = `correlation ${e.parameter}`;
     else if (e.kind === 'covariate') label = `${e.parameter} ~ ${e.covariate}`;
-    if (e.kind === 'typical' && e.unit === '') label = `${e.parameter} (typical)`;
     else label = e.parameter === 'b' ? 'residual: proportional b' : record.spec.residual.model === 'log-additive' ? 'residual: log-scale SD a' : 'residual: additive a';
     const unit = e.kind === 'typical' || e.kind === 'residual' || e.kind === 'covariate' ? e.unit : e.kind === 'bsv' ? e.unit : '';
     lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)} ${unit}${e.fixed ? '  (fixed)' : ''}${extra}`);

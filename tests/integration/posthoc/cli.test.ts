@@ -26,6 +26,10 @@ describe('plateau fit: post-fit fields and --seeds', () => {
     const text = t.out();
     expect(text).toMatch(/Standard errors \(observed Fisher information by stochastic approximation \(Louis\)/);
     expect(text).toMatch(/-2LL \d+\.\d+ \(Monte Carlo SE/);
+    // Every number of the summary has its unit; each line is labelled by what it is.
+    expect(text).toMatch(/\n  CL \(typical\) +\S+ L\/h\n/);
+    expect(text).toMatch(/\n  BSV ka \(omega\) +\S+ SD on the log scale  CV/);
+    expect(text).toMatch(/\n  residual: additive a +\S+ mg\/L\n/);
     expect(text).toMatch(/Seeds 5, 6: kept the fit from seed [56] \(lowest importance-sampling -2LL/);
     const raw = readFileSync(path.join(dir, 'fit.json'), 'utf8');
     expect(raw).not.toMatch(/NaN/);
