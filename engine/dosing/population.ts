@@ -228,7 +228,7 @@ export function populationModelFromFit(fit: Record<string, unknown>): Population
 const POST_FIT_INTERNAL = /^\(second method\)|^linearis(ed|ation)\b|^importance sampling\b|^NPDE\b|^simulation:|^conditional mode\b/i;
 
 /**
- * Is the fit fit to be a prior? A fit whose own record says not to use it blocks; an exploration
+ * Is the fit fit to be a prior? A fit whose own record says not to use it blocks; a search
  * that hit its iteration cap, missing standard errors and a collapsed BSV are flagged by name.
  * Every warning the fit reported is listed with its text.
  */
@@ -240,8 +240,8 @@ function fitChecks(fit: Record<string, unknown>, fitWarnings: readonly string[])
     else out.push({ severity: 'flag', code: 'fit-warning', message: `the fit reported: "${w}"` });
   }
   const tr = isRecord(fit.trajectory) ? fit.trajectory : undefined;
-  if (tr && tr.explorationSettled === false)
-    out.push({ severity: 'flag', code: 'fit-cap-reached', message: `the fit's exploration phase hit its iteration cap (${finite(tr.explorationEnd) ? `${tr.explorationEnd} iterations` : 'cap'}) without settling: the estimates may not have converged; refit with more iterations before relying on this prior` });
+  if (tr && tr.searchSettled === false)
+    out.push({ severity: 'flag', code: 'fit-cap-reached', message: `the fit's search phase hit its iteration cap (${finite(tr.searchEnd) ? `${tr.searchEnd} iterations` : 'cap'}) without settling: the estimates may not have converged; refit with more iterations before relying on this prior` });
   const unc = isRecord(fit.uncertainty) ? fit.uncertainty : undefined;
   const pop = (fit.population as unknown[]).filter(isRecord);
   const noSe = pop.filter((e) => e.fixed !== true && !finite(e.se)).map((e) => `${String(e.kind)} ${String(e.parameter)}${typeof e.covariate === 'string' ? `~${e.covariate}` : ''}`);

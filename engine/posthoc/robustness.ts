@@ -152,7 +152,7 @@ export function summariseRuns(labels: readonly string[], runs: readonly RepeatRu
     unstable,
     verdict: stable
       ? `stable: ${runs.length} runs from different seeds and initial values agree within one SE for every parameter and within the Monte Carlo error for -2LL`
-      : `unstable: ${unstable.join(', ')} differ(s) between runs by more than the tolerance; the fit depends on the seed or the initial values (try longer exploration, better initial values or a simpler model)`,
+      : `unstable: ${unstable.join(', ')} differ(s) between runs by more than the tolerance; the fit depends on the seed or the initial values (try longer search, better initial values or a simpler model)`,
     rule: 'a parameter is unstable when max - min over the runs exceeds its SE; -2LL when its range exceeds max(1, 4 x Monte Carlo error)',
   };
 }

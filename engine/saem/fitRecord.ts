@@ -4,10 +4,13 @@
  * phase boundary, timing and warnings. Later stages (standard errors, likelihood,
  * diagnostics) add fields to the same record.
  */
+import type { DegeneracyReport } from '../posthoc/degeneracy.js';
+import { formatDegeneracy } from '../posthoc/degeneracy.js';
 import type { ModelSpec } from '../spec/modelSpec.js';
 import type { CompiledModel } from '../stats/model.js';
+import { getStructuralModel } from '../models/catalogue.js';
 import { ENGINE_VERSION } from '../version.js';
-import type { SaemResult } from './saem.js';
+import { residualKeyOf, type SaemResult } from './saem.js';
 import type { SaemSettings } from './settings.js';
 
 export type PopulationKind = 'typical' | 'bsv' | 'correlation' | 'covariate' | 'residual';
@@ -22,6 +25,10 @@ export interface PopulationEstimate {
   estimate: number;
   /** Held at its spec value, not estimated. */
   fixed: boolean;
+  /** Unit of `estimate` ("L/h", "mg/L", "SD on the log scale", "power exponent"...). */
+  unit: string;
+  /** What the number is, in words ("power exponent on crcl_mL_min"). */
+  meaning: string;
 }
 
 export interface FitRecord {
@@ -41,15 +48,17 @@ export interface FitRecord {
   individual: { subject: string; parameters: Record<string, number> }[];
   trajectory: {
     names: string[];
-    explorationEnd: number;
-    explorationSettled: boolean;
+    searchEnd: number;
+    searchSettled: boolean;
     iterations: number;
     /** One row per iteration, columns as `names`. */
     values: number[][];
   };
   acceptance: { independent: number | null; randomWalk: number | null; adaptive: number | null; component: Record<string, number | null> };
-  timing: { totalMs: number; explorationMs: number; averagingMs: number };
+  timing: { totalMs: number; searchMs: number; averagingMs: number };
   warnings: string[];
+  /** Collapse and degeneracy checks (added after the post-fit steps): usableAsPrior false means do not use as a prior. */
+  degeneracy?: DegeneracyReport;
 }
 
 const finiteOrNull = (x: number): number | null => (Number.isFinite(x) ? x : null);
@@ -63,16 +72,50 @@ export function buildFitRecord(
   const nEst = result.estimateNames.length;
   const last = result.estimates;
   const population: PopulationEstimate[] = [];
+  let catalogueUnits: Map<string, string>;
+  try {
+    catalogueUnits = new Map(getStructuralModel(model.spec.structure).parameters.map((q) => [q.name as string, q.unit]));
+  } catch {
+    catalogueUnits = new Map();
+  }
+  const scaleOf = (transform: string) => (transform === 'log' ? 'log' : transform === 'logit' ? 'logit' : 'natural');
   let q = 0;
-  for (const p of model.parameters) population.push({ parameter: p.name, kind: 'typical', estimate: last[q++], fixed: p.fixed });
-  for (const t of model.covariateTerms)
-    population.push({ parameter: model.parameters[t.parameterIndex].name, kind: 'covariate', covariate: t.level !== undefined ? `${t.covariate}=${t.level}` : t.covariate, estimate: last[q++], fixed: t.fixed });
-  for (let k = 0; k < model.nEta; k++) population.push({ parameter: model.parameters[model.etaParameter[k]].name, kind: 'bsv', estimate: last[q++], fixed: false });
+  for (const p of model.parameters) {
+    const unit = catalogueUnits.get(p.name) || (p.name === 'F' ? 'fraction' : '');
+    population.push({ parameter: p.name, kind: 'typical', estimate: last[q++], fixed: p.fixed, unit, meaning: `typical ${p.name}${unit ? ` (${unit})` : ''}` });
+  }
+  for (const t of model.covariateTerms) {
+    const par = model.parameters[t.parameterIndex];
+    const scale = scaleOf(par.transform);
+    const covariate = t.level !== undefined ? `${t.covariate}=${t.level}` : t.covariate;
+    const meaning =
+      t.relation === 'power'
+        ? `power exponent on ${t.covariate} (${par.name} x (${t.covariate} / ${t.reference})^exponent)`
+        : t.relation === 'linear'
+          ? `linear coefficient on ${t.covariate}: change of ${scale}-scale ${par.name} per unit of ${t.covariate} from ${t.reference}`
+          : `shift of ${scale}-scale ${par.name} for ${covariate} (reference ${t.reference})`;
+    const unit = t.relation === 'power' ? 'power exponent' : t.relation === 'linear' ? `${scale}-scale ${par.name} per unit of ${t.covariate}` : `${scale}-scale ${par.name}`;
+    population.push({ parameter: par.name, kind: 'covariate', covariate, estimate: last[q++], fixed: t.fixed, unit, meaning });
+  }
+  for (let k = 0; k < model.nEta; k++) {
+    const par = model.parameters[model.etaParameter[k]];
+    const unit = `SD on the ${scaleOf(par.transform)} scale`;
+    population.push({ parameter: par.name, kind: 'bsv', estimate: last[q++], fixed: false, unit, meaning: `between-subject variability of ${par.name} (${unit})` });
+  }
   for (const b of model.blocks)
     for (let x = 0; x < b.length; x++)
-      for (let y = x + 1; y < b.length; y++)
-        population.push({ parameter: `${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`, kind: 'correlation', estimate: last[q++], fixed: false });
-  for (; q < nEst; q++) population.push({ parameter: result.estimateNames[q], kind: 'residual', estimate: last[q], fixed: false });
+      for (let y = x + 1; y < b.length; y++) {
+        const pair = `${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`;
+        population.push({ parameter: pair, kind: 'correlation', estimate: last[q++], fixed: false, unit: 'correlation', meaning: `correlation of the random effects of ${pair}` });
+      }
+  const rm = model.residualModel;
+  for (; q < nEst; q++) {
+    const name = residualKeyOf(result.estimateNames[q]) ?? result.estimateNames[q];
+    const isB = name === 'b';
+    const unit = isB ? 'fraction of the prediction (SD)' : rm === 'log-additive' ? 'SD on the log scale' : 'mg/L';
+    const meaning = isB ? 'proportional residual error' : rm === 'log-additive' ? 'residual error on the log scale' : 'additive residual error';
+    population.push({ parameter: name, kind: 'residual', estimate: last[q], fixed: false, unit, meaning });
+  }
 
   const p = model.nParams;
   const individual = model.subjects.map((s, i) => {
@@ -102,20 +145,20 @@ export function buildFitRecord(
     covariateRanges: ranges,
     population,
     individual,
-    trajectory: { names: [...result.estimateNames], explorationEnd: result.explorationEnd, explorationSettled: result.explorationSettled, iterations: result.iterations, values },
+    trajectory: { names: [...result.estimateNames], searchEnd: result.searchEnd, searchSettled: result.searchSettled, iterations: result.iterations, values },
     acceptance: { independent: finiteOrNull(result.acceptance.independent), randomWalk: finiteOrNull(result.acceptance.randomWalk), adaptive: finiteOrNull(result.acceptance.adaptive), component },
-    timing: { totalMs: result.timingMs.total, explorationMs: result.timingMs.exploration, averagingMs: result.timingMs.averaging },
+    timing: { totalMs: result.timingMs.total, searchMs: result.timingMs.search, averagingMs: result.timingMs.averaging },
     warnings,
   };
 }
 
 /** A plain-text summary of a fit for the terminal. */
-export function formatFitSummary(record: FitRecord): string {
-  const lines: string[] = [];
+export function formatFitSummary(record: FitRecord, afterFindings: readonly string[] = []): string {
+  const lines: string[] = [...formatDegeneracy(record.degeneracy), ...afterFindings];
   const fmt = (x: number) => (Number.isFinite(x) ? (Math.abs(x) >= 1e4 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(4) : x.toPrecision(5)) : String(x));
   lines.push(`Plateau fit (engine ${record.engineVersion}, seed ${record.seed})`);
   lines.push(`  ${record.nSubjects} subjects, ${record.nObservations} levels (${record.nCensored} below the LLOQ), ${record.chainsPerSubject} chain(s) per subject`);
-  lines.push(`  exploration ${record.trajectory.explorationEnd} iterations${record.trajectory.explorationSettled ? ' (settled)' : ' (cap reached)'}, averaging ${record.trajectory.iterations - record.trajectory.explorationEnd}; ${(record.timing.totalMs / 1000).toFixed(2)} s`);
+  lines.push(`  search ${record.trajectory.searchEnd} iterations${record.trajectory.searchSettled ? ' (settled)' : ' (cap reached)'}, averaging ${record.trajectory.iterations - record.trajectory.searchEnd}; ${(record.timing.totalMs / 1000).toFixed(2)} s`);
   lines.push('');
   for (const e of record.population) {
     let label: string;
@@ -128,7 +171,8 @@ export function formatFitSummary(record: FitRecord): string {
     } else if (e.kind === 'correlation') label = `correlation ${e.parameter}`;
     else if (e.kind === 'covariate') label = `${e.parameter} ~ ${e.covariate}`;
     else label = e.parameter === 'b' ? 'residual: proportional b' : record.spec.residual.model === 'log-additive' ? 'residual: log-scale SD a' : 'residual: additive a';
-    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)}${e.fixed ? '  (fixed)' : ''}${extra}`);
+    const unit = e.kind === 'typical' || e.kind === 'residual' || e.kind === 'covariate' ? e.unit : e.kind === 'bsv' ? e.unit : '';
+    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)} ${unit}${e.fixed ? '  (fixed)' : ''}${extra}`);
   }
   if (record.warnings.length) {
     lines.push('');

@@ -5,14 +5,14 @@
  * Each iteration k: (1) for every subject and chain, Metropolis-Hastings steps on phi_i
  * targeting p(phi_i | y_i; theta_k): independent proposal from the population distribution,
  * full random walk N(phi, kappa Omega), component-wise random walk with adaptive scales, and a
- * random walk shaped by the subject's own conditional covariance (learnt from its draws during
- * exploration; it mixes along ridges of p(phi_i | y_i) that Omega-shaped steps cross slowly);
- * scales adapt towards the target acceptance during exploration, then freeze (the kernels and
+ * random walk shaped by the subject's own conditional covariance (learnt from its draws during the
+ * search; it mixes along ridges of p(phi_i | y_i) that Omega-shaped steps cross slowly);
+ * scales adapt towards the target acceptance during the search phase, then freeze (the kernels and
  * the adaptation rule are the shared ones of engine/mcmc, over eta_i = phi_i - mean_i).
  * Censored levels are then drawn from their truncated conditional distribution. (2) Stochastic approximation of
  * the complete-data sufficient statistics, s_k = s_{k-1} + gamma_k (S_k - s_{k-1}): gamma 1 in
- * exploration, then 1/(k - K1 + W)^alpha, the averaging phase opening from the mean statistics
- * of the last W (settle window) exploration iterations. (3) M-step: typical values and
+ * search, then 1/(k - K1 + W)^alpha, the averaging phase opening from the mean statistics
+ * of the last W (settle window) search iterations. (3) M-step: typical values and
  * covariate effects of parameters with BSV by GLS from s_k with W = Omega_{k-1}^-1 (least
  * squares under a diagonal Omega or shared regressors), Omega from the second moments within
  * the chosen blocks, additive / proportional / log-additive residual variance in closed form.
@@ -21,7 +21,7 @@
  * draws, theta <- theta - gamma Hbar^-1 grad (Robbins-Monro; by Fisher's identity its fixed
  * point solves the observed-data score equation, so it lands on the MLE: checked against an
  * exact quadrature MLE in tests/integration/fit/censoredExact.test.ts). Variances are annealed
- * early in exploration (at most (1 - tau) fall per iteration). Randomness: one stream per
+ * early in the search phase (at most (1 - tau) fall per iteration). Randomness: one stream per
  * subject and chain from the seed, so results do not depend on the order of work.
  *
  * The iteration itself is synchronous and allocation-free; `runSaem` drives it, reports progress
@@ -34,10 +34,12 @@ import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import { choleskyLower, invertFromCholesky, solveWithCholesky } from '../stats/dense.js';
 import { combinedErrorDerivatives, residualSd } from '../stats/residual.js';
 import { truncatedNormalBelow } from '../stats/normalTail.js';
+import { estimateNamesOf, numericalComponents, positiveEstimates, readNumerical, writeEstimates as writeEstimatesOf, writeNumerical } from './layout.js';
+import { effectiveSettleWindow, settledAt, stepSize } from './schedules.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
 import { buildComponentwiseKernel, buildIndependenceKernel, buildRandomWalkKernel, scaleAdaptation, type ChainState, type LogDensityTarget } from '../mcmc/kernels.js';
 
-export type SaemPhase = 'exploration' | 'averaging';
+export type SaemPhase = 'search' | 'averaging';
 
 /** Something with `aborted` (an AbortSignal); the engine has no DOM or Node types. */
 export interface AbortSignalLike {
@@ -48,9 +50,9 @@ export interface SaemProgress {
   phase: SaemPhase;
   /** 1-based iteration just completed. */
   iteration: number;
-  /** Last exploration iteration once known, else null. */
-  explorationEnd: number | null;
-  /** Planned total iterations (exploration end may move it while still exploring). */
+  /** Last search iteration once known, else null. */
+  searchEnd: number | null;
+  /** Planned total iterations (search end may move it while still exploring). */
   plannedIterations: number;
   /** Current estimates, named by `estimateNames` (valid during the callback only). */
   estimates: Float64Array;
@@ -95,17 +97,17 @@ export interface SaemResult {
   /** iterations x estimateNames.length, row-major. */
   trajectory: Float64Array;
   iterations: number;
-  /** Last exploration iteration (1-based). */
-  explorationEnd: number;
-  /** Whether exploration ended by the settle test (false: it hit its cap). */
-  explorationSettled: boolean;
+  /** Last search iteration (1-based). */
+  searchEnd: number;
+  /** Whether search ended by the settle test (false: it hit its cap). */
+  searchSettled: boolean;
   /** Per subject (row) and parameter (column, spec order), natural scale: mean over the last draws of every chain. */
   individualMean: Float64Array;
   /** Same, transformed scale. */
   individualPhiMean: Float64Array;
   acceptance: { independent: number; randomWalk: number; component: Float64Array; adaptive: number };
   warnings: string[];
-  timingMs: { total: number; exploration: number; averaging: number };
+  timingMs: { total: number; search: number; averaging: number };
 }
 
 export class SaemCancelledError extends Error {
@@ -115,19 +117,7 @@ export class SaemCancelledError extends Error {
   }
 }
 
-/** Names of the estimates in the trajectory (and the progress callback), in order. */
-export function estimateNamesOf(model: CompiledModel): string[] {
-  const names: string[] = model.parameters.map((p) => p.name);
-  for (const t of model.covariateTerms) names.push(t.label);
-  for (let k = 0; k < model.nEta; k++) names.push(`omega_${model.parameters[model.etaParameter[k]].name}`);
-  for (const b of model.blocks)
-    for (let x = 0; x < b.length; x++)
-      for (let y = x + 1; y < b.length; y++) names.push(`corr_${model.parameters[model.etaParameter[b[x]]].name},${model.parameters[model.etaParameter[b[y]]].name}`);
-  const rm = model.residualModel;
-  if (rm === 'additive' || rm === 'combined' || rm === 'log-additive') names.push('a');
-  if (rm === 'proportional' || rm === 'combined') names.push('b');
-  return names;
-}
+export { estimateNamesOf, RESIDUAL_COLUMN, residualKeyOf } from './layout.js';
 
 /** A prepared SAEM run: `step()` performs one iteration; the caller decides when to stop. */
 export interface SaemRun {
@@ -137,7 +127,7 @@ export interface SaemRun {
   readonly done: boolean;
   readonly iteration: number;
   readonly phase: SaemPhase;
-  readonly explorationEnd: number | null;
+  readonly searchEnd: number | null;
   readonly plannedIterations: number;
   readonly current: Float64Array;
   finish(): SaemResult;
@@ -160,7 +150,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const warnings: string[] = [...model.warnings];
   const estimateNames = estimateNamesOf(model);
   const nEst = estimateNames.length;
-  const maxIter = settings.explorationMaxIterations + settings.averagingIterations;
+  const maxIter = settings.searchMaxIterations + settings.averagingIterations;
 
   // Population parameters, working copy.
   const theta: PopulationParameters = {
@@ -218,16 +208,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const bMat = new Float64Array(R * nEta);
 
   // Numerical block: typical values / coefficients of parameters without BSV, combined-error (log a, log b).
-  interface NumComp {
-    kind: 'mu' | 'beta' | 'loga' | 'logb';
-    index: number;
-  }
-  const numComps: NumComp[] = [];
-  for (let j = 0; j < p; j++) if (!hasEta[j] && !model.parameters[j].fixed) numComps.push({ kind: 'mu', index: j });
-  for (let t = 0; t < T; t++) if (!hasEta[termParam[t]] && !model.covariateTerms[t].fixed) numComps.push({ kind: 'beta', index: t });
-  const numStructural = numComps.length > 0;
-  // Fixed parameters without BSV still need predictions refreshed only if something structural moves.
-  if (rm === 'combined') numComps.push({ kind: 'loga', index: 0 }, { kind: 'logb', index: 0 });
+  const { components: numComps, structural: numStructural } = numericalComponents(model);
   const nNum = numComps.length;
   const numTheta = new Float64Array(nNum);
   const numGrad = new Float64Array(nNum);
@@ -267,7 +248,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   for (let i = 0; i < N; i++) for (let c = 0; c < L; c++) streams[i * L + c] = root.stream('saem', 'subject', i, 'chain', c);
 
   // Kernel adaptation (scales relative to Omega) towards the target acceptance, one update per
-  // exploration iteration, frozen after exploration (DESIGN.md §5).
+  // search iteration, frozen after search (DESIGN.md §5).
   const target = settings.targetAcceptance;
   const kappaAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-4, max: 10 });
   const compAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-3, max: 10 });
@@ -367,7 +348,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     if (llS[i * L] === -Infinity)
       warnings.push(`subject ${subjects[i].id}: the initial typical values give an impossible prediction; the chains start there and move only if a proposal is valid`);
 
-  // Per-subject covariance of the draws (exponentially weighted over exploration) and its factor.
+  // Per-subject covariance of the draws (exponentially weighted over search) and its factor.
   const subjW = new Float64Array(N);
   const subjS1 = new Float64Array(N * nEta);
   const subjS2 = new Float64Array(N * nEta * nEta);
@@ -629,10 +610,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 
   const xTmp = new Float64Array(nNum);
   function numericalStep(gamma: number): void {
-    for (let m = 0; m < nNum; m++) {
-      const nc = numComps[m];
-      numTheta[m] = nc.kind === 'mu' ? theta.mu[nc.index] : nc.kind === 'beta' ? theta.beta[nc.index] : nc.kind === 'loga' ? Math.log(theta.a) : Math.log(theta.b);
-    }
+    readNumerical(numComps, theta, numTheta);
     if (!numStructural && rm === 'combined') {
       if (!combinedDerivatives()) return;
     } else if (!finiteDifferenceDerivatives()) return;
@@ -644,12 +622,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     for (let m = 0; m < nNum; m++) {
       const cap = Math.max(1, Math.abs(numTheta[m]) * 0.5);
       const d = Math.max(-cap, Math.min(cap, numStep[m]));
-      const v = numTheta[m] + gamma * d;
-      const nc = numComps[m];
-      if (nc.kind === 'mu') theta.mu[nc.index] = v;
-      else if (nc.kind === 'beta') theta.beta[nc.index] = v;
-      else if (nc.kind === 'loga') theta.a = Math.exp(v);
-      else theta.b = Math.exp(v);
+      writeNumerical(numComps[m], numTheta[m] + gamma * d, theta);
     }
   }
 
@@ -776,51 +749,17 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       }
   }
 
-  function writeEstimates(out: Float64Array): void {
-    let q = 0;
-    for (let j = 0; j < p; j++) out[q++] = model.parameters[j].transform === 'log' ? Math.exp(theta.mu[j]) : model.parameters[j].transform === 'logit' ? 1 / (1 + Math.exp(-theta.mu[j])) : theta.mu[j];
-    for (let t = 0; t < T; t++) out[q++] = theta.beta[t];
-    for (let k = 0; k < nEta; k++) out[q++] = Math.sqrt(theta.omega[k * nEta + k]);
-    for (const b of model.blocks)
-      for (let x = 0; x < b.length; x++)
-        for (let y = x + 1; y < b.length; y++) out[q++] = theta.omega[b[x] * nEta + b[y]] / Math.sqrt(theta.omega[b[x] * nEta + b[x]] * theta.omega[b[y] * nEta + b[y]]);
-    if (rm === 'additive' || rm === 'combined' || rm === 'log-additive') out[q++] = theta.a;
-    if (rm === 'proportional' || rm === 'combined') out[q++] = theta.b;
-  }
-
+  const writeEstimates = (out: Float64Array): void => writeEstimatesOf(model, theta, out);
   /** Working scale of each estimate for the settle test: log of positive quantities. */
-  const positive = new Uint8Array(nEst);
-  {
-    let q = 0;
-    for (let j = 0; j < p; j++) positive[q++] = model.parameters[j].transform === 'log' ? 1 : 0;
-    q += T;
-    for (let k = 0; k < nEta; k++) positive[q++] = 1;
-    for (; q < nEst; q++) positive[q] = estimateNames[q] === 'a' || estimateNames[q] === 'b' ? 1 : 0;
-  }
-  function settled(k: number): boolean {
-    const W = settings.settleWindow;
-    if (k < 2 * W) return false;
-    for (let e = 0; e < nEst; e++) {
-      let s1 = 0, s2 = 0, q1 = 0, q2 = 0;
-      for (let it = k - 2 * W; it < k; it++) {
-        let v = trajectory[it * nEst + e];
-        if (positive[e]) v = Math.log(v);
-        if (it < k - W) (s1 += v), (q1 += v * v);
-        else (s2 += v), (q2 += v * v);
-      }
-      const m1 = s1 / W, m2 = s2 / W;
-      const sd1 = Math.sqrt(Math.max(0, q1 / W - m1 * m1));
-      const sd2 = Math.sqrt(Math.max(0, q2 / W - m2 * m2));
-      if (Math.abs(m2 - m1) > settings.settleTolerance * 0.5 * (sd1 + sd2) + 1e-4 * (1 + Math.abs(m2))) return false;
-    }
-    return true;
-  }
+  const positive = positiveEstimates(model, estimateNames);
+  const settleWindow = effectiveSettleWindow(settings.settleWindow, settings.searchMinIterations);
+  const settled = (k: number): boolean => settledAt(k, trajectory, nEst, positive, settleWindow, settings.settleTolerance);
 
-  // The last settleWindow exploration iterations (judged stationary by the settle test) open
+  // The last settleWindow search iterations (judged stationary by the settle test) open
   // the averaging phase: its statistics start as their mean and gamma_k = 1/(k - K1 + W), so the
   // average runs over every draw from iteration K1 - W + 1 on. Starting from one noisy iterate
   // instead costs a great deal when much information is missing (EM contracts slowly).
-  const W = settings.settleWindow;
+  const W = settleWindow;
   const ringSzp = new Float64Array(W * R * nEta);
   const ringSpp = new Float64Array(W * nEta * nEta);
   const ringSres = new Float64Array(W);
@@ -833,11 +772,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     ringSres[slot] = sres;
   }
   function storeWindowNumerical(k: number): void {
-    const slot = (k - 1) % W;
-    for (let m = 0; m < nNum; m++) {
-      const nc = numComps[m];
-      ringNum[slot * nNum + m] = nc.kind === 'mu' ? theta.mu[nc.index] : nc.kind === 'beta' ? theta.beta[nc.index] : nc.kind === 'loga' ? Math.log(theta.a) : Math.log(theta.b);
-    }
+    readNumerical(numComps, theta, ringNum, ((k - 1) % W) * nNum);
   }
   function warmStart(k: number): void {
     const n = Math.min(W, k);
@@ -853,11 +788,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     for (let m = 0; m < nNum; m++) {
       let v = 0;
       for (let slot = 0; slot < n; slot++) v += ringNum[slot * nNum + m] / n;
-      const nc = numComps[m];
-      if (nc.kind === 'mu') theta.mu[nc.index] = v;
-      else if (nc.kind === 'beta') theta.beta[nc.index] = v;
-      else if (nc.kind === 'loga') theta.a = Math.exp(v);
-      else theta.b = Math.exp(v);
+      writeNumerical(numComps[m], v, theta);
     }
     // M-step from the window means (gamma 0 keeps the statistics as set).
     sres = sresBar;
@@ -875,44 +806,44 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   let avgA = 0, avgB = 0, avgCount = 0;
 
   let iteration = 0;
-  let explorationEnd: number | null = null;
-  let explorationSettled = false;
-  let tExplorationEnd = tStart;
-  const annealingIterations = settings.annealingIterations ?? Math.floor(settings.explorationMinIterations / 2);
+  let searchEnd: number | null = null;
+  let searchSettled = false;
+  let tSearchEnd = tStart;
+  const annealingIterations = settings.annealingIterations ?? Math.floor(settings.searchMinIterations / 2);
 
   const run: SaemRun = {
     settings,
     estimateNames,
     get done() {
-      return explorationEnd !== null && iteration >= explorationEnd + settings.averagingIterations;
+      return searchEnd !== null && iteration >= searchEnd + settings.averagingIterations;
     },
     get iteration() {
       return iteration;
     },
     get phase(): SaemPhase {
-      return explorationEnd === null ? 'exploration' : 'averaging';
+      return searchEnd === null ? 'search' : 'averaging';
     },
-    get explorationEnd() {
-      return explorationEnd;
+    get searchEnd() {
+      return searchEnd;
     },
     get plannedIterations() {
-      return (explorationEnd ?? settings.explorationMaxIterations) + settings.averagingIterations;
+      return (searchEnd ?? settings.searchMaxIterations) + settings.averagingIterations;
     },
     current,
     step() {
       if (this.done) return;
-      const exploring = explorationEnd === null;
+      const exploring = searchEnd === null;
       iteration++;
       simulate(exploring);
       computeStatistics();
       if (exploring) storeWindowStatistics(iteration);
-      const gamma = exploring ? 1 : Math.pow(iteration - (explorationEnd as number) + warmCount, -settings.stepExponent);
+      const gamma = stepSize(iteration, searchEnd, warmCount, settings.stepExponent);
       if (!options.freezePopulation) mStep(gamma, exploring && iteration <= annealingIterations);
       if (exploring) storeWindowNumerical(iteration);
       writeEstimates(current);
       trajectory.set(current, (iteration - 1) * nEst);
       if (!exploring) {
-        if (settings.iterateAveraging && iteration > explorationEnd! + Math.floor(settings.averagingIterations / 2)) {
+        if (settings.iterateAveraging && iteration > searchEnd! + Math.floor(settings.averagingIterations / 2)) {
           for (let j = 0; j < p; j++) avgMu[j] += theta.mu[j];
           for (let t = 0; t < T; t++) avgBeta[t] += theta.beta[t];
           for (let q = 0; q < nEta * nEta; q++) avgOmega[q] += theta.omega[q];
@@ -920,7 +851,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
           avgB += theta.b;
           avgCount++;
         }
-        const lastStart = explorationEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
+        const lastStart = searchEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
         if (iteration > lastStart) {
           for (let s = 0; s < NL; s++) {
             const i = (s / L) | 0;
@@ -934,11 +865,11 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
           indivCount += L;
         }
       } else {
-        if (settings.autoEndExploration && iteration >= settings.explorationMinIterations && settled(iteration)) explorationSettled = true;
-        if (explorationSettled || iteration >= settings.explorationMaxIterations) {
-          explorationEnd = iteration;
+        if (settings.autoEndSearch && iteration >= settings.searchMinIterations && settled(iteration)) searchSettled = true;
+        if (searchSettled || iteration >= settings.searchMaxIterations) {
+          searchEnd = iteration;
           if (!options.freezePopulation) warmStart(iteration);
-          tExplorationEnd = now();
+          tSearchEnd = now();
         }
       }
     },
@@ -951,8 +882,8 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         individualMean[q] = indivSum[q] / (count * L);
         individualPhiMean[q] = indivPhiSum[q] / (count * L);
       }
-      if (explorationEnd !== null && !explorationSettled && settings.autoEndExploration)
-        warnings.push(`exploration reached its cap of ${settings.explorationMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.explorationMaxIterations`);
+      if (searchEnd !== null && !searchSettled && settings.autoEndSearch)
+        warnings.push(`search reached its cap of ${settings.searchMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.searchMaxIterations`);
       if (omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${omegaFailures} iteration(s); the previous Omega was kept there`);
       if (avgCount > 0) {
         for (let j = 0; j < p; j++) theta.mu[j] = avgMu[j] / avgCount;
@@ -976,8 +907,8 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         estimates,
         trajectory: trajectory.slice(0, iteration * nEst),
         iterations: iteration,
-        explorationEnd: explorationEnd ?? iteration,
-        explorationSettled,
+        searchEnd: searchEnd ?? iteration,
+        searchSettled,
         individualMean,
         individualPhiMean,
         acceptance: {
@@ -987,7 +918,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
           adaptive: totTriesAd > 0 ? totAccAd / totTriesAd : NaN,
         },
         warnings,
-        timingMs: { total: tEnd - tStart, exploration: tExplorationEnd - tStart, averaging: tEnd - tExplorationEnd },
+        timingMs: { total: tEnd - tStart, search: tSearchEnd - tStart, averaging: tEnd - tSearchEnd },
       };
     },
   };
@@ -1009,9 +940,9 @@ export async function runSaem(model: CompiledModel, options: SaemOptions = {}): 
     }
     if (options.onProgress) {
       const r = options.onProgress({
-        phase: run.phase === 'averaging' && run.iteration === run.explorationEnd ? 'exploration' : run.phase,
+        phase: run.phase === 'averaging' && run.iteration === run.searchEnd ? 'search' : run.phase,
         iteration: run.iteration,
-        explorationEnd: run.explorationEnd,
+        searchEnd: run.searchEnd,
         plannedIterations: run.plannedIterations,
         estimates: run.current,
         estimateNames: run.estimateNames,

@@ -40,9 +40,9 @@ export const ImportOptionsInput = z.strictObject({
 export const SaemSettingsInput = z.strictObject({
   seed: Seed.optional(),
   chains: z.union([z.literal('auto'), z.number().int().min(1).max(50)]).optional(),
-  explorationMinIterations: z.number().int().min(1).max(20_000).optional(),
-  explorationMaxIterations: z.number().int().min(1).max(20_000).optional(),
-  autoEndExploration: z.boolean().optional(),
+  searchMinIterations: z.number().int().min(1).max(20_000).optional(),
+  searchMaxIterations: z.number().int().min(1).max(20_000).optional(),
+  autoEndSearch: z.boolean().optional(),
   averagingIterations: z.number().int().min(1).max(20_000).optional(),
   stepExponent: z.number().gt(0.5).max(1).optional(),
   independentSteps: z.number().int().min(0).max(100).optional(),
@@ -56,6 +56,7 @@ export const SaemSettingsInput = z.strictObject({
   settleTolerance: z.number().gt(0).max(10).optional(),
   individualDraws: z.number().int().min(1).max(10_000).optional(),
   iterateAveraging: z.boolean().optional(),
+  seeds: z.number().int().min(1).max(16).optional(),
 });
 
 /** What a fit job does after the estimator. */

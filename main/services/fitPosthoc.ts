@@ -4,6 +4,7 @@
  * merged into the fit record. One entry point for the CLI, the worker and the tests.
  */
 import { mergePosthoc, posthocRecordFields, PosthocError, runPosthoc, thetaFromPopulation, type PosthocOptions, type WithPosthoc } from '../../engine/posthoc/index.js';
+import { assessDegeneracy, type DegeneracyReport } from '../../engine/posthoc/degeneracy.js';
 import { runRepeatedFits, type RepeatOptions, type RepeatSummary } from '../../engine/posthoc/robustness.js';
 import { naturalToTransformed } from '../../engine/spec/individual.js';
 import type { FitOutcome } from './fitService.js';
@@ -32,9 +33,13 @@ export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions
   try {
     const r = runPosthoc(model, theta, { seed, startPhi, ...(options.posthoc ?? {}) });
     merged = mergePosthoc(record, posthocRecordFields(model, r, seed));
+    const minus2LL = r.likelihood.importance ? r.likelihood.importance.minus2LL : Number.isFinite(r.likelihood.linearisedMinus2LL) ? r.likelihood.linearisedMinus2LL : null;
+    markDegeneracy(merged, assessDegeneracy({ model, theta, density: r.density, modes: r.modes, minus2LL }));
   } catch (e) {
     if (!(e instanceof PosthocError)) throw e;
-    return { ...record, warnings: [...record.warnings, `post-fit steps not run: ${e.message}`] } as unknown as PosthocFitRecord;
+    const failed = { ...record, warnings: [...record.warnings, `post-fit steps not run: ${e.message}`] } as unknown as PosthocFitRecord;
+    markDegeneracy(failed, assessDegeneracy({ model, theta, minus2LL: null }));
+    return failed;
   }
   if (options.repeat !== undefined) {
     merged.robustness = await runRepeatedFits(outcome.spec, outcome.dataset, {
@@ -58,6 +63,13 @@ export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions
   return merged;
 }
 
+/** Attach the degeneracy report; a degenerate fit gets a warning that blocks its use as a prior. */
+function markDegeneracy(record: { degeneracy?: DegeneracyReport; warnings: string[] }, report: DegeneracyReport): void {
+  record.degeneracy = report;
+  if (!report.usableAsPrior)
+    record.warnings.push(`degenerate fit (${report.findings.map((f) => `${f.code} ${f.parameter}`).join('; ')}): do not use this fit as a prior`);
+}
+
 const fmt = (x: number | null | undefined, digits = 5): string =>
   x === null || x === undefined || !Number.isFinite(x) ? '-' : Math.abs(x) >= 1e4 || (Math.abs(x) < 1e-3 && x !== 0) ? x.toExponential(3) : x.toPrecision(digits);
 
@@ -69,7 +81,7 @@ export function formatPosthocSummary(record: PosthocFitRecord): string {
   lines.push(`Standard errors (${record.uncertainty.method}):`);
   for (const e of record.population) {
     const label = e.kind === 'typical' ? `${e.parameter} (typical)` : e.kind === 'bsv' ? `BSV ${e.parameter} (omega)` : e.kind === 'covariate' ? `${e.parameter} ~ ${e.covariate}` : e.kind === 'correlation' ? `correlation ${e.parameter}` : `residual ${e.parameter}`;
-    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)}  SE ${fmt(e.se, 3).padStart(10)}  RSE ${e.rsePercent === null ? '-' : `${e.rsePercent.toFixed(1)}%`}`);
+    lines.push(`  ${label.padEnd(28)} ${fmt(e.estimate).padStart(12)}  SE ${fmt(e.se, 3).padStart(10)} ${(e.unit ?? "").padEnd(12)} RSE ${e.rsePercent === null ? '-' : `${e.rsePercent.toFixed(1)}%`}`);
   }
   if (record.uncertainty.conditionNumber !== null) lines.push(`  condition number of the information: ${fmt(record.uncertainty.conditionNumber, 3)}`);
   const l = record.likelihood;

@@ -49,7 +49,7 @@ function saemProgress(p: SaemProgress): JobProgress {
   p.estimateNames.forEach((n, i) => {
     if (Number.isFinite(p.estimates[i])) estimates[n] = p.estimates[i];
   });
-  return { phase: p.phase === 'exploration' ? 'search' : 'averaging', iteration: p.iteration, maxIterations: p.plannedIterations, estimates };
+  return { phase: p.phase, iteration: p.iteration, maxIterations: p.plannedIterations, estimates };
 }
 
 async function runFit(job: Extract<JobRequest, { kind: 'fit' }>, ctx: JobContext): Promise<unknown> {

@@ -7,6 +7,10 @@ import { execFileSync } from 'node:child_process';
 import { existsSync } from 'node:fs';
 import { runSaem } from '../../engine/saem/saem.js';
 import { compileModel } from '../../engine/stats/model.js';
+import { fitDataset } from '../../main/services/fitService.js';
+import { addPosthoc } from '../../main/services/fitPosthoc.js';
+import { fitSeeds } from '../../main/services/fitSeeds.js';
+import { referenceDataset, sparseTdmSpec } from '../helpers/sparseSpecs.js';
 import type { BenchFigure } from './run.js';
 import { tdmDataset, tdmFit, theophDataset, theophSpec } from './workloads.js';
 
@@ -44,6 +48,26 @@ export const suite = {
     const theophMs = runs[1];
     figures.push({ name: 'Theoph fit, default settings (median of 3)', value: theophMs / 1000, unit: 's', target: '< 0.5', note: `${its} iterations, 12 subjects x 5 chains` });
     figures.push({ name: 'Theoph fit, CPU time (median of 3)', value: cpuRuns[1] / 1000, unit: 's', note: "wall time moves with the machine's load" });
+
+    // The sparse 120-patient TDM design (simulated; tests/reference/tdm-sparse): one seed, and the
+    // default fit (3 seeds, each with its post-fit steps, run one after the other in this process;
+    // worker processes would run them side by side).
+    const sparse = referenceDataset('tdm-sparse/tdm_sparse.csv');
+    const sparseModel = compileModel(sparseTdmSpec, sparse);
+    const single = await timeFit(sparseModel, 1);
+    figures.push({ name: 'sparse TDM, 120 patients, one seed: estimation', value: single.ms / 1000, unit: 's', target: '< 2', note: `${single.iterations} iterations, 4 chains per patient; CPU ${(single.cpuMs / 1000).toFixed(2)} s` });
+    {
+      const c0 = cpuMs();
+      const t0 = performance.now();
+      await addPosthoc(await fitDataset(sparse, sparseTdmSpec, { seed: 1 }));
+      figures.push({ name: 'sparse TDM, 120 patients, one seed: estimation + post-fit', value: (performance.now() - t0) / 1000, unit: 's', note: `CPU ${((cpuMs() - c0) / 1000).toFixed(2)} s` });
+    }
+    {
+      const c0 = cpuMs();
+      const t0 = performance.now();
+      const rec = await fitSeeds(sparse, sparseTdmSpec);
+      figures.push({ name: 'sparse TDM, 120 patients, default fit (3 seeds + post-fit, in process)', value: (performance.now() - t0) / 1000, unit: 's', target: '< 5 (with workers)', note: `CPU ${((cpuMs() - c0) / 1000).toFixed(2)} s; ${rec.seeds.verdict}` });
+    }
 
     let peakRss = process.memoryUsage().rss;
     const perIteration: Record<number, number> = Object.create(null);

@@ -19,7 +19,7 @@ const distRoot = path.resolve(here, '..', '..'); // dist/ (this file runs as dis
 const repoRoot = path.resolve(distRoot, '..');
 const workerEntry = path.join(distRoot, 'main', 'worker', 'engineWorker.js');
 const resourcesDir = path.join(repoRoot, 'resources');
-const TINY = { explorationMinIterations: 2, explorationMaxIterations: 2, averagingIterations: 2, chains: 1 as const };
+const TINY = { searchMinIterations: 2, searchMaxIterations: 2, averagingIterations: 2, chains: 1 as const };
 
 const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
 

@@ -47,7 +47,7 @@ export const tdmTruth: ModelSpec = parseModelSpec({
   residual: { model: 'combined', a: 0.5, b: 0.1 },
 });
 
-/** The fitted spec: starting values away from the truth, 300 exploration + 200 averaging iterations. */
+/** The fitted spec: starting values away from the truth, 300 search + 200 averaging iterations. */
 export const tdmFit: ModelSpec = parseModelSpec({
   structure: '2cmt',
   parameters: { CL: { typical: 3, bsv: 0.5 }, V1: { typical: 20, bsv: 0.5 }, Q: { typical: 6, bsv: null, fixed: true }, V2: { typical: 40, bsv: null, fixed: true } },
@@ -56,7 +56,7 @@ export const tdmFit: ModelSpec = parseModelSpec({
     { parameter: 'V1', covariate: 'weight_kg', relation: 'power', reference: 70, coefficient: 1, fixed: true },
   ],
   residual: { model: 'combined', a: 1, b: 0.2 },
-  estimation: { explorationMinIterations: 300, explorationMaxIterations: 300, autoEndExploration: false, averagingIterations: 200 },
+  estimation: { searchMinIterations: 300, searchMaxIterations: 300, autoEndSearch: false, averagingIterations: 200 },
 });
 
 /** The invented TDM design for n patients (levels are placeholders). */

@@ -17,7 +17,7 @@ const spec = {
   parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
   covariates: [{ parameter: 'CL', covariate: 'weight_kg', relation: 'power', reference: 70, coefficient: 0.75, fixed: true }],
   residual: { model: 'additive', a: 1 },
-  estimation: { explorationMinIterations: 60, explorationMaxIterations: 100, averagingIterations: 50 },
+  estimation: { searchMinIterations: 60, searchMaxIterations: 100, averagingIterations: 50 },
 };
 
 /** Fit into `dir` (spec.json, fit.json written there, seed 3); returns the parsed fit.json. */

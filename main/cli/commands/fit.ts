@@ -1,28 +1,34 @@
 /** `plateau fit`: population fit by SAEM from the command line. */
 import { formatFitSummary } from '../../../engine/saem/fitRecord.js';
 import { ModelDataError } from '../../../engine/stats/model.js';
-import { fitFromFiles } from '../../services/fitService.js';
-import { addPosthoc, formatPosthocSummary } from '../../services/fitPosthoc.js';
+import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { readDataset } from '../../services/fitService.js';
+import { formatPosthocSummary } from '../../services/fitPosthoc.js';
+import { fitSeeds, formatSeeds, SEEDS_MAX, SEEDS_MIN } from '../../services/fitSeeds.js';
+import { readJsonFile } from '../../services/files.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
 import { resolvePath, writeFileAtomic } from '../../services/files.js';
 import { CliError, type CliCommand } from '../types.js';
 
 const usage = `usage: plateau fit --data <canonical.csv|spreadsheet> --model <spec.json> [--mapping <template.json>]
-                  [--seed N] [--out fit.json] [--progress] [--repeat K]
+                  [--seed N] [--seeds K] [--out fit.json] [--progress]
 
 Fits the population model in <spec.json> to the dataset by SAEM (maximum likelihood) and prints
 a summary. The spec's "estimation" block holds the estimator settings; --seed overrides its seed.
   --data      levels and doses (canonical CSV, or a spreadsheet with --mapping)
   --model     model spec (JSON)
   --mapping   column-mapping template for a spreadsheet export
-  --seed      random seed (integer >= 0); same data, model and seed give identical results
+  --seed      first random seed (integer 0..2^53-1; default the spec's, else 1); same data, model
+              and seeds give identical results
+  --seeds     how many seeds to run (integer ${SEEDS_MIN}..${SEEDS_MAX}; default the spec's estimation.seeds, else 3):
+              the fit runs from seeds N, N+1, ..., reports whether they agree and keeps the one
+              with the lowest importance-sampling -2LL; --seeds 1 runs one seed only
   --out       write the fit result (JSON) to this file
   --progress  print the estimates every 10 iterations to stderr
-  --repeat    also run the fit K times in all (K >= 2) from different seeds and jittered initial
-              values and report whether the estimates agree (robustness check)
 
-After the fit: standard errors, -2LL (importance sampling), AIC, BIC, individual conditional
-distributions, shrinkage and diagnostics (NPDE, VPC) are computed and written to fit.json.`;
+Each seed's fit is followed by standard errors, -2LL (importance sampling), AIC, BIC, individual
+conditional distributions, shrinkage and diagnostics (NPDE, VPC); the kept fit is written to
+fit.json with the seeds' verdict ("seeds") and its degeneracy checks ("degeneracy").`;
 
 export const command: CliCommand = {
   name: 'fit',
@@ -38,7 +44,7 @@ export const command: CliCommand = {
         seed: { type: 'string' },
         out: { type: 'string', short: 'o' },
         progress: { type: 'boolean' },
-        repeat: { type: 'string' },
+        seeds: { type: 'string' },
       },
       { usage },
     );
@@ -47,25 +53,25 @@ export const command: CliCommand = {
       return 0;
     }
     const seed = numberFlag(args, 'seed', { integer: true, usage });
-    if (seed !== undefined && seed < 0) throw new CliError(`--seed must be an integer >= 0, got ${seed}`);
-    const repeat = numberFlag(args, 'repeat', { integer: true, usage });
-    if (repeat !== undefined && repeat < 2) throw new CliError(`--repeat must be an integer >= 2 (the number of fits in all), got ${repeat}`);
+    if (seed !== undefined && (seed < 0 || seed > 2 ** 53 - 1)) throw new CliError(`--seed must be an integer in [0, 2^53-1], got ${seed}`);
+    const seeds = numberFlag(args, 'seeds', { integer: true, usage });
+    if (seeds !== undefined && (seeds < SEEDS_MIN || seeds > SEEDS_MAX)) throw new CliError(`--seeds must be an integer in [${SEEDS_MIN}, ${SEEDS_MAX}], got ${seeds}`);
     const progress = booleanFlag(args, 'progress');
     const mapping = stringFlag(args, 'mapping');
-    let outcome;
+    let record;
     try {
-      outcome = await fitFromFiles({
-        dataPath: resolvePath(io.cwd, stringFlag(args, 'data')!),
-        modelPath: resolvePath(io.cwd, stringFlag(args, 'model')!),
-        ...(mapping !== undefined ? { mappingPath: resolvePath(io.cwd, mapping) } : {}),
-        ...(seed !== undefined ? { seed } : {}),
+      const dataset = await readDataset(resolvePath(io.cwd, stringFlag(args, 'data')!), mapping !== undefined ? resolvePath(io.cwd, mapping) : undefined);
+      const spec = parseModelSpec(await readJsonFile(resolvePath(io.cwd, stringFlag(args, 'model')!)));
+      record = await fitSeeds(dataset, spec, {
+        settings: { ...(seed !== undefined ? { seed } : {}), ...(seeds !== undefined ? { seeds } : {}) },
         ...(signal ? { signal } : {}),
         ...(progress
           ? {
-              onProgress: (p) => {
-                if (p.iteration % 10 !== 0 && p.iteration !== p.explorationEnd) return;
+              onStatus: (m: string) => io.stderr(`[${m}]\n`),
+              onProgress: (s: number, p) => {
+                if (p.iteration % 10 !== 0 && p.iteration !== p.searchEnd) return;
                 const est = p.estimateNames.map((n, q) => `${n}=${p.estimates[q].toPrecision(4)}`).join(' ');
-                io.stderr(`[${p.phase} ${p.iteration}/${p.plannedIterations}] ${est}\n`);
+                io.stderr(`[seed ${s} ${p.phase} ${p.iteration}/${p.plannedIterations}] ${est}\n`);
                 // Let the event loop breathe so a cancellation can arrive.
                 return new Promise<void>((resolve) => setImmediate(resolve));
               },
@@ -77,12 +83,7 @@ export const command: CliCommand = {
       if (e instanceof Error && e.name === 'AbortError') throw new CliError(e.message);
       throw e;
     }
-    io.stdout(`${formatFitSummary(outcome.record)}\n`);
-    const record = await addPosthoc(outcome, {
-      ...(repeat !== undefined ? { repeat } : {}),
-      ...(signal ? { repeatOptions: { signal } } : {}),
-      ...(progress ? { onStatus: (m: string) => io.stderr(`[${m}]\n`) } : {}),
-    });
+    io.stdout(`${formatFitSummary(record, formatSeeds(record.seeds))}\n`);
     io.stdout(`${formatPosthocSummary(record)}\n`);
     const out = stringFlag(args, 'out');
     if (out !== undefined) {

@@ -36,8 +36,8 @@ describe('plateau dose with a fit.json', () => {
     expect(a.regimens[0].route).toBe('oral');
     // The fit checks read the fields the estimator and the post-fit step really write.
     const has = (code: string) => a.warnings.some((w: { code: string }) => w.code === code);
-    expect(typeof fit.trajectory.explorationSettled).toBe('boolean');
-    expect(has('fit-cap-reached')).toBe(!fit.trajectory.explorationSettled);
+    expect(typeof fit.trajectory.searchSettled).toBe('boolean');
+    expect(has('fit-cap-reached')).toBe(!fit.trajectory.searchSettled);
     expect(typeof fit.uncertainty.ok).toBe('boolean');
     expect(has('fit-no-se')).toBe(!fit.uncertainty.ok || fit.population.some((e: { fixed: boolean; se: number | null }) => !e.fixed && e.se === null));
     for (const w of fit.warnings as string[]) expect(a.warnings.some((x: { message: string }) => x.message.includes(w))).toBe(true);

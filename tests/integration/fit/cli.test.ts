@@ -12,7 +12,7 @@ const spec = {
   structure: '1cmt',
   parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
   residual: { model: 'additive', a: 1 },
-  estimation: { explorationMinIterations: 60, explorationMaxIterations: 100, averagingIterations: 50 },
+  estimation: { searchMinIterations: 60, searchMaxIterations: 100, averagingIterations: 50 },
 };
 
 describe('plateau fit', () => {
@@ -22,7 +22,7 @@ describe('plateau fit', () => {
   it('fits, prints a summary and writes fit.json with the documented fields', async () => {
     const t = captureIo(dir);
     const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '7', '--out', 'fit.json', '--progress'], t.io);
-    expect(t.err()).toContain('[exploration 10/');
+    expect(t.err()).toMatch(/\[seed \d+ search 10\//);
     expect(code).toBe(0);
     const text = t.out();
     expect(text).toContain('CL (typical)');

@@ -27,7 +27,7 @@ const fitSpec = parseModelSpec({
   residual: { model: 'proportional', b: 0.3 },
 });
 // Short runs: 30 replicates must stay quick.
-const fast = { explorationMinIterations: 80, explorationMaxIterations: 250, averagingIterations: 100, settleWindow: 30 };
+const fast = { searchMinIterations: 80, searchMaxIterations: 250, averagingIterations: 100, settleWindow: 30 };
 
 interface Estimates {
   CL: number;
@@ -42,7 +42,7 @@ async function fit(dataset: Dataset, seed: number): Promise<Estimates> {
   const model = compileModel(fitSpec, dataset);
   const r = await runSaem(model, { seed, settings: fast });
   const e = (name: string) => r.estimates[r.estimateNames.indexOf(name)];
-  return { CL: e('CL'), V: e('V'), omegaCL: e('omega_CL'), omegaV: e('omega_V'), exponent: e('CL~weight_kg'), b: e('b') };
+  return { CL: e('CL'), V: e('V'), omegaCL: e('bsv_CL'), omegaV: e('bsv_V'), exponent: e('CL~weight_kg'), b: e('residual_proportional') };
 }
 
 function summary(runs: Estimates[]) {

@@ -54,8 +54,8 @@ describe('Theoph: SAEM lands on the exact MLE', async () => {
   });
   it('reports the record fields, chains and phases', () => {
     expect(record.chainsPerSubject).toBe(5); // ceil(50 / 12)
-    expect(record.trajectory.explorationEnd).toBeGreaterThanOrEqual(150);
-    expect(record.trajectory.iterations).toBe(record.trajectory.explorationEnd + 200);
+    expect(record.trajectory.searchEnd).toBeGreaterThanOrEqual(150);
+    expect(record.trajectory.iterations).toBe(record.trajectory.searchEnd + 200);
     expect(record.individual).toHaveLength(12);
     for (const s of record.individual) for (const v of Object.values(s.parameters)) expect(Number.isFinite(v)).toBe(true);
     expect(record.population.map((e) => e.kind)).toEqual(['typical', 'typical', 'typical', 'bsv', 'bsv', 'bsv', 'residual']);

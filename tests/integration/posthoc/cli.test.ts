@@ -1,4 +1,4 @@
-/** `plateau fit` writes the post-fit fields into fit.json and runs the repeated-fit check (--repeat). */
+/** `plateau fit` writes the post-fit fields into fit.json and runs several seeds (--seeds), keeping the best. */
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
@@ -11,22 +11,26 @@ const spec = {
   structure: '1cmt',
   parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
   residual: { model: 'additive', a: 1 },
-  estimation: { explorationMinIterations: 60, explorationMaxIterations: 100, averagingIterations: 50 },
+  estimation: { searchMinIterations: 60, searchMaxIterations: 100, averagingIterations: 50 },
 };
 
-describe('plateau fit: post-fit fields and --repeat', () => {
+describe('plateau fit: post-fit fields and --seeds', () => {
   const dir = mkdtempSync(path.join(os.tmpdir(), 'plateau-posthoc-'));
   writeFileSync(path.join(dir, 'spec.json'), JSON.stringify(spec));
 
-  it('writes se, rsePercent, likelihood, per-subject conditional summaries, diagnostics and robustness', async () => {
+  it('writes se, rsePercent, likelihood, per-subject conditional summaries, diagnostics and the verdict of the seeds', async () => {
     const t = captureIo(dir);
-    const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '5', '--repeat', '2', '--out', 'fit.json'], t.io);
+    const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '5', '--seeds', '2', '--out', 'fit.json'], t.io);
     expect(t.err()).toBe('');
     expect(code).toBe(0);
     const text = t.out();
     expect(text).toMatch(/Standard errors \(observed Fisher information by stochastic approximation \(Louis\)/);
     expect(text).toMatch(/-2LL \d+\.\d+ \(Monte Carlo SE/);
-    expect(text).toMatch(/Robustness \(2 runs\): (stable|unstable)/);
+    // Every number of the summary has its unit; each line is labelled by what it is.
+    expect(text).toMatch(/\n  CL \(typical\) +\S+ L\/h\n/);
+    expect(text).toMatch(/\n  BSV ka \(omega\) +\S+ SD on the log scale  CV/);
+    expect(text).toMatch(/\n  residual: additive a +\S+ mg\/L\n/);
+    expect(text).toMatch(/Seeds 5, 6: kept the fit from seed [56] \(lowest importance-sampling -2LL/);
     const raw = readFileSync(path.join(dir, 'fit.json'), 'utf8');
     expect(raw).not.toMatch(/NaN/);
     const fit = JSON.parse(raw);
@@ -40,15 +44,24 @@ describe('plateau fit: post-fit fields and --repeat', () => {
     expect(fit.diagnostics.observations[5]).toMatchObject({ subject: '1' });
     for (const key of ['pred', 'ipred', 'iwres', 'npde']) expect(typeof fit.diagnostics.observations[5][key]).toBe('number');
     expect(fit.diagnostics.vpc.bins.length).toBeGreaterThan(3);
-    expect(fit.robustness.runs).toHaveLength(2);
-    expect(fit.robustness.parameters).toHaveLength(7);
-    expect(typeof fit.robustness.stable).toBe('boolean');
+    expect(fit.seeds.runs.map((r: { seed: number }) => r.seed)).toEqual([5, 6]);
+    expect(fit.seeds.estimates).toHaveLength(7);
+    expect(typeof fit.seeds.agree).toBe('boolean');
+    expect(fit.seed).toBe(fit.seeds.keptSeed);
+    const best = Math.min(...fit.seeds.runs.map((r: { minus2LL: number }) => r.minus2LL));
+    expect(fit.likelihood.minus2LL).toBe(best);
+    expect(fit.degeneracy.usableAsPrior).toBe(true);
   }, 120_000);
 
-  it('refuses --repeat below 2', async () => {
-    const t = captureIo(dir);
-    const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--repeat', '1'], t.io);
-    expect(code).toBe(1);
-    expect(t.err()).toMatch(/--repeat must be an integer >= 2/);
+  it('refuses --seeds outside 1..16 before any work, and states the bounds in --help', async () => {
+    for (const n of ['0', '17', '1e9']) {
+      const t = captureIo(dir);
+      const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seeds', n], t.io);
+      expect(code).not.toBe(0);
+      expect(t.err()).toMatch(/--seeds/);
+    }
+    const h = captureIo(dir);
+    await runCli(['fit', '--help'], h.io);
+    expect(h.out()).toMatch(/--seeds .*integer 1\.\.16/);
   });
 });

@@ -147,7 +147,7 @@ describe('95 % Wald intervals from the SEs cover the truth (simulated, labelled)
       structure: '1cmt',
       parameters: { CL: { typical: 2, bsv: 0.3 }, V: { typical: 20, bsv: 0.25 } },
       residual: { model: 'proportional', b: 0.1 },
-      estimation: { explorationMinIterations: 60, explorationMaxIterations: 150, averagingIterations: 100, chains: 2 },
+      estimation: { searchMinIterations: 60, searchMaxIterations: 150, averagingIterations: 100, chains: 2 },
     });
     const template = design(30, 'bolus', () => [0.25, 1, 2, 4, 8, 12]);
     const truthModel = compileModel(spec, template);

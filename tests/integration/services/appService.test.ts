@@ -81,7 +81,7 @@ describe('application service', () => {
         }
       });
     });
-    const { jobId } = await ok('queue.enqueue', { datasetId: summary.datasets[0].id, modelId: summary.models[0].id, seeds: [5], settings: { explorationMinIterations: 40, explorationMaxIterations: 60, averagingIterations: 30 } });
+    const { jobId } = await ok('queue.enqueue', { datasetId: summary.datasets[0].id, modelId: summary.models[0].id, seeds: [5], settings: { searchMinIterations: 40, searchMaxIterations: 60, averagingIterations: 30 } });
     const snap = await done;
     offP();
     const job = snap.jobs.find((j) => j.id === jobId)!;

@@ -17,9 +17,9 @@ import { engineWorkerPath, ensureBuilt, resourcesDir } from './build.js';
 
 beforeAll(() => ensureBuilt(), 300_000);
 
-const SHORT = { explorationMinIterations: 40, explorationMaxIterations: 60, averagingIterations: 30 };
+const SHORT = { searchMinIterations: 40, searchMaxIterations: 60, averagingIterations: 30 };
 /** Long enough to be caught mid-fit (several seconds on the demo data). */
-const LONG = { explorationMinIterations: 4000, explorationMaxIterations: 4000, autoEndExploration: false, averagingIterations: 200 };
+const LONG = { searchMinIterations: 4000, searchMaxIterations: 4000, autoEndSearch: false, averagingIterations: 200 };
 
 const open: FitQueue[] = [];
 afterEach(async () => {

@@ -147,7 +147,7 @@ describe('bridge over the WebSocket', () => {
       datasetId: summary.datasets[0].id,
       modelId: summary.models[0].id,
       seeds: [3],
-      settings: { explorationMinIterations: 30, explorationMaxIterations: 40, averagingIterations: 20 },
+      settings: { searchMinIterations: 30, searchMaxIterations: 40, averagingIterations: 20 },
     });
     expect(enqueued.ok, JSON.stringify(enqueued.error)).toBe(true);
     const jobId = enqueued.value.jobId as string;

@@ -24,7 +24,7 @@ beforeAll(() => ensureBuilt(), 300_000);
 const demo = (f: string) => path.join(resourcesDir, 'demo', f);
 const json = (f: string) => JSON.parse(readFileSync(f, 'utf8'));
 const worker = { modulePath: engineWorkerPath };
-const SHORT = { explorationMinIterations: 30, explorationMaxIterations: 40, averagingIterations: 20 };
+const SHORT = { searchMinIterations: 30, searchMaxIterations: 40, averagingIterations: 20 };
 
 describe('engine worker', () => {
   it('runs parse, simulate and advise jobs with the same results as direct engine calls', async () => {

@@ -34,7 +34,7 @@ const FIT = {
   covariateRanges: { weight_kg: [40, 130] },
   population: POPULATION,
   individual: [],
-  trajectory: { names: [], explorationEnd: 300, explorationSettled: true, iterations: 500, values: [] },
+  trajectory: { names: [], searchEnd: 300, searchSettled: true, iterations: 500, values: [] },
   uncertainty: { method: 'observed Fisher information', labels: [], correlation: null, conditionNumber: 40, ok: true, secondMethod: null },
   likelihood: { minus2LL: 812.4 },
   timing: {},
@@ -58,13 +58,13 @@ describe('a fit unfit to be a prior', () => {
     expect(codes(a).filter((c) => c.includes(':fit-'))).toEqual([]);
   });
 
-  it('exploration cap reached, no SEs and a collapsed BSV are flagged by name; each fit warning is listed with its text', () => {
+  it('search cap reached, no SEs and a collapsed BSV are flagged by name; each fit warning is listed with its text', () => {
     const fit = {
       ...FIT,
       population: POPULATION.map((e) => (e.kind === 'bsv' && e.parameter === 'V' ? { ...e, estimate: 0.002, se: null, rsePercent: null } : { ...e, se: null, rsePercent: null })),
-      trajectory: { ...FIT.trajectory, explorationEnd: 1000, explorationSettled: false },
+      trajectory: { ...FIT.trajectory, searchEnd: 1000, searchSettled: false },
       uncertainty: { ...FIT.uncertainty, ok: false, conditionNumber: 3e9 },
-      warnings: ['exploration reached its cap of 1000 iterations without settling', 'the Fisher information is not positive definite', 'omega of V is near zero'],
+      warnings: ['search reached its cap of 1000 iterations without settling', 'the Fisher information is not positive definite', 'omega of V is near zero'],
     };
     const a = advise(loadPopulationModel(fit));
     expect(a.status).toBe('advice');

@@ -171,13 +171,13 @@ describe('fit warnings that bear on the prior are FLAGs, post-fit internal notes
       { parameter: 'V', kind: 'typical', estimate: 52, fixed: false, se: 2 },
     ],
     uncertainty: { ok: true },
-    warnings: ['(second method) linearisation: 3 level(s) below the LLOQ are left out of the linearised likelihood', 'exploration reached its cap of 500 iterations before the trajectory settled'],
+    warnings: ['(second method) linearisation: 3 level(s) below the LLOQ are left out of the linearised likelihood', 'search reached its cap of 600 iterations before the trajectory settled'],
   };
   it('(second method) linearisation note is a note; the cap warning is a FLAG', () => {
     const m = loadPopulationModel(fit);
     const byText = (s: string) => m.checks!.find((c) => c.message.includes(s))!;
     expect(byText('(second method)').severity).toBe('note');
-    expect(byText('exploration reached its cap').severity).toBe('flag');
+    expect(byText('search reached its cap').severity).toBe('flag');
   });
 });
 

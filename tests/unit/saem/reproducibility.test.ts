@@ -11,7 +11,7 @@ const truth = parseModelSpec({
   residual: { model: 'proportional', b: 0.15 },
 });
 const dataset = simulateDataset(truth, tdmDesigns(20, 5), 17, 2);
-const short = { explorationMinIterations: 30, explorationMaxIterations: 40, averagingIterations: 20 };
+const short = { searchMinIterations: 30, searchMaxIterations: 40, averagingIterations: 20 };
 
 describe('reproducibility', () => {
   it('gives bit-identical trajectories and estimates from one seed', async () => {
@@ -51,7 +51,7 @@ describe('cancellation and progress', () => {
       },
     });
     await expect(promise).rejects.toBeInstanceOf(SaemCancelledError);
-    expect(seen).toEqual([1, 2, 3, 4, 5, 6, 7].map((k) => `exploration:${k}`));
+    expect(seen).toEqual([1, 2, 3, 4, 5, 6, 7].map((k) => `search:${k}`));
   });
   it('an abort from outside (a timer) lands mid-fit when the host is given control', async () => {
     const model = compileModel(truth, dataset);
@@ -60,7 +60,7 @@ describe('cancellation and progress', () => {
     let iterations = 0;
     const promise = runSaem(model, {
       seed: 1,
-      settings: { ...short, explorationMinIterations: 5000, explorationMaxIterations: 5000 },
+      settings: { ...short, searchMinIterations: 5000, searchMaxIterations: 5000 },
       signal: controller.signal,
       yieldToHost: () => new Promise<void>((resolve) => setImmediate(resolve)),
       yieldEveryMs: 1,
@@ -74,7 +74,7 @@ describe('cancellation and progress', () => {
     const phases: string[] = [];
     const r = await runSaem(model, { seed: 1, settings: short, onProgress: (p) => void phases.push(p.phase) });
     expect(phases.length).toBe(r.iterations);
-    expect(phases.filter((x) => x === 'exploration').length).toBe(r.explorationEnd);
-    expect(r.iterations - r.explorationEnd).toBe(20);
+    expect(phases.filter((x) => x === 'search').length).toBe(r.searchEnd);
+    expect(r.iterations - r.searchEnd).toBe(20);
   });
 });

@@ -1,0 +1,136 @@
+/**
+ * A fit from several seeds (the default): the same model and data are fitted from each seed,
+ * each fit with its post-fit steps; the seeds' agreement is judged (engine/posthoc/seedAgreement)
+ * and the fit with the lowest importance-sampling -2LL is kept, labelled as such in its record
+ * (`seeds`) and summary; disagreement becomes a warning, which dose advice flags.
+ *
+ * The seam for worker processes: `runOne(seed, signal, onProgress)` runs one complete fit
+ * (estimation and post-fit) and resolves with its record, a plain JSON-serialisable object. The
+ * default runs in this process (`runSeedInProcess`); a host with worker processes passes a runOne
+ * that sends {dataset, spec, seed, settings} to a worker, relays its progress messages to
+ * onProgress, kills the worker when the signal aborts and resolves with the record it returns.
+ * `concurrency` bounds how many runOne calls are in flight at once (in-process runs gain nothing
+ * from more than 1, as they share one thread).
+ */
+import type { Dataset } from '../../engine/data/types.js';
+import { seedAgreement, type SeedAgreement, type SeedFitSummary } from '../../engine/posthoc/seedAgreement.js';
+import type { AbortSignalLike, SaemProgress } from '../../engine/saem/saem.js';
+import type { SaemSettings } from '../../engine/saem/settings.js';
+import { parseSaemSettings } from '../../engine/saem/settings.js';
+import type { ModelSpec } from '../../engine/spec/modelSpec.js';
+import { fitDataset } from './fitService.js';
+import { addPosthoc, type FitPosthocOptions, type PosthocFitRecord } from './fitPosthoc.js';
+
+/** Seeds per fit: bounds of the `seeds` setting and of --seeds. */
+export const SEEDS_MIN = 1;
+export const SEEDS_MAX = 16;
+
+export type RunOneSeed = (seed: number, signal: AbortSignalLike | undefined, onProgress: (p: SaemProgress) => void | Promise<void>) => Promise<PosthocFitRecord>;
+
+export interface FitSeedsOptions {
+  /** The seeds to run (default: the spec's seed and the next ones, `seeds` of them in all). */
+  seeds?: readonly number[];
+  /** One complete fit from one seed (default: in this process). */
+  runOne?: RunOneSeed;
+  /** How many runs at once (default 1). */
+  concurrency?: number;
+  signal?: AbortSignalLike;
+  /** Progress of each seed's estimation. */
+  onProgress?: (seed: number, p: SaemProgress) => void | Promise<void>;
+  /** Setting overrides for every seed (in-process runner). */
+  settings?: Partial<SaemSettings>;
+  /** Post-fit options for every seed (in-process runner). */
+  posthoc?: FitPosthocOptions['posthoc'];
+  onStatus?: (message: string) => void | Promise<void>;
+}
+
+export interface SeedRunRecord {
+  seed: number;
+  minus2LL: number | null;
+  mcError: number | null;
+  usableAsPrior: boolean;
+  /** Population estimates in the order of the kept record's `population`. */
+  estimates: (number | null)[];
+  warnings: string[];
+}
+
+export type SeedsSection = SeedAgreement & { runs: SeedRunRecord[] };
+export type MultiSeedFitRecord = PosthocFitRecord & { seeds: SeedsSection };
+
+/** The seeds of a fit: base, base + 1, ... (`count` of them). */
+export function seedList(base: number, count: number): number[] {
+  if (!(Number.isInteger(count) && count >= SEEDS_MIN && count <= SEEDS_MAX)) throw new RangeError(`the number of seeds must be an integer in [${SEEDS_MIN}, ${SEEDS_MAX}], got ${count}`);
+  return Array.from({ length: count }, (_, k) => base + k);
+}
+
+/** The default runOne: estimation and post-fit steps in this process. */
+export function runSeedInProcess(dataset: Dataset, spec: ModelSpec, options: Pick<FitSeedsOptions, 'settings' | 'posthoc'> = {}): RunOneSeed {
+  return async (seed, signal, onProgress) => {
+    const outcome = await fitDataset(dataset, spec, { seed, onProgress, ...(signal ? { signal } : {}), ...(options.settings ? { settings: options.settings } : {}) });
+    return addPosthoc(outcome, options.posthoc ? { posthoc: options.posthoc } : {});
+  };
+}
+
+const label = (e: PosthocFitRecord['population'][number]): string =>
+  e.kind === 'typical' ? e.parameter : e.kind === 'bsv' ? `BSV ${e.parameter}` : e.kind === 'covariate' ? `${e.parameter}~${e.covariate}` : e.kind === 'correlation' ? `correlation ${e.parameter}` : `residual ${e.parameter}`;
+
+export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSeedsOptions = {}): Promise<MultiSeedFitRecord> {
+  const settings = parseSaemSettings(spec.estimation, options.settings ?? {});
+  const seeds = options.seeds ? [...options.seeds] : seedList(settings.seed, settings.seeds);
+  if (seeds.length < SEEDS_MIN || seeds.length > SEEDS_MAX) throw new RangeError(`a fit runs ${SEEDS_MIN} to ${SEEDS_MAX} seeds, got ${seeds.length}`);
+  const runOne = options.runOne ?? runSeedInProcess(dataset, spec, options);
+  const concurrency = Math.max(1, Math.min(seeds.length, options.concurrency ?? 1));
+  const records: PosthocFitRecord[] = new Array(seeds.length);
+  let next = 0;
+  const worker = async () => {
+    while (next < seeds.length) {
+      const k = next++;
+      if (options.signal?.aborted) return;
+      await options.onStatus?.(`seed ${seeds[k]} (${k + 1} of ${seeds.length})`);
+      records[k] = await runOne(seeds[k], options.signal, (p) => options.onProgress?.(seeds[k], p));
+    }
+  };
+  await Promise.all(Array.from({ length: concurrency }, worker));
+  if (options.signal?.aborted || records.some((r) => r === undefined)) {
+    const e = new Error('the fit was cancelled');
+    e.name = 'AbortError';
+    throw e;
+  }
+  const summaries: SeedFitSummary[] = records.map((r, k) => ({
+    seed: seeds[k],
+    estimates: r.population.map((e) => e.estimate),
+    minus2LL: 'likelihood' in r && r.likelihood ? r.likelihood.minus2LL : null,
+    mcError: 'likelihood' in r && r.likelihood ? r.likelihood.mcError : null,
+    usableAsPrior: r.degeneracy?.usableAsPrior ?? true,
+  }));
+  const first = records[0];
+  const labels = first.population.map(label);
+  // SEs of the kept fit judge the spread.
+  const provisional = seedAgreement(labels, summaries, first.population.map(() => null));
+  const keptAt = seeds.indexOf(provisional.keptSeed);
+  const kept = records[keptAt];
+  const agreement = seedAgreement(labels, summaries, kept.population.map((e) => e.se));
+  const runs: SeedRunRecord[] = summaries.map((s, k) => ({
+    seed: s.seed,
+    minus2LL: s.minus2LL,
+    mcError: s.mcError,
+    usableAsPrior: s.usableAsPrior,
+    estimates: s.estimates.map((x) => (Number.isFinite(x) ? x : null)),
+    warnings: [...records[k].warnings],
+  }));
+  const out = { ...kept, seeds: { ...agreement, runs }, warnings: [...kept.warnings] } as MultiSeedFitRecord;
+  if (!agreement.agree) out.warnings.push(`seeds: ${agreement.verdict}`);
+  return out;
+}
+
+/** Lines for the top of the fit summary: which seed was kept and the verdict. */
+export function formatSeeds(section: SeedsSection | undefined): string[] {
+  if (!section || section.seeds.length <= 1) return [];
+  const fmt = (x: number | null) => (x === null ? '-' : x.toFixed(2));
+  const lines = [`Seeds ${section.seeds.join(', ')}: kept the fit from seed ${section.keptSeed} (${section.keptReason}); ${section.verdict}`];
+  lines.push(`  -2LL by seed: ${section.runs.map((r) => `${r.seed}: ${fmt(r.minus2LL)}`).join(', ')}${section.minus2LL.range !== null ? ` (range ${section.minus2LL.range.toFixed(2)})` : ''}`);
+  const worst = section.estimates.filter((e) => e.rangeInSe !== null).sort((x, y) => (y.rangeInSe ?? 0) - (x.rangeInSe ?? 0))[0];
+  if (worst) lines.push(`  largest spread across seeds: ${worst.label}, ${worst.rangeInSe!.toFixed(2)} SE`);
+  lines.push('');
+  return lines;
+}

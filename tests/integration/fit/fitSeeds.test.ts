@@ -1,0 +1,56 @@
+/**
+ * fitSeeds (main/services/fitSeeds.ts) on R's Theoph (datasets::Theoph, tests/reference/theoph):
+ * the injected runOne is the seam for worker processes; here it wraps the real in-process runner,
+ * so these checks are of the orchestration (seeds run, concurrency bound, the kept fit, the
+ * verdict in the record, cancellation), not of the estimates.
+ */
+import { readFileSync } from 'node:fs';
+import * as path from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
+import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { fitSeeds, runSeedInProcess, seedList, type RunOneSeed } from '../../../main/services/fitSeeds.js';
+
+const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../reference/theoph/theoph.csv'), 'utf8'));
+const spec = parseModelSpec({
+  structure: '1cmt',
+  parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
+  residual: { model: 'additive', a: 1 },
+  estimation: { seed: 10, searchMinIterations: 40, searchMaxIterations: 60, averagingIterations: 30, chains: 2 },
+});
+
+describe('fitSeeds', () => {
+  it('runs the default 3 seeds from the spec seed through runOne, at most `concurrency` at once, and keeps the lowest -2LL', async () => {
+    const inner = runSeedInProcess(dataset, spec, { posthoc: { diagnostics: false, linearisedSe: false } });
+    const started: number[] = [];
+    let inFlight = 0;
+    let maxInFlight = 0;
+    const runOne: RunOneSeed = async (seed, signal, onProgress) => {
+      started.push(seed);
+      inFlight++;
+      maxInFlight = Math.max(maxInFlight, inFlight);
+      try {
+        await new Promise((r) => setTimeout(r, 5));
+        return await inner(seed, signal, onProgress);
+      } finally {
+        inFlight--;
+      }
+    };
+    const record = await fitSeeds(dataset, spec, { runOne, concurrency: 2 });
+    expect(started.sort()).toEqual([10, 11, 12]);
+    expect(maxInFlight).toBeLessThanOrEqual(2);
+    const m2 = record.seeds.runs.map((r) => r.minus2LL!);
+    expect(record.seeds.keptSeed).toBe(record.seeds.runs[m2.indexOf(Math.min(...m2))].seed);
+    expect(record.seed).toBe(record.seeds.keptSeed);
+    expect(record.likelihood.minus2LL).toBe(Math.min(...m2));
+    expect(record.seeds.estimates.map((e) => e.label)).toEqual(['CL', 'V', 'ka', 'BSV CL', 'BSV V', 'BSV ka', 'residual a']);
+    expect(JSON.parse(JSON.stringify(record)).seeds.verdict).toBe(record.seeds.verdict);
+  }, 120_000);
+  it('seeds: 1 runs one seed; the count is bounded 1..16; an aborted signal cancels', async () => {
+    const one = await fitSeeds(dataset, spec, { settings: { seeds: 1 }, posthoc: { diagnostics: false, linearisedSe: false } });
+    expect(one.seeds.runs).toHaveLength(1);
+    expect(one.seeds.verdict).toMatch(/one seed only/);
+    expect(() => seedList(1, 17)).toThrow(/\[1, 16\]/);
+    await expect(fitSeeds(dataset, spec, { signal: { aborted: true } })).rejects.toThrow(/cancelled/);
+  }, 120_000);
+});
