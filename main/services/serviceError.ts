@@ -35,12 +35,33 @@ export class ServiceError extends Error {
   }
 }
 
+/** Engine and service errors whose messages already say what and where (by class name, so no imports). */
+const USER_ERROR_KINDS: ReadonlyMap<string, ServiceErrorKind> = new Map<string, ServiceErrorKind>([
+  ['ImportError', 'file'],
+  ['DatasetLoadError', 'file'],
+  ['WorkbookError', 'file'],
+  ['TemplateError', 'spec'],
+  ['PatientError', 'spec'],
+  ['PopulationModelError', 'spec'],
+  ['PriorError', 'spec'],
+  ['RegimenParseError', 'usage'],
+  ['TargetError', 'spec'],
+  ['AdviceError', 'spec'],
+  ['ModelDataError', 'data'],
+  ['CovariateValueError', 'data'],
+  ['PosthocError', 'numeric'],
+]);
+
 /** Any thrown value as an ErrorValue; unknown exceptions become 'internal' with their message. */
 export function toErrorValue(error: unknown): ErrorValue {
   if (error instanceof ServiceError) return { kind: error.kind, message: error.message, problems: [...error.problems] };
   if (error instanceof DataError) return { kind: 'data', message: error.message, problems: error.problems.map((p) => [p.row !== undefined ? `line ${p.row}` : '', p.subject !== undefined ? `subject ${p.subject}` : '', p.field ?? '', p.message].filter(Boolean).join(': ')) };
   if (error instanceof SpecError) return { kind: 'spec', message: error.message, problems: [...error.problems] };
   if (error instanceof Error && error.name === 'AbortError') return { kind: 'cancelled', message: error.message || 'cancelled', problems: [] };
+  if (error instanceof Error && USER_ERROR_KINDS.has(error.name)) {
+    const problems = (error as { problems?: unknown }).problems;
+    return { kind: USER_ERROR_KINDS.get(error.name)!, message: error.message, problems: Array.isArray(problems) ? problems.map((p) => (typeof p === 'string' ? p : JSON.stringify(p))) : [] };
+  }
   const message = error instanceof Error ? error.message : String(error);
   return { kind: 'internal', message: `internal error: ${message}`, problems: [] };
 }

@@ -9,6 +9,8 @@ export interface WorkerEntry {
   modulePath: string;
   /** Extra V8/Node flags, e.g. --max-old-space-size=2048. */
   execArgv?: string[];
+  /** Arguments after the module (process.argv[2...]), e.g. the engine worker's limits. */
+  args?: string[];
 }
 
 export interface WorkerHandle {
@@ -20,12 +22,14 @@ export interface WorkerHandle {
   kill(): void;
   /** Text the worker wrote to stderr (last 8 kB), for error messages. */
   stderrTail(): string;
+  /** Operating-system process id, once known. */
+  readonly pid?: number | undefined;
 }
 
 export type SpawnWorker = (entry: WorkerEntry) => WorkerHandle;
 
 export const spawnNodeWorker: SpawnWorker = (entry) => {
-  const child = fork(entry.modulePath, [], {
+  const child = fork(entry.modulePath, entry.args ?? [], {
     execArgv: entry.execArgv ?? [],
     stdio: ['ignore', 'ignore', 'pipe', 'ipc'],
     // Structured clone, so bytes (Uint8Array) cross as they are, as with Electron's utilityProcess.
@@ -60,5 +64,8 @@ export const spawnNodeWorker: SpawnWorker = (entry) => {
       if (!exited) child.kill('SIGKILL');
     },
     stderrTail: () => tail,
+    get pid() {
+      return child.pid;
+    },
   };
 };

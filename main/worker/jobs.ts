@@ -1,0 +1,175 @@
+/**
+ * The engine jobs a worker runs (docs/architecture.md, "Processes"): parse, fit (with its
+ * post-fit steps), post-fit alone, simulate, dose advice, and a probe for the process tests.
+ * Every input arrived over a process line, so each is rebuilt through its engine parser
+ * (createDataset, parseModelSpec, parsePatient, parseTarget) before use. Values returned are
+ * plain JSON data. Errors are thrown; the caller turns them into ErrorValues.
+ */
+import { createDataset, type SubjectInput } from '../../engine/data/dataset.js';
+import type { Dataset } from '../../engine/data/types.js';
+import { adviseDose } from '../../engine/dosing/advise.js';
+import { parsePatient } from '../../engine/dosing/patient.js';
+import { loadPopulationModel } from '../../engine/dosing/population.js';
+import { parseRegimen } from '../../engine/dosing/regimens.js';
+import { parseTarget } from '../../engine/dosing/targets.js';
+import type { FitRecord } from '../../engine/saem/fitRecord.js';
+import type { SaemProgress } from '../../engine/saem/saem.js';
+import type { SaemSettings } from '../../engine/saem/settings.js';
+import { parseModelSpec } from '../../engine/spec/modelSpec.js';
+import { compileModel } from '../../engine/stats/model.js';
+import { ENGINE_VERSION } from '../../engine/version.js';
+import { simulateDataset } from '../cli/simulation.js';
+import type { JobRequest, ProgressPhase } from '../protocol/worker.js';
+import { addPosthoc } from '../services/fitPosthoc.js';
+import { fitDataset, type FitOutcome } from '../services/fitService.js';
+import { ServiceError } from '../services/serviceError.js';
+import { handleParseMessage } from './parseWorker.js';
+
+export interface JobProgress {
+  phase: ProgressPhase;
+  iteration: number;
+  maxIterations: number;
+  estimates: Record<string, number>;
+  message?: string;
+}
+
+export interface JobContext {
+  jobId: string;
+  /** Called at most every PROGRESS_MIN_INTERVAL_MS by the caller's throttle. */
+  onProgress(p: JobProgress): void;
+}
+
+/** A dataset that crossed a process line, rebuilt and re-validated. */
+export function datasetFromWire(d: { subjects: Record<string, unknown>[]; covariateNames: string[] }): Dataset {
+  const inputs = d.subjects.map((s) => {
+    const cov = Object.create(null) as Record<string, string | number>;
+    if (typeof s.covariates === 'object' && s.covariates !== null) for (const [k, v] of Object.entries(s.covariates)) cov[k] = v as string | number;
+    return { id: s.id, covariates: cov, doses: s.doses, observations: s.observations } as SubjectInput;
+  });
+  return createDataset(inputs, d.covariateNames);
+}
+
+/** JSON round trip: plain data only (typed arrays are converted by the jobs beforehand). */
+const plain = <T>(x: T): T => JSON.parse(JSON.stringify(x)) as T;
+
+function saemProgress(p: SaemProgress): JobProgress {
+  const estimates = Object.create(null) as Record<string, number>;
+  p.estimateNames.forEach((n, i) => {
+    if (Number.isFinite(p.estimates[i])) estimates[n] = p.estimates[i];
+  });
+  return { phase: p.phase === 'exploration' ? 'search' : 'averaging', iteration: p.iteration, maxIterations: p.plannedIterations, estimates };
+}
+
+async function runFit(job: Extract<JobRequest, { kind: 'fit' }>, ctx: JobContext): Promise<unknown> {
+  const dataset = datasetFromWire(job.dataset);
+  const spec = parseModelSpec(job.spec);
+  const outcome = await fitDataset(dataset, spec, {
+    ...(job.seed !== undefined ? { seed: job.seed } : {}),
+    ...(job.settings ? { settings: job.settings as Partial<SaemSettings> } : {}),
+    onProgress: (p) => ctx.onProgress(saemProgress(p)),
+  });
+  if (job.postFit === false) return plain(outcome.record);
+  return plain(await postFit(outcome, job.repeat, undefined, ctx));
+}
+
+async function postFit(outcome: FitOutcome, repeat: number | undefined, seed: number | undefined, ctx: JobContext): Promise<unknown> {
+  let step = 0;
+  const total = 1 + (repeat ?? 0);
+  return addPosthoc(outcome, {
+    ...(seed !== undefined ? { seed } : {}),
+    ...(repeat !== undefined ? { repeat } : {}),
+    onStatus: (message) => {
+      const m = /^repeated fit (\d+) of (\d+)/.exec(message);
+      if (m) ctx.onProgress({ phase: 'repeat', iteration: Number(m[1]), maxIterations: Number(m[2]), estimates: Object.create(null), message });
+      else ctx.onProgress({ phase: 'post-fit', iteration: ++step, maxIterations: total, estimates: Object.create(null), message });
+    },
+  });
+}
+
+export async function runJob(job: JobRequest, ctx: JobContext): Promise<unknown> {
+  switch (job.kind) {
+    case 'parse': {
+      ctx.onProgress({ phase: 'parse', iteration: 0, maxIterations: 1, estimates: Object.create(null), message: `reading ${job.fileName}` });
+      const r = handleParseMessage({ type: 'parse', id: ctx.jobId, fileName: job.fileName, bytes: job.bytes, ...(job.mapping !== undefined ? { mapping: job.mapping } : {}), ...(job.options ? { options: job.options } : {}), ...(job.maxRows ? { maxRows: job.maxRows } : {}) });
+      if (r.type === 'error') throw new ServiceError(r.kind === 'template' ? 'spec' : r.kind === 'request' ? 'usage' : 'file', r.message, r.problems ?? []);
+      return plain(r.analysis);
+    }
+    case 'fit':
+      return runFit(job, ctx);
+    case 'postFit': {
+      const dataset = datasetFromWire(job.dataset);
+      const spec = parseModelSpec(job.spec);
+      const model = compileModel(spec, dataset);
+      const record = job.record as unknown as FitRecord;
+      if (record.format !== 'plateau-fit' || !Array.isArray(record.population) || !Array.isArray(record.individual))
+        throw new ServiceError('usage', 'postFit: the record is not a plateau fit record (format "plateau-fit" with population and individual estimates)');
+      return plain(await postFit({ record, model, dataset, spec }, job.repeat, job.seed, ctx));
+    }
+    case 'simulate': {
+      const dataset = datasetFromWire(job.dataset);
+      const spec = parseModelSpec(job.spec);
+      ctx.onProgress({ phase: 'simulate', iteration: 0, maxIterations: 1, estimates: Object.create(null) });
+      const r = simulateDataset(spec, dataset, { ...(job.variability ? { variability: true } : {}), ...(job.seed !== undefined ? { seed: job.seed } : {}) });
+      return {
+        model: r.model.id,
+        subjects: r.subjects.map((s) => ({
+          id: s.id,
+          parameters: plain(s.parameters),
+          parameterSource: plain(s.parameterSource),
+          predictedMgL: Array.from(s.predictedMgL),
+          ...(s.simulatedMgL ? { simulatedMgL: Array.from(s.simulatedMgL) } : {}),
+        })),
+      };
+    }
+    case 'advise': {
+      ctx.onProgress({ phase: 'advise', iteration: 0, maxIterations: 1, estimates: Object.create(null) });
+      const population = loadPopulationModel(job.model);
+      const patient = parsePatient(job.patient);
+      if (job.nextDoseH !== undefined) patient.nextDoseH = job.nextDoseH;
+      let target = job.target ? parseTarget(job.target) : undefined;
+      if (target && job.micMgL !== undefined) target = { ...target, micMgL: job.micMgL };
+      if (target && job.peakDelayH !== undefined) target = { ...target, peakDelayH: job.peakDelayH };
+      if (!target && (job.micMgL !== undefined || job.peakDelayH !== undefined)) throw new ServiceError('usage', 'an MIC or a peak delay needs a target');
+      const advice = adviseDose({
+        population,
+        patient,
+        ...(target ? { target } : {}),
+        caution: job.caution,
+        seed: job.seed,
+        engineVersion: ENGINE_VERSION,
+        ...(job.evaluate !== undefined ? { evaluate: parseRegimen(job.evaluate) } : {}),
+        ...(job.draws !== undefined ? { nDraws: job.draws } : {}),
+        ...(job.loadingDose !== undefined ? { loadingDose: job.loadingDose } : {}),
+        ...(job.belowMgL !== undefined ? { belowMgL: job.belowMgL } : {}),
+        ...(job.overrideBlocks !== undefined ? { overrideBlocks: job.overrideBlocks } : {}),
+      });
+      return plain(advice);
+    }
+    case 'probe':
+      return runProbe(job, ctx);
+  }
+}
+
+/** Process-machinery probe: echo, cancellable sleep, busy spin, crash, or a hang of the whole event loop. */
+async function runProbe(job: Extract<JobRequest, { kind: 'probe' }>, ctx: JobContext): Promise<unknown> {
+  const ms = job.ms ?? 0;
+  if (job.mode === 'echo') return job.value ?? null;
+  if (job.mode === 'sleep') {
+    const t0 = Date.now();
+    let i = 0;
+    while (Date.now() - t0 < ms) {
+      ctx.onProgress({ phase: 'search', iteration: ++i, maxIterations: Math.ceil(ms / 10), estimates: Object.assign(Object.create(null), { x: i }) });
+      await new Promise((r) => setTimeout(r, 10));
+    }
+    return { sleptMs: Date.now() - t0 };
+  }
+  if (job.mode === 'spin') {
+    const t0 = Date.now();
+    while (Date.now() - t0 < ms) {
+      /* synchronous work, as a post-fit step is */
+    }
+    return { spunMs: Date.now() - t0 };
+  }
+  if (job.mode === 'crash') process.exit(3);
+  throw new ServiceError('usage', `probe mode ${job.mode} runs in the worker's main thread only`);
+}
