@@ -30,7 +30,7 @@ export class AppState {
   async start(): Promise<void> {
     this.loading = true;
     try {
-      this.info = await request<AppInfo>('app.info');
+      this.info = await request('app.info');
       await this.refreshProject();
       subscribe('queue', () => void this.refreshProject());
     } catch (e) {
@@ -42,7 +42,7 @@ export class AppState {
 
   async refreshProject(): Promise<void> {
     try {
-      this.project = await request<ProjectSummary>('project.summary');
+      this.project = await request('project.summary');
     } catch (e) {
       this.error = messageOf(e);
     }

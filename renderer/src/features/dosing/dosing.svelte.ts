@@ -8,14 +8,14 @@ import type { Regimen } from '../../../../engine/dosing/metrics.js';
 import { request } from '../../lib/bridge/index.js';
 import { messageOf } from '../../lib/app.svelte.js';
 import { emptyForm, formFromPatientJson, formFromSubject, formToPatient, type PatientForm } from './patientForm.js';
-import type { Advice, LiteratureModel, PriorChoice, TargetSpec } from './types.js';
+import type { Advice, LiteratureModel, PriorChoice, TargetPreset, TargetSpec } from './types.js';
 import { buildWhatIfContext, populationFrom, whatIfForecast, type WhatIfContext } from './whatIf.js';
 
 /** Same seed, same advice: the seed is shown and can be changed. */
 export const DEFAULT_SEED = 1;
 
 export class DosingState {
-  targets = $state<TargetSpec[]>([]);
+  targets = $state<TargetPreset[]>([]);
   literature = $state<LiteratureModel[]>([]);
   prior = $state<PriorChoice>({ kind: 'none' });
   form = $state<PatientForm>(emptyForm());
@@ -46,11 +46,11 @@ export class DosingState {
   private whatIfCtx: WhatIfContext | null = null;
   private whatIfKey = '';
 
-  target = $derived(this.targets.find((t) => t.id === this.targetId) ?? null);
+  target = $derived<TargetSpec | null>(this.targets.find((t) => t.id === this.targetId)?.target ?? null);
 
   async load(): Promise<void> {
     try {
-      const [targets, literature] = await Promise.all([request<TargetSpec[]>('dosing.targets'), request<LiteratureModel[]>('dosing.literatureModels')]);
+      const [targets, literature] = await Promise.all([request('dosing.targets'), request('dosing.literatureModels')]);
       this.targets = targets;
       this.literature = literature;
       if (!this.targetId && targets.length) this.targetId = targets[0].id;
@@ -64,7 +64,7 @@ export class DosingState {
     this.dataset = null;
     if (!id) return;
     try {
-      this.dataset = await request<Dataset>('dataset.get', { datasetId: id });
+      this.dataset = await request('dataset.get', { datasetId: id });
     } catch (e) {
       this.error = messageOf(e);
     }
@@ -79,28 +79,24 @@ export class DosingState {
     this.form = formFromPatientJson(p);
   }
 
-  /** The target as sent: the preset with the user's edits of the MIC and the first goal's bounds. */
-  targetToSend(): TargetSpec | string | undefined {
+  /** The target as sent: the preset id, or the preset with the user's edits of the first goal's bounds. */
+  targetToSend(): Record<string, unknown> | string | undefined {
     const t = this.target;
     if (!t) return undefined;
-    if (!this.micMgL.trim() && !this.goalMin.trim() && !this.goalMax.trim()) return t.id;
+    if (!this.goalMin.trim() && !this.goalMax.trim()) return this.targetId;
     const copy: TargetSpec = JSON.parse(JSON.stringify(t));
-    if (this.micMgL.trim()) copy.micMgL = Number(this.micMgL);
     if (copy.goals[0]) {
       if (this.goalMin.trim()) copy.goals[0].min = Number(this.goalMin);
       if (this.goalMax.trim()) copy.goals[0].max = Number(this.goalMax);
     }
     copy.label = `${t.label} (edited)`;
-    return copy;
+    return copy as unknown as Record<string, unknown>;
   }
 
-  priorToSend(): Record<string, unknown> | undefined {
+  priorToSend(): { fitId: string } | { literatureModelId: string } | undefined {
     const p = this.prior;
     if (p.kind === 'fit') return { fitId: p.fitId };
-    if (p.kind === 'literature') {
-      const m = this.literature.find((x) => x.id === p.id);
-      return m ? { spec: m.spec } : undefined;
-    }
+    if (p.kind === 'literature') return { literatureModelId: p.id };
     return undefined;
   }
 
@@ -119,11 +115,11 @@ export class DosingState {
     const my = ++this.ticket;
     this.busy = true;
     try {
-      const advice = await request<Advice>('dosing.advise', {
+      const advice = await request('dosing.advise', {
         prior,
         patient,
-        target,
-        options: { seed: this.seed, overrideBlocks, ...(this.loadingDose ? { loadingDose: true } : {}) },
+        ...(target !== undefined ? { target } : {}),
+        options: { seed: this.seed, overrideBlocks, ...(this.loadingDose ? { loadingDose: true } : {}), ...(this.micMgL.trim() ? { micMgL: Number(this.micMgL) } : {}) },
       });
       if (my !== this.ticket) return;
       this.advice = advice;
@@ -182,16 +178,16 @@ export class DosingState {
 
   private async populationForWhatIf() {
     const p = this.prior;
-    if (p.kind === 'fit') return populationFrom({ fit: await request<unknown>('fits.get', { fitId: p.fitId }) });
+    if (p.kind === 'fit') return populationFrom({ fit: (await request('fits.get', { fitId: p.fitId })).record });
     const m = p.kind === 'literature' ? this.literature.find((x) => x.id === p.id) : undefined;
     if (!m) throw new Error('choose the prior model again');
-    return populationFrom({ spec: m.spec });
+    return populationFrom({ spec: m.model });
   }
 
   async saveSession(reviewer: string): Promise<string | null> {
     if (!this.advice) return null;
     try {
-      const r = await request<{ sessionId: string }>('dosing.saveSession', { advice: this.advice, ...(reviewer ? { reviewer } : {}) });
+      const r = await request('dosing.saveSession', { advice: this.advice as unknown as Record<string, unknown>, ...(reviewer ? { reviewer } : {}) });
       return r.sessionId;
     } catch (e) {
       this.error = messageOf(e);

@@ -1,23 +1,24 @@
 /**
  * The one bridge the views talk to: `window.plateau` when the Electron preload exposed it,
  * otherwise a WebSocket to the loopback web host (token from the page address or a cookie).
- * There is no offline stand-in: without either, every request fails with a message.
+ * There is no offline stand-in: without a host every request fails with a message.
  */
+import type { Channel, EventName, EventPayload, RequestOf, ResponseOf } from '../../../../main/protocol/bridge.js';
 import { BridgeError, createWebSocketTransport, tokenFromPage, type EventListener, type Transport } from './transport.js';
 
 export { BridgeError, type Transport } from './transport.js';
 
-/** The narrow API the Electron preload exposes (one request call, one event subscription). */
+/** The part of `PlateauBridge` (main/protocol/bridge.ts) the transport uses. */
 interface PreloadApi {
   invoke(channel: string, payload: unknown): Promise<unknown>;
-  on(event: string, listener: EventListener): (() => void) | void;
+  subscribe(event: string, listener: EventListener, signal: AbortSignal): void;
 }
 
 function isPreloadApi(x: unknown): x is PreloadApi {
-  return !!x && typeof (x as PreloadApi).invoke === 'function' && typeof (x as PreloadApi).on === 'function';
+  return !!x && typeof (x as PreloadApi).invoke === 'function' && typeof (x as PreloadApi).subscribe === 'function';
 }
 
-/** Electron preload answers `{ok, value} | {ok:false, error}` like the web host, or throws. */
+/** The Electron preload answers a Result (`{ok, value} | {ok: false, error}`) like the web host. */
 function electronTransport(api: PreloadApi): Transport {
   return {
     host: 'electron',
@@ -31,20 +32,10 @@ function electronTransport(api: PreloadApi): Transport {
       return answer;
     },
     subscribe(event, listener) {
-      const off = api.on(event, listener);
-      return typeof off === 'function' ? off : () => undefined;
+      const stop = new AbortController();
+      api.subscribe(event, listener, stop.signal);
+      return () => stop.abort();
     },
-  };
-}
-
-function unavailableTransport(reason: string): Transport {
-  return {
-    host: 'web',
-    state: () => 'closed',
-    request: async () => {
-      throw new Error(reason);
-    },
-    subscribe: () => () => undefined,
   };
 }
 
@@ -56,23 +47,21 @@ export function bridge(): Transport {
   const w = window as unknown as { plateau?: unknown };
   if (isPreloadApi(w.plateau)) current = electronTransport(w.plateau);
   else {
+    // The web host puts the token in the first address (?token=) and then in an HttpOnly cookie
+    // that the browser sends with the WebSocket request by itself.
     const token = tokenFromPage(window.location, document.cookie);
-    if (!token)
-      current = unavailableTransport('this page was opened without its access token: open Plateau with the address it printed when it started (it ends with ?token=...)');
-    else {
-      const scheme = window.location.protocol === 'https:' ? 'wss' : 'ws';
-      current = createWebSocketTransport(`${scheme}://${window.location.host}/ws?token=${encodeURIComponent(token)}`);
-    }
+    const scheme = window.location.protocol === 'https:' ? 'wss' : 'ws';
+    current = createWebSocketTransport(`${scheme}://${window.location.host}/ws${token ? `?token=${encodeURIComponent(token)}` : ''}`);
   }
   return current;
 }
 
-/** A request on the bridge. */
-export function request<T>(channel: string, payload: unknown = {}): Promise<T> {
-  return bridge().request(channel, payload) as Promise<T>;
+/** A request on the bridge; resolves with the channel's value, rejects with a BridgeError. */
+export function request<C extends Channel>(channel: C, ...payload: undefined extends RequestOf<C> ? [RequestOf<C>?] : [RequestOf<C>]): Promise<ResponseOf<C>> {
+  return bridge().request(channel, payload[0] ?? {}) as Promise<ResponseOf<C>>;
 }
 
-/** Subscribe to a main-side event (queue, progress, ...). */
-export function subscribe(event: string, listener: EventListener): () => void {
-  return bridge().subscribe(event, listener);
+/** Subscribe to a main-side event (queue, progress, ...); returns the unsubscribe function. */
+export function subscribe<E extends EventName>(event: E, listener: (payload: EventPayload<E>) => void): () => void {
+  return bridge().subscribe(event, listener as EventListener);
 }
