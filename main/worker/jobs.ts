@@ -5,8 +5,6 @@
  * (createDataset, parseModelSpec, parsePatient, parseTarget) before use. Values returned are
  * plain JSON data. Errors are thrown; the caller turns them into ErrorValues.
  */
-import { createDataset, type SubjectInput } from '../../engine/data/dataset.js';
-import type { Dataset } from '../../engine/data/types.js';
 import { adviseDose } from '../../engine/dosing/advise.js';
 import { parsePatient } from '../../engine/dosing/patient.js';
 import { loadPopulationModel } from '../../engine/dosing/population.js';
@@ -23,6 +21,7 @@ import type { JobRequest, ProgressPhase } from '../protocol/worker.js';
 import { addPosthoc } from '../services/fitPosthoc.js';
 import { fitDataset, type FitOutcome } from '../services/fitService.js';
 import { ServiceError } from '../services/serviceError.js';
+import { datasetFromWire } from '../services/datasetWire.js';
 import { handleParseMessage } from './parseWorker.js';
 
 export interface JobProgress {
@@ -37,16 +36,6 @@ export interface JobContext {
   jobId: string;
   /** Called at most every PROGRESS_MIN_INTERVAL_MS by the caller's throttle. */
   onProgress(p: JobProgress): void;
-}
-
-/** A dataset that crossed a process line, rebuilt and re-validated. */
-export function datasetFromWire(d: { subjects: Record<string, unknown>[]; covariateNames: string[] }): Dataset {
-  const inputs = d.subjects.map((s) => {
-    const cov = Object.create(null) as Record<string, string | number>;
-    if (typeof s.covariates === 'object' && s.covariates !== null) for (const [k, v] of Object.entries(s.covariates)) cov[k] = v as string | number;
-    return { id: s.id, covariates: cov, doses: s.doses, observations: s.observations } as SubjectInput;
-  });
-  return createDataset(inputs, d.covariateNames);
 }
 
 /** JSON round trip: plain data only (typed arrays are converted by the jobs beforehand). */
