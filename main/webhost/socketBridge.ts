@@ -5,11 +5,12 @@
  * ErrorValue of kind 'usage' and logged; the connection and the host go on.
  */
 import type { WebSocket, RawData } from 'ws';
+import { MAX_MESSAGE_BYTES as PROTOCOL_MAX_MESSAGE_BYTES, SubscribeEnvelope } from '../protocol/index.js';
 import type { ErrorValue } from '../services/serviceError.js';
 import type { BridgeBackend } from './backend.js';
 
-/** Largest message accepted (a 50 MB spreadsheet in base64 plus the envelope). */
-export const MAX_MESSAGE_BYTES = 72 * 1024 * 1024;
+/** Largest message accepted: the protocol's limit at the renderer boundary. */
+export const MAX_MESSAGE_BYTES = PROTOCOL_MAX_MESSAGE_BYTES;
 /** Progress events are dropped (never queue snapshots or replies) while this much is unsent. */
 const PROGRESS_BACKLOG_BYTES = 4 * 1024 * 1024;
 
@@ -41,6 +42,14 @@ export function attachBridge(socket: WebSocket, backend: BridgeBackend, log: (li
     } catch {
       log('web host: refused a WebSocket message that is not JSON');
       send({ id: null, ok: false, error: usage('the message is not JSON') });
+      return;
+    }
+    // Every event is sent to every socket; a subscription message is acknowledged so a client
+    // that announces what it listens to gets an answer.
+    if (message !== null && typeof message === 'object' && 'subscribe' in message) {
+      const sub = SubscribeEnvelope.safeParse(message);
+      if (sub.success) send({ id: sub.data.id, ok: true, value: null });
+      else send({ id: null, ok: false, error: usage(`malformed subscription: ${sub.error.issues[0]?.message ?? 'invalid'}`) });
       return;
     }
     const request = backend.parseRequest(message);

@@ -3,7 +3,9 @@
  * one URL line, the browser, and a clean stop on Ctrl-C / SIGTERM.
  */
 import type { AppPaths } from './appPaths.js';
-import type { BridgeBackend } from './backend.js';
+import { readFileSync } from 'node:fs';
+import * as path from 'node:path';
+import { defaultProjectDir, startAppBackend } from './appBackend.js';
 import { openInBrowser } from './openBrowser.js';
 import { startWebHost, type WebHost } from './server.js';
 
@@ -16,18 +18,22 @@ export interface WebAppOptions {
   print?: (line: string) => void;
 }
 
-/** Until the application services land, every request is refused with a clear reason. */
-function servicesBackend(): { backend: BridgeBackend; stop: () => Promise<void> } {
-  const notYet = { kind: 'usage' as const, message: 'the application services are not wired into this build yet', problems: [] };
-  return {
-    backend: { parseRequest: () => ({ ok: false, error: notYet }), handle: async () => ({ ok: false, error: notYet }), subscribe: () => () => {} },
-    stop: async () => {},
-  };
+function appVersion(appRoot: string): string {
+  try {
+    return String((JSON.parse(readFileSync(path.join(appRoot, 'package.json'), 'utf8')) as { version?: unknown }).version ?? 'unknown');
+  } catch {
+    return 'unknown';
+  }
 }
 
 export async function runWebApp(options: WebAppOptions): Promise<WebHost> {
   const print = options.print ?? ((line: string) => void process.stdout.write(`${line}\n`));
-  const services = servicesBackend();
+  const services = await startAppBackend({
+    paths: options.paths,
+    projectDir: options.projectDir ?? defaultProjectDir(),
+    host: 'web',
+    appVersion: appVersion(options.paths.appRoot),
+  });
   const host = await startWebHost({ rendererDir: options.paths.rendererDir, backend: services.backend, port: options.port });
   print(`Plateau is running at ${host.url}`);
   if (options.open) openInBrowser(host.url, (reason) => print(`Could not open the browser (${reason}); open the URL above yourself.`));
