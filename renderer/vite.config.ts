@@ -23,6 +23,8 @@ export default defineConfig({
     assetsInlineLimit: 0,
     sourcemap: false,
     chunkSizeWarningLimit: 2000,
+    // Timing notes of the bundler are noise in the test output.
+    rolldownOptions: { checks: { pluginTimings: false } },
   },
   server: { host: '127.0.0.1' },
 });

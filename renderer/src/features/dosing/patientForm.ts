@@ -37,6 +37,8 @@ export interface PatientForm {
   levels: LevelRow[];
   /** When the next dose can start (same time format); empty = one usual interval after the last. */
   nextDose: string;
+  /** Other fields of a loaded patient file (e.g. a renal history), sent on unchanged so none is lost. */
+  extra: Record<string, unknown>;
 }
 
 export function emptyForm(): PatientForm {
@@ -52,6 +54,7 @@ export function emptyForm(): PatientForm {
     doses: [{ time: '', amountMg: '', durationH: '1', route: 'iv' }],
     levels: [],
     nextDose: '',
+    extra: Object.create(null),
   };
 }
 
@@ -137,7 +140,7 @@ export function formToPatient(f: PatientForm): FormResult {
     levels.push({ [timeKey]: t, conc_mg_L: c, censored: l.censored, ...(l.kind ? { kind: l.kind } : {}) });
   });
 
-  const patient: Record<string, unknown> = { id: f.id.trim(), covariates, doses, levels };
+  const patient: Record<string, unknown> = { ...f.extra, id: f.id.trim(), covariates, doses, levels };
   if (f.nextDose.trim()) {
     if (f.timeMode === 'clock') {
       const t = timeOf(f.nextDose, 'Next dose');
@@ -192,6 +195,12 @@ export function formFromPatientJson(p: Record<string, unknown>): PatientForm {
   const t = (r: Record<string, unknown>) => String(f.timeMode === 'clock' ? (r.time ?? '') : (r.time_h ?? ''));
   f.doses = doses.map((d) => ({ time: t(d), amountMg: String(d.amount_mg ?? ''), durationH: String(d.duration_h ?? 0), route: d.route === 'oral' ? 'oral' : 'iv' }));
   f.levels = levels.map((l) => ({ time: t(l), concMgL: String(l.conc_mg_L ?? ''), censored: l.censored === true, kind: l.kind === 'trough' || l.kind === 'peak' ? l.kind : '' }));
+  if (typeof p.next_dose === 'string') f.nextDose = p.next_dose;
+  else if (typeof p.next_dose_h === 'number') f.nextDose = String(p.next_dose_h);
+  const known = new Set(['id', 'covariates', 'doses', 'levels', 'next_dose', 'next_dose_h']);
+  const extra: Record<string, unknown> = Object.create(null);
+  for (const [k, v] of Object.entries(p)) if (!known.has(k)) extra[k] = v;
+  f.extra = extra;
   return f;
 }
 

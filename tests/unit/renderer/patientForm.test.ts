@@ -1,0 +1,33 @@
+import { readFileSync } from 'node:fs';
+import { describe, expect, it } from 'vitest';
+import { parsePatient } from '../../../engine/dosing/patient.js';
+import { emptyForm, formFromPatientJson, formToPatient, parsePasted } from '../../../renderer/src/features/dosing/patientForm.js';
+
+describe('Dosing patient form', () => {
+  it('round-trips the demo patient file to the same patient the engine reads', () => {
+    const json = JSON.parse(readFileSync(new URL('../../../resources/demo/patient.json', import.meta.url), 'utf8'));
+    const { patient, problems } = formToPatient(formFromPatientJson({ ...json, renal: [] }));
+    expect(problems).toEqual([]);
+    const a = parsePatient(json);
+    const b = parsePatient(patient);
+    expect(b.doses).toEqual(a.doses);
+    expect(b.levels).toEqual(a.levels);
+    expect(b.covariates).toEqual(a.covariates);
+    expect(b.levelKinds).toEqual(a.levelKinds);
+    expect((patient as { renal: unknown[] }).renal).toEqual([]);
+  });
+  it('names every incomplete row instead of dropping it', () => {
+    const f = emptyForm();
+    f.id = 'bed 3';
+    f.doses = [{ time: '2026-11-23 08:00', amountMg: '1000', durationH: '1', route: 'iv' }, { time: '', amountMg: '1000', durationH: '1', route: 'iv' }];
+    f.levels = [{ time: '2026-11-23 19:30', concMgL: 'abc', censored: false, kind: '' }];
+    const r = formToPatient(f);
+    expect(r.patient).toBeUndefined();
+    expect(r.problems).toEqual(['Dose 2: the time is empty; fill it in or remove the row.', 'Level 1: the concentration must be a number of mg/L (it is "abc").']);
+  });
+  it('reads pasted levels with "<" as below the limit and reports unreadable lines', () => {
+    const r = parsePasted('time\tlevel\n12\t<2\n24\n', 'levels');
+    expect(r.levels).toEqual([{ time: '12', concMgL: '2', censored: true, kind: '' }]);
+    expect(r.problems).toEqual(['Pasted line 3: expected "time, concentration mg/L", got "24".']);
+  });
+});
