@@ -98,6 +98,9 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByRole('button', { name: 'Add to the queue' }).click();
     await page.getByText('Running').first().waitFor({ timeout: 30_000 });
     await page.getByRole('progressbar').first().waitFor();
+    // The live convergence charts: one per estimate, drawn from the worker's progress reports.
+    await page.getByRole('heading', { name: /^Convergence/ }).waitFor({ timeout: 30_000 });
+    await page.getByRole('img', { name: 'CL against iteration', exact: true }).waitFor();
     await s.shot('04-queue-running');
     await accessible('Fit queue');
     await expect.poll(() => page.getByRole('button', { name: /Open the results of/ }).count(), { timeout: 150_000, interval: 1000 }).toBe(2);
@@ -129,7 +132,7 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     const prior = page.getByLabel('Model the advice is based on');
     await prior.selectOption((await prior.locator('option', { hasText: 'Example vancomycin-like' }).getAttribute('value')) as string);
     await page.getByLabel(/Or load a patient file/).setInputFiles(path.join(ROOT, 'resources', 'demo', 'patient.json'));
-    expect(await page.getByLabel('Patient identifier (no names)').inputValue()).toBe('demo bed 4 (invented patient)');
+    await expect.poll(() => page.getByLabel('Patient identifier (no names)').inputValue()).toBe('demo bed 4 (invented patient)');
     expect(await page.getByLabel('Level 1 concentration (mg/L)').inputValue()).toBe('18.4');
     await page.getByLabel('Target preset').selectOption('vancomycin-auc24');
     await page.getByRole('button', { name: 'Compute dose advice' }).click();
@@ -161,6 +164,7 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByLabel('Every (h)').fill('12');
     await page.getByRole('button', { name: 'Draw', exact: true }).click();
     await page.getByText(/What-if 1500 mg every 12 h/).waitFor({ timeout: 30_000 });
+    await page.locator('#forecast-chart').scrollIntoViewIfNeeded();
     await s.shot('10-dosing-whatif');
     await accessible('Dosing (advice)');
 
