@@ -119,11 +119,14 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByRole('heading', { name: 'Model comparison' }).waitFor();
     await s.shot('06-results');
     await accessible('Results');
-    for (const plot of ['Residuals and NPDE', 'Individual fits', 'VPC', 'Convergence']) {
+    for (const [i, plot] of ['Observed vs predicted', 'Residuals and NPDE', 'Individual fits', 'VPC', 'Random effects vs covariates', 'Convergence'].entries()) {
       await page.getByRole('button', { name: plot, exact: true }).click();
-      await page.getByRole('img').first().waitFor();
+      expect(await page.getByRole('button', { name: plot, exact: true }).getAttribute('aria-pressed')).toBe('true');
+      await page.getByRole('heading', { name: 'Diagnostic plots' }).scrollIntoViewIfNeeded();
+      await page.waitForTimeout(150);
+      await s.shot(`07-results-plot-${i + 1}`);
     }
-    await s.shot('07-results-convergence');
+    expect(await page.getByRole('img', { name: /^Convergence of CL$/ }).count()).toBe(1);
 
     // Dosing, first with the literature example model: blocked (labelled "not for clinical use"), then overridden.
     await view('Dosing').click();

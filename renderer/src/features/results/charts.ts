@@ -103,7 +103,7 @@ export function convergenceChart(name: string, values: number[], explorationEnd:
         legend: { display: false },
         title: { display: true, text: name, font: { size: 13, weight: 'bold' } },
         annotation: {
-          annotations: explorationEnd > 0 ? { phase: { type: 'line', xMin: explorationEnd, xMax: explorationEnd, borderColor: COLOURS.second, borderWidth: 1.5, borderDash: [5, 4], label: { display: true, content: 'averaging →', position: 'start', font: { size: 10 }, backgroundColor: 'rgba(179,92,0,0.85)' } } } : {},
+          annotations: explorationEnd > 0 ? { phase: { type: 'line', xMin: explorationEnd, xMax: explorationEnd, borderColor: COLOURS.second, borderWidth: 1.5, borderDash: [5, 4], label: { display: false } } } : {},
         } as never,
       },
       scales: { x: axis('iteration', 'linear', { ticks: { maxTicksLimit: 5 } }), y: { ticks: { maxTicksLimit: 4 } } },

@@ -14,6 +14,7 @@ import {
   PointElement,
   ScatterController,
   Tooltip,
+  Title,
   BarController,
   BarElement,
 } from 'chart.js';
@@ -23,7 +24,7 @@ let done = false;
 
 export function setupCharts(): typeof Chart {
   if (done) return Chart;
-  Chart.register(LineController, ScatterController, BarController, LineElement, PointElement, BarElement, LinearScale, LogarithmicScale, CategoryScale, Filler, Legend, Tooltip, annotationPlugin);
+  Chart.register(LineController, ScatterController, BarController, LineElement, PointElement, BarElement, LinearScale, LogarithmicScale, CategoryScale, Filler, Legend, Tooltip, Title, annotationPlugin);
   Chart.defaults.font.family = "system-ui, 'Segoe UI', 'DejaVu Sans', Arial, sans-serif";
   Chart.defaults.font.size = 13;
   Chart.defaults.color = '#1c2730';
