@@ -70,6 +70,20 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByRole('button', { name: 'Add the dataset to the project' }).click();
     await page.getByText(/Added\. Next: choose a model/).waitFor();
 
+    // A messier export (invented ward data, semicolons, German headers): its problems, each leading to its row.
+    await page.getByLabel(/Open a spreadsheet/).setInputFiles(path.join(ROOT, 'tests', 'fixtures', 'import', 'ward7b_german.csv'));
+    await page.getByRole('heading', { name: /Summary of ward7b_german\.csv/ }).waitFor({ timeout: 30_000 });
+    const problemLinks = page.getByRole('button', { name: /, row \d+/ });
+    expect(await problemLinks.count()).toBeGreaterThan(0);
+    const first = (await problemLinks.first().textContent()) as string;
+    await problemLinks.first().click();
+    const row = /, row (\d+)/.exec(first)![1];
+    await page.getByRole('heading', { name: new RegExp(`, row ${row}$`) }).waitFor();
+    expect(await page.locator('pre.rowtext mark').textContent()).toMatch(/;/);
+    await page.getByRole('heading', { name: /^4\. Problems/ }).scrollIntoViewIfNeeded();
+    await s.shot('02b-import-problems');
+    await accessible('Import (problems)');
+
     // Models: one compartment, short estimation so the test stays quick, the curves over the data, save.
     await view('Models').click();
     await heading('Models').waitFor();
