@@ -141,6 +141,18 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
       await s.shot(`07-results-plot-${i + 1}`);
     }
     expect(await page.getByRole('img', { name: /^Convergence of CL$/ }).count()).toBe(1);
+    // The fit report as printed (print stylesheet: every plot, no navigation, no buttons).
+    await page.evaluate('window.print = () => undefined');
+    await page.getByRole('button', { name: 'Print the fit report' }).click();
+    const fitPdf = path.join(ARTIFACTS, 'fit-report.pdf');
+    await page.pdf({ path: fitPdf, format: 'A4', printBackground: true, margin: { top: '12mm', bottom: '12mm', left: '12mm', right: '12mm' } });
+    const fitText = execFileSync('pdftotext', ['-layout', fitPdf, '-'], { encoding: 'utf8' });
+    expect(fitText).toContain('Population estimates');
+    expect(fitText).toMatch(/−2 log-likelihood\s+[\d.]+ ± [\d.]+/);
+    expect(fitText).toContain('Model comparison');
+    expect(fitText).not.toContain('Advice for one patient');
+    expect(fitText).not.toContain('Export tables (.xlsx)');
+    for (const part of ['Observed against predictions', 'Residuals and NPDE', 'Prediction-corrected VPC', 'Individual fits (page 1 of', 'Convergence']) expect(fitText).toContain(part);
 
     // Dosing, first with the literature example model: blocked (labelled "not for clinical use"), then overridden.
     await view('Dosing').click();
