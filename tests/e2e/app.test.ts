@@ -55,6 +55,18 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await cont.click();
     await expect.poll(() => dialog.count()).toBe(0);
 
+    // Keyboard: Alt+number switches view and puts focus on its heading; the navigation is reached by Tab with a visible outline.
+    await page.keyboard.press('Alt+5');
+    await heading('Dosing').waitFor();
+    expect(await page.evaluate('document.activeElement?.tagName')).toBe('H1');
+    await page.keyboard.press('Alt+1');
+    await heading('Import').waitFor();
+    // From the view's heading, Shift+Tab goes back into the navigation (its last entry).
+    await page.keyboard.press('Shift+Tab');
+    const focused = page.locator(':focus');
+    expect(await focused.textContent()).toMatch(/^Dosing/);
+    expect(await focused.evaluate((el) => getComputedStyle(el).outlineStyle)).toBe('solid');
+
     // Import the demo spreadsheet, accept the suggested roles, see the report, add it.
     await view('Import').click();
     await heading('Import').waitFor();
