@@ -30,6 +30,21 @@ interface LoadedCommand {
 
 const defaultCommandsDir = (): string => path.join(path.dirname(fileURLToPath(import.meta.url)), 'commands');
 
+/**
+ * The paths the command line, as a host, gives the services (docs/architecture.md, "Roots"):
+ * the compiled engine worker and the resources folder. Built code (dist/main/cli) finds both
+ * relative to itself; run from source (tests), the worker is the repository's dist/ build.
+ */
+export function cliServiceRoots(): { workerEntry: string; resourcesDir: string } {
+  const here = path.dirname(fileURLToPath(import.meta.url));
+  const inDist = here.split(path.sep).includes('dist');
+  const root = inDist ? path.resolve(here, '..', '..', '..') : path.resolve(here, '..', '..');
+  return {
+    workerEntry: inDist ? path.join(here, '..', 'worker', 'engineWorker.js') : path.join(root, 'dist', 'main', 'worker', 'engineWorker.js'),
+    resourcesDir: path.join(root, 'resources'),
+  };
+}
+
 function isCommandModule(file: string): boolean {
   if (file.endsWith('.d.ts') || /\.(test|spec)\.[cm]?[jt]s$/.test(file)) return false;
   return /\.[cm]?js$/.test(file) || /\.[cm]?ts$/.test(file);

@@ -38,6 +38,7 @@ export const ImportOptionsInput = z.strictObject({
 
 /** Estimator setting overrides; bounds keep one job from running for days. */
 export const SaemSettingsInput = z.strictObject({
+  seed: Seed.optional(),
   chains: z.union([z.literal('auto'), z.number().int().min(1).max(50)]).optional(),
   explorationMinIterations: z.number().int().min(1).max(20_000).optional(),
   explorationMaxIterations: z.number().int().min(1).max(20_000).optional(),

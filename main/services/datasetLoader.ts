@@ -5,10 +5,10 @@
  *   loadSpreadsheetDataset(path: string, mappingPath: string | undefined): Promise<Dataset>
  * and is loaded only when needed, so this module works before that branch exists.
  */
-import { promises as fs } from 'node:fs';
 import * as path from 'node:path';
 import { parseCanonicalCsv } from '../../engine/data/canonicalCsv.js';
 import { DataError, type Dataset } from '../../engine/data/types.js';
+import { readRegularTextFile } from './fileGuard.js';
 
 export interface LoadDatasetOptions {
   /** Spreadsheet mapping template file. Sends even a .csv to the spreadsheet branch. */
@@ -66,12 +66,10 @@ export async function loadDataset(file: string, options: LoadDatasetOptions = {}
   if (isSpreadsheetPath(file, options)) return (await spreadsheetLoader(file))(file, options.mapping);
   let text: string;
   try {
-    text = await fs.readFile(file, 'utf8');
+    // Regular files only, size checked before reading (fileGuard.ts).
+    text = await readRegularTextFile(file, { what: 'data file' });
   } catch (e) {
-    const code = (e as NodeJS.ErrnoException).code;
-    if (code === 'ENOENT') throw new DatasetLoadError(file, `data file not found: ${file}`);
-    if (code === 'EISDIR') throw new DatasetLoadError(file, `${file} is a folder, not a data file`);
-    throw new DatasetLoadError(file, `cannot read ${file}: ${(e as Error).message}`);
+    throw new DatasetLoadError(file, (e as Error).message);
   }
   try {
     return parseCanonicalCsv(text);

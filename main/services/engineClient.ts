@@ -26,11 +26,14 @@ export interface EngineWorkerOptions {
 
 export interface RunJobOptions {
   onProgress?: (p: ProgressMessage) => void;
+  /** CPU and wall time the job took inside the worker (benchmarks, logs). */
+  onTiming?: (t: { cpuMs: number; wallMs: number }) => void;
   signal?: AbortSignal;
   jobId?: string;
 }
 
 interface Pending {
+  onTiming?: (t: { cpuMs: number; wallMs: number }) => void;
   resolve: (v: unknown) => void;
   reject: (e: ServiceError) => void;
   onProgress?: (p: ProgressMessage) => void;
@@ -99,7 +102,10 @@ export class EngineWorker {
         if (!p) return;
         this.pending.delete(m.jobId);
         clearTimeout(p.cancelTimer);
-        if (m.ok) p.resolve(m.value);
+        if (m.ok) {
+          if (m.timing) p.onTiming?.(m.timing);
+          p.resolve(m.value);
+        }
         else p.reject(new ServiceError(m.error.kind, m.error.message, m.error.problems));
       }
     });
@@ -153,6 +159,7 @@ export class EngineWorker {
         resolve: (v) => (done(), resolve(v)),
         reject: (e) => (done(), reject(e)),
         ...(options.onProgress ? { onProgress: options.onProgress } : {}),
+        ...(options.onTiming ? { onTiming: options.onTiming } : {}),
       });
       options.signal?.addEventListener('abort', onAbort, { once: true });
       this.post({ type: 'job', jobId, job });

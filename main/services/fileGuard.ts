@@ -33,7 +33,7 @@ export async function readRegularFile(file: string, limits: ReadLimits = {}): Pr
     handle = await fs.open(file, constants.O_RDONLY | (constants.O_NONBLOCK ?? 0));
   } catch (e) {
     const code = (e as NodeJS.ErrnoException).code;
-    if (code === 'ENOENT') throw new ServiceError('file', `${what} not found: ${file}`);
+    if (code === 'ENOENT') throw new ServiceError('file', `${/file$/.test(what) ? what : 'file'} not found: ${file}`);
     if (code === 'EISDIR') throw new ServiceError('file', `${file} is a folder, not a ${what}`);
     if (code === 'EACCES' || code === 'EPERM') throw new ServiceError('file', `no permission to read ${file}`);
     throw new ServiceError('file', `cannot open ${file}: ${(e as Error).message}`);

@@ -3,25 +3,19 @@
  * errors, the one atomic writer, path resolution. Failures are ServiceErrors of kind 'file'.
  */
 import { randomBytes } from 'node:crypto';
-import { promises as fs } from 'node:fs';
+import { promises as fs, rmSync } from 'node:fs';
 import * as path from 'node:path';
 import { ServiceError } from './serviceError.js';
+import { MAX_JSON_BYTES, readRegularTextFile } from './fileGuard.js';
 
 /** Resolve a user-given path against the command's working directory. */
 export function resolvePath(cwd: string, file: string): string {
   return path.resolve(cwd, file);
 }
 
-/** Read a text file; a missing or unreadable file is a CliError naming it. */
+/** Read a text file (regular files only, within the input size limit; fileGuard.ts); errors name it. */
 export async function readTextFile(file: string): Promise<string> {
-  try {
-    return await fs.readFile(file, 'utf8');
-  } catch (e) {
-    const code = (e as NodeJS.ErrnoException).code;
-    if (code === 'ENOENT') throw new ServiceError('file', `file not found: ${file}`);
-    if (code === 'EISDIR') throw new ServiceError('file', `${file} is a folder, not a file`);
-    throw new ServiceError('file', `cannot read ${file}: ${(e as Error).message}`);
-  }
+  return readRegularTextFile(file, { maxBytes: MAX_JSON_BYTES });
 }
 
 /** 1-based line and column of a character offset. */
@@ -148,11 +142,66 @@ export async function readJsonFile(file: string): Promise<unknown> {
   return parseJsonText(await readTextFile(file), file);
 }
 
+/** Temp files of writes in flight, removed if the process exits before they are renamed. */
+const inFlightTemps = new Set<string>();
+let exitHookInstalled = false;
+let tempObserver: ((file: string, active: boolean) => void) | undefined;
+let writesRefusedAfter: AbortSignal | undefined;
+
+/** Be told of every temp file created and finished (the CLI supervisor removes them if it kills its child). */
+export function setTempFileObserver(observer: ((file: string, active: boolean) => void) | undefined): void {
+  tempObserver = observer;
+}
+
+/** Once `signal` aborts (Ctrl-C), writeFileAtomic refuses to write: no output appears after the user stopped. */
+export function refuseWritesAfter(signal: AbortSignal | undefined): void {
+  writesRefusedAfter = signal;
+}
+
+function checkNotCancelled(file: string): void {
+  if (writesRefusedAfter?.aborted) throw new ServiceError('cancelled', `stopped: ${file} was not written`);
+}
+
+function trackTemp(tmp: string): void {
+  if (!exitHookInstalled) {
+    exitHookInstalled = true;
+    process.once('exit', () => {
+      for (const t of inFlightTemps) rmSync(t, { force: true });
+    });
+  }
+  inFlightTemps.add(tmp);
+  tempObserver?.(tmp, true);
+}
+
+function untrackTemp(tmp: string): void {
+  inFlightTemps.delete(tmp);
+  tempObserver?.(tmp, false);
+}
+
+/**
+ * Check before long work that `file` can be written later: its folder exists and is a folder,
+ * and the file itself is not a folder. Throws a ServiceError of kind 'file' naming the problem.
+ */
+export async function checkOutputPath(file: string): Promise<void> {
+  const dir = path.dirname(file);
+  const st = await fs.stat(dir).catch(() => undefined);
+  if (!st) throw new ServiceError('file', `cannot write ${file}: the folder ${dir} does not exist`);
+  if (!st.isDirectory()) throw new ServiceError('file', `cannot write ${file}: ${dir} is not a folder`);
+  const target = await fs.stat(file).catch(() => undefined);
+  if (target?.isDirectory()) throw new ServiceError('file', `cannot write ${file}: it is a folder`);
+  try {
+    await fs.access(dir, (await import('node:fs')).constants.W_OK);
+  } catch {
+    throw new ServiceError('file', `cannot write ${file}: no permission to write in ${dir}`);
+  }
+}
+
 /**
  * Write a file atomically: a temporary file in the same folder, flushed, then renamed over the
  * target, so a reader never sees half a file and a crash leaves the old file intact.
  */
 export async function writeFileAtomic(file: string, data: string | Uint8Array): Promise<void> {
+  checkNotCancelled(file);
   const dir = path.dirname(file);
   try {
     const st = await fs.stat(dir);
@@ -163,16 +212,21 @@ export async function writeFileAtomic(file: string, data: string | Uint8Array): 
   }
   const tmp = path.join(dir, `.${path.basename(file)}.${process.pid}.${randomBytes(4).toString('hex')}.tmp`);
   let handle: fs.FileHandle | undefined;
+  trackTemp(tmp);
   try {
     handle = await fs.open(tmp, 'w');
     await handle.writeFile(data);
     await handle.sync();
     await handle.close();
     handle = undefined;
+    checkNotCancelled(file);
     await fs.rename(tmp, file);
   } catch (e) {
     if (handle) await handle.close().catch(() => undefined);
     await fs.rm(tmp, { force: true }).catch(() => undefined);
+    if (e instanceof ServiceError) throw e;
     throw new ServiceError('file', `cannot write ${file}: ${(e as Error).message}`);
+  } finally {
+    untrackTemp(tmp);
   }
 }

@@ -71,6 +71,8 @@ export class FitQueue {
   readonly concurrency: number;
   private jobs: JobRecord[] = [];
   private readonly live = new Map<string, Live>();
+  /** Wall time each finished job spent in its worker (ms), for the overhead benchmark. */
+  readonly workerWallMs = new Map<string, number>();
   private readonly idle: EngineWorker[] = [];
   private readonly queueListeners = new Set<Listener<QueueSnapshot>>();
   private readonly progressListeners = new Set<Listener<ProgressMessage>>();
@@ -304,8 +306,8 @@ export class FitQueue {
   }
 
   private async run(j: JobRecord, live: Live): Promise<void> {
+    // Not saved here: a running job is queued again on the next open, as a queued one is.
     this.emitQueue();
-    await this.persist().catch(() => undefined);
     let outcome: { state: JobState; error?: ErrorValue; fitId?: string };
     try {
       const dataset = await this.store.getDataset(j.datasetId);
@@ -325,6 +327,7 @@ export class FitQueue {
         {
           jobId: j.id,
           signal: live.controller.signal,
+          onTiming: (t) => this.workerWallMs.set(j.id, t.wallMs),
           onProgress: (p) => {
             live.progress = p;
             for (const l of this.progressListeners) {

@@ -3,7 +3,7 @@
  * it in a worker process (time and memory limits), and rebuilds the dataset from the worker's
  * answer through createDataset, so nothing from the untrusted side is used unchecked.
  */
-import { promises as fs, existsSync } from 'node:fs';
+import { existsSync } from 'node:fs';
 import * as path from 'node:path';
 import { randomUUID } from 'node:crypto';
 import { fileURLToPath } from 'node:url';
@@ -13,6 +13,7 @@ import type { Analysis } from '../../engine/import/analyse.js';
 import type { ImportOptions } from '../../engine/import/roles.js';
 import { validateParseResponse, type ParseRequest, type WorkerTiming } from './importProtocol.js';
 import { spawnNodeWorker, type SpawnWorker } from './workerSpawner.js';
+import { readRegularFile } from './fileGuard.js';
 import { DEFAULT_MAX_FILE_BYTES, DEFAULT_PARSE_TIME_LIMIT_MS, DEFAULT_WORKER_HEAP_MB } from '../worker/limits.js';
 
 /** A failure the user can act on: the message says what and what to do. */
@@ -62,20 +63,14 @@ export function parseWorkerPath(): string {
 }
 
 export async function readFileLimited(file: string, maxBytes: number): Promise<Uint8Array> {
-  let size: number;
+  let buf: Buffer;
   try {
-    const st = await fs.stat(file);
-    if (st.isDirectory()) throw new ImportError('file', `${file} is a folder, not a spreadsheet`);
-    size = st.size;
+    // Regular files only, size checked on the open handle before reading (fileGuard.ts).
+    buf = await readRegularFile(file, { maxBytes, what: 'spreadsheet file' });
   } catch (e) {
-    if (e instanceof ImportError) throw e;
-    const code = (e as NodeJS.ErrnoException).code;
-    throw new ImportError('file', code === 'ENOENT' ? `file not found: ${file}` : `cannot read ${file}: ${(e as Error).message}`);
+    const message = (e as Error).message;
+    throw new ImportError(/above the limit/.test(message) ? 'too-large' : 'file', /above the limit/.test(message) ? `${message} (the import limit; export fewer rows or columns)` : message);
   }
-  if (size > maxBytes)
-    throw new ImportError('too-large', `${file} is ${(size / 1048576).toFixed(1)} MB, above the import limit of ${(maxBytes / 1048576).toFixed(0)} MB: export fewer rows or columns (or raise the limit)`);
-  const buf = await fs.readFile(file);
-  if (buf.length > maxBytes) throw new ImportError('too-large', `${file} grew above the import limit while it was read`);
   return new Uint8Array(buf.buffer, buf.byteOffset, buf.length);
 }
 

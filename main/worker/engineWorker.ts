@@ -2,9 +2,10 @@
  * The engine worker process (docs/architecture.md, "Processes"): started by
  * main/services/workerSpawner.ts (child_process.fork under Node, Electron's utilityProcess in the
  * app). Speaks the messages of main/protocol/worker.ts over the IPC channel (process.send) or
- * Electron's process.parentPort. Each job runs in its own worker thread (jobThread.ts) with a heap
+ * Electron's process.parentPort. Jobs run in a worker thread (jobThread.ts) with a heap
  * limit, so this thread stays free to send heartbeats, relay throttled progress, cancel a job at
- * once (even inside a synchronous post-fit step) and enforce the job's time limit. It checks every
+ * once (even inside a synchronous post-fit step) and enforce the job's time limit. A thread that
+ * ended its job cleanly is kept for the next one; a cancelled or failed job's thread is ended. It checks every
  * request, never lets an exception cross the process line, and exits when its parent goes away.
  *
  * Arguments: --job-time-limit-ms N (default 6 h), --job-heap-mb N (default 2048).
@@ -39,24 +40,63 @@ function send(message: FromWorker): void {
   }
 }
 
+/** A job thread; `jobId` while it runs a job. */
+interface JobThread {
+  worker: Worker;
+  jobId: string | undefined;
+}
+
 interface Running {
-  thread: Worker;
+  thread: JobThread;
   timer: NodeJS.Timeout;
-  done: boolean;
 }
 const running = new Map<string, Running>();
+/** Threads that finished a job cleanly (or were started ahead), kept for the next job. */
+const idle: JobThread[] = [];
+const MAX_IDLE_THREADS = 1;
 
-function finish(jobId: string, message: FromWorker): void {
-  const r = running.get(jobId);
-  if (!r || r.done) return;
-  r.done = true;
-  clearTimeout(r.timer);
-  running.delete(jobId);
-  send(message);
-  void r.thread.terminate();
+function makeThread(): JobThread {
+  const t: JobThread = {
+    worker: new Worker(new URL('./jobThread.js', import.meta.url), { resourceLimits: { maxOldGenerationSizeMb: JOB_HEAP_MB }, stderr: false, stdout: false }),
+    jobId: undefined,
+  };
+  t.worker.on('message', (m: FromWorker) => {
+    const jobId = t.jobId;
+    if (jobId === undefined) return;
+    if (m.type === 'progress' && m.progress.jobId === jobId) send(m);
+    else if (m.type === 'result' && m.jobId === jobId) finish(jobId, m, true);
+  });
+  t.worker.on('error', (e: Error & { code?: string }) => {
+    drop(t);
+    if (t.jobId === undefined) return;
+    const oom = e.code === 'ERR_WORKER_OUT_OF_MEMORY';
+    fail(t.jobId, oom ? { kind: 'worker', message: `the job needed more than ${JOB_HEAP_MB} MB of memory and was stopped`, problems: [] } : { kind: 'internal', message: `internal error in the job: ${e.message}`, problems: [] });
+  });
+  t.worker.on('exit', (code) => {
+    drop(t);
+    if (t.jobId !== undefined) fail(t.jobId, { kind: 'worker', message: `the job thread ended without an answer (exit code ${code})`, problems: [] });
+  });
+  return t;
 }
 
-const fail = (jobId: string, error: ErrorValue) => finish(jobId, { type: 'result', jobId, ok: false, error });
+function drop(t: JobThread): void {
+  const i = idle.indexOf(t);
+  if (i >= 0) idle.splice(i, 1);
+}
+
+/** Send the job's last message; keep its thread for the next job when it ended cleanly, else end the thread. */
+function finish(jobId: string, message: FromWorker, reusable: boolean): void {
+  const r = running.get(jobId);
+  if (!r) return;
+  clearTimeout(r.timer);
+  running.delete(jobId);
+  r.thread.jobId = undefined;
+  send(message);
+  if (reusable && idle.length < MAX_IDLE_THREADS) idle.push(r.thread);
+  else void r.thread.worker.terminate();
+}
+
+const fail = (jobId: string, error: ErrorValue) => finish(jobId, { type: 'result', jobId, ok: false, error }, false);
 
 function startJob(jobId: string, job: JobRequest): void {
   if (running.has(jobId)) return send({ type: 'result', jobId, ok: false, error: { kind: 'usage', message: `job ${jobId} is already running in this worker`, problems: [] } });
@@ -66,32 +106,19 @@ function startJob(jobId: string, job: JobRequest): void {
       /* hang */
     }
   }
-  let thread: Worker;
+  let thread: JobThread;
   try {
-    thread = new Worker(new URL('./jobThread.js', import.meta.url), {
-      workerData: { jobId, job },
-      resourceLimits: { maxOldGenerationSizeMb: JOB_HEAP_MB },
-      stderr: false,
-      stdout: false,
-    });
+    thread = idle.pop() ?? makeThread();
   } catch (e) {
     return send({ type: 'result', jobId, ok: false, error: { kind: 'worker', message: `could not start the job thread: ${(e as Error).message}`, problems: [] } });
   }
+  thread.jobId = jobId;
   const timer = setTimeout(
     () => fail(jobId, { kind: 'worker', message: `the job ran longer than its time limit of ${(JOB_TIME_LIMIT_MS / 60_000).toFixed(1)} min and was stopped`, problems: [] }),
     JOB_TIME_LIMIT_MS,
   );
-  running.set(jobId, { thread, timer, done: false });
-  thread.on('message', (m: FromWorker) => {
-    if (m.type === 'progress') {
-      if (!running.get(jobId)?.done) send(m);
-    } else if (m.type === 'result') finish(jobId, m);
-  });
-  thread.on('error', (e: Error & { code?: string }) => {
-    const oom = e.code === 'ERR_WORKER_OUT_OF_MEMORY';
-    fail(jobId, oom ? { kind: 'worker', message: `the job needed more than ${JOB_HEAP_MB} MB of memory and was stopped`, problems: [] } : { kind: 'internal', message: `internal error in the job: ${e.message}`, problems: [] });
-  });
-  thread.on('exit', (code) => fail(jobId, { kind: 'worker', message: `the job thread ended without an answer (exit code ${code})`, problems: [] }));
+  running.set(jobId, { thread, timer });
+  thread.worker.postMessage({ jobId, job });
 }
 
 function onRequest(raw: unknown): void {
@@ -134,3 +161,9 @@ heartbeat.unref?.();
 if (parentPort) parentPort.on('message', (e) => safe(onRequest)(e.data));
 else process.on('message', safe(onRequest));
 send({ type: 'ready', pid: process.pid, engineVersion: ENGINE_VERSION });
+// One thread loads the engine ahead of the first job.
+try {
+  idle.push(makeThread());
+} catch (e) {
+  process.stderr.write(`engine worker: could not start a job thread ahead: ${(e as Error).message}\n`);
+}

@@ -63,4 +63,8 @@ function handleTimed(raw: unknown): ParseResponse {
 }
 
 if (parentPort) parentPort.on('message', (e) => send(handleTimed(e.data)));
-else if (isEntry && process.send) process.on('message', (m) => send(handleTimed(m)));
+else if (isEntry && process.send) {
+  process.on('message', (m) => send(handleTimed(m)));
+  // Die with the parent (issue 11: a killed `check` left its parse worker running).
+  process.on('disconnect', () => process.exit(0));
+}

@@ -51,6 +51,8 @@ function waitFor(q: FitQueue, pred: (s: QueueSnapshot) => boolean, timeoutMs = 6
 
 function waitForProgress(q: FitQueue, jobId: string, pred: (phase: string, iteration: number) => boolean): Promise<void> {
   return new Promise((resolve) => {
+    const seen = q.snapshot().jobs.find((j) => j.id === jobId)?.progress;
+    if (seen && pred(seen.phase, seen.iteration)) return resolve();
     const off = q.onProgress((p) => {
       if (p.jobId === jobId && pred(p.phase, p.iteration)) {
         off();
@@ -141,13 +143,14 @@ describe('fit queue with real workers', () => {
   it('cancels within 1 s mid-fit and mid-post-fit', async () => {
     const { q, datasetId, modelId } = await setup(2);
     const [midFit] = await q.enqueue({ datasetId, modelId, seeds: [31], settings: LONG, postFit: { run: false } });
-    const [midPost] = await q.enqueue({ datasetId, modelId, seeds: [32], settings: SHORT, postFit: { repeat: 3 } });
     await waitForProgress(q, midFit, (phase, it) => phase === 'search' && it > 10);
     let t0 = performance.now();
     await q.cancel(midFit);
     await waitFor(q, (s) => s.jobs.find((j) => j.id === midFit)!.state === 'cancelled');
     const fitCancelMs = performance.now() - t0;
-    await waitForProgress(q, midPost, (phase) => phase === 'post-fit');
+    // Queued only now, so its post-fit steps (with repeated fits) are surely still running when cancelled.
+    const [midPost] = await q.enqueue({ datasetId, modelId, seeds: [32], settings: SHORT, postFit: { repeat: 3 } });
+    await waitForProgress(q, midPost, (phase) => phase === 'post-fit' || phase === 'repeat');
     t0 = performance.now();
     await q.cancel(midPost);
     const snap = await waitFor(q, (s) => s.jobs.find((j) => j.id === midPost)!.state === 'cancelled');

@@ -1,0 +1,79 @@
+/**
+ * Process faults of the command line and the workers (issue 11, finding 7), with real
+ * processes: Ctrl-C during the post-fit steps stops `plateau fit` (exit 130, --out not written,
+ * no temp file left); a closed stdout does not lose --out; a worker dies with its parent.
+ */
+import { spawn } from 'node:child_process';
+import { existsSync, mkdtempSync, readdirSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import * as path from 'node:path';
+import { beforeAll, describe, expect, it } from 'vitest';
+import { ensureBuilt, repoRoot } from './build.js';
+
+beforeAll(() => ensureBuilt(), 300_000);
+const bin = path.join(repoRoot, 'dist/main/cli/plateau.js');
+const demo = (f: string) => path.join(repoRoot, 'resources/demo', f);
+const alive = (pid: number) => {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch {
+    return false;
+  }
+};
+
+function exitOf(child: ReturnType<typeof spawn>): Promise<{ code: number | null; signal: string | null }> {
+  return new Promise((resolve) => child.on('exit', (code, signal) => resolve({ code, signal })));
+}
+
+describe('command line and worker processes', () => {
+  it('Ctrl-C during the post-fit steps stops fit: exit 130, no --out, no temp file', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'plateau-sigint-'));
+    // detached: its own process group, so the signal goes to the group as a terminal's Ctrl-C does.
+    const child = spawn(process.execPath, [bin, 'fit', '--data', demo('ward-levels.csv'), '--model', demo('ward-model.json'), '--repeat', '3', '--out', 'fit.json'], { cwd: dir, detached: true, stdio: ['ignore', 'pipe', 'pipe'] });
+    let out = '';
+    let err = '';
+    child.stderr!.on('data', (d) => (err += d));
+    const exit = exitOf(child);
+    await new Promise<void>((resolve) => child.stdout!.on('data', (d) => ((out += d), /-2LL|Plateau fit/.test(out) && resolve())));
+    // The estimator's summary is out: the post-fit steps are running now.
+    const t0 = performance.now();
+    process.kill(-child.pid!, 'SIGINT');
+    const { code } = await exit;
+    const ms = performance.now() - t0;
+    expect(code).toBe(130);
+    expect(ms).toBeLessThan(5000);
+    expect(err).toMatch(/stopping/);
+    expect(existsSync(path.join(dir, 'fit.json'))).toBe(false);
+    expect(readdirSync(dir).filter((f) => f.endsWith('.tmp'))).toEqual([]);
+  }, 120_000);
+
+  it('a closed stdout (| head -1) does not crash fit or lose --out', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'plateau-epipe-'));
+    const child = spawn(process.execPath, [bin, 'fit', '--data', demo('ward-levels.csv'), '--model', demo('ward-model.json'), '--out', 'fit.json'], { cwd: dir, stdio: ['ignore', 'pipe', 'pipe'] });
+    let err = '';
+    child.stderr!.on('data', (d) => (err += d));
+    child.stdout!.once('data', () => child.stdout!.destroy());
+    const { code } = await exitOf(child);
+    expect(err).not.toMatch(/EPIPE|Unhandled|at .*\.js/);
+    expect(code).toBe(0);
+    expect(existsSync(path.join(dir, 'fit.json'))).toBe(true);
+  }, 120_000);
+
+  it('engine and parse workers end when their parent is killed', async () => {
+    const child = spawn(process.execPath, [path.join(repoRoot, 'tests/integration/services/workerParent.mjs'), path.join(repoRoot, 'dist')], { stdio: ['ignore', 'pipe', 'inherit'] });
+    const pids = await new Promise<{ engine: number; parse: number }>((resolve) => {
+      let buf = '';
+      child.stdout!.on('data', (d) => {
+        buf += d;
+        if (buf.includes('\n')) resolve(JSON.parse(buf.split('\n')[0]));
+      });
+    });
+    expect(alive(pids.engine) && alive(pids.parse)).toBe(true);
+    child.kill('SIGKILL');
+    const t0 = Date.now();
+    while ((alive(pids.engine) || alive(pids.parse)) && Date.now() - t0 < 5000) await new Promise((r) => setTimeout(r, 50));
+    expect(alive(pids.engine)).toBe(false);
+    expect(alive(pids.parse)).toBe(false);
+  }, 60_000);
+});

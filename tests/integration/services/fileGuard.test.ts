@@ -1,0 +1,64 @@
+/**
+ * One loader limit for every command (issue 11, finding 2): devices, FIFOs and folders are
+ * refused at once, sizes are checked before reading, for JSON, canonical CSV and spreadsheets.
+ */
+import { execFileSync } from 'node:child_process';
+import { mkdtempSync, truncateSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import * as path from 'node:path';
+import { describe, expect, it } from 'vitest';
+import { loadDataset } from '../../../main/services/datasetLoader.js';
+import { MAX_INPUT_BYTES, readRegularFile } from '../../../main/services/fileGuard.js';
+import { readJsonFile } from '../../../main/services/files.js';
+import { importSpreadsheetFile } from '../../../main/services/importService.js';
+
+const dir = mkdtempSync(path.join(tmpdir(), 'plateau-guard-'));
+const fifo = path.join(dir, 'pipe.csv');
+execFileSync('mkfifo', [fifo]);
+const fifoXlsx = path.join(dir, 'pipe.xlsx');
+execFileSync('mkfifo', [fifoXlsx]);
+const huge = path.join(dir, 'huge.csv');
+writeFileSync(huge, '');
+truncateSync(huge, MAX_INPUT_BYTES + 1); // sparse: the size is there without the bytes
+
+async function quick<T>(p: Promise<T>): Promise<{ ms: number; error: Error }> {
+  const t0 = performance.now();
+  try {
+    await p;
+  } catch (e) {
+    return { ms: performance.now() - t0, error: e as Error };
+  }
+  throw new Error('expected a refusal');
+}
+
+describe('file guard', () => {
+  it('refuses /dev/zero, a FIFO and a folder at once, for every kind of input', async () => {
+    for (const [p, re] of [
+      [readRegularFile('/dev/zero'), /a device, not a regular file/],
+      [readJsonFile('/dev/zero'), /a device/],
+      [loadDataset('/dev/zero'), /a device/],
+      [loadDataset(fifo), /a pipe \(FIFO\)/],
+      [readJsonFile(fifo), /a pipe/],
+      [importSpreadsheetFile(fifoXlsx), /a pipe/],
+      [loadDataset(dir), /a folder/],
+      [readJsonFile(dir), /a folder/],
+    ] as const) {
+      const r = await quick(p);
+      expect(r.error.message).toMatch(re);
+      expect(r.ms).toBeLessThan(2000);
+    }
+  });
+
+  it('checks the size before reading', async () => {
+    const r = await quick(loadDataset(huge));
+    expect(r.error.message).toMatch(/above the limit of 50 MB/);
+    expect((await quick(importSpreadsheetFile(huge.replace('.csv', '.csv'), { mapping: {} }))).error.message).toMatch(/above the limit/);
+    expect((await quick(readRegularFile(huge, { maxBytes: 10 }))).error.message).toMatch(/above the limit/);
+  });
+
+  it('reads an ordinary file whole', async () => {
+    const f = path.join(dir, 'ok.json');
+    writeFileSync(f, '{"a":1}');
+    expect(await readJsonFile(f)).toEqual({ a: 1 });
+  });
+});
