@@ -12,7 +12,7 @@ import WebSocket from 'ws';
 import { startAppBackend, type RunningBackend } from '../../../main/webhost/appBackend.js';
 import { appPathsFromRoot } from '../../../main/webhost/appPaths.js';
 import { startWebHost, type WebHost } from '../../../main/webhost/server.js';
-import { ensureBuilt, repoRoot } from '../services/build.js';
+import { ensureBuilt, repoRoot } from './built.js';
 
 interface Message {
   id?: string | null;

@@ -195,9 +195,11 @@ export const dialog = {
 
 export const utilityProcess = {
   forks: [] as { modulePath: string; args: string[]; options: unknown }[],
+  children: [] as EventEmitter[],
   fork(modulePath: string, args: string[], options: unknown) {
     this.forks.push({ modulePath, args, options });
     const child = Object.assign(new EventEmitter(), { stderr: null, postMessage() {}, kill() {} });
+    this.children.push(child);
     return child;
   },
 };
