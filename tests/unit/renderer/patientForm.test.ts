@@ -1,6 +1,7 @@
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import { parsePatient } from '../../../engine/dosing/patient.js';
+import { checkEnteredSpec, ENTERED_EXAMPLE } from '../../../renderer/src/features/dosing/enteredModel.js';
 import { emptyForm, formFromPatientJson, formToPatient, parsePasted } from '../../../renderer/src/features/dosing/patientForm.js';
 
 describe('Dosing patient form', () => {
@@ -29,5 +30,17 @@ describe('Dosing patient form', () => {
     const r = parsePasted('time\tlevel\n12\t<2\n24\n', 'levels');
     expect(r.levels).toEqual([{ time: '12', concMgL: '2', censored: true, kind: '' }]);
     expect(r.problems).toEqual(['Pasted line 3: expected "time, concentration mg/L", got "24".']);
+  });
+});
+
+describe('Dosing: a literature model typed in', () => {
+  it('is checked by the engine parser and needs its source', () => {
+    expect(checkEnteredSpec(ENTERED_EXAMPLE).problem).toMatch(/source/);
+    const ok = JSON.parse(ENTERED_EXAMPLE);
+    ok.source = 'Invented for this test';
+    expect(checkEnteredSpec(JSON.stringify(ok)).spec).toBeDefined();
+    ok.structure = '4cmt';
+    expect(checkEnteredSpec(JSON.stringify(ok)).problem).toMatch(/structure/);
+    expect(checkEnteredSpec('{').problem).toMatch(/not valid JSON/);
   });
 });

@@ -5,6 +5,7 @@
 import type { Dataset } from '../../../../engine/data/types.js';
 import type { Forecast } from '../../../../engine/dosing/forecast.js';
 import type { Regimen } from '../../../../engine/dosing/metrics.js';
+import { checkEnteredSpec, ENTERED_EXAMPLE } from './enteredModel.js';
 import { request } from '../../lib/bridge/index.js';
 import { messageOf } from '../../lib/app.svelte.js';
 import { emptyForm, formFromPatientJson, formFromSubject, formToPatient, type PatientForm } from './patientForm.js';
@@ -25,6 +26,8 @@ export class DosingState {
   goalMin = $state('');
   goalMax = $state('');
   seed = $state(DEFAULT_SEED);
+  /** A literature model typed in as a model spec (JSON), with its source and covariate ranges. */
+  enteredSpec = $state(ENTERED_EXAMPLE);
   loadingDose = $state(false);
 
   advice = $state<Advice | null>(null);
@@ -93,10 +96,14 @@ export class DosingState {
     return copy as unknown as Record<string, unknown>;
   }
 
-  priorToSend(): { fitId: string } | { literatureModelId: string } | undefined {
+  priorToSend(): { fitId: string } | { literatureModelId: string } | { spec: Record<string, unknown> } | undefined {
     const p = this.prior;
     if (p.kind === 'fit') return { fitId: p.fitId };
     if (p.kind === 'literature') return { literatureModelId: p.id };
+    if (p.kind === 'entered') {
+      const spec = checkEnteredSpec(this.enteredSpec).spec;
+      return spec ? { spec } : undefined;
+    }
     return undefined;
   }
 
@@ -105,7 +112,7 @@ export class DosingState {
     const prior = this.priorToSend();
     const { patient, problems } = formToPatient(this.form);
     const all = [...problems];
-    if (!prior) all.unshift('Prior model: choose a site fit or a literature model.');
+    if (!prior) all.unshift(this.prior.kind === 'entered' ? `Prior model: ${checkEnteredSpec(this.enteredSpec).problem}.` : 'Prior model: choose a site fit or a literature model.');
     const target = this.targetToSend();
     if (!target) all.push('Target: choose a target.');
     for (const [label, text] of [['MIC', this.micMgL], ['Goal minimum', this.goalMin], ['Goal maximum', this.goalMax]] as const)
@@ -179,6 +186,11 @@ export class DosingState {
   private async populationForWhatIf() {
     const p = this.prior;
     if (p.kind === 'fit') return populationFrom({ fit: (await request('fits.get', { fitId: p.fitId })).record });
+    if (p.kind === 'entered') {
+      const spec = checkEnteredSpec(this.enteredSpec).spec;
+      if (!spec) throw new Error('the model typed in has a problem: compute the advice again');
+      return populationFrom({ spec });
+    }
     const m = p.kind === 'literature' ? this.literature.find((x) => x.id === p.id) : undefined;
     if (!m) throw new Error('choose the prior model again');
     return populationFrom({ spec: m.model });

@@ -5,4 +5,4 @@ export type { Advice, TargetSpec };
 export type { LiteratureModel, TargetPreset } from '../../lib/types.js';
 
 /** The prior the advice is computed from. */
-export type PriorChoice = { kind: 'fit'; fitId: string } | { kind: 'literature'; id: string } | { kind: 'none' };
+export type PriorChoice = { kind: 'fit'; fitId: string } | { kind: 'literature'; id: string } | { kind: 'entered' } | { kind: 'none' };
