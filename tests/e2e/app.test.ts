@@ -94,6 +94,8 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     expect(await page.locator('pre.rowtext mark').textContent()).toMatch(/;/);
     await page.getByRole('heading', { name: /^4\. Problems/ }).scrollIntoViewIfNeeded();
     await s.shot('02b-import-problems');
+    await page.getByRole('heading', { name: /Per-patient timeline/ }).scrollIntoViewIfNeeded();
+    await s.shot('02c-import-timeline');
     await accessible('Import (problems)');
 
     // Models: one compartment, short estimation so the test stays quick, the curves over the data, save.
@@ -108,6 +110,7 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByLabel(/Averaging \(iterations\)/).fill('40');
     await page.getByLabel(/Settle window/).fill('10');
     await page.getByRole('img', { name: /Patient .*: levels and the curve at the initial values/ }).first().waitFor();
+    await page.getByRole('heading', { name: /Predictions at the initial values/ }).scrollIntoViewIfNeeded();
     await s.shot('03-models');
     await accessible('Models');
     await page.getByRole('button', { name: 'Save the model to the project' }).click();
