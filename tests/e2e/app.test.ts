@@ -7,7 +7,7 @@
  * error or failed request. Screenshots go to test-artifacts/ (gitignored).
  */
 import { execFileSync } from 'node:child_process';
-import { existsSync } from 'node:fs';
+import { existsSync, readFileSync } from 'node:fs';
 import * as path from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ARTIFACTS, CHROMIUM, openBrowser, type Session } from './helpers/browser.js';
@@ -156,6 +156,13 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
       await s.shot(`07-results-plot-${i + 1}`);
     }
     expect(await page.getByRole('img', { name: /^Convergence of CL$/ }).count()).toBe(1);
+    // The tables as .xlsx: a real spreadsheet (zip container) arrives as a download.
+    const [download] = await Promise.all([page.waitForEvent('download'), page.getByRole('button', { name: 'Export tables (.xlsx)' }).click()]);
+    expect(download.suggestedFilename()).toMatch(/\.xlsx$/);
+    const xlsx = readFileSync((await download.path()) as string);
+    expect(xlsx.subarray(0, 2).toString('latin1')).toBe('PK');
+    await page.getByText(/^Saved .*\.xlsx to your downloads\./).waitFor();
+
     // The fit report as printed (print stylesheet: every plot, no navigation, no buttons).
     await page.evaluate('window.print = () => undefined');
     await page.getByRole('button', { name: 'Print the fit report' }).click();
@@ -229,6 +236,10 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     expect(text).toMatch(/Signature: _+/);
     expect(text).toContain('Rybak');
     expect(text).not.toContain('Compute dose advice');
+
+    // The session is kept in the project.
+    await page.getByRole('button', { name: 'Save to the project' }).click();
+    await page.getByText(/^Saved as /).waitFor();
 
     expect(s.failures).toEqual([]);
   }, 240_000);

@@ -92,10 +92,10 @@ export function vpcPlot(vpc: VpcData, obs: readonly ObservationDiagnostics[], lo
 }
 
 /** One small chart per population estimate against iteration, with the end of exploration marked. */
-export function convergenceChart(name: string, values: number[], explorationEnd: number, colour = SERIES[0]): ChartConfiguration<'line'> {
+export function convergenceChart(name: string, values: number[], explorationEnd: number, colour = SERIES[0], iterations?: number[]): ChartConfiguration<'line'> {
   return {
     type: 'line',
-    data: { datasets: [{ label: name, data: values.map((y, x) => ({ x: x + 1, y })), borderColor: colour, borderWidth: 1.5, pointRadius: 0, fill: false }] },
+    data: { datasets: [{ label: name, data: values.map((y, i) => ({ x: iterations ? iterations[i] : i + 1, y })), borderColor: colour, borderWidth: 1.5, pointRadius: 0, fill: false }] },
     options: {
       parsing: false,
       normalized: true,
