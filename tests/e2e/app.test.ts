@@ -135,6 +135,22 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await expect.poll(() => page.getByRole('button', { name: /Open the results of/ }).count(), { timeout: 150_000, interval: 1000 }).toBe(2);
     await s.shot('05-queue-done');
 
+    // Re-run with three other seeds, move the last one up, then cancel all three.
+    const rerunInput = page.getByLabel(/^Seeds to re-run .*seed 1 with$/);
+    await rerunInput.fill('3, 4, 5');
+    await rerunInput.locator('xpath=following-sibling::button').click();
+    await expect.poll(() => page.getByRole('button', { name: /^Move .* down$/ }).count(), { timeout: 30_000 }).toBeGreaterThanOrEqual(1);
+    const queuedBefore = await page.getByRole('button', { name: /^Move .* up$/ }).evaluateAll((b) => b.map((x) => x.getAttribute('aria-label')));
+    await page.getByRole('button', { name: queuedBefore[queuedBefore.length - 1] as string }).click();
+    await expect
+      .poll(async () => (await page.getByRole('button', { name: /^Move .* up$/ }).evaluateAll((b) => b.map((x) => x.getAttribute('aria-label')))).join('|'), { timeout: 10_000 })
+      .not.toBe(queuedBefore.join('|'));
+    while ((await page.getByRole('button', { name: /^Cancel / }).count()) > 0) {
+      await page.getByRole('button', { name: /^Cancel / }).first().click();
+      await page.waitForTimeout(200);
+    }
+    await expect.poll(() => page.getByText('Cancelled', { exact: true }).count(), { timeout: 30_000 }).toBeGreaterThanOrEqual(2);
+
     // Results: open the first, tick the second for the comparison.
     await page.getByRole('button', { name: /Open the results of/ }).first().click();
     await heading('Results').waitFor();
