@@ -97,6 +97,30 @@ async function run(): Promise<Figure[]> {
     }
     figures.push({ name: 'what-if redraw (input to drawn curve, median of 10)', value: median(redraw), unit: 'ms', target: '< 100' });
     figures.push({ name: 'what-if redraw, slowest of 10', value: Math.max(...redraw), unit: 'ms' });
+
+    // Results: a fit of the demo project (48 invented patients, its demo model and default
+    // settings) queued and finished, then opened: estimates and the default plots, then every plot.
+    const nav = page.getByRole('navigation', { name: 'Views' });
+    await nav.getByRole('button', { name: /^Fit queue/ }).click();
+    const model = page.getByLabel('Model');
+    await model.selectOption((await model.locator('option', { hasText: 'Demo one-compartment' }).getAttribute('value')) as string);
+    await page.getByLabel(/Seeds \(one fit per seed\)/).fill('1');
+    const tFit = Date.now();
+    await page.getByRole('button', { name: 'Add to the queue' }).click();
+    await page.getByRole('button', { name: /Open the results of/ }).first().waitFor({ timeout: 600_000 });
+    figures.push({ name: 'demo fit through the queue (48 subjects, fit + post-fit)', value: (Date.now() - tFit) / 1000, unit: 's' });
+    const tOpen = Date.now();
+    await page.getByRole('button', { name: /Open the results of/ }).first().click();
+    await page.getByRole('table').filter({ hasText: 'Population estimates' }).waitFor({ timeout: 60_000 });
+    await page.getByRole('img', { name: 'Observed against individual predictions' }).waitFor();
+    await page.evaluate('new Promise((r) => requestAnimationFrame(() => requestAnimationFrame(r)))');
+    figures.push({ name: 'Results view open with estimates and the first plots (demo fit, 48 subjects)', value: Date.now() - tOpen, unit: 'ms', target: '< 1500', note: 'the issue asks for a 1000-patient fit; not measured here' });
+    await page.evaluate('window.print = () => undefined');
+    const tAll = Date.now();
+    await page.getByRole('button', { name: 'Print the fit report' }).click();
+    await page.getByRole('img', { name: /^Convergence of / }).first().waitFor();
+    await page.evaluate('new Promise((r) => requestAnimationFrame(() => requestAnimationFrame(r)))');
+    figures.push({ name: 'Results: every plot drawn at once (print layout, demo fit)', value: Date.now() - tAll, unit: 'ms' });
     return figures;
   } finally {
     await context.close();
