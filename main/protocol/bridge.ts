@@ -29,6 +29,18 @@ export interface ErrorValue {
 
 export type Result<T> = { ok: true; value: T } | { ok: false; error: ErrorValue };
 
+/** On the wire (WebSocket): a request, its answer, and an event. */
+export interface WireRequest<C extends Channel = Channel> {
+  id: string;
+  channel: C;
+  payload?: RequestOf<C>;
+}
+export type WireResponse<T = unknown> = { id: string } & Result<T>;
+export interface WireEvent<E extends EventName = EventName> {
+  event: E;
+  payload: EventPayload<E>;
+}
+
 export interface AppInfo {
   appVersion: string;
   engineVersion: string;
@@ -94,8 +106,11 @@ export interface TimelineSubject {
 export interface ImportPreview {
   importId: string;
   fileName: string;
-  /** Per sheet: header row, column profiles with up to five sample values each. */
-  sheets: SheetPreview[];
+  /**
+   * Per sheet: header row (1-based), column profiles with up to five sample values each, and
+   * the first 50 rows as the spreadsheet shows them (control characters escaped).
+   */
+  sheets: (SheetPreview & { previewRows: string[][] })[];
   /** The mapping in use (column roles per sheet, options): edit it and send import.remap. */
   mapping: MappingTemplate;
   /** True when the mapping is Plateau's suggestion (not a template or the user's). */

@@ -67,7 +67,7 @@ export const AdviseJob = z.strictObject({
   nextDoseH: z.number().min(0).max(1e6).optional(),
 });
 /** Sleeps (cancellably) or spins: a job for tests and benchmarks of the process machinery. */
-export const ProbeJob = z.strictObject({ kind: z.literal('probe'), mode: z.enum(['echo', 'sleep', 'spin', 'crash', 'hang']), ms: z.number().min(0).max(600_000).optional(), value: z.unknown().optional() });
+export const ProbeJob = z.strictObject({ kind: z.literal('probe'), mode: z.enum(['echo', 'sleep', 'spin', 'crash', 'hang', 'alloc']), ms: z.number().min(0).max(600_000).optional(), value: z.unknown().optional() });
 
 export const JobRequestSchema = z.discriminatedUnion('kind', [ParseJob, FitJob, PostFitJob, SimulateJob, AdviseJob, ProbeJob]);
 export type JobRequest = z.infer<typeof JobRequestSchema>;

@@ -13,8 +13,9 @@ import { parseTarget } from '../../engine/dosing/targets.js';
 import type { Analysis } from '../../engine/import/analyse.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
-import type { CatalogueEntry, EventName, EventPayload, ImportPreview, LiteratureModel, Result, TargetPreset, TimelineSubject } from '../protocol/bridge.js';
-import type { Channel, RequestOf } from '../protocol/schemas.js';
+import type { CatalogueEntry, EventName, EventPayload, ImportPreview, LiteratureModel, WireResponse, Result, TargetPreset, TimelineSubject } from '../protocol/bridge.js';
+import { guardPlainData } from '../protocol/guard.js';
+import { RequestEnvelope, type Channel, type RequestOf } from '../protocol/schemas.js';
 import { validateRequest } from '../protocol/validate.js';
 import type { JobRequest } from '../protocol/worker.js';
 import { datasetFromWire } from './datasetWire.js';
@@ -54,6 +55,7 @@ interface ImportSession {
   options: Record<string, unknown>;
   analysis: Analysis;
   dataset: Dataset | undefined;
+  previewRows: { sheet: string; rows: string[][] }[];
 }
 const MAX_IMPORT_SESSIONS = 4;
 const ADVICE_TIME_LIMIT_MS = 10 * 60_000;
@@ -96,6 +98,22 @@ export class AppService {
     }
   }
 
+  /**
+   * Answer one wire message `{id, channel, payload}` (the web host's WebSocket): the envelope is
+   * checked too; a message without a usable id is answered with id "".
+   */
+  async handleEnvelope(raw: unknown): Promise<WireResponse> {
+    const why = guardPlainData(raw);
+    const env = why === undefined ? RequestEnvelope.safeParse(raw) : undefined;
+    if (!env?.success) {
+      const id = typeof raw === 'object' && raw !== null && typeof (raw as { id?: unknown }).id === 'string' ? (raw as { id: string }).id.slice(0, 100) : '';
+      const reason = why ?? env?.error.issues.slice(0, 3).map((i) => `${i.path.join('.') || '(message)'}: ${i.message}`).join('; ') ?? 'malformed';
+      this.log(`refused a message: ${reason}`);
+      return { id, ok: false, error: { kind: 'usage', message: `the message is malformed: ${reason}`, problems: [reason] } };
+    }
+    return { id: env.data.id, ...(await this.handle(env.data.channel, env.data.payload)) };
+  }
+
   subscribe<E extends EventName>(event: E, listener: (payload: EventPayload<E>) => void): () => void {
     if (event === 'queue') return this.queue.onQueue(listener as (p: EventPayload<'queue'>) => void);
     if (event === 'progress') return this.queue.onProgress(listener as (p: EventPayload<'progress'>) => void);
@@ -131,11 +149,14 @@ export class AppService {
   }
 
   private async parse(fileName: string, bytes: Uint8Array, options: Record<string, unknown>, mapping: unknown): Promise<ImportSession> {
-    const analysis = (await this.runJob({ kind: 'parse', fileName, bytes: bytes as Uint8Array<ArrayBuffer>, options, ...(mapping !== undefined ? { mapping } : {}) }, DEFAULT_PARSE_TIME_LIMIT_MS)) as Analysis;
+    const analysis = (await this.runJob({ kind: 'parse', fileName, bytes: bytes as Uint8Array<ArrayBuffer>, options, ...(mapping !== undefined ? { mapping } : {}) }, DEFAULT_PARSE_TIME_LIMIT_MS)) as Analysis & { previewRows?: unknown };
     if (typeof analysis !== 'object' || analysis === null || !Array.isArray(analysis.preview) || typeof analysis.report !== 'object')
       throw new ServiceError('worker', 'the import worker answered with an incomplete analysis; the file was not imported');
     const dataset = analysis.dataset ? datasetFromWire(analysis.dataset) : undefined;
-    return { fileName, bytes, options, analysis, dataset };
+    const previewRows = Array.isArray(analysis.previewRows)
+      ? (analysis.previewRows as { sheet: unknown; rows: unknown }[]).filter((r) => typeof r.sheet === 'string' && Array.isArray(r.rows) && (r.rows as unknown[]).every((row) => Array.isArray(row) && row.every((c) => typeof c === 'string'))) as { sheet: string; rows: string[][] }[]
+      : [];
+    return { fileName, bytes, options, analysis, dataset, previewRows };
   }
 
   private remember(importId: string, session: ImportSession): void {
@@ -158,7 +179,9 @@ export class AppService {
       levels: sub.observations.map((o) => ({ timeH: o.timeH, concMgL: o.valueMgL, censored: o.censored })),
     }));
     const hasErrors = a.report.problems.some((p) => p.severity === 'error');
-    return { importId, fileName: s.fileName, sheets: a.preview, mapping: a.mapping, suggested: a.suggested, skippedSheets: a.skippedSheets, report: a.report, timeline, canAdd: s.dataset !== undefined && !hasErrors };
+    const rows = new Map(s.previewRows.map((r) => [r.sheet, r.rows]));
+    const sheets = a.preview.map((sh) => ({ ...sh, previewRows: rows.get(sh.name) ?? [] }));
+    return { importId, fileName: s.fileName, sheets, mapping: a.mapping, suggested: a.suggested, skippedSheets: a.skippedSheets, report: a.report, timeline, canAdd: s.dataset !== undefined && !hasErrors };
   }
 
   // --- channels ----------------------------------------------------------------------------

@@ -23,6 +23,9 @@ import { fitDataset, type FitOutcome } from '../services/fitService.js';
 import { ServiceError } from '../services/serviceError.js';
 import { datasetFromWire } from '../services/datasetWire.js';
 import { handleParseMessage } from './parseWorker.js';
+import { inspectZipContainer } from './limits.js';
+import { readWorkbook } from '../../engine/import/workbook.js';
+import { printable } from '../../engine/text/printable.js';
 
 export interface JobProgress {
   phase: ProgressPhase;
@@ -75,13 +78,36 @@ async function postFit(outcome: FitOutcome, repeat: number | undefined, seed: nu
   });
 }
 
+/** Rows shown in an import preview, per sheet. */
+export const PREVIEW_ROWS = 50;
+
+/**
+ * The first PREVIEW_ROWS rows of each sheet as the spreadsheet shows them, control characters
+ * escaped (engine/text/printable), for the import view's grid. Empty when the file cannot be
+ * read this way (the analysis already said why).
+ */
+function previewRows(bytes: Uint8Array): { sheet: string; rows: string[][] }[] {
+  try {
+    let zipEntries: ((p: string) => Uint8Array | undefined) | undefined;
+    if (bytes.length >= 4 && bytes[0] === 0x50 && bytes[1] === 0x4b) {
+      const zip = inspectZipContainer(bytes);
+      if (!zip.ok) return [];
+      zipEntries = (p) => zip.entries.get(p);
+    }
+    const model = readWorkbook(bytes, { maxRows: PREVIEW_ROWS, maxCellChars: 200, ...(zipEntries ? { zipEntries } : {}), decodeUtf8: (b) => Buffer.from(b.buffer, b.byteOffset, b.length).toString('utf8') });
+    return model.sheets.map((sh) => ({ sheet: sh.name, rows: sh.rows.slice(0, PREVIEW_ROWS).map((row) => Array.from({ length: Math.min(sh.columnCount, 200) }, (_, c) => printable(row?.[c]?.text ?? ''))) }));
+  } catch {
+    return [];
+  }
+}
+
 export async function runJob(job: JobRequest, ctx: JobContext): Promise<unknown> {
   switch (job.kind) {
     case 'parse': {
       ctx.onProgress({ phase: 'parse', iteration: 0, maxIterations: 1, estimates: Object.create(null), message: `reading ${job.fileName}` });
       const r = handleParseMessage({ type: 'parse', id: ctx.jobId, fileName: job.fileName, bytes: job.bytes, ...(job.mapping !== undefined ? { mapping: job.mapping } : {}), ...(job.options ? { options: job.options } : {}), ...(job.maxRows ? { maxRows: job.maxRows } : {}) });
       if (r.type === 'error') throw new ServiceError(r.kind === 'template' ? 'spec' : r.kind === 'request' ? 'usage' : 'file', r.message, r.problems ?? []);
-      return plain(r.analysis);
+      return { ...plain(r.analysis), previewRows: previewRows(job.bytes) };
     }
     case 'fit':
       return runFit(job, ctx);
@@ -160,5 +186,10 @@ async function runProbe(job: Extract<JobRequest, { kind: 'probe' }>, ctx: JobCon
     return { spunMs: Date.now() - t0 };
   }
   if (job.mode === 'crash') process.exit(3);
+  if (job.mode === 'alloc') {
+    // Grows until the thread's heap limit stops it (tests of the memory limit).
+    const keep: number[][] = [];
+    for (;;) keep.push(new Array(1_000_000).fill(1.5));
+  }
   throw new ServiceError('usage', `probe mode ${job.mode} runs in the worker's main thread only`);
 }

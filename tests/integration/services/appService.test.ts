@@ -43,6 +43,12 @@ describe('application service', () => {
     expect(preview.report.summary).toMatchObject({ patients: 8, doses: 14, levels: 10, censored: 2 });
     expect(preview.timeline).toHaveLength(8);
     expect(preview.sheets.length).toBeGreaterThanOrEqual(2);
+    for (const sh of preview.sheets) {
+      expect(sh.previewRows.length).toBeGreaterThan(0);
+      expect(sh.previewRows.length).toBeLessThanOrEqual(50);
+      // The header row as the spreadsheet shows it.
+      expect(sh.previewRows[sh.headerRow - 1].filter(Boolean)).toEqual(sh.columns.map((c: { header: string }) => c.header).filter(Boolean));
+    }
     const { templateId } = await ok('import.saveTemplate', { importId: preview.importId, name: 'Ward 7b export' });
     expect((await ok('import.templates')).map((t: { templateId: string }) => t.templateId)).toContain(templateId);
     const again = await ok('import.remap', { importId: preview.importId, mapping: preview.mapping });
@@ -111,6 +117,13 @@ describe('application service', () => {
     expect(models[0].name).toMatch(/not for clinical use/);
     const cat = await ok('models.catalogue');
     expect(cat.map((m: { id: string }) => m.id)).toEqual(expect.arrayContaining(['1cmt', '2cmt']));
+  });
+
+  it('answers wire envelopes, and malformed ones with a usage error', async () => {
+    expect(await app.handleEnvelope({ id: 'r1', channel: 'queue.list', payload: {} })).toMatchObject({ id: 'r1', ok: true, value: { jobs: expect.any(Array) } });
+    expect(await app.handleEnvelope({ id: 'r2', channel: 'queue.list', payload: {}, extra: 1 })).toMatchObject({ id: 'r2', ok: false, error: { kind: 'usage' } });
+    expect(await app.handleEnvelope(JSON.parse('{"id":"r3","channel":"app.info","__proto__":{}}'))).toMatchObject({ id: 'r3', ok: false });
+    expect(await app.handleEnvelope('nonsense')).toMatchObject({ id: '', ok: false, error: { kind: 'usage' } });
   });
 
   it('answers bad requests with usage errors', async () => {

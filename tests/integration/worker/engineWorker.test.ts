@@ -80,6 +80,11 @@ describe('engine worker', () => {
 
     await expect(runEngineJob({ kind: 'probe', mode: 'spin', ms: 30_000 }, { ...worker, jobTimeLimitMs: 500 })).rejects.toMatchObject({ kind: 'worker', message: expect.stringMatching(/time limit/) });
     await expect(runEngineJob({ kind: 'probe', mode: 'hang' }, { ...worker, heartbeatTimeoutMs: 1500 })).rejects.toMatchObject({ kind: 'worker', message: expect.stringMatching(/stopped answering/) });
+    // The memory limit stops the job, not the process.
+    const small = await EngineWorker.start({ ...worker, jobHeapMb: 64 });
+    await expect(small.run({ kind: 'probe', mode: 'alloc' })).rejects.toMatchObject({ kind: 'worker', message: expect.stringMatching(/more than 64 MB/) });
+    expect(await small.run({ kind: 'probe', mode: 'echo', value: 1 })).toBe(1);
+    small.kill();
   }, 60_000);
 
   it('the command line fit path in a worker gives the in-process fit', async () => {
