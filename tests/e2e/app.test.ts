@@ -257,6 +257,15 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByRole('button', { name: 'Save to the project' }).click();
     await page.getByText(/^Saved as /).waitFor();
 
+    // A patient can also be picked from a dataset of the project (times in hours from the first dose).
+    const ds = page.getByLabel('Dataset to pick from');
+    await ds.selectOption((await ds.locator('option', { hasText: 'Ward levels (imported)' }).getAttribute('value')) as string);
+    await page.getByLabel('Patient in the dataset').selectOption('HX-002');
+    await expect.poll(() => page.getByLabel('Patient identifier (no names)').inputValue()).toBe('HX-002');
+    expect(await page.getByLabel('Times are entered as').inputValue()).toBe('hours');
+    expect(await page.getByLabel('Dose 1 amount (mg)').inputValue()).toBe('1250');
+    expect(await page.getByLabel('Level 1 concentration (mg/L)').inputValue()).toMatch(/^8\.89/);
+
     expect(s.failures).toEqual([]);
   }, 240_000);
 });
