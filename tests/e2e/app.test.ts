@@ -124,6 +124,7 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     const modelValue = await page.getByLabel('Model').locator('option', { hasText: '1-cmt quick' }).getAttribute('value');
     await page.getByLabel('Model').selectOption(modelValue as string);
     await page.getByLabel(/Seeds \(one fit per seed\)/).fill('1, 2');
+    await page.getByLabel(/Agreement check/).fill('2');
     await page.getByRole('button', { name: 'Add to the queue' }).click();
     await page.getByText('Running').first().waitFor({ timeout: 30_000 });
     await page.getByRole('progressbar').first().waitFor();
@@ -134,6 +135,7 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await accessible('Fit queue');
     await expect.poll(() => page.getByRole('button', { name: /Open the results of/ }).count(), { timeout: 150_000, interval: 1000 }).toBe(2);
     await s.shot('05-queue-done');
+    expect(await page.getByText(/^Seeds: /).count()).toBe(2);
 
     // Re-run with three other seeds, move the last one up, then cancel all three.
     const rerunInput = page.getByLabel(/^Seeds to re-run .*seed 1 with$/);
@@ -159,6 +161,7 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     expect(estimates).toContain('CL (typical value) (L/h)');
     expect(estimates).toContain('BSV of CL');
     expect(await page.getByRole('row', { name: /−2 log-likelihood/ }).textContent()).toMatch(/± .*Monte Carlo error/);
+    expect(await page.getByRole('region', { name: 'Agreement of fits from other seeds' }).textContent()).toMatch(/Fits from 2 seeds/);
     const unticked = page.getByRole('group', { name: /Show and compare/ }).getByRole('checkbox', { checked: false });
     await unticked.first().check();
     await page.getByRole('heading', { name: 'Model comparison' }).waitFor();

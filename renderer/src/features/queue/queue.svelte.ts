@@ -95,10 +95,11 @@ export class QueueState {
     this.concurrency = s.concurrency;
   }
 
-  async enqueue(datasetId: string, modelId: string, seeds: number[], label?: string): Promise<boolean> {
+  /** `repeat`: after the fit, this many fits in all from other seeds and jittered starts, and their agreement verdict. */
+  async enqueue(datasetId: string, modelId: string, seeds: number[], label?: string, repeat?: number): Promise<boolean> {
     this.error = null;
     try {
-      await request('queue.enqueue', { datasetId, modelId, seeds, ...(label ? { label } : {}) });
+      await request('queue.enqueue', { datasetId, modelId, seeds, ...(label ? { label } : {}), ...(repeat ? { postFit: { repeat } } : {}) });
       return true;
     } catch (e) {
       this.error = messageOf(e);
