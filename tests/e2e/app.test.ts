@@ -135,7 +135,7 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await accessible('Fit queue');
     await expect.poll(() => page.getByRole('button', { name: /Open the results of/ }).count(), { timeout: 150_000, interval: 1000 }).toBe(2);
     await s.shot('05-queue-done');
-    expect(await page.getByText(/^Seeds: /).count()).toBe(2);
+    expect(await page.getByText(/^Agreement across seeds: (stable|unstable)/).count()).toBe(2);
 
     // Re-run with three other seeds, move the last one up, then cancel all three.
     const rerunInput = page.getByLabel(/^Seeds to re-run .*seed 1 with$/);
