@@ -219,6 +219,19 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     expect(await blockedTable.getByRole('row').nth(1).textContent()).toMatch(/mg every \d+ h/);
     await s.shot('09-dosing-override');
 
+    // A model from a publication, entered in the form (invented values here): checked as typed.
+    await prior.selectOption('entered');
+    await page.getByText('Source: give the publication').waitFor();
+    await page.getByLabel('Model name', { exact: true }).fill('Invented literature-style model (test)');
+    await page.getByLabel(/^Source: the publication/).fill('Invented for the UI test; adults on a general ward');
+    await page.getByLabel('From', { exact: true }).fill('40');
+    await page.getByLabel('To', { exact: true }).fill('130');
+    await page.getByLabel('CL published value (L/h)').fill('3.5');
+    await page.getByText('The model reads correctly.').waitFor();
+    await page.getByRole('button', { name: 'Compute dose advice' }).click();
+    await page.getByText(/^Model: Invented literature-style model \(test\) \(model spec, 1cmt\)/).waitFor({ timeout: 60_000 });
+    expect(await page.getByText(/^Model: .*source: Invented for the UI test/).count()).toBe(1);
+
     // Then the site fit as the prior: advice for the demo patient.
     await prior.selectOption((await prior.locator('option', { hasText: '1-cmt quick' }).first().getAttribute('value')) as string);
     await page.getByRole('button', { name: 'Compute dose advice' }).click();

@@ -1,7 +1,9 @@
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import { parsePatient } from '../../../engine/dosing/patient.js';
-import { checkEnteredSpec, ENTERED_EXAMPLE } from '../../../renderer/src/features/dosing/enteredModel.js';
+import { listStructuralModels } from '../../../engine/models/catalogue.js';
+import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { checkEnteredForm, literatureForm } from '../../../renderer/src/features/dosing/enteredModel.js';
 import { emptyForm, formFromPatientJson, formToPatient, parsePasted } from '../../../renderer/src/features/dosing/patientForm.js';
 
 describe('Dosing patient form', () => {
@@ -33,14 +35,28 @@ describe('Dosing patient form', () => {
   });
 });
 
-describe('Dosing: a literature model typed in', () => {
-  it('is checked by the engine parser and needs its source', () => {
-    expect(checkEnteredSpec(ENTERED_EXAMPLE).problem).toMatch(/source/);
-    const ok = JSON.parse(ENTERED_EXAMPLE);
-    ok.source = 'Invented for this test';
-    expect(checkEnteredSpec(JSON.stringify(ok)).spec).toBeDefined();
-    ok.structure = '4cmt';
-    expect(checkEnteredSpec(JSON.stringify(ok)).problem).toMatch(/structure/);
-    expect(checkEnteredSpec('{').problem).toMatch(/not valid JSON/);
+describe('Dosing: a literature model entered in the form', () => {
+  const entry = (() => {
+    const m = listStructuralModels().find((x) => x.id === '1cmt')!;
+    return { id: m.id, label: m.label, compartments: m.compartments, analytic: m.analytic, equation: m.equation, parameterOrder: [...m.parameterOrder], parameters: m.parameters.map((p) => ({ ...p, transforms: [...p.transforms] })) };
+  })();
+  it('needs a name, its source and readable ranges, then gives a spec the engine accepts', () => {
+    const f = literatureForm(entry);
+    expect(checkEnteredForm(f).problems).toEqual([
+      'Name: give the model a name (drug, population, publication).',
+      'Source: give the publication the values come from (authors, journal, year) and its population.',
+      'Covariate range 1 minimum: "" is not a number.',
+      'Covariate range 1 maximum: "" is not a number.',
+    ]);
+    f.name = 'Invented test model';
+    f.source = 'Invented for this test';
+    f.ranges = [{ covariate: 'weight_kg', min: '40', max: '130' }];
+    const { spec, problems } = checkEnteredForm(f);
+    expect(problems).toEqual([]);
+    const parsed = parseModelSpec(spec);
+    expect(parsed.source).toBe('Invented for this test');
+    expect(parsed.covariateRanges).toEqual({ weight_kg: [40, 130] });
+    expect(parsed.parameters.CL?.typical).toBe(4);
+    expect(parsed.parameters.ka).toBeUndefined();
   });
 });

@@ -5,7 +5,9 @@
 import type { Dataset } from '../../../../engine/data/types.js';
 import type { Forecast } from '../../../../engine/dosing/forecast.js';
 import type { Regimen } from '../../../../engine/dosing/metrics.js';
-import { checkEnteredSpec, ENTERED_EXAMPLE } from './enteredModel.js';
+import { checkEnteredForm, literatureForm } from './enteredModel.js';
+import type { ModelForm } from '../models/modelForm.js';
+import type { CatalogueEntry } from '../../lib/types.js';
 import { request } from '../../lib/bridge/index.js';
 import { messageOf } from '../../lib/app.svelte.js';
 import { emptyForm, formFromPatientJson, formFromSubject, formToPatient, type PatientForm } from './patientForm.js';
@@ -26,8 +28,9 @@ export class DosingState {
   goalMin = $state('');
   goalMax = $state('');
   seed = $state(DEFAULT_SEED);
-  /** A literature model typed in as a model spec (JSON), with its source and covariate ranges. */
-  enteredSpec = $state(ENTERED_EXAMPLE);
+  /** A literature model entered in a form, with its source and covariate ranges. */
+  catalogue = $state<CatalogueEntry[]>([]);
+  entered = $state<ModelForm | null>(null);
   loadingDose = $state(false);
 
   advice = $state<Advice | null>(null);
@@ -53,13 +56,20 @@ export class DosingState {
 
   async load(): Promise<void> {
     try {
-      const [targets, literature] = await Promise.all([request('dosing.targets'), request('dosing.literatureModels')]);
+      const [targets, literature, catalogue] = await Promise.all([request('dosing.targets'), request('dosing.literatureModels'), request('models.catalogue')]);
       this.targets = targets;
       this.literature = literature;
+      this.catalogue = catalogue;
       if (!this.targetId && targets.length) this.targetId = targets[0].id;
     } catch (e) {
       this.error = messageOf(e);
     }
+  }
+
+  /** Start entering a literature model of this structure. */
+  enterModel(structure: string): void {
+    const entry = this.catalogue.find((c) => c.id === structure);
+    if (entry) this.entered = literatureForm(entry);
   }
 
   async pickDataset(id: string): Promise<void> {
@@ -101,7 +111,7 @@ export class DosingState {
     if (p.kind === 'fit') return { fitId: p.fitId };
     if (p.kind === 'literature') return { literatureModelId: p.id };
     if (p.kind === 'entered') {
-      const spec = checkEnteredSpec(this.enteredSpec).spec;
+      const spec = this.entered ? checkEnteredForm(this.entered).spec : undefined;
       return spec ? { spec } : undefined;
     }
     return undefined;
@@ -112,7 +122,10 @@ export class DosingState {
     const prior = this.priorToSend();
     const { patient, problems } = formToPatient(this.form);
     const all = [...problems];
-    if (!prior) all.unshift(this.prior.kind === 'entered' ? `Prior model: ${checkEnteredSpec(this.enteredSpec).problem}.` : 'Prior model: choose a site fit or a literature model.');
+    if (!prior) {
+      if (this.prior.kind === 'entered' && this.entered) all.unshift(...checkEnteredForm(this.entered).problems.map((p) => `Prior model: ${p}`));
+      else all.unshift('Prior model: choose a site fit or a literature model.');
+    }
     const target = this.targetToSend();
     if (!target) all.push('Target: choose a target.');
     for (const [label, text] of [['MIC', this.micMgL], ['Goal minimum', this.goalMin], ['Goal maximum', this.goalMax]] as const)
@@ -187,8 +200,8 @@ export class DosingState {
     const p = this.prior;
     if (p.kind === 'fit') return populationFrom({ fit: (await request('fits.get', { fitId: p.fitId })).record });
     if (p.kind === 'entered') {
-      const spec = checkEnteredSpec(this.enteredSpec).spec;
-      if (!spec) throw new Error('the model typed in has a problem: compute the advice again');
+      const spec = this.entered ? checkEnteredForm(this.entered).spec : undefined;
+      if (!spec) throw new Error('the model entered has a problem: compute the advice again');
       return populationFrom({ spec });
     }
     const m = p.kind === 'literature' ? this.literature.find((x) => x.id === p.id) : undefined;

@@ -1,35 +1,30 @@
-/** A literature model typed in by the user as a model spec, checked by the engine's parser. */
+/**
+ * A literature model entered in a form (the Models editor plus its source and the covariate
+ * ranges of its population), checked by the engine's spec parser before it is used.
+ */
 import { parseModelSpec } from '../../../../engine/spec/modelSpec.js';
+import type { CatalogueEntry } from '../../lib/types.js';
+import { formFor, formToSpec, type ModelForm } from '../models/modelForm.js';
 
-/** A starting point for a model typed in: the fields a literature model needs (invented values). */
-export const ENTERED_EXAMPLE = JSON.stringify(
-  {
-    name: 'model from a publication (fill in)',
-    source: 'authors, journal, year; population and setting',
-    structure: '1cmt',
-    parameters: { CL: { typical: 4, bsv: 0.3 }, V: { typical: 50, bsv: 0.2 } },
-    covariates: [],
-    residual: { model: 'combined', a: 1, b: 0.15 },
-    covariateRanges: { weight_kg: [40, 130] },
-  },
-  null,
-  2,
-);
+/** An empty literature-model form for a structure: catalogue starting values, source and ranges to fill in. */
+export function literatureForm(entry: CatalogueEntry): ModelForm {
+  const f = formFor(entry);
+  f.name = '';
+  f.source = '';
+  f.ranges = [{ covariate: 'weight_kg', min: '', max: '' }];
+  return f;
+}
 
-/** The typed-in spec checked by the engine's parser, or the problem in words. */
-export function checkEnteredSpec(text: string): { spec?: Record<string, unknown>; problem?: string } {
-  let json: unknown;
+/** The spec of the form, or every problem in words. */
+export function checkEnteredForm(f: ModelForm): { spec?: Record<string, unknown>; problems: string[] } {
+  const built = formToSpec(f);
+  const problems = [...built.problems];
+  if (!f.name.trim()) problems.unshift('Name: give the model a name (drug, population, publication).');
+  if (!built.spec || problems.length) return { problems };
   try {
-    json = JSON.parse(text);
+    parseModelSpec(built.spec);
   } catch (e) {
-    return { problem: `the model is not valid JSON: ${e instanceof Error ? e.message : String(e)}` };
+    return { problems: [e instanceof Error ? e.message : String(e)] };
   }
-  try {
-    parseModelSpec(json);
-  } catch (e) {
-    return { problem: e instanceof Error ? e.message : String(e) };
-  }
-  const spec = json as Record<string, unknown>;
-  if (typeof spec.source !== 'string' || !spec.source.trim() || /fill in|authors, journal/.test(spec.source)) return { problem: 'give the model\'s source (publication, population and setting) in "source"' };
-  return { spec };
+  return { spec: built.spec, problems: [] };
 }

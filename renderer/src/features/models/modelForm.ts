@@ -38,6 +38,10 @@ export interface ModelForm {
   b: string;
   /** Estimation settings left empty take the defaults (shown beside each). */
   estimation: Record<string, string>;
+  /** A literature model's publication (required when present: dose advice shows it). */
+  source?: string;
+  /** Covariate ranges of the population the model was built on (dose advice checks the patient against them). */
+  ranges?: Array<{ covariate: string; min: string; max: string }>;
 }
 
 const ABSORPTION = new Set(['ka', 'tlag', 'F']);
@@ -101,6 +105,24 @@ export function formToSpec(f: ModelForm): { spec?: Record<string, unknown>; prob
       if (x !== undefined) estimation[k] = x;
     }
   }
+  const extra: Record<string, unknown> = {};
+  if (f.source !== undefined) {
+    if (!f.source.trim()) problems.push('Source: give the publication the values come from (authors, journal, year) and its population.');
+    else extra.source = f.source.trim();
+  }
+  if (f.ranges?.length) {
+    const ranges: Record<string, [number, number]> = Object.create(null);
+    f.ranges.forEach((r, i) => {
+      const lo = num(r.min, `Covariate range ${i + 1} minimum`);
+      const hi = num(r.max, `Covariate range ${i + 1} maximum`);
+      if (!r.covariate.trim()) problems.push(`Covariate range ${i + 1}: name the covariate (e.g. weight_kg).`);
+      else if (lo !== undefined && hi !== undefined) {
+        if (lo > hi) problems.push(`Covariate range ${i + 1}: the minimum ${lo} is above the maximum ${hi}.`);
+        ranges[r.covariate.trim()] = [lo, hi];
+      }
+    });
+    extra.covariateRanges = ranges;
+  }
   if (problems.length) return { problems };
-  return { spec: { name: f.name.trim() || f.structure, structure: f.structure, parameters, covariates, correlations: [], residual, estimation }, problems };
+  return { spec: { name: f.name.trim() || f.structure, structure: f.structure, parameters, covariates, correlations: [], residual, estimation, ...extra }, problems };
 }
