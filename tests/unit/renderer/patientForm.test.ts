@@ -60,3 +60,16 @@ describe('Dosing: a literature model entered in the form', () => {
     expect(parsed.parameters.ka).toBeUndefined();
   });
 });
+
+describe('Models: categorical covariate effects in the editor', () => {
+  it('reads "level: shift" pairs and names what it cannot read', async () => {
+    const { formFor, formToSpec } = await import('../../../renderer/src/features/models/modelForm.js');
+    const m = listStructuralModels().find((x) => x.id === '1cmt')!;
+    const f = formFor({ id: m.id, label: m.label, compartments: 1, analytic: true, equation: m.equation, parameterOrder: [...m.parameterOrder], parameters: m.parameters.map((p) => ({ ...p, transforms: [...p.transforms] })) });
+    f.covariates = [{ parameter: 'CL', covariate: 'sex', relation: 'categorical', reference: 'M', coefficient: 'F: -0.2', fixed: false }];
+    const spec = parseModelSpec(formToSpec(f).spec);
+    expect(spec.covariates[0]).toMatchObject({ relation: 'categorical', reference: 'M', coefficients: { F: -0.2 } });
+    f.covariates[0].coefficient = 'F -0.2';
+    expect(formToSpec(f).problems).toEqual(['Covariate effect 1: "F -0.2" is not "level: shift" (e.g. F: -0.2).', 'Covariate effect 1: give a shift for each other level, e.g. "F: -0.2".']);
+  });
+});

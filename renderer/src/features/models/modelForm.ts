@@ -22,8 +22,10 @@ export interface ParameterRow {
 export interface CovariateRow {
   parameter: string;
   covariate: string;
-  relation: 'power' | 'linear';
+  relation: 'power' | 'linear' | 'categorical';
+  /** Continuous: the reference value; categorical: the reference level (no shift). */
   reference: string;
+  /** Continuous: one number; categorical: "level: shift" pairs, e.g. "F: -0.2; X: 0.1". */
   coefficient: string;
   fixed: boolean;
 }
@@ -90,8 +92,21 @@ export function formToSpec(f: ModelForm): { spec?: Record<string, unknown>; prob
     parameters[p.name] = { typical, transform: p.transform, bsv: bsv ?? null, fixed: p.fixed };
   }
   const covariates = f.covariates.map((c, i) => {
-    if (!c.covariate.trim()) problems.push(`Covariate effect ${i + 1}: choose the covariate.`);
-    return { parameter: c.parameter, covariate: c.covariate.trim(), relation: c.relation, reference: num(c.reference, `Covariate effect ${i + 1} reference`), coefficient: num(c.coefficient, `Covariate effect ${i + 1} coefficient`), fixed: c.fixed };
+    const where = `Covariate effect ${i + 1}`;
+    if (!c.covariate.trim()) problems.push(`${where}: choose the covariate.`);
+    if (c.relation === 'categorical') {
+      if (!c.reference.trim()) problems.push(`${where}: give the reference level (the category with no shift, e.g. M).`);
+      const coefficients: Record<string, number> = Object.create(null);
+      for (const part of c.coefficient.split(/[;\n]/).map((x) => x.trim()).filter(Boolean)) {
+        const m = /^(.+?)\s*[:=]\s*(\S+)$/.exec(part);
+        const x = m ? Number(m[2]) : NaN;
+        if (!m || !Number.isFinite(x)) problems.push(`${where}: "${part}" is not "level: shift" (e.g. F: -0.2).`);
+        else coefficients[m[1].trim()] = x;
+      }
+      if (!Object.keys(coefficients).length) problems.push(`${where}: give a shift for each other level, e.g. "F: -0.2".`);
+      return { parameter: c.parameter, covariate: c.covariate.trim(), relation: c.relation, reference: c.reference.trim(), coefficients, fixed: c.fixed };
+    }
+    return { parameter: c.parameter, covariate: c.covariate.trim(), relation: c.relation, reference: num(c.reference, `${where} reference`), coefficient: num(c.coefficient, `${where} coefficient`), fixed: c.fixed };
   });
   const residual: Record<string, unknown> = { model: f.residualModel };
   if (f.residualModel !== 'proportional') residual.a = num(f.a, 'Residual a', true);
