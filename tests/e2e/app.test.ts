@@ -227,7 +227,15 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByLabel('From', { exact: true }).fill('40');
     await page.getByLabel('To', { exact: true }).fill('130');
     await page.getByLabel('CL published value (L/h)').fill('3.5');
+    await page.getByLabel('V published value (L)').fill('50');
+    await page.getByLabel('CL BSV SD').fill('0.3');
+    await page.getByLabel('V BSV SD').fill('0.25');
+    await page.getByLabel('a (mg/L)').fill('1');
+    await page.getByLabel('b (fraction)').fill('0.15');
     await page.getByText('The model reads correctly.').waitFor();
+    await page.getByRole('heading', { name: '1. Prior model' }).scrollIntoViewIfNeeded();
+    await s.shot('09b-dosing-literature-form');
+    await accessible('Dosing (literature model form)');
     await page.getByRole('button', { name: 'Compute dose advice' }).click();
     await page.getByText(/^Model: Invented literature-style model \(test\) \(model spec, 1cmt\)/).waitFor({ timeout: 60_000 });
     expect(await page.getByText(/^Model: .*source: Invented for the UI test/).count()).toBe(1);

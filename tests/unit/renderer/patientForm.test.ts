@@ -44,10 +44,22 @@ describe('Dosing: a literature model entered in the form', () => {
     const f = literatureForm(entry);
     expect(checkEnteredForm(f).problems).toEqual([
       'Name: give the model a name (drug, population, publication).',
+      'CL typical value: "" is not a number above 0.',
+      'CL BSV: "" is not a number above 0.',
+      'V typical value: "" is not a number above 0.',
+      'V BSV: "" is not a number above 0.',
+      'Residual a: "" is not a number above 0.',
+      'Residual b: "" is not a number above 0.',
       'Source: give the publication the values come from (authors, journal, year) and its population.',
       'Covariate range 1 minimum: "" is not a number.',
       'Covariate range 1 maximum: "" is not a number.',
     ]);
+    for (const p of f.parameters.slice(0, 2)) {
+      p.typical = p.name === 'CL' ? '4' : '50';
+      p.bsv = '0.3';
+    }
+    f.a = '1';
+    f.b = '0.15';
     f.name = 'Invented test model';
     f.source = 'Invented for this test';
     f.ranges = [{ covariate: 'weight_kg', min: '40', max: '130' }];

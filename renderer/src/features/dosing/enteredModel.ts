@@ -6,9 +6,16 @@ import { parseModelSpec } from '../../../../engine/spec/modelSpec.js';
 import type { CatalogueEntry } from '../../lib/types.js';
 import { formFor, formToSpec, type ModelForm } from '../models/modelForm.js';
 
-/** An empty literature-model form for a structure: catalogue starting values, source and ranges to fill in. */
+/** An empty literature-model form for a structure: values, source and ranges all to be filled in. */
 export function literatureForm(entry: CatalogueEntry): ModelForm {
   const f = formFor(entry);
+  // Published values only: nothing pre-filled that could pass for the paper's numbers.
+  for (const p of f.parameters) {
+    p.typical = '';
+    p.bsv = '';
+  }
+  f.a = '';
+  f.b = '';
   f.name = '';
   f.source = '';
   f.ranges = [{ covariate: 'weight_kg', min: '', max: '' }];

@@ -87,7 +87,7 @@ export function formToSpec(f: ModelForm): { spec?: Record<string, unknown>; prob
   const parameters: Record<string, unknown> = {};
   for (const p of f.parameters) {
     if (!p.included) continue;
-    const typical = num(p.typical, `${p.name} initial value`, true);
+    const typical = num(p.typical, `${p.name} typical value`, true);
     const bsv = p.bsvOn ? num(p.bsv, `${p.name} BSV`, true) : null;
     parameters[p.name] = { typical, transform: p.transform, bsv: bsv ?? null, fixed: p.fixed };
   }
