@@ -122,6 +122,7 @@ export class AppService {
 
   async close(): Promise<void> {
     await this.queue.close();
+    await this.store.close();
   }
 
   // --- helpers -----------------------------------------------------------------------------

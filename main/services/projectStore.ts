@@ -3,6 +3,7 @@
  *
  *   project.json        index: schema version, name, datasets, templates, models, fits, sessions
  *   queue.json          the fit queue (fitQueue.ts), so a restart shows and resumes it
+ *   project.lock        pid of the one process that has the project open
  *   audit.log           append-only JSON lines: who did what, with data hash, model, seed, engine
  *   datasets/<id>/      dataset.json (canonical dataset), import-report.json, mapping.json
  *   templates/<id>.json mapping templates
@@ -17,7 +18,7 @@
  * dead writers are removed at open. One process (main) owns a project; writes are serialised.
  */
 import { randomBytes } from 'node:crypto';
-import { promises as fs } from 'node:fs';
+import { promises as fs, rmSync } from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
 import { z } from 'zod';
@@ -151,6 +152,51 @@ export async function cleanStaleTempFiles(dir: string, depth = 2): Promise<strin
   return removed;
 }
 
+/** pid of the live process that holds the project's lock, if another one does. */
+function otherHolder(text: string): number | undefined {
+  const pid = Number(/^(\d+)/.exec(text)?.[1]);
+  if (!Number.isInteger(pid) || pid <= 0 || pid === process.pid) return undefined;
+  try {
+    process.kill(pid, 0);
+    return pid;
+  } catch (e) {
+    return (e as NodeJS.ErrnoException).code === 'EPERM' ? pid : undefined;
+  }
+}
+
+const heldLocks = new Set<string>();
+let lockExitHook = false;
+
+/**
+ * Take the project's lock (project.lock holding our pid), so two Plateau processes never write
+ * one project at once. A lock left by a process that is gone is taken over.
+ */
+async function takeLock(dir: string): Promise<void> {
+  const file = path.join(dir, 'project.lock');
+  for (let attempt = 0; attempt < 3; attempt++) {
+    try {
+      const h = await fs.open(file, 'wx');
+      await h.writeFile(`${process.pid}\n`);
+      await h.close();
+      break;
+    } catch (e) {
+      if ((e as NodeJS.ErrnoException).code !== 'EEXIST') throw new ServiceError('file', `cannot lock the project in ${dir}: ${(e as Error).message}`);
+      const text = await fs.readFile(file, 'utf8').catch(() => '');
+      const holder = otherHolder(text);
+      if (holder !== undefined) throw new ServiceError('file', `the project in ${dir} is open in another Plateau process (pid ${holder}): close it there first`);
+      if (Number(/^(\d+)/.exec(text)?.[1]) === process.pid) break;
+      await fs.rm(file, { force: true });
+    }
+  }
+  heldLocks.add(file);
+  if (!lockExitHook) {
+    lockExitHook = true;
+    process.once('exit', () => {
+      for (const f of heldLocks) rmSync(f, { force: true });
+    });
+  }
+}
+
 export interface OpenOptions {
   /** Create the project when the folder has no project.json: 'demo' fills it from resources/demo. */
   create?: 'demo' | 'empty' | false;
@@ -192,6 +238,7 @@ export class ProjectStore {
     if (text === undefined) {
       if (!options.create) throw new ServiceError('file', `no Plateau project in ${abs} (project.json not found)`);
       await fs.mkdir(abs, { recursive: true });
+      await takeLock(abs);
       const store = new ProjectStore(abs, {
         format: 'plateau-project',
         schemaVersion: PROJECT_SCHEMA_VERSION,
@@ -210,8 +257,9 @@ export class ProjectStore {
       if (options.create === 'demo') await store.addDemo(options.resourcesDir);
       return store;
     }
-    const removed = await cleanStaleTempFiles(abs);
     const { project, migratedFrom } = parseProjectFile(text, file);
+    await takeLock(abs);
+    const removed = await cleanStaleTempFiles(abs);
     const store = new ProjectStore(abs, project);
     if (removed.length) store.notes.push(`removed ${removed.length} temporary file(s) left by an interrupted save`);
     if (migratedFrom !== undefined) {
@@ -230,6 +278,14 @@ export class ProjectStore {
     await this.addDataset('Demo ward levels (invented)', dataset, { source: 'resources/demo/ward-levels.csv' });
     const spec = parseJsonText(await readRegularTextFile(path.join(demo, 'ward-model.json'), { what: 'demo model' }), 'ward-model.json');
     await this.saveModel('Demo one-compartment model (example)', spec);
+  }
+
+  /** Release the project's lock once the writes in progress are done. */
+  async close(): Promise<void> {
+    await this.chain;
+    const file = path.join(this.dir, 'project.lock');
+    heldLocks.delete(file);
+    await fs.rm(file, { force: true });
   }
 
   /** Serialise an operation after every earlier one. */
@@ -316,6 +372,7 @@ export class ProjectStore {
   }
 
   async rename(name: string): Promise<void> {
+    if (!name.trim() || name.length > 200) throw new ServiceError('usage', 'a project name has 1 to 200 characters');
     await this.mutate((p) => void (p.name = name));
   }
 

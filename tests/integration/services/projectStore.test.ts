@@ -39,6 +39,19 @@ describe('project store', () => {
     await expect(ProjectStore.open(tmp())).rejects.toThrow(/no Plateau project/);
   });
 
+  it('refuses a project another live process holds, and takes over a dead holder\'s lock', async () => {
+    const dir = tmp();
+    const s = await ProjectStore.open(dir, { create: 'empty' });
+    await s.close();
+    writeFileSync(path.join(dir, 'project.lock'), `${process.ppid}\n`); // a live process that is not us
+    await expect(ProjectStore.open(dir)).rejects.toThrow(/open in another Plateau process/);
+    writeFileSync(path.join(dir, 'project.lock'), '999999\n'); // gone
+    const again = await ProjectStore.open(dir);
+    expect(readFileSync(path.join(dir, 'project.lock'), 'utf8').trim()).toBe(String(process.pid));
+    await again.close();
+    expect(existsSync(path.join(dir, 'project.lock'))).toBe(false);
+  });
+
   it('migrates schema 0 and keeps the original beside it', async () => {
     const dir = tmp();
     const old = JSON.stringify({ format: 'plateau-project', name: 'old', createdAt: '2026-01-01T00:00:00Z', datasets: [], models: [], fits: [] });
@@ -84,7 +97,7 @@ describe('project store', () => {
     await Promise.all(
       Array.from({ length: LANES }, async (_, lane) => {
         const dir = tmp();
-        await ProjectStore.open(dir, { create: 'empty' });
+        await (await ProjectStore.open(dir, { create: 'empty' })).close();
         let lastRevision = 0;
         for (let i = lane; i < RUNS; i += LANES) {
           await runOne(dir, delays[i]);

@@ -4,4 +4,4 @@ const [dir, dist] = process.argv.slice(2);
 const { ProjectStore } = await import(`${dist}/main/services/projectStore.js`);
 const store = await ProjectStore.open(dir);
 process.send?.('ready');
-for (let i = 1; ; i++) await store.rename(`name ${i} ${'x'.repeat(i % 5000)}`);
+for (let i = 1; ; i++) await store.rename(`name ${i} ${'x'.repeat(i % 150)}`);
