@@ -27,6 +27,13 @@ export class ImportState {
   selectedProblem = $state<number | null>(null);
   addedDatasetId = $state<string | null>(null);
   savedTemplate = $state<string | null>(null);
+  /** Answers to a request the user cancelled (or that a newer one replaced) are dropped. */
+  private ticket = 0;
+
+  cancel(): void {
+    this.ticket++;
+    this.busy = false;
+  }
 
   async loadTemplates(): Promise<void> {
     try {
@@ -58,11 +65,12 @@ export class ImportState {
       return;
     }
     const o = this.options;
+    const my = ++this.ticket;
     this.busy = true;
     this.error = null;
     this.addedDatasetId = null;
     try {
-      this.preview = await request('import.parse', {
+      const preview = await request('import.parse', {
         fileName: this.fileName,
         bytesBase64: toBase64(this.bytes),
         options: {
@@ -74,11 +82,13 @@ export class ImportState {
         },
         ...(this.templateId ? { templateId: this.templateId } : {}),
       });
+      if (my !== this.ticket) return;
+      this.preview = preview;
       this.selectedProblem = null;
     } catch (e) {
-      this.error = messageOf(e);
+      if (my === this.ticket) this.error = messageOf(e);
     } finally {
-      this.busy = false;
+      if (my === this.ticket) this.busy = false;
     }
   }
 
@@ -97,13 +107,15 @@ export class ImportState {
       col.role = role;
       delete col.note;
     } else sm.columns.push({ role, header, column: letter });
+    const my = ++this.ticket;
     this.busy = true;
     try {
-      this.preview = await request('import.remap', { importId: pv.importId, mapping: mapping as unknown as Record<string, unknown> });
+      const preview = await request('import.remap', { importId: pv.importId, mapping: mapping as unknown as Record<string, unknown> });
+      if (my === this.ticket) this.preview = preview;
     } catch (e) {
-      this.error = messageOf(e);
+      if (my === this.ticket) this.error = messageOf(e);
     } finally {
-      this.busy = false;
+      if (my === this.ticket) this.busy = false;
     }
   }
 
