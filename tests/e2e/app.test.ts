@@ -105,8 +105,8 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByLabel('Model name').fill('1-cmt quick');
     await page.getByLabel('CL initial value (L/h)').fill('5');
     await page.getByLabel('V initial value (L)').fill('40');
-    await page.getByLabel(/Exploration: at least/).fill('30');
-    await page.getByLabel(/Exploration: at most/).fill('60');
+    await page.getByLabel(/Search phase: at least/).fill('30');
+    await page.getByLabel(/Search phase: at most/).fill('60');
     await page.getByLabel(/Averaging \(iterations\)/).fill('40');
     await page.getByLabel(/Settle window/).fill('10');
     await page.getByRole('img', { name: /Patient .*: levels and the curve at the initial values/ }).first().waitFor();

@@ -22,8 +22,8 @@ describe('Dosing what-if in the renderer', () => {
     const advice = adviseDose({ population, patient: parsePatient(patientJson), target, caution, seed: 11, engineVersion: 'test', overrideBlocks: true });
     expect(advice.status).toBe('blocked-shown-on-request');
     const top = advice.regimens[0];
-    const ctx = buildWhatIfContext(populationFrom({ spec }), patientJson, 11, advice.patient.nextDoseH);
-    const fc = whatIfForecast(ctx, { doseMg: top.doseMg, intervalH: top.intervalH, durationH: top.durationH, route: top.route });
+    const ctx = buildWhatIfContext(populationFrom({ spec }), patientJson, 11, advice.regimenStart.timeH);
+    const fc = whatIfForecast(ctx, { doseMg: top.doseMg, intervalH: top.intervalH, durationH: top.durationH, route: top.route, ...(top.loadingDoseMg !== undefined ? { loadingDoseMg: top.loadingDoseMg } : {}) });
     expect(fc.curve.median).toEqual(advice.forecast!.curve.median);
     expect(fc.curve.q975).toEqual(advice.forecast!.curve.q975);
     expect(fc.intervals[0].auc24).toEqual(advice.forecast!.intervals[0].auc24);

@@ -177,12 +177,12 @@ export class DosingState {
       return;
     }
     try {
-      const key = JSON.stringify([this.prior, advice.seed, advice.patient.id, advice.patient.nextDoseH]);
+      const key = JSON.stringify([this.prior, advice.seed, advice.patient.id, advice.regimenStart.timeH]);
       if (!this.whatIfCtx || key !== this.whatIfKey) {
         this.whatIfPreparing = true;
         const population = await this.populationForWhatIf();
         const { patient } = formToPatient(this.form);
-        this.whatIfCtx = buildWhatIfContext(population, patient, advice.seed, advice.patient.nextDoseH);
+        this.whatIfCtx = buildWhatIfContext(population, patient, advice.seed, advice.regimenStart.timeH);
         this.whatIfKey = key;
         this.whatIfPreparing = false;
       }

@@ -45,9 +45,13 @@ export function forecastChartConfig(advice: Advice, fc: Forecast | null, whatIf:
       label: { display: true, content: advice.patient.nextDoseAssumed ? 'next dose (assumed)' : 'next dose', position: 'start', backgroundColor: 'rgba(74,88,98,0.85)', font: { size: 12 } },
     },
   };
+  if (advice.regimenStart.delayed) {
+    // The advice holds the next dose: mark where the advised regimen starts instead.
+    annotations.regimenStart = { type: 'line', xMin: advice.regimenStart.timeH, xMax: advice.regimenStart.timeH, borderColor: '#8a3b12', borderWidth: 1.5, label: { display: true, content: 'advised restart (dose held)', position: 'end', backgroundColor: 'rgba(138,59,18,0.85)', font: { size: 12 } } };
+  }
   for (const [i, g] of (target?.goals ?? []).entries()) {
     if ((g.metric === 'trough' || g.metric === 'peak' || g.metric === 'peakAt') && !g.perMic) {
-      annotations[`goal${i}`] = { type: 'box', yMin: g.min ?? 0, yMax: g.max ?? undefined, xMin: advice.patient.nextDoseH, backgroundColor: COLOURS.target, borderWidth: 0, label: { display: true, content: `${g.metric} goal`, position: 'end', font: { size: 11 } } };
+      annotations[`goal${i}`] = { type: 'box', yMin: g.min ?? 0, yMax: g.max ?? undefined, xMin: advice.regimenStart.timeH, backgroundColor: COLOURS.target, borderWidth: 0, label: { display: true, content: `${g.metric} goal`, position: 'end', font: { size: 11 } } };
     }
   }
   return {

@@ -5,6 +5,7 @@
  */
 import type { CovariateValue } from '../../../../engine/data/types.js';
 import { forecast, type Forecast } from '../../../../engine/dosing/forecast.js';
+import { EARLY_INTERVALS } from '../../../../engine/dosing/transient.js';
 import type { Regimen } from '../../../../engine/dosing/metrics.js';
 import { parsePatient, patientCovariate, type Patient } from '../../../../engine/dosing/patient.js';
 import { populationModelFromFit, populationModelFromSpec, type PopulationModel } from '../../../../engine/dosing/population.js';
@@ -19,7 +20,8 @@ export interface WhatIfContext {
   patient: Patient;
   etaDraws: Float64Array;
   nDraws: number;
-  nextDoseH: number;
+  /** When the advised regimens start: the next dose time, or later when the advice holds a dose. */
+  startH: number;
 }
 
 /** The population model from a fit record or a model spec (JSON as the bridge returns them). */
@@ -32,7 +34,7 @@ export function populationFrom(source: { fit: unknown } | { spec: unknown }): Po
  * The patient's posterior draws, as adviseDose draws them (same covariate resolution, same
  * named random streams), so the renderer's curves are the service's curves.
  */
-export function buildWhatIfContext(population: PopulationModel, patientJson: unknown, seed: number, nextDoseH: number): WhatIfContext {
+export function buildWhatIfContext(population: PopulationModel, patientJson: unknown, seed: number, startH: number): WhatIfContext {
   const patient = parsePatient(patientJson);
   const model = structuralModelWithSolver(population.spec.structure, population.spec.solver);
   const covValues = new Map<string, CovariateValue>();
@@ -52,10 +54,13 @@ export function buildWhatIfContext(population: PopulationModel, patientJson: unk
   const postFit = postFitDraws(population, patient.id, patient.levels, prior);
   const draws =
     postFit ?? (obj.nLevels === 0 ? drawPrior(prior, root.stream('dosing', 'prior-draws'), DEFAULT_SAMPLER.nDraws) : samplePosterior(obj, prior, map, root.stream('dosing', 'posterior'), { nDraws: DEFAULT_SAMPLER.nDraws }));
-  return { prior, patient, etaDraws: draws.eta, nDraws: draws.nDraws, nextDoseH };
+  return { prior, patient, etaDraws: draws.eta, nDraws: draws.nDraws, startH };
 }
 
-/** The forecast of one regimen from the next dose time over the context's draws. */
+/**
+ * The forecast of one regimen from the advice's regimen start over the context's draws, over as
+ * many intervals as the advice's own forecast shows.
+ */
 export function whatIfForecast(ctx: WhatIfContext, regimen: Regimen): Forecast {
-  return forecast({ prior: ctx.prior, history: ctx.patient.doses, etaDraws: ctx.etaDraws, nDraws: ctx.nDraws, regimen, startH: ctx.nextDoseH });
+  return forecast({ prior: ctx.prior, history: ctx.patient.doses, etaDraws: ctx.etaDraws, nDraws: ctx.nDraws, regimen, startH: ctx.startH, nIntervals: EARLY_INTERVALS });
 }

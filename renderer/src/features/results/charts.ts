@@ -91,8 +91,8 @@ export function vpcPlot(vpc: VpcData, obs: readonly ObservationDiagnostics[], lo
   };
 }
 
-/** One small chart per population estimate against iteration, with the end of exploration marked. */
-export function convergenceChart(name: string, values: number[], explorationEnd: number, colour = SERIES[0], iterations?: number[]): ChartConfiguration<'line'> {
+/** One small chart per population estimate against iteration, with the end of the search phase marked. */
+export function convergenceChart(name: string, values: number[], searchEnd: number, colour = SERIES[0], iterations?: number[]): ChartConfiguration<'line'> {
   return {
     type: 'line',
     data: { datasets: [{ label: name, data: values.map((y, i) => ({ x: iterations ? iterations[i] : i + 1, y })), borderColor: colour, borderWidth: 1.5, pointRadius: 0, fill: false }] },
@@ -103,7 +103,7 @@ export function convergenceChart(name: string, values: number[], explorationEnd:
         legend: { display: false },
         title: { display: true, text: name, font: { size: 13, weight: 'bold' } },
         annotation: {
-          annotations: explorationEnd > 0 ? { phase: { type: 'line', xMin: explorationEnd, xMax: explorationEnd, borderColor: COLOURS.second, borderWidth: 1.5, borderDash: [5, 4], label: { display: false } } } : {},
+          annotations: searchEnd > 0 ? { phase: { type: 'line', xMin: searchEnd, xMax: searchEnd, borderColor: COLOURS.second, borderWidth: 1.5, borderDash: [5, 4], label: { display: false } } } : {},
         } as never,
       },
       scales: { x: axis('iteration', 'linear', { ticks: { maxTicksLimit: 5 } }), y: { ticks: { maxTicksLimit: 4 } } },
