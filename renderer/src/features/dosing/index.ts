@@ -1,0 +1,1 @@
+export { default as DosingView } from './DosingView.svelte';

@@ -1,0 +1,1 @@
+export { default as QueueView } from './QueueView.svelte';

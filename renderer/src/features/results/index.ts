@@ -1,0 +1,1 @@
+export { default as ResultsView } from './ResultsView.svelte';

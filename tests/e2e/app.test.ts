@@ -1,0 +1,287 @@
+/**
+ * The whole job as a new user does it, in Debian's Chromium against the real web host and its
+ * real services (no stand-in): acknowledge the caution, import the demo spreadsheet, set up and
+ * save a model, queue two fits with two seeds, watch them run, open and compare the results, get
+ * dose advice for the demo patient (blocked: the demo model is an example), override, and print
+ * the dosing report to PDF. Every view is checked with axe-core. The test fails on any console
+ * error or failed request. Screenshots go to test-artifacts/ (gitignored).
+ */
+import { execFileSync } from 'node:child_process';
+import { existsSync, readFileSync } from 'node:fs';
+import * as path from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { ARTIFACTS, CHROMIUM, openBrowser, type Session } from './helpers/browser.js';
+import { seriousViolations } from './helpers/axe.js';
+import { ROOT, startHost, type RunningHost } from './helpers/host.js';
+
+const haveChromium = existsSync(CHROMIUM);
+const built = existsSync(path.join(ROOT, 'dist', 'renderer', 'index.html')) && existsSync(path.join(ROOT, 'dist', 'main', 'start.js'));
+
+describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real services)', () => {
+  let host: RunningHost;
+  let s: Session;
+
+  beforeAll(async () => {
+    host = await startHost();
+    s = await openBrowser({ width: 1366, height: 768 });
+  }, 60_000);
+
+  afterAll(async () => {
+    await s?.close();
+    await host?.stop();
+  });
+
+  const view = (name: string) => s.page.getByRole('navigation', { name: 'Views' }).getByRole('button', { name: new RegExp(`^${name}`) });
+  const heading = (name: string) => s.page.getByRole('heading', { level: 1, name });
+
+  async function accessible(label: string) {
+    const v = await seriousViolations(s.page);
+    expect(v, `${label}: ${JSON.stringify(v, null, 1)}`).toEqual([]);
+  }
+
+  it('does the whole job on the demo project', async () => {
+    const page = s.page;
+    await page.goto(host.url);
+
+    // First run: the caution must be acknowledged before anything else.
+    const dialog = page.getByRole('dialog');
+    await expect.poll(() => dialog.isVisible()).toBe(true);
+    expect(await dialog.textContent()).toContain('decision support for qualified clinicians');
+    const cont = page.getByRole('button', { name: 'Continue to Plateau' });
+    expect(await cont.isDisabled()).toBe(true);
+    await s.shot('01-first-run');
+    await accessible('first run');
+    await page.getByRole('checkbox', { name: /I have read this/ }).check();
+    await cont.click();
+    await expect.poll(() => dialog.count()).toBe(0);
+
+    // Keyboard: Alt+number switches view and puts focus on its heading; the navigation is reached by Tab with a visible outline.
+    await page.keyboard.press('Alt+5');
+    await heading('Dosing').waitFor();
+    expect(await page.evaluate('document.activeElement?.tagName')).toBe('H1');
+    await page.keyboard.press('Alt+1');
+    await heading('Import').waitFor();
+    // From the view's heading, Shift+Tab goes back into the navigation (its last entry).
+    await page.keyboard.press('Shift+Tab');
+    const focused = page.locator(':focus');
+    expect(await focused.textContent()).toMatch(/^Dosing/);
+    expect(await focused.evaluate((el) => getComputedStyle(el).outlineStyle)).toBe('solid');
+
+    // Import the demo spreadsheet, accept the suggested roles, see the report, add it.
+    await view('Import').click();
+    await heading('Import').waitFor();
+    await page.getByLabel(/Open a spreadsheet/).setInputFiles(path.join(ROOT, 'resources', 'demo', 'ward-levels.csv'));
+    await page.getByRole('heading', { name: /Summary of ward-levels\.csv/ }).waitFor({ timeout: 30_000 });
+    const summary = await page.locator('.summary').textContent();
+    expect(summary).toMatch(/\d+ patients · \d+ doses · \d+ levels/);
+    expect(await page.getByLabel(/Role of column A \(subject\)/).inputValue()).toBe('patientId');
+    expect(await page.getByRole('heading', { name: /^4\. Problems \(\d+\)/ }).isVisible()).toBe(true);
+    await s.shot('02-import');
+    await accessible('Import');
+    await page.getByLabel('Dataset name').fill('Ward levels (imported)');
+    await page.getByRole('button', { name: 'Add the dataset to the project' }).click();
+    await page.getByText(/Added\. Next: choose a model/).waitFor();
+
+    // A messier export (invented ward data, semicolons, German headers): its problems, each leading to its row.
+    await page.getByLabel(/Open a spreadsheet/).setInputFiles(path.join(ROOT, 'tests', 'fixtures', 'import', 'ward7b_german.csv'));
+    await page.getByRole('heading', { name: /Summary of ward7b_german\.csv/ }).waitFor({ timeout: 30_000 });
+    const problemLinks = page.getByRole('button', { name: /, row \d+/ });
+    expect(await problemLinks.count()).toBeGreaterThan(0);
+    const first = (await problemLinks.first().textContent()) as string;
+    await problemLinks.first().click();
+    const row = /, row (\d+)/.exec(first)![1];
+    await page.getByRole('heading', { name: new RegExp(`, row ${row}$`) }).waitFor();
+    expect(await page.locator('pre.rowtext mark').textContent()).toMatch(/;/);
+    await page.getByRole('heading', { name: /^4\. Problems/ }).scrollIntoViewIfNeeded();
+    await s.shot('02b-import-problems');
+    await page.getByRole('heading', { name: /Per-patient timeline/ }).scrollIntoViewIfNeeded();
+    await s.shot('02c-import-timeline');
+    await accessible('Import (problems)');
+
+    // Models: one compartment, short estimation so the test stays quick, the curves over the data, save.
+    await view('Models').click();
+    await heading('Models').waitFor();
+    await page.getByRole('radio', { name: /One compartment, linear/ }).check();
+    await page.getByLabel('Model name').fill('1-cmt quick');
+    await page.getByLabel('CL initial value (L/h)').fill('5');
+    await page.getByLabel('V initial value (L)').fill('40');
+    await page.getByLabel(/Exploration: at least/).fill('30');
+    await page.getByLabel(/Exploration: at most/).fill('60');
+    await page.getByLabel(/Averaging \(iterations\)/).fill('40');
+    await page.getByLabel(/Settle window/).fill('10');
+    await page.getByRole('img', { name: /Patient .*: levels and the curve at the initial values/ }).first().waitFor();
+    await page.getByRole('heading', { name: /Predictions at the initial values/ }).scrollIntoViewIfNeeded();
+    await s.shot('03-models');
+    await accessible('Models');
+    await page.getByRole('button', { name: 'Save the model to the project' }).click();
+    await page.getByText(/Saved\. Next: queue fits/).waitFor();
+
+    // Fit queue: two fits (seeds 1 and 2) of the saved model on the imported data; watch them.
+    await view('Fit queue').click();
+    await heading('Fit queue').waitFor();
+    const datasetValue = await page.getByLabel('Dataset').locator('option', { hasText: 'Ward levels (imported)' }).getAttribute('value');
+    await page.getByLabel('Dataset').selectOption(datasetValue as string);
+    const modelValue = await page.getByLabel('Model').locator('option', { hasText: '1-cmt quick' }).getAttribute('value');
+    await page.getByLabel('Model').selectOption(modelValue as string);
+    await page.getByLabel(/Seeds \(one fit per seed\)/).fill('1, 2');
+    await page.getByLabel(/Agreement check/).fill('2');
+    await page.getByRole('button', { name: 'Add to the queue' }).click();
+    await page.getByText('Running').first().waitFor({ timeout: 30_000 });
+    await page.getByRole('progressbar').first().waitFor();
+    // The live convergence charts: one per estimate, drawn from the worker's progress reports.
+    await page.getByRole('heading', { name: /^Convergence/ }).waitFor({ timeout: 30_000 });
+    await page.getByRole('img', { name: 'CL against iteration', exact: true }).waitFor();
+    await s.shot('04-queue-running');
+    await accessible('Fit queue');
+    await expect.poll(() => page.getByRole('button', { name: /Open the results of/ }).count(), { timeout: 150_000, interval: 1000 }).toBe(2);
+    await s.shot('05-queue-done');
+    expect(await page.getByText(/^Agreement across seeds: (stable|unstable)/).count()).toBe(2);
+
+    // Re-run with three other seeds, move the last one up, then cancel all three.
+    const rerunInput = page.getByLabel(/^Seeds to re-run .*seed 1 with$/);
+    await rerunInput.fill('3, 4, 5');
+    await rerunInput.locator('xpath=following-sibling::button').click();
+    await expect.poll(() => page.getByRole('button', { name: /^Move .* down$/ }).count(), { timeout: 30_000 }).toBeGreaterThanOrEqual(1);
+    const queuedBefore = await page.getByRole('button', { name: /^Move .* up$/ }).evaluateAll((b) => b.map((x) => x.getAttribute('aria-label')));
+    await page.getByRole('button', { name: queuedBefore[queuedBefore.length - 1] as string }).click();
+    await expect
+      .poll(async () => (await page.getByRole('button', { name: /^Move .* up$/ }).evaluateAll((b) => b.map((x) => x.getAttribute('aria-label')))).join('|'), { timeout: 10_000 })
+      .not.toBe(queuedBefore.join('|'));
+    while ((await page.getByRole('button', { name: /^Cancel / }).count()) > 0) {
+      await page.getByRole('button', { name: /^Cancel / }).first().click();
+      await page.waitForTimeout(200);
+    }
+    await expect.poll(() => page.getByText('Cancelled', { exact: true }).count(), { timeout: 30_000 }).toBeGreaterThanOrEqual(2);
+
+    // Results: open the first, tick the second for the comparison.
+    await page.getByRole('button', { name: /Open the results of/ }).first().click();
+    await heading('Results').waitFor();
+    await page.getByRole('table').filter({ hasText: 'Population estimates' }).waitFor({ timeout: 30_000 });
+    const estimates = await page.getByRole('table').filter({ hasText: 'Population estimates' }).textContent();
+    expect(estimates).toContain('CL (typical value) (L/h)');
+    expect(estimates).toContain('BSV of CL');
+    expect(await page.getByRole('row', { name: /−2 log-likelihood/ }).textContent()).toMatch(/± .*Monte Carlo error/);
+    expect(await page.getByRole('region', { name: 'Agreement of fits from other seeds' }).textContent()).toMatch(/Fits from 2 seeds/);
+    const unticked = page.getByRole('group', { name: /Show and compare/ }).getByRole('checkbox', { checked: false });
+    await unticked.first().check();
+    await page.getByRole('heading', { name: 'Model comparison' }).waitFor();
+    await s.shot('06-results');
+    await accessible('Results');
+    for (const [i, plot] of ['Observed vs predicted', 'Residuals and NPDE', 'Individual fits', 'VPC', 'Random effects vs covariates', 'Convergence'].entries()) {
+      await page.getByRole('button', { name: plot, exact: true }).click();
+      expect(await page.getByRole('button', { name: plot, exact: true }).getAttribute('aria-pressed')).toBe('true');
+      await page.getByRole('heading', { name: 'Diagnostic plots' }).scrollIntoViewIfNeeded();
+      await page.waitForTimeout(150);
+      await s.shot(`07-results-plot-${i + 1}`);
+    }
+    expect(await page.getByRole('img', { name: /^Convergence of CL$/ }).count()).toBe(1);
+    // The tables as .xlsx: a real spreadsheet (zip container) arrives as a download.
+    const [download] = await Promise.all([page.waitForEvent('download'), page.getByRole('button', { name: 'Export tables (.xlsx)' }).click()]);
+    expect(download.suggestedFilename()).toMatch(/\.xlsx$/);
+    const xlsx = readFileSync((await download.path()) as string);
+    expect(xlsx.subarray(0, 2).toString('latin1')).toBe('PK');
+    await page.getByText(/^Saved .*\.xlsx to your downloads\./).waitFor();
+
+    // The fit report as printed (print stylesheet: every plot, no navigation, no buttons).
+    await page.evaluate('window.print = () => undefined');
+    await page.getByRole('button', { name: 'Print the fit report' }).click();
+    const fitPdf = path.join(ARTIFACTS, 'fit-report.pdf');
+    await page.pdf({ path: fitPdf, format: 'A4', printBackground: true, margin: { top: '12mm', bottom: '12mm', left: '12mm', right: '12mm' } });
+    const fitText = execFileSync('pdftotext', ['-layout', fitPdf, '-'], { encoding: 'utf8' });
+    expect(fitText).toContain('Population estimates');
+    expect(fitText).toMatch(/−2 log-likelihood\s+[\d.]+ ± [\d.]+/);
+    expect(fitText).toContain('Model comparison');
+    expect(fitText).not.toContain('Advice for one patient');
+    expect(fitText).not.toContain('Export tables (.xlsx)');
+    for (const part of ['Observed against predictions', 'Residuals and NPDE', 'Prediction-corrected VPC', 'Individual fits (page 1 of', 'Convergence']) expect(fitText).toContain(part);
+
+    // Dosing, first with the literature example model: blocked (labelled "not for clinical use"), then overridden.
+    await view('Dosing').click();
+    await heading('Dosing').waitFor();
+    expect(await page.getByRole('region', { name: 'Caution' }).textContent()).toContain('decision support for qualified clinicians');
+    const prior = page.getByLabel('Model the advice is based on');
+    await prior.selectOption((await prior.locator('option', { hasText: 'Example vancomycin-like' }).getAttribute('value')) as string);
+    await page.getByLabel(/Or load a patient file/).setInputFiles(path.join(ROOT, 'resources', 'demo', 'patient.json'));
+    await expect.poll(() => page.getByLabel('Patient identifier (no names)').inputValue()).toBe('demo bed 4 (invented patient)');
+    expect(await page.getByLabel('Level 1 concentration (mg/L)').inputValue()).toBe('18.4');
+    await page.getByLabel('Target preset').selectOption('vancomycin-auc24');
+    await page.getByRole('button', { name: 'Compute dose advice' }).click();
+    const verdict = page.locator('div.verdict');
+    await verdict.waitFor({ timeout: 60_000 });
+    expect(await verdict.textContent()).toMatch(/Blocked: no dose advice.*not for clinical use/s);
+    expect(await page.getByRole('table').filter({ hasText: 'Regimens ranked' }).count()).toBe(0);
+    await s.shot('08-dosing-blocked');
+    await accessible('Dosing (blocked)');
+    await page.getByRole('button', { name: /Show the regimens anyway/ }).click();
+    await page.getByText(/Blocked – regimens shown on request only/).waitFor({ timeout: 60_000 });
+    const blockedTable = page.getByRole('table').filter({ hasText: 'Regimens ranked' });
+    expect(await blockedTable.textContent()).toMatch(/BLOCKED: shown on request only/);
+    expect(await blockedTable.getByRole('row').nth(1).textContent()).toMatch(/mg every \d+ h/);
+    await s.shot('09-dosing-override');
+
+    // A model from a publication, entered in the form (invented values here): checked as typed.
+    await prior.selectOption('entered');
+    await page.getByText('Source: give the publication').waitFor();
+    await page.getByLabel('Model name', { exact: true }).fill('Invented literature-style model (test)');
+    await page.getByLabel(/^Source: the publication/).fill('Invented for the UI test; adults on a general ward');
+    await page.getByLabel('From', { exact: true }).fill('40');
+    await page.getByLabel('To', { exact: true }).fill('130');
+    await page.getByLabel('CL published value (L/h)').fill('3.5');
+    await page.getByText('The model reads correctly.').waitFor();
+    await page.getByRole('button', { name: 'Compute dose advice' }).click();
+    await page.getByText(/^Model: Invented literature-style model \(test\) \(model spec, 1cmt\)/).waitFor({ timeout: 60_000 });
+    expect(await page.getByText(/^Model: .*source: Invented for the UI test/).count()).toBe(1);
+
+    // Then the site fit as the prior: advice for the demo patient.
+    await prior.selectOption((await prior.locator('option', { hasText: '1-cmt quick' }).first().getAttribute('value')) as string);
+    await page.getByRole('button', { name: 'Compute dose advice' }).click();
+    await page.getByText(/^Model: .*\(site fit, 1cmt\)/).waitFor({ timeout: 60_000 });
+    expect(await verdict.textContent()).toMatch(/Recommended regimen: .*mg every \d+ h|Blocked/);
+    const table = page.getByRole('table').filter({ hasText: /Regimens ranked|Evaluated regimen/ });
+    expect(await table.getByRole('row').nth(1).textContent()).toMatch(/\d+ %/);
+    expect(await page.getByRole('img', { name: /Forecast concentration over time with 80 % and 95 % credible bands/ }).count()).toBe(1);
+    expect(await page.getByRole('table').filter({ hasText: 'prior' }).first().textContent()).toMatch(/CL \(L\/h\)/);
+
+    // What-if: a regimen typed in is redrawn in the page.
+    await page.getByLabel('Dose (mg)').fill('1500');
+    await page.getByLabel('Every (h)').fill('12');
+    await page.getByRole('button', { name: 'Draw', exact: true }).click();
+    await page.getByText(/What-if 1500 mg every 12 h/).waitFor({ timeout: 30_000 });
+    await page.locator('#forecast-chart').scrollIntoViewIfNeeded();
+    await s.shot('10-dosing-whatif');
+    await accessible('Dosing (advice)');
+
+    // Print the dosing report to PDF and read it back.
+    await page.getByLabel(/Reviewing clinician/).fill('Dr Reviewer (invented)');
+    await page.evaluate('window.print = () => undefined');
+    await page.getByRole('button', { name: 'Print the dosing report' }).click();
+    await page.waitForTimeout(300);
+    const pdf = path.join(ARTIFACTS, 'dosing-report.pdf');
+    await page.pdf({ path: pdf, format: 'A4', printBackground: true, margin: { top: '12mm', bottom: '12mm', left: '12mm', right: '12mm' } });
+    const text = execFileSync('pdftotext', ['-layout', pdf, '-'], { encoding: 'utf8' });
+    expect(text).toContain('Plateau dosing report');
+    expect(text).toContain('demo bed 4 (invented patient)');
+    expect(text).toMatch(/Recommended: .*mg every|BLOCKED/);
+    expect(text).toContain('1-cmt quick');
+    expect(text).toContain('decision support for qualified clinicians');
+    expect(text).toContain('Reviewing clinician: Dr Reviewer (invented)');
+    expect(text).toMatch(/Signature: _+/);
+    expect(text).toContain('Rybak');
+    expect(text).not.toContain('Compute dose advice');
+
+    // The session is kept in the project.
+    await page.getByRole('button', { name: 'Save to the project' }).click();
+    await page.getByText(/^Saved as /).waitFor();
+
+    // A patient can also be picked from a dataset of the project (times in hours from the first dose).
+    const ds = page.getByLabel('Dataset to pick from');
+    await ds.selectOption((await ds.locator('option', { hasText: 'Ward levels (imported)' }).getAttribute('value')) as string);
+    await page.getByLabel('Patient in the dataset').selectOption('HX-002');
+    await expect.poll(() => page.getByLabel('Patient identifier (no names)').inputValue()).toBe('HX-002');
+    expect(await page.getByLabel('Times are entered as').inputValue()).toBe('hours');
+    expect(await page.getByLabel('Dose 1 amount (mg)').inputValue()).toBe('1250');
+    expect(await page.getByLabel('Level 1 concentration (mg/L)').inputValue()).toMatch(/^8\.89/);
+
+    expect(s.failures).toEqual([]);
+  }, 240_000);
+});
