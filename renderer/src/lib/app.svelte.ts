@@ -5,7 +5,7 @@
 import { request, subscribe } from './bridge/index.js';
 import type { AppInfo, ProjectSummary } from './types.js';
 
-export type ViewId = 'import' | 'models' | 'queue' | 'results' | 'dosing';
+export type ViewId = 'import' | 'models' | 'queue' | 'results' | 'dosing' | 'verify';
 
 export const VIEWS: ReadonlyArray<{ id: ViewId; label: string; hint: string }> = [
   { id: 'import', label: 'Import', hint: 'Read a spreadsheet of doses and levels' },
@@ -13,6 +13,7 @@ export const VIEWS: ReadonlyArray<{ id: ViewId; label: string; hint: string }> =
   { id: 'queue', label: 'Fit queue', hint: 'Fits waiting, running and done' },
   { id: 'results', label: 'Results', hint: 'Estimates, diagnostics, comparisons' },
   { id: 'dosing', label: 'Dosing', hint: 'Advice for one patient' },
+  { id: 'verify', label: 'Verify installation', hint: 'Check this PC against the references' },
 ];
 
 export class AppState {
