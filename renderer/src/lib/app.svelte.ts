@@ -13,7 +13,6 @@ export const VIEWS: ReadonlyArray<{ id: ViewId; label: string; hint: string }> =
   { id: 'queue', label: 'Fit queue', hint: 'Fits waiting, running and done' },
   { id: 'results', label: 'Results', hint: 'Estimates, diagnostics, comparisons' },
   { id: 'dosing', label: 'Dosing', hint: 'Advice for one patient' },
-  { id: 'verify', label: 'Verify installation', hint: 'Check this PC against the references' },
 ];
 
 export class AppState {

@@ -1,0 +1,104 @@
+/**
+ * Help > Verify this installation in Debian's Chromium against the real web host: open the view
+ * from the header, run the quick suite (in the host's engine worker), watch every check of the
+ * suite reach its state, see PASS, print the report to PDF (page.pdf, the browser's print path)
+ * with the version, the engine hash and the signature lines in its text, and find the run among
+ * the runs saved in the project. axe-core on the view; fails on console errors and failed
+ * requests. The checks' own references are resources/validation (suite.json names each source).
+ */
+import { execFileSync } from 'node:child_process';
+import { existsSync, readFileSync, readdirSync } from 'node:fs';
+import * as path from 'node:path';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { ARTIFACTS, CHROMIUM, openBrowser, type Session } from './helpers/browser.js';
+import { seriousViolations } from './helpers/axe.js';
+import { ROOT, startHost, type RunningHost } from './helpers/host.js';
+
+const haveChromium = existsSync(CHROMIUM);
+const built = existsSync(path.join(ROOT, 'dist', 'renderer', 'index.html')) && existsSync(path.join(ROOT, 'dist', 'main', 'start.js'));
+const suite = JSON.parse(readFileSync(path.join(ROOT, 'resources', 'validation', 'suite.json'), 'utf8')) as { checks: { id: string; quick: boolean }[] };
+const quickIds = suite.checks.filter((c) => c.quick).map((c) => c.id);
+
+describe.skipIf(!haveChromium || !built)('Verify this installation in Chromium (web host, real services)', () => {
+  let host: RunningHost;
+  let s: Session;
+
+  beforeAll(async () => {
+    host = await startHost();
+    s = await openBrowser({ width: 1366, height: 768 });
+  }, 60_000);
+
+  afterAll(async () => {
+    await s?.close();
+    await host?.stop();
+  });
+
+  it('runs the quick suite with progress, shows PASS and every check, prints the report', async () => {
+    const page = s.page;
+    await page.goto(host.url);
+    // The caution is acknowledged first (first run), as every user does.
+    await page.getByRole('checkbox', { name: /I have read this/ }).check();
+    await page.getByRole('button', { name: 'Continue to Plateau' }).click();
+    await expect.poll(() => page.getByRole('dialog').count()).toBe(0);
+
+    await page.getByRole('button', { name: 'Verify this installation' }).click();
+    const heading = page.getByRole('heading', { level: 1, name: 'Verify this installation' });
+    await heading.waitFor();
+    expect(await page.evaluate('document.activeElement?.tagName')).toBe('H1');
+    expect(await page.getByText('No verification has been run in this project yet.').isVisible()).toBe(true);
+    await s.shot('verify-01-view');
+    expect(await seriousViolations(page)).toEqual([]);
+
+    // Keyboard: the quick suite starts from the keyboard.
+    await page.getByRole('button', { name: 'Run the quick suite' }).focus();
+    await page.keyboard.press('Enter');
+    await page.getByRole('button', { name: 'Cancel the run' }).waitFor({ timeout: 10_000 }).catch(() => undefined);
+    const verdict = page.getByRole('status', { name: /Verification result: (PASS|FAIL)/ });
+    await verdict.waitFor({ timeout: 120_000 });
+    expect(await verdict.getAttribute('aria-label')).toBe('Verification result: PASS');
+
+    // The progress list holds every check of the quick suite, each with its final state.
+    const items = page.locator('ol.checklist li');
+    expect(await items.count()).toBe(quickIds.length);
+    const listed = await items.locator('.cid').allTextContents();
+    expect(listed).toEqual(quickIds);
+    for (const state of await items.locator('.state').allTextContents()) expect(state).toMatch(/^(PASS|not run \(planned\))$/);
+    expect(await page.getByRole('heading', { level: 2, name: new RegExp(`${quickIds.length} of ${quickIds.length} checks done`) }).isVisible()).toBe(true);
+
+    // The report lists every check with its result.
+    const reportRows = page.locator('article.vreport table.checks tbody tr');
+    expect(await reportRows.count()).toBe(quickIds.length);
+    await s.shot('verify-02-done');
+    await page.locator('article.vreport').scrollIntoViewIfNeeded();
+    await s.shot('verify-03-report');
+    expect(await seriousViolations(page)).toEqual([]);
+
+    // Saved in the project folder and listed among the saved runs.
+    const runs = readdirSync(path.join(host.projectDir, 'validation'));
+    expect(runs).toHaveLength(1);
+    expect(existsSync(path.join(host.projectDir, 'validation', runs[0], 'report.html'))).toBe(true);
+    const saved = JSON.parse(readFileSync(path.join(host.projectDir, 'validation', runs[0], 'report.json'), 'utf8')) as { status: string; engine: { sha256: string }; application: { version: string; engineVersion: string } };
+    expect(saved.status).toBe('PASS');
+    const pastRow = page.getByRole('region', { name: 'Runs saved in this project' }).locator('tbody tr');
+    await expect.poll(() => pastRow.count()).toBe(1);
+    expect(await pastRow.textContent()).toMatch(/quick\s*PASS/);
+
+    // Print: the browser's print path (print stylesheet) to PDF.
+    const pdf = path.join(ARTIFACTS, 'verification-report.pdf');
+    await page.pdf({ path: pdf, format: 'A4', printBackground: true, margin: { top: '12mm', bottom: '12mm', left: '12mm', right: '12mm' } });
+    const text = execFileSync('pdftotext', ['-layout', pdf, '-'], { encoding: 'utf8' });
+    expect(text).toMatch(/PASS/);
+    expect(text).toContain(saved.engine.sha256);
+    expect(text).toContain(`engine ${saved.application.engineVersion}`);
+    expect(text).toContain(saved.application.version);
+    expect(text).toContain('Validating pharmacist (name)');
+    expect(text).toContain('Signature');
+    expect(text).toContain('Reviewed by (name, role)');
+    for (const id of quickIds) expect(text).toContain(id);
+    // The screen-only parts are not printed.
+    expect(text).not.toContain('Run the quick suite');
+    expect(text).not.toContain('Runs saved in this project');
+
+    expect(s.failures).toEqual([]);
+  }, 240_000);
+});
