@@ -99,6 +99,14 @@ describe.skipIf(!haveChromium || !built)('Verify this installation in Chromium (
     expect(text).not.toContain('Run the quick suite');
     expect(text).not.toContain('Runs saved in this project');
 
+    // Cancel: the full suite stops at once, says so, and saves nothing.
+    await page.getByRole('button', { name: 'Run the full suite' }).click();
+    await page.locator('ol.checklist li.running').first().waitFor({ timeout: 30_000 });
+    await page.getByRole('button', { name: 'Cancel the run' }).click();
+    await page.getByText('The verification was cancelled.').waitFor({ timeout: 30_000 });
+    expect(await page.getByRole('button', { name: 'Run the full suite' }).isEnabled()).toBe(true);
+    expect(readdirSync(path.join(host.projectDir, 'validation'))).toHaveLength(1);
+
     expect(s.failures).toEqual([]);
   }, 240_000);
 });
