@@ -18,9 +18,13 @@ export class VerifyState {
   notice = $state<string | null>(null);
   cancelling = $state(false);
 
-  /** Listen for progress; returns the function that stops listening. */
-  listen(): () => void {
-    return subscribe('verify-progress', (e) => {
+  private listening = false;
+
+  /** Listen for progress (once for the page: a run goes on while another view is shown). */
+  listen(): void {
+    if (this.listening) return;
+    this.listening = true;
+    subscribe('verify-progress', (e) => {
       if (this.running) this.progress = applyProgress(this.progress, e);
     });
   }
@@ -96,3 +100,6 @@ export class VerifyState {
     requestAnimationFrame(() => requestAnimationFrame(() => window.print()));
   }
 }
+
+/** One for the page, so a run and its report survive a switch to another view and back. */
+export const verifyState = new VerifyState();
