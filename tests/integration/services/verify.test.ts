@@ -4,7 +4,7 @@
  * report and its HTML are saved in the project with an audit entry, and verify.cancel stops a
  * run. The checks' own reference values and sources are the suite's (resources/validation).
  */
-import { mkdtempSync, readFileSync } from 'node:fs';
+import { cpSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import * as path from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -101,4 +101,32 @@ describe('verify.run in the application service', () => {
     const missing = await call('verify.get', { runId: 'v-nothing' });
     expect(missing.ok).toBe(false);
   });
+});
+
+describe('verify.run with a damaged validation set', () => {
+  it('reports FAIL, names the check, and still saves the report and logs FAIL', async () => {
+    // A copy of resources/ where one closed-form reference concentration is 1 % off: the engine
+    // is right, so the comparison must fail on exactly that check.
+    const resCopy = mkdtempSync(path.join(tmpdir(), 'plateau-verify-res-'));
+    cpSync(resourcesDir, resCopy, { recursive: true });
+    const refFile = path.join(resCopy, 'validation', 'reference', 'closed-form', 'closed_form.json');
+    const ref = JSON.parse(readFileSync(refFile, 'utf8')) as { cases: { concMgL: number[] }[] };
+    ref.cases[0].concMgL[3] *= 1.01;
+    writeFileSync(refFile, JSON.stringify(ref));
+    const project = mkdtempSync(path.join(tmpdir(), 'plateau-verify-fail-'));
+    const broken = await AppService.start({ workerEntry: engineWorkerPath, resourcesDir: resCopy, engineDir, projectDir: project, host: 'web', concurrency: 1, log: () => undefined });
+    try {
+      const r = (await broken.handle('verify.run', { quick: true })) as Result<VerificationRun>;
+      if (!r.ok) throw new Error(`${r.error.kind}: ${r.error.message}`);
+      expect(r.value.report.status).toBe('FAIL');
+      expect(r.value.report.checks.filter((c) => c.status === 'fail').map((c) => c.id)).toEqual(['models.closed-form']);
+      expect(r.value.html).toMatch(/FAIL/);
+      const audit = await broken.store.readAudit();
+      expect(audit.find((a) => a.action === 'verification.run')?.detail).toMatch(/^verification run \(quick\): FAIL/);
+      const list = (await broken.handle('verify.list', undefined)) as Result<VerificationRunSummary[]>;
+      expect(list.ok && list.value.map((x) => x.status)).toEqual(['FAIL']);
+    } finally {
+      await broken.close();
+    }
+  }, 240_000);
 });
