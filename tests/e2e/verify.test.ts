@@ -7,12 +7,14 @@
  * requests. The checks' own references are resources/validation (suite.json names each source).
  */
 import { execFileSync } from 'node:child_process';
-import { existsSync, readFileSync, readdirSync } from 'node:fs';
+import { cpSync, existsSync, mkdtempSync, readFileSync, readdirSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
 import * as path from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ARTIFACTS, CHROMIUM, openBrowser, type Session } from './helpers/browser.js';
 import { seriousViolations } from './helpers/axe.js';
 import { ROOT, startHost, type RunningHost } from './helpers/host.js';
+import { AppService } from '../../main/services/appService.js';
 
 const haveChromium = existsSync(CHROMIUM);
 const built = existsSync(path.join(ROOT, 'dist', 'renderer', 'index.html')) && existsSync(path.join(ROOT, 'dist', 'main', 'start.js'));
@@ -107,6 +109,43 @@ describe.skipIf(!haveChromium || !built)('Verify this installation in Chromium (
     expect(await page.getByRole('button', { name: 'Run the full suite' }).isEnabled()).toBe(true);
     expect(readdirSync(path.join(host.projectDir, 'validation'))).toHaveLength(1);
 
+    expect(s.failures).toEqual([]);
+  }, 240_000);
+
+  it('shows a failed run from the project with FAIL and the failing check', async () => {
+    // A real run against a validation set whose closed-form reference is 1 % off (in a copy of
+    // resources/, in a project of its own), then its saved folder copied into the host's project.
+    const resCopy = mkdtempSync(path.join(tmpdir(), 'plateau-e2e-res-'));
+    cpSync(path.join(ROOT, 'resources'), resCopy, { recursive: true });
+    const refFile = path.join(resCopy, 'validation', 'reference', 'closed-form', 'closed_form.json');
+    const ref = JSON.parse(readFileSync(refFile, 'utf8')) as { cases: { concMgL: number[] }[] };
+    ref.cases[0].concMgL[3] *= 1.01;
+    writeFileSync(refFile, JSON.stringify(ref));
+    const other = await AppService.start({ workerEntry: path.join(ROOT, 'dist', 'main', 'worker', 'engineWorker.js'), resourcesDir: resCopy, engineDir: path.join(ROOT, 'dist', 'engine'), projectDir: mkdtempSync(path.join(tmpdir(), 'plateau-e2e-fail-')), host: 'web', concurrency: 1, log: () => undefined });
+    let savedIn = '';
+    try {
+      const r = await other.handle('verify.run', { quick: true });
+      if (!r.ok) throw new Error(r.error.message);
+      savedIn = (r.value as { savedIn: string }).savedIn;
+    } finally {
+      await other.close();
+    }
+    cpSync(savedIn, path.join(host.projectDir, 'validation', path.basename(savedIn)), { recursive: true });
+
+    const page = s.page;
+    await page.reload();
+    await page.getByRole('button', { name: 'Verify this installation' }).click();
+    await page.getByRole('heading', { level: 1, name: 'Verify this installation' }).waitFor();
+    const show = page.getByRole('button', { name: /Show the report of .*\(FAIL\)/ });
+    await show.waitFor();
+    await show.click();
+    const verdict = page.getByRole('status', { name: 'Verification result: FAIL' });
+    await verdict.waitFor();
+    expect(await verdict.textContent()).toMatch(/1 of \d+ checks FAILED: models\.closed-form/);
+    expect(await page.locator('article.vreport table.checks tr.failed').count()).toBe(1);
+    await verdict.scrollIntoViewIfNeeded();
+    await s.shot('verify-04-fail');
+    expect(await seriousViolations(page)).toEqual([]);
     expect(s.failures).toEqual([]);
   }, 240_000);
 });
