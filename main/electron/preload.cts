@@ -37,6 +37,9 @@ export const PRELOAD_METHODS: Readonly<Record<string, string>> = Object.freeze({
   dosingSaveSession: 'dosing.saveSession',
   reportPdf: 'report.pdf',
   verifyRun: 'verify.run',
+  verifyCancel: 'verify.cancel',
+  verifyList: 'verify.list',
+  verifyGet: 'verify.get',
 });
 /** Host methods beyond the protocol (main/electron/dialogs.ts). */
 export const PRELOAD_HOST_METHODS: Readonly<Record<string, string>> = Object.freeze({

@@ -16,7 +16,10 @@ import type { FitRecord } from '../../engine/saem/fitRecord.js';
 import type { ModelSpec } from '../../engine/spec/modelSpec.js';
 import type { ERROR_KINDS } from './errors.js';
 import type { Channel, EventName, RequestOf } from './schemas.js';
+import type { VerificationReport } from '../verify/types.js';
 import type { ProgressMessage } from './worker.js';
+
+export type { VerificationReport, CheckResult, CheckRow, CheckStatus } from '../verify/types.js';
 
 export type { Channel, EventName, RequestOf } from './schemas.js';
 
@@ -201,6 +204,39 @@ export interface FileValue {
   bytesBase64: string;
 }
 
+/** A verification run saved in the project (validation/<runId>/report.json and report.html). */
+export interface VerificationRunSummary {
+  runId: string;
+  mode: 'quick' | 'full';
+  status: 'PASS' | 'FAIL';
+  startedAt: string;
+  durationMs: number;
+  total: number;
+  passed: number;
+  failed: number;
+  notRun: number;
+}
+/** verify.run and verify.get: the report, its printable HTML and where the project keeps them. */
+export interface VerificationRun {
+  runId: string;
+  report: VerificationReport;
+  /** Self-contained HTML (main/verify/reportHtml.ts): shown in a sandboxed frame and printed. */
+  html: string;
+  /** Folder of the project holding report.json and report.html. */
+  savedIn: string;
+}
+/** One check of a running verification: starting (running) or ended. */
+export interface VerifyProgressEvent {
+  runId: string;
+  id: string;
+  title: string;
+  /** 1-based position of the check in the run, of `total`. */
+  index: number;
+  total: number;
+  status: 'running' | 'pass' | 'fail' | 'not-run';
+  durationMs?: number;
+}
+
 /** The value each channel answers. */
 export interface ResponseMap {
   'app.info': AppInfo;
@@ -227,14 +263,17 @@ export interface ResponseMap {
   'dosing.advise': Advice;
   'dosing.saveSession': { sessionId: string };
   'report.pdf': FileValue;
-  'verify.run': Record<string, unknown>;
+  'verify.run': VerificationRun;
+  'verify.cancel': { cancelled: boolean };
+  'verify.list': VerificationRunSummary[];
+  'verify.get': VerificationRun;
 }
 export type ResponseOf<C extends Channel> = ResponseMap[C];
 
 export interface EventMap {
   queue: QueueSnapshot;
   progress: ProgressEvent;
-  'verify-progress': { step: string; done: number; total: number };
+  'verify-progress': VerifyProgressEvent;
 }
 export type EventPayload<E extends EventName> = EventMap[E];
 
@@ -284,4 +323,7 @@ export const BRIDGE_METHODS: Readonly<Record<string, Channel>> = Object.freeze({
   dosingSaveSession: 'dosing.saveSession',
   reportPdf: 'report.pdf',
   verifyRun: 'verify.run',
+  verifyCancel: 'verify.cancel',
+  verifyList: 'verify.list',
+  verifyGet: 'verify.get',
 } satisfies { [C in Channel as MethodName<C>]: C });

@@ -113,6 +113,9 @@ export const REQUEST_SCHEMAS = {
   'dosing.saveSession': z.strictObject({ advice: JsonObject, reviewer: z.string().max(200).optional() }),
   'report.pdf': z.strictObject({ html: z.string().max(20 * 1024 * 1024) }),
   'verify.run': z.strictObject({ quick: z.boolean() }),
+  'verify.cancel': Empty,
+  'verify.list': Empty,
+  'verify.get': z.strictObject({ runId: Id }),
 } as const;
 
 export type Channel = keyof typeof REQUEST_SCHEMAS;

@@ -66,10 +66,19 @@ export const AdviseJob = z.strictObject({
   peakDelayH: z.number().min(0).max(1000).optional(),
   nextDoseH: z.number().min(0).max(1e6).optional(),
 });
+/** The installation verification (main/verify), with the folders the host gave. */
+export const VerifyJob = z.strictObject({
+  kind: z.literal('verify'),
+  quick: z.boolean(),
+  /** resources/validation of the installation (suite.json and the references). */
+  validationDir: z.string().min(1).max(4096),
+  /** The installed engine files whose hash the report carries (dist/engine). */
+  engineDir: z.string().min(1).max(4096),
+});
 /** Sleeps (cancellably) or spins: a job for tests and benchmarks of the process machinery. */
 export const ProbeJob = z.strictObject({ kind: z.literal('probe'), mode: z.enum(['echo', 'sleep', 'spin', 'crash', 'hang', 'alloc']), ms: z.number().min(0).max(600_000).optional(), value: z.unknown().optional() });
 
-export const JobRequestSchema = z.discriminatedUnion('kind', [ParseJob, FitJob, PostFitJob, SimulateJob, AdviseJob, ProbeJob]);
+export const JobRequestSchema = z.discriminatedUnion('kind', [ParseJob, FitJob, PostFitJob, SimulateJob, AdviseJob, VerifyJob, ProbeJob]);
 export type JobRequest = z.infer<typeof JobRequestSchema>;
 export type JobKind = JobRequest['kind'];
 
@@ -79,7 +88,7 @@ export const ToWorkerSchema = z.discriminatedUnion('type', [
 ]);
 export type ToWorker = z.infer<typeof ToWorkerSchema>;
 
-export const PROGRESS_PHASES = ['search', 'averaging', 'post-fit', 'repeat', 'parse', 'simulate', 'advise'] as const;
+export const PROGRESS_PHASES = ['search', 'averaging', 'post-fit', 'repeat', 'parse', 'simulate', 'advise', 'verify'] as const;
 export type ProgressPhase = (typeof PROGRESS_PHASES)[number];
 
 export const ProgressSchema = z.strictObject({
@@ -90,6 +99,17 @@ export const ProgressSchema = z.strictObject({
   /** Current estimates by name (typical values natural scale, BSV as SD); non-finite ones omitted. */
   estimates: z.record(z.string().max(200), z.number()),
   message: z.string().max(2000).optional(),
+  /** Verification only: the check that starts (status running) or ended. Never throttled away. */
+  check: z
+    .strictObject({
+      id: z.string().max(200),
+      title: z.string().max(2000),
+      index: z.number().int().min(1),
+      total: z.number().int().min(1),
+      status: z.enum(['running', 'pass', 'fail', 'not-run']),
+      durationMs: z.number().min(0).optional(),
+    })
+    .optional(),
 });
 export type ProgressMessage = z.infer<typeof ProgressSchema>;
 

@@ -13,7 +13,8 @@ import { parseTarget } from '../../engine/dosing/targets.js';
 import type { Analysis } from '../../engine/import/analyse.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
-import type { CatalogueEntry, EventName, EventPayload, ImportPreview, LiteratureModel, WireResponse, Result, TargetPreset, TimelineSubject } from '../protocol/bridge.js';
+import type { CatalogueEntry, EventName, EventPayload, ImportPreview, LiteratureModel, WireResponse, Result, TargetPreset, TimelineSubject, VerificationRun, VerifyProgressEvent } from '../protocol/bridge.js';
+import type { VerificationReport } from '../verify/types.js';
 import { guardPlainData } from '../protocol/guard.js';
 import { RequestEnvelope, type Channel, type RequestOf } from '../protocol/schemas.js';
 import { validateRequest } from '../protocol/validate.js';
@@ -36,6 +37,11 @@ export interface ServiceRoots {
   resourcesDir: string;
   /** The project folder; created with the demo project on first run. */
   projectDir: string;
+  /**
+   * The installed engine files (dist/engine), fingerprinted in the verification report. Without
+   * it verify.run refuses (the hash must be of the files that run, never a guessed folder).
+   */
+  engineDir?: string;
   /** The built renderer (for hosts that serve it; unused by the services). */
   rendererDir?: string;
   host: 'electron' | 'web';
@@ -59,11 +65,16 @@ interface ImportSession {
 }
 const MAX_IMPORT_SESSIONS = 4;
 const ADVICE_TIME_LIMIT_MS = 10 * 60_000;
+/** The full verification takes about 3 minutes on a 2-core PC; a slow PC gets room. */
+const VERIFY_TIME_LIMIT_MS = 20 * 60_000;
 
 type Handler<C extends Channel> = (payload: RequestOf<C>) => Promise<unknown>;
 
 export class AppService {
   private readonly imports = new Map<string, ImportSession>();
+  private readonly verifyListeners = new Set<(p: VerifyProgressEvent) => void>();
+  /** The verification running now (one at a time). */
+  private verifying: { runId: string; abort: AbortController } | undefined;
   private readonly log: (line: string) => void;
   private constructor(
     readonly roots: ServiceRoots,
@@ -117,10 +128,16 @@ export class AppService {
   subscribe<E extends EventName>(event: E, listener: (payload: EventPayload<E>) => void): () => void {
     if (event === 'queue') return this.queue.onQueue(listener as (p: EventPayload<'queue'>) => void);
     if (event === 'progress') return this.queue.onProgress(listener as (p: EventPayload<'progress'>) => void);
+    if (event === 'verify-progress') {
+      const l = listener as (p: VerifyProgressEvent) => void;
+      this.verifyListeners.add(l);
+      return () => void this.verifyListeners.delete(l);
+    }
     return () => undefined;
   }
 
   async close(): Promise<void> {
+    this.verifying?.abort.abort();
     await this.queue.close();
     await this.store.close();
   }
@@ -183,6 +200,50 @@ export class AppService {
     const rows = new Map(s.previewRows.map((r) => [r.sheet, r.rows]));
     const sheets = a.preview.map((sh) => ({ ...sh, previewRows: rows.get(sh.name) ?? [] }));
     return { importId, fileName: s.fileName, sheets, mapping: a.mapping, suggested: a.suggested, skippedSheets: a.skippedSheets, report: a.report, timeline, canAdd: s.dataset !== undefined && !hasErrors };
+  }
+
+  /**
+   * Installation verification (main/verify) in an engine worker: the suite of the installation's
+   * resources/validation against the engine files the host named, progress per check as
+   * `verify-progress` events, cancellable with verify.cancel. The report and its HTML are saved
+   * in the project (validation/<runId>/) with an audit entry, whatever the result.
+   */
+  private async verify(quick: boolean): Promise<VerificationRun> {
+    if (this.verifying) throw new ServiceError('usage', 'a verification is already running: wait for it to end or cancel it');
+    if (!this.roots.engineDir) throw new ServiceError('usage', 'this host gave no engine folder (ServiceRoots.engineDir), so the report could not name the files it checked; start Plateau through its own launcher');
+    const abort = new AbortController();
+    const runId = `run-${Date.now().toString(36)}`;
+    this.verifying = { runId, abort };
+    try {
+      const value = (await runEngineJob(
+        { kind: 'verify', quick, validationDir: path.join(this.roots.resourcesDir, 'validation'), engineDir: this.roots.engineDir },
+        { ...workerOptions(this.roots), jobTimeLimitMs: VERIFY_TIME_LIMIT_MS },
+        {
+          signal: abort.signal,
+          onProgress: (m) => {
+            if (!m.check) return;
+            const event: VerifyProgressEvent = { runId, ...m.check };
+            for (const l of this.verifyListeners) {
+              try {
+                l(event);
+              } catch (e) {
+                this.log(`verify-progress listener: ${(e as Error).message}`);
+              }
+            }
+          },
+        },
+      )) as { report?: VerificationReport; html?: unknown };
+      const report = value?.report;
+      if (!report || report.format !== 'plateau-verification-report/1' || !Array.isArray(report.checks) || typeof value.html !== 'string')
+        throw new ServiceError('worker', 'the verification worker answered without a complete report; run the verification again');
+      const saved = await this.store.saveVerification(report, value.html);
+      return { runId: saved.runId, report, html: value.html, savedIn: saved.savedIn };
+    } catch (e) {
+      if (abort.signal.aborted) await this.store.audit({ action: 'verification.cancel', detail: `verification run (${quick ? 'quick' : 'full'}) cancelled by the user; no report` });
+      throw e;
+    } finally {
+      this.verifying = undefined;
+    }
   }
 
   // --- channels ----------------------------------------------------------------------------
@@ -335,9 +396,14 @@ export class AppService {
     'report.pdf': async () => {
       throw new ServiceError('usage', `PDF reports are made by the ${this.roots.host === 'web' ? 'browser (print the report page)' : 'desktop window'}; this service does not print`);
     },
-    'verify.run': async () => {
-      throw new ServiceError('usage', 'verification is not part of this build');
+    'verify.run': async (p) => this.verify(p.quick),
+    'verify.cancel': async () => {
+      const running = this.verifying;
+      running?.abort.abort();
+      return { cancelled: running !== undefined };
     },
+    'verify.list': async () => this.store.listVerifications(),
+    'verify.get': async (p) => this.store.getVerification(p.runId),
   };
 }
 

@@ -27,7 +27,8 @@ import { datasetHash } from '../../engine/data/hash.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { parseModelSpec, type ModelSpec } from '../../engine/spec/modelSpec.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
-import type { DatasetSummary, DosingSessionSummary, FitSummary, ModelSummary, ProjectSummary, TemplateSummary } from '../protocol/bridge.js';
+import type { DatasetSummary, DosingSessionSummary, FitSummary, ModelSummary, ProjectSummary, TemplateSummary, VerificationRunSummary } from '../protocol/bridge.js';
+import type { VerificationReport } from '../verify/types.js';
 import { datasetFromWire } from './datasetWire.js';
 import { readRegularTextFile } from './fileGuard.js';
 import { parseJsonText, writeFileAtomic } from './files.js';
@@ -484,6 +485,49 @@ export class ProjectStore {
     const model = advice.model as { name?: unknown } | undefined;
     await this.audit({ action: 'dosing.save', id, model: String(model?.name ?? ''), seed: typeof advice.seed === 'number' ? advice.seed : undefined, detail: `patient ${patientId}, status ${status}${reviewer ? `, reviewer ${reviewer}` : ''}` } as AuditEntry);
     return id;
+  }
+
+  // --- installation verification runs ------------------------------------------------------
+
+  /**
+   * Saves a verification report as validation/<runId>/report.json and report.html (the HTML
+   * last, so a folder with report.html is complete) and logs it. No index entry: the folder is
+   * the list, so a run saved by an older index can never be lost from it.
+   */
+  async saveVerification(report: VerificationReport, html: string): Promise<{ runId: string; savedIn: string }> {
+    const runId = newId('v');
+    const rel = `validation/${runId}`;
+    await this.writeItem(`${rel}/report.json`, report);
+    await this.serial(() => writeFileAtomic(path.join(this.dir, rel, 'report.html'), html));
+    const s = report.summary;
+    await this.audit({ action: 'verification.run', id: runId, detail: `verification run (${report.mode}): ${report.status}, ${s.passed} of ${s.total} checks passed, ${s.failed} failed, ${s.notRun} not run; engine files sha256 ${report.engine.sha256}` });
+    return { runId, savedIn: path.join(this.dir, rel) };
+  }
+
+  /** Saved verification runs, newest first; a folder without a readable report is skipped. */
+  async listVerifications(): Promise<VerificationRunSummary[]> {
+    const dir = path.join(this.dir, 'validation');
+    const names = await fs.readdir(dir).catch(() => [] as string[]);
+    const out: VerificationRunSummary[] = [];
+    for (const runId of names) {
+      if (!ItemId.safeParse(runId).success) continue;
+      try {
+        const r = (await this.readItem(`validation/${runId}/report.json`, 'verification report')) as VerificationReport;
+        out.push({ runId, mode: r.mode, status: r.status, startedAt: r.startedAt, durationMs: r.durationMs, total: r.summary.total, passed: r.summary.passed, failed: r.summary.failed, notRun: r.summary.notRun });
+      } catch {
+        // a run whose files were removed or are being written
+      }
+    }
+    return out.sort((a, b) => (a.startedAt < b.startedAt ? 1 : a.startedAt > b.startedAt ? -1 : 0));
+  }
+
+  async getVerification(runId: string): Promise<{ runId: string; report: VerificationReport; html: string; savedIn: string }> {
+    if (!ItemId.safeParse(runId).success) throw new ServiceError('usage', `"${runId}" is not a verification run id`);
+    const rel = `validation/${runId}`;
+    const report = (await this.readItem(`${rel}/report.json`, 'verification report')) as VerificationReport;
+    if (report?.format !== 'plateau-verification-report/1') throw new ServiceError('file', `${path.join(this.dir, rel, 'report.json')} is not a Plateau verification report`);
+    const html = await readRegularTextFile(path.join(this.dir, rel, 'report.html'), { what: 'verification report page' });
+    return { runId, report, html, savedIn: path.join(this.dir, rel) };
   }
 
   // --- queue file (fitQueue.ts owns its shape) ---------------------------------------------

@@ -19,6 +19,8 @@ export interface VerifyOptions {
   signal?: AbortSignal;
   /** Folder holding suite.json and the references (default: the installation's resources/validation). */
   validationDir?: string;
+  /** Installed engine files to fingerprint (default: the engine next to this program). */
+  engineDir?: string;
   /** Only these check ids (for tests); the report lists only them. */
   only?: readonly string[];
 }
@@ -76,7 +78,7 @@ export async function runVerification(options: VerifyOptions = {}): Promise<Veri
     checks.push(result);
     options.onProgress?.({ index: i + 1, total: selected.length, id: spec.id, title: spec.title, phase: 'done', status: result.status, durationMs: result.durationMs });
   }
-  const engine = await engineFingerprint();
+  const engine = await engineFingerprint(...(options.engineDir !== undefined ? [options.engineDir] : []));
   const failed = checks.filter((c) => c.status === 'fail').length;
   const passed = checks.filter((c) => c.status === 'pass').length;
   return {

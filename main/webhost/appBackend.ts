@@ -46,6 +46,7 @@ export async function startAppBackend(options: AppBackendOptions): Promise<Runni
   const service = await AppService.start({
     workerEntry: path.join(options.paths.mainDir, 'worker', 'engineWorker.js'),
     resourcesDir: options.paths.resourcesDir,
+    engineDir: options.paths.engineDir,
     projectDir: options.projectDir,
     rendererDir: options.paths.rendererDir,
     host: options.host,

@@ -11,6 +11,8 @@ export interface AppPaths {
   rendererDir: string;
   /** Compiled main-process code (dist/main), where the worker entries live. */
   mainDir: string;
+  /** Compiled engine (dist/engine): the files the verification report fingerprints. */
+  engineDir: string;
   /** resources/ (demo project, models, targets, cautions). */
   resourcesDir: string;
 }
@@ -20,6 +22,7 @@ export function appPathsFromRoot(appRoot: string, overrides: Partial<AppPaths> =
     appRoot,
     rendererDir: overrides.rendererDir ?? path.join(appRoot, 'dist', 'renderer'),
     mainDir: overrides.mainDir ?? path.join(appRoot, 'dist', 'main'),
+    engineDir: overrides.engineDir ?? path.join(appRoot, 'dist', 'engine'),
     resourcesDir: overrides.resourcesDir ?? path.join(appRoot, 'resources'),
   };
 }

@@ -19,7 +19,9 @@ parentPort!.on('message', ({ jobId, job }: { jobId: string; job: JobRequest }) =
   let lastPhase = '';
   const onProgress = (p: JobProgress): void => {
     const now = Date.now();
-    if (now - lastAt < PROGRESS_MIN_INTERVAL_MS && p.phase === lastPhase) return;
+    // A verification check's start and end are always sent (two per check): the list on screen
+    // must show every check's state, not a sample.
+    if (!p.check && now - lastAt < PROGRESS_MIN_INTERVAL_MS && p.phase === lastPhase) return;
     lastAt = now;
     lastPhase = p.phase;
     post({ type: 'progress', progress: { jobId, ...p } });

@@ -26,6 +26,7 @@ import { handleParseMessage } from './parseWorker.js';
 import { inspectZipContainer } from './limits.js';
 import { readWorkbook } from '../../engine/import/workbook.js';
 import { printable } from '../../engine/text/printable.js';
+import { renderReportHtml, runVerification, type CheckStatus } from '../verify/index.js';
 
 export interface JobProgress {
   phase: ProgressPhase;
@@ -33,6 +34,7 @@ export interface JobProgress {
   maxIterations: number;
   estimates: Record<string, number>;
   message?: string;
+  check?: { id: string; title: string; index: number; total: number; status: 'running' | CheckStatus; durationMs?: number };
 }
 
 export interface JobContext {
@@ -159,6 +161,23 @@ export async function runJob(job: JobRequest, ctx: JobContext): Promise<unknown>
         ...(job.overrideBlocks !== undefined ? { overrideBlocks: job.overrideBlocks } : {}),
       });
       return plain(advice);
+    }
+    case 'verify': {
+      const report = await runVerification({
+        quick: job.quick,
+        validationDir: job.validationDir,
+        engineDir: job.engineDir,
+        onProgress: (p) =>
+          ctx.onProgress({
+            phase: 'verify',
+            iteration: p.phase === 'done' ? p.index : p.index - 1,
+            maxIterations: p.total,
+            estimates: Object.create(null),
+            message: `${p.phase === 'start' ? 'running' : (p.status ?? 'done')}: ${p.title}`,
+            check: { id: p.id, title: p.title, index: p.index, total: p.total, status: p.phase === 'start' ? 'running' : (p.status ?? 'fail'), ...(p.durationMs !== undefined ? { durationMs: p.durationMs } : {}) },
+          }),
+      });
+      return { report: plain(report), html: renderReportHtml(report) };
     }
     case 'probe':
       return runProbe(job, ctx);

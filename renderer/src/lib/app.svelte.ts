@@ -5,7 +5,7 @@
 import { request, subscribe } from './bridge/index.js';
 import type { AppInfo, ProjectSummary } from './types.js';
 
-export type ViewId = 'import' | 'models' | 'queue' | 'results' | 'dosing';
+export type ViewId = 'import' | 'models' | 'queue' | 'results' | 'dosing' | 'verify';
 
 export const VIEWS: ReadonlyArray<{ id: ViewId; label: string; hint: string }> = [
   { id: 'import', label: 'Import', hint: 'Read a spreadsheet of doses and levels' },

@@ -1,0 +1,1 @@
+export { default as VerifyView } from './VerifyView.svelte';
