@@ -2,7 +2,7 @@
  * Adaptive embedded Runge-Kutta 5(4) of Dormand & Prince (J Comput Appl Math 1980;6:19-26),
  * FSAL, with the step-size control of Hairer, Norsett & Wanner, Solving Ordinary Differential
  * Equations I, 2nd ed., sect. II.4 (coefficients from that book's dopri5, from memory; checked
- * against scipy solve_ivp in tests/reference/pk-ode). Allocation-free after creation.
+ * against scipy solve_ivp in resources/validation/reference/pk-ode). Allocation-free after creation.
  */
 
 /** Index of the duration to integrate in Dopri5.work. */

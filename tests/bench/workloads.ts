@@ -1,6 +1,6 @@
 /**
  * Workloads shared by the benchmark suites: the Theoph data (R datasets::Theoph, exported by
- * tests/reference/theoph/export_theoph.R) with its one-compartment oral spec, and an invented
+ * resources/validation/reference/theoph/export_theoph.R) with its one-compartment oral spec, and an invented
  * sparse TDM design (12 one-hour infusions q12h, 2-4 levels at peaks, mid-interval or troughs,
  * weight and CrCl) whose levels are simulated from a two-compartment model.
  */
@@ -26,7 +26,7 @@ export function findRepoFile(rel: string): string {
 }
 
 export function theophDataset(): Dataset {
-  return parseCanonicalCsv(readFileSync(findRepoFile('tests/reference/theoph/theoph.csv'), 'utf8'));
+  return parseCanonicalCsv(readFileSync(findRepoFile('resources/validation/reference/theoph/theoph.csv'), 'utf8'));
 }
 
 /** Theoph: one compartment, first-order absorption, log-normal BSV on CL, V, ka, additive error. */

@@ -1,6 +1,6 @@
 /**
  * The model specs of the sparse-data checks (tests/integration/fit/sparseSeeds.test.ts) and the
- * sparse benchmark: nlme's Phenobarb (tests/reference/phenobarb) and the simulated sparse 2-cmt
+ * sparse benchmark: nlme's Phenobarb (resources/validation/reference/phenobarb) and the simulated sparse 2-cmt
  * TDM design (tests/reference/tdm-sparse), matching the models of their exact_mle.py scripts.
  */
 import { readFileSync } from 'node:fs';

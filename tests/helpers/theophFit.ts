@@ -1,6 +1,6 @@
 /**
  * A short SAEM fit of the Theoph data (R datasets::Theoph, exported by
- * tests/reference/theoph/export_theoph.R) through `plateau fit`, for tests that need a real
+ * resources/validation/reference/theoph/export_theoph.R) through `plateau fit`, for tests that need a real
  * fit.json (dose advice from a site fit). Theoph doses are mg/kg, so CL and V are per kg.
  */
 import { readFileSync, writeFileSync } from 'node:fs';
@@ -9,7 +9,7 @@ import { fileURLToPath } from 'node:url';
 import { runCli } from '../../main/cli/run.js';
 import { captureIo } from './captureIo.js';
 
-export const theophCsv = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../reference/theoph/theoph.csv');
+export const theophCsv = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../../resources/validation/reference/theoph/theoph.csv');
 
 const spec = {
   name: 'Theoph one-compartment (test)',

@@ -1,6 +1,6 @@
 /**
  * A site fit feeds dose advice: plateau fit on the Theoph data (R datasets::Theoph, exported by
- * tests/reference/theoph/export_theoph.R), then plateau dose with its fit.json as the prior.
+ * resources/validation/reference/theoph/export_theoph.R), then plateau dose with its fit.json as the prior.
  * Mechanics only: the patient is invented, and Theoph doses are mg/kg.
  */
 import { mkdtempSync, writeFileSync } from 'node:fs';

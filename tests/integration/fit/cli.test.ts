@@ -5,7 +5,7 @@ import { describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
 import { captureIo } from '../../helpers/captureIo.js';
 
-const theophCsv = path.resolve(__dirname, '../../reference/theoph/theoph.csv');
+const theophCsv = path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv');
 
 
 const spec = {

@@ -1,5 +1,5 @@
 /**
- * fitSeeds (main/services/fitSeeds.ts) on R's Theoph (datasets::Theoph, tests/reference/theoph):
+ * fitSeeds (main/services/fitSeeds.ts) on R's Theoph (datasets::Theoph, resources/validation/reference/theoph):
  * the injected runOne is the seam for worker processes; here it wraps the real in-process runner,
  * so these checks are of the orchestration (seeds run, concurrency bound, the kept fit, the
  * verdict in the record, cancellation), not of the estimates.
@@ -11,7 +11,7 @@ import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { fitSeeds, runSeedInProcess, seedList, type RunOneSeed } from '../../../main/services/fitSeeds.js';
 
-const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../reference/theoph/theoph.csv'), 'utf8'));
+const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv'), 'utf8'));
 const spec = parseModelSpec({
   structure: '1cmt',
   parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },

@@ -1,8 +1,8 @@
 /**
  * A linear mixed model through the estimator's generic model interface (a linear structural
  * model, identity transforms) on Orthodont (Potthoff & Roy 1964) against exact ML fits:
- * R nlme::lme(method = "ML") (tests/reference/lmm/orthodont_lme.R -> lme_fit.json) and
- * statsmodels MixedLM reml=False (tests/reference/lmm/orthodont_mixedlm.py -> mixedlm_fit.json).
+ * R nlme::lme(method = "ML") (resources/validation/reference/lmm/orthodont_lme.R -> lme_fit.json) and
+ * statsmodels MixedLM reml=False (resources/validation/reference/lmm/orthodont_mixedlm.py -> mixedlm_fit.json).
  * Fixed effects within 1 %, variance components (random-effect SDs, residual SD) within 5 %,
  * correlations within 0.05.
  */
@@ -13,7 +13,7 @@ import { runSaem } from '../../../engine/saem/saem.js';
 import { compileModel } from '../../../engine/stats/model.js';
 import { linearModel, linearSpec, orthodontDataset } from '../../unit/saem/linearModel.js';
 
-const ref = path.resolve(__dirname, '../../reference/lmm');
+const ref = path.resolve(__dirname, '../../../resources/validation/reference/lmm');
 const lme = JSON.parse(readFileSync(path.join(ref, 'lme_fit.json'), 'utf8')).fits;
 const mixedlm = JSON.parse(readFileSync(path.join(ref, 'mixedlm_fit.json'), 'utf8')).fits;
 const dataset = orthodontDataset(readFileSync(path.join(ref, 'orthodont.csv'), 'utf8'));

@@ -2,10 +2,10 @@
  * Sparse TDM data, every seed lands on the exact maximum-likelihood estimate (issue: "the
  * estimator lands on the MLE on sparse TDM data, from every seed"). Two datasets, each fitted
  * once per seed (1-5) in beforeAll and reused by every assertion:
- * - nlme's Phenobarb (Grasela & Donn 1985; tests/reference/phenobarb/phenobarb.csv, exported by
+ * - nlme's Phenobarb (Grasela & Donn 1985; resources/validation/reference/phenobarb/phenobarb.csv, exported by
  *   export_phenobarb.R): 59 neonates, 1-6 levels each, repeated IV boluses, weight exponents on
  *   CL and V estimated, BSV on CL and V, additive error. Exact MLE by adaptive Gauss-Hermite
- *   quadrature: tests/reference/phenobarb/exact_mle.py -> exact_mle.json.
+ *   quadrature: resources/validation/reference/phenobarb/exact_mle.py -> exact_mle.json.
  * - A SIMULATED sparse 2-compartment infusion design (invented data; make_dataset.ts): 120
  *   patients, 1-4 levels, some below the LLOQ, Q without BSV, V2 fixed, combined error. Exact MLE
  *   by the same quadrature: tests/reference/tdm-sparse/exact_mle.py -> exact_mle.json.

@@ -1,8 +1,8 @@
 /**
  * Theoph (R datasets::Theoph; Boeckmann, Sheiner & Beal), one-compartment oral model, log-normal
  * diagonal BSV on CL, V, ka, additive error: SAEM against the exact maximum-likelihood estimate
- * by adaptive Gauss-Hermite quadrature (tests/reference/theoph/exact_mle.py -> exact_mle.json)
- * and against the nlme ML fit of the same model (tests/reference/theoph/nlme_fit.R -> nlme_fit.json;
+ * by adaptive Gauss-Hermite quadrature (resources/validation/reference/theoph/exact_mle.py -> exact_mle.json)
+ * and against the nlme ML fit of the same model (resources/validation/reference/theoph/nlme_fit.R -> nlme_fit.json;
  * Pinheiro & Bates 2000, section 8.2).
  */
 import { readFileSync } from 'node:fs';
@@ -14,7 +14,7 @@ import { runSaem } from '../../../engine/saem/saem.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { compileModel } from '../../../engine/stats/model.js';
 
-const ref = path.resolve(__dirname, '../../reference/theoph');
+const ref = path.resolve(__dirname, '../../../resources/validation/reference/theoph');
 const exact = JSON.parse(readFileSync(path.join(ref, 'exact_mle.json'), 'utf8'));
 const nlmeReference = JSON.parse(readFileSync(path.join(ref, 'nlme_fit.json'), 'utf8')).reference;
 const dataset = parseCanonicalCsv(readFileSync(path.join(ref, 'theoph.csv'), 'utf8'));

@@ -6,7 +6,7 @@ import { describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
 import { captureIo } from '../../helpers/captureIo.js';
 
-const theophCsv = path.resolve(__dirname, '../../reference/theoph/theoph.csv');
+const theophCsv = path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv');
 const spec = {
   structure: '1cmt',
   parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },

@@ -2,8 +2,8 @@
  * Post-fit steps on Theoph (R datasets::Theoph; Boeckmann, Sheiner & Beal 1994), one-compartment
  * oral model, log-normal diagonal BSV on CL, V, ka, additive error, against
  * - the exact marginal -2LL by adaptive Gauss-Hermite quadrature and the SEs from the numerical
- *   Hessian of that exact likelihood (tests/reference/theoph/exact_mle.py -> exact_mle.json),
- * - nlme's ML fit of the same model (tests/reference/theoph/nlme_fit.R -> nlme_fit.json;
+ *   Hessian of that exact likelihood (resources/validation/reference/theoph/exact_mle.py -> exact_mle.json),
+ * - nlme's ML fit of the same model (resources/validation/reference/theoph/nlme_fit.R -> nlme_fit.json;
  *   Pinheiro & Bates 2000, section 8.2). nlme's logLik is a first-order conditional
  *   linearisation, an approximation of the marginal likelihood, so it is compared with our
  *   linearised -2LL, not with the exact one.
@@ -21,7 +21,7 @@ import { runSaem } from '../../../engine/saem/saem.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { compileModel, type PopulationParameters } from '../../../engine/stats/model.js';
 
-const ref = path.resolve(__dirname, '../../reference/theoph');
+const ref = path.resolve(__dirname, '../../../resources/validation/reference/theoph');
 const exact = JSON.parse(readFileSync(path.join(ref, 'exact_mle.json'), 'utf8'));
 const nlmeReference = JSON.parse(readFileSync(path.join(ref, 'nlme_fit.json'), 'utf8')).reference;
 const dataset = parseCanonicalCsv(readFileSync(path.join(ref, 'theoph.csv'), 'utf8'));

@@ -1,7 +1,7 @@
 #!/usr/bin/python3
 """Exact maximum-likelihood estimate for the simulated sparse TDM dataset tdm_sparse.csv (invented
 data, a simulation made by make_dataset.ts) under the two-compartment infusion model it is fitted
-with, by adaptive Gauss-Hermite quadrature (tests/reference/agq/agq.py). Writes exact_mle.json.
+with, by adaptive Gauss-Hermite quadrature (resources/validation/reference/agq/agq.py). Writes exact_mle.json.
 
 Model: two compartments, IV infusions into the central one (superposition of the closed-form
 infusion response; a level at a dose time is taken before that dose);
@@ -20,7 +20,7 @@ import sys
 import numpy as np
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-sys.path.insert(0, os.path.join(HERE, '..', 'agq'))
+sys.path.insert(0, os.path.join(HERE, '..', '..', '..', 'resources', 'validation', 'reference', 'agq'))
 import agq  # noqa: E402
 
 V2 = 40.0

@@ -18,7 +18,7 @@ import { getStructuralModel } from '../../../engine/models/catalogue.js';
 import { createStreams, normalCdf } from '../../../engine/rng/index.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 
-const REF = JSON.parse(readFileSync(path.resolve(__dirname, '../../reference/dosing/map_posterior_scipy.json'), 'utf8'));
+const REF = JSON.parse(readFileSync(path.resolve(__dirname, '../../../resources/validation/reference/dosing/map_posterior_scipy.json'), 'utf8'));
 
 function setup(c: { model: unknown; patient: unknown }) {
   const population = populationModelFromSpec(parseModelSpec(c.model));
@@ -32,7 +32,7 @@ function setup(c: { model: unknown; patient: unknown }) {
 
 describe('MAP estimate', () => {
   // Source: scipy.optimize.minimize (Nelder-Mead then BFGS) on the same objective with an
-  // independent closed-form model, tests/reference/dosing/map_posterior_scipy.py -> .json.
+  // independent closed-form model, resources/validation/reference/dosing/map_posterior_scipy.py -> .json.
   for (const c of REF.patients) {
     it(`matches scipy.optimize within 0.1 % for patient ${c.patient.id} (${c.model.residual.model} error)`, () => {
       const { prior, obj } = setup(c);
@@ -51,7 +51,7 @@ describe('MAP estimate', () => {
 
 describe('MAP estimate, two-compartment model', () => {
   // Source: scipy.optimize.minimize on the same objective, the model solved by the matrix
-  // exponential of the linear system (scipy.linalg.expm), tests/reference/dosing/map_posterior_scipy.py.
+  // exponential of the linear system (scipy.linalg.expm), resources/validation/reference/dosing/map_posterior_scipy.py.
   for (const c of REF.patients2cmt) {
     it(`matches scipy within 0.1 % for patient ${c.patient.id} (BSV on CL and V1 only)`, () => {
       const population = populationModelFromSpec(parseModelSpec(c.model));
@@ -69,7 +69,7 @@ describe('MAP estimate, two-compartment model', () => {
 
 describe('posterior draws', () => {
   // Source: exact numerical integration of the same posterior on a 601 x 601 grid (numpy
-  // trapezoid rule), tests/reference/dosing/map_posterior_scipy.py -> .json (gridPosterior).
+  // trapezoid rule), resources/validation/reference/dosing/map_posterior_scipy.py -> .json (gridPosterior).
   it('mean and 5/95 % quantiles of CL and V agree with grid integration within Monte Carlo error', () => {
     const g = REF.gridPosterior;
     const { prior, obj } = setup(REF.patients[g.patientIndex]);

@@ -1,7 +1,7 @@
 /**
  * Dose advice for a patient who is a subject of the site fit and brings no new level: the
  * posterior is that subject's post-fit draws from fit.json; a new level (or another id) runs the
- * sampler. Data: R datasets::Theoph (tests/reference/theoph/export_theoph.R); mechanics only.
+ * sampler. Data: R datasets::Theoph (resources/validation/reference/theoph/export_theoph.R); mechanics only.
  */
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import * as os from 'node:os';

@@ -1,6 +1,6 @@
 """Exact marginal maximum likelihood for nonlinear mixed-effects PK models with two log-normal
 random effects, by adaptive Gauss-Hermite quadrature (AGQ: Pinheiro & Bates 1995, J Comput Graph
-Stat 4:12-35; Pinheiro & Bates 2000 section 7.2). Shared by tests/reference/phenobarb/exact_mle.py
+Stat 4:12-35; Pinheiro & Bates 2000 section 7.2). Shared by resources/validation/reference/phenobarb/exact_mle.py
 and tests/reference/tdm-sparse/exact_mle.py.
 
 Per subject i, p(y_i) = integral of p(y_i | phi) N(phi; m_i, Omega) dphi over its two individual

@@ -23,7 +23,7 @@ Parameters are given in the model's parameter order (1cmt: CL, V, ka, tlag, F; 2
 V2, ka, tlag, F; null = not used). Times h, doses mg, concentrations mg/L. A level at a dose time
 is taken before that dose (the application's convention), so no time here equals a dose time.
 
-Run: /usr/bin/python3 tests/reference/closed-form/make_closed_form.py  (writes closed_form.json here)
+Run: /usr/bin/python3 resources/validation/reference/closed-form/make_closed_form.py  (writes closed_form.json here)
 """
 import json
 import os
@@ -111,7 +111,7 @@ def main():
                        "auc24": f(mp.mpf(dose) * (mp.mpf(24) / tau) / cl), "trough": f(cmin), "peak": f(cmax)})
 
     out = {
-        "script": "tests/reference/closed-form/make_closed_form.py",
+        "script": "resources/validation/reference/closed-form/make_closed_form.py",
         "source": "textbook closed forms (Gibaldi & Perrier 1982; Bateman 1910; Sawchuk & Zaske 1976; from memory) evaluated with mpmath at 40 digits",
         "generatedWith": {"mpmath": mp.__version__},
         "notes": "params in the model's parameter order (null = not used); times h, doses mg, concentrations mg/L; steadyState: metrics of one dosing interval at steady state",

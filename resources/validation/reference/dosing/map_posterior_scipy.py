@@ -270,7 +270,7 @@ def grid_posterior(case, half_width=7.0, n=601):
 
 def main():
     result = {
-        "script": "tests/reference/dosing/map_posterior_scipy.py",
+        "script": "resources/validation/reference/dosing/map_posterior_scipy.py",
         "source": f"scipy {scipy.__version__} (scipy.optimize.minimize Nelder-Mead then BFGS; scipy.linalg.expm for the two-compartment model; numpy {np.__version__} trapezoid grid integration) on an independent closed-form one-compartment infusion model; invented patients",
         "patients": [],
     }

@@ -1,10 +1,10 @@
 #!/usr/bin/env Rscript
 # Linear mixed model reference on nlme's Orthodont data (Potthoff and Roy 1964; shipped with R's
 # nlme; Pinheiro and Bates 2000 sections 1.4 and 4.2): exact maximum likelihood by nlme::lme
-# (method = "ML"). Exports the data to tests/reference/lmm/orthodont.csv and writes lme_fit.json.
+# (method = "ML"). Exports the data to resources/validation/reference/lmm/orthodont.csv and writes lme_fit.json.
 # Model: distance ~ age (or age_c = age - 11), random intercept and slope per Subject,
 # (a) diagonal (pdDiag) and (b) unstructured (pdSymm) random-effects covariance.
-# Run from the repository root:  Rscript tests/reference/lmm/orthodont_lme.R
+# Run from the repository root:  Rscript resources/validation/reference/lmm/orthodont_lme.R
 args <- commandArgs(trailingOnly = FALSE)
 here <- dirname(normalizePath(sub("^--file=", "", args[grep("^--file=", args)])))
 source(file.path(here, "..", "theoph", "tojson.R"))
@@ -57,8 +57,8 @@ for (nm in names(fits)) fits[[nm]]$randomEffectNames <- names(fits[[nm]]$randomE
 for (nm in grep("diagonal", names(fits), value = TRUE)) fits[[nm]]$randomEffectCorrelation <- 0
 
 res <- list(
-  script = "tests/reference/lmm/orthodont_lme.R",
-  source = "R nlme::lme(method = 'ML') (Pinheiro and Bates 2000, Mixed-Effects Models in S and S-PLUS) on nlme's Orthodont data (Potthoff and Roy 1964, Biometrika 51:313-326), exported to tests/reference/lmm/orthodont.csv",
+  script = "resources/validation/reference/lmm/orthodont_lme.R",
+  source = "R nlme::lme(method = 'ML') (Pinheiro and Bates 2000, Mixed-Effects Models in S and S-PLUS) on nlme's Orthodont data (Potthoff and Roy 1964, Biometrika 51:313-326), exported to resources/validation/reference/lmm/orthodont.csv",
   generatedWith = list(R = R.version.string, nlme = as.character(packageVersion("nlme"))),
   notes = paste(
     "Exact maximum likelihood (not REML) of a linear mixed model: logLik includes every constant.",

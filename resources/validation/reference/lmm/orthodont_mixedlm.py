@@ -1,10 +1,10 @@
 #!/usr/bin/python3
 """Linear mixed model reference on nlme's Orthodont data (Potthoff and Roy 1964), fitted by
 statsmodels MixedLM with reml=False (exact maximum likelihood), from the CSV exported by
-orthodont_lme.R. Writes tests/reference/lmm/mixedlm_fit.json and compares with lme_fit.json.
+orthodont_lme.R. Writes resources/validation/reference/lmm/mixedlm_fit.json and compares with lme_fit.json.
 
 Run from the repository root (after orthodont_lme.R):
-  /usr/bin/python3 tests/reference/lmm/orthodont_mixedlm.py
+  /usr/bin/python3 resources/validation/reference/lmm/orthodont_mixedlm.py
 """
 import json
 import os
@@ -91,9 +91,9 @@ def main():
               sm['logLik'], sm['optimiser'])
         print('   vs lme:', comparison[key])
     out = {
-        'script': 'tests/reference/lmm/orthodont_mixedlm.py',
+        'script': 'resources/validation/reference/lmm/orthodont_mixedlm.py',
         'source': ("statsmodels MixedLM with reml=False on nlme's Orthodont data (Potthoff and Roy 1964, "
-                   'Biometrika 51:313-326), read from tests/reference/lmm/orthodont.csv'),
+                   'Biometrika 51:313-326), read from resources/validation/reference/lmm/orthodont.csv'),
         'generatedWith': {'python': platform.python_version(), 'statsmodels': statsmodels.__version__,
                           'numpy': np.__version__, 'scipy': scipy.__version__, 'pandas': pd.__version__},
         'notes': ('Exact maximum likelihood (reml=False), logLik with every constant. Same four models as '

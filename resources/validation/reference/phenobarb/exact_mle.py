@@ -1,7 +1,7 @@
 #!/usr/bin/python3
 """Exact maximum-likelihood estimate for nlme's Phenobarb (Grasela & Donn 1985; shipped with R's
 nlme, exported by export_phenobarb.R) under a one-compartment IV bolus model with repeated doses,
-by adaptive Gauss-Hermite quadrature (tests/reference/agq/agq.py). Writes exact_mle.json.
+by adaptive Gauss-Hermite quadrature (resources/validation/reference/agq/agq.py). Writes exact_mle.json.
 
 Model: C(t) = sum over doses before t of D / V exp(-CL/V (t - t_dose)) (a level at a dose time is
 taken before that dose); log CL_i = log CL + theta_CL log(Wt / 1.3 kg) + eta_CL,
@@ -9,7 +9,7 @@ log V_i = log V + theta_V log(Wt / 1.3 kg) + eta_V, eta ~ N(0, diag(omega_CL^2, 
 y = C + eps, eps ~ N(0, a^2) (additive error). 7 parameters: log CL, log V, theta_CL, theta_V,
 log omega_CL, log omega_V, log a.
 
-Run from the repository root:  /usr/bin/python3 tests/reference/phenobarb/exact_mle.py
+Run from the repository root:  /usr/bin/python3 resources/validation/reference/phenobarb/exact_mle.py
 (a few minutes on a loaded 2-core machine).
 """
 import json
@@ -71,8 +71,8 @@ def main():
     se = agq.standard_errors(problem, theta, NAMES, natural)
     vals, _ = natural(theta)
     out = {
-        'script': 'tests/reference/phenobarb/exact_mle.py',
-        'source': 'Exact maximum likelihood by adaptive Gauss-Hermite quadrature (Pinheiro and Bates 1995, J Comput Graph Stat 4:12-35; Pinheiro and Bates 2000, section 7.2) on nlme::Phenobarb (Grasela and Donn 1985) exported to tests/reference/phenobarb/phenobarb.csv by export_phenobarb.R',
+        'script': 'resources/validation/reference/phenobarb/exact_mle.py',
+        'source': 'Exact maximum likelihood by adaptive Gauss-Hermite quadrature (Pinheiro and Bates 1995, J Comput Graph Stat 4:12-35; Pinheiro and Bates 2000, section 7.2) on nlme::Phenobarb (Grasela and Donn 1985) exported to resources/validation/reference/phenobarb/phenobarb.csv by export_phenobarb.R',
         'generatedWith': agq.versions(),
         'notes': ('One-compartment IV bolus, repeated doses (superposition; a level at a dose time is before that dose). '
                   'log CL_i = log CL + CL_weight_exponent log(weight_kg / 1.3) + eta_CL; log V_i likewise with V_weight_exponent; '

@@ -1,8 +1,8 @@
 #!/usr/bin/env Rscript
 # Export nlme's Phenobarb (Grasela & Donn 1985, as cited in R's ?Phenobarb; shipped with nlme)
-# into Plateau's canonical CSV (tests/reference/phenobarb/phenobarb.csv) plus a JSON note naming
+# into Plateau's canonical CSV (resources/validation/reference/phenobarb/phenobarb.csv) plus a JSON note naming
 # source and versions. Run from the repository root:
-#   Rscript tests/reference/phenobarb/export_phenobarb.R
+#   Rscript resources/validation/reference/phenobarb/export_phenobarb.R
 suppressPackageStartupMessages(library(nlme))
 args <- commandArgs(trailingOnly = FALSE)
 here <- dirname(normalizePath(sub("^--file=", "", args[grep("^--file=", args)])))
@@ -35,10 +35,10 @@ for (id in ids) {
 writeLines(lines, file.path(here, "phenobarb.csv"))
 
 json <- paste0('{\n',
-  '  "script": "tests/reference/phenobarb/export_phenobarb.R",\n',
+  '  "script": "resources/validation/reference/phenobarb/export_phenobarb.R",\n',
   '  "source": "nlme::Phenobarb (Grasela and Donn 1985, Dev Pharmacol Ther 8:374-383, as cited in the R help page ?Phenobarb; Pinheiro and Bates 2000, Mixed-Effects Models in S and S-PLUS, section 6.4), shipped with R package nlme ', as.character(packageVersion("nlme")), '",\n',
   '  "generatedWith": {"R": "', R.version.string, '", "nlme": "', as.character(packageVersion("nlme")), '"},\n',
-  '  "file": "tests/reference/phenobarb/phenobarb.csv",\n',
+  '  "file": "resources/validation/reference/phenobarb/phenobarb.csv",\n',
   '  "subjects": ', length(ids), ',\n',
   '  "doses": ', nDose, ',\n',
   '  "levels": ', nLevel, ',\n',

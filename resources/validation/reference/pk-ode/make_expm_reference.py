@@ -4,7 +4,7 @@ mpmath (50 significant digits, mpmath.expm), for stiff and near-degenerate param
 an ODE solver's tolerance would limit the check. Single bolus, oral (depot as an extra
 compartment, with lag and F) and infusion (the rate as a constant extra state) doses.
 
-Run: /usr/bin/python3 tests/reference/pk-ode/make_expm_reference.py  (writes expm_reference.json here)
+Run: /usr/bin/python3 resources/validation/reference/pk-ode/make_expm_reference.py  (writes expm_reference.json here)
 """
 import json
 import os
@@ -86,7 +86,7 @@ def main():
                           "concMgL": [conc(c["model"], c["params"], d, t) for t in TIMES]})
     doc = {
         "source": "mpmath expm (50 digits)",
-        "script": "tests/reference/pk-ode/make_expm_reference.py",
+        "script": "resources/validation/reference/pk-ode/make_expm_reference.py",
         "mpmathVersion": mp.__version__,
         "digits": mp.mp.dps,
         "note": "single doses at time 0; params in the model's parameterOrder; times h, doses mg, concentrations mg/L",

@@ -10,7 +10,7 @@ Conventions mirrored from engine/models (catalogue.ts):
   doses every interval (this script simulates them one by one), and doses before it are
   dropped (a steady-state dose resets the state).
 
-Run: /usr/bin/python3 tests/reference/pk-ode/make_reference.py  (writes reference.json here)
+Run: /usr/bin/python3 resources/validation/reference/pk-ode/make_reference.py  (writes reference.json here)
 """
 import json
 import math
@@ -237,7 +237,7 @@ def main():
                           "concMgL": conc})
     doc = {
         "source": "scipy solve_ivp",
-        "script": "tests/reference/pk-ode/make_reference.py",
+        "script": "resources/validation/reference/pk-ode/make_reference.py",
         "scipyVersion": scipy.__version__,
         "method": METHOD,
         "rtol": RTOL,

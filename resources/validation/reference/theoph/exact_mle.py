@@ -2,7 +2,7 @@
 """Exact maximum-likelihood estimate for R's datasets::Theoph (Boeckmann, Sheiner & Beal 1994)
 under Plateau's reference model, by adaptive Gauss-Hermite quadrature (AGQ) of each subject's
 marginal likelihood (Pinheiro & Bates 1995, J Comput Graph Stat 4:12-35; Pinheiro & Bates 2000
-section 7.2). Writes tests/reference/theoph/exact_mle.json.
+section 7.2). Writes resources/validation/reference/theoph/exact_mle.json.
 
 Model: C(t) = D ka / (V (ka - CL/V)) (exp(-CL/V t) - exp(-ka t)), oral dose D at t = 0 (mg/kg);
 log CL_i = log CL + eta_CL, log V_i = log V + eta_V, log ka_i = log ka + eta_ka, eta ~ N(0,
@@ -13,7 +13,7 @@ exact Hessian there, tensor-product Gauss-Hermite nodes centred at the mode and 
 Cholesky factor of the inverse of minus the Hessian. The 7 parameters (log CL, log V, log ka,
 log omega_CL, log omega_V, log omega_ka, log a) are fitted by Nelder-Mead then BFGS.
 
-Run from the repository root:  /usr/bin/python3 tests/reference/theoph/exact_mle.py
+Run from the repository root:  /usr/bin/python3 resources/validation/reference/theoph/exact_mle.py
 (about 8 minutes on an idle 2-core machine, 25 when loaded; pass --quick for a short smoke run that writes nothing).
 """
 import csv
@@ -382,11 +382,11 @@ def main():
     nat = natural(theta)
     nat_names = list(nat.keys())
     out = {
-        'script': 'tests/reference/theoph/exact_mle.py',
+        'script': 'resources/validation/reference/theoph/exact_mle.py',
         'source': ('Exact maximum likelihood by adaptive Gauss-Hermite quadrature (Pinheiro and Bates 1995, '
                    'J Comput Graph Stat 4:12-35; Pinheiro and Bates 2000, Mixed-Effects Models in S and S-PLUS, '
                    'section 7.2) on R datasets::Theoph (Boeckmann, Sheiner and Beal 1994) exported to '
-                   'tests/reference/theoph/theoph.csv by export_theoph.R'),
+                   'resources/validation/reference/theoph/theoph.csv by export_theoph.R'),
         'generatedWith': {'python': platform.python_version(), 'numpy': np.__version__, 'scipy': scipy.__version__},
         'notes': ('Model: one-compartment first-order absorption, C = D ka/(V (ka - CL/V)) (exp(-CL/V t) - '
                   'exp(-ka t)), D = Dose in mg/kg (so CL is L/h/kg and V is L/kg, as in Pinheiro and Bates 2000); '

@@ -1,7 +1,7 @@
 #!/usr/bin/env Rscript
 # Export R's datasets::Theoph (Boeckmann, Sheiner & Beal; shipped with R) into Plateau's
-# canonical CSV (tests/reference/theoph/theoph.csv) plus a JSON note naming source and versions.
-# Run from the repository root:  Rscript tests/reference/theoph/export_theoph.R
+# canonical CSV (resources/validation/reference/theoph/theoph.csv) plus a JSON note naming source and versions.
+# Run from the repository root:  Rscript resources/validation/reference/theoph/export_theoph.R
 args <- commandArgs(trailingOnly = FALSE)
 here <- dirname(normalizePath(sub("^--file=", "", args[grep("^--file=", args)])))
 
@@ -25,10 +25,10 @@ for (id in ids) {
 writeLines(lines, file.path(here, "theoph.csv"))
 
 json <- paste0('{\n',
-  '  "script": "tests/reference/theoph/export_theoph.R",\n',
+  '  "script": "resources/validation/reference/theoph/export_theoph.R",\n',
   '  "source": "R datasets::Theoph (Boeckmann, Sheiner and Beal 1994, as cited in the R help page ?Theoph; also Pinheiro and Bates 2000, Mixed-Effects Models in S and S-PLUS, sections 6.4 and 8.2), shipped with R",\n',
   '  "generatedWith": {"R": "', R.version.string, '"},\n',
-  '  "file": "tests/reference/theoph/theoph.csv",\n',
+  '  "file": "resources/validation/reference/theoph/theoph.csv",\n',
   '  "subjects": ', length(ids), ',\n',
   '  "levels": ', nrow(d), ',\n',
   '  "notes": "One oral dose row per subject at time 0 with amount_mg = Dose exactly as in the dataset, which is mg/kg body weight (not mg): fitted CL is therefore L/h/kg and V is L/kg, as in Pinheiro and Bates 2000. All 132 levels are kept, including the level at time 0 of every subject (0 or small positive values such as 0.74 mg/L for subject 1): they are real data. No level is censored (censored 0, no LLOQ). Subject ids are the R Subject labels 1..12; rows are ordered by numeric subject id, then time. weight_kg is the dataset Wt column (kg), constant per subject."\n',

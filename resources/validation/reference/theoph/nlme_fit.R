@@ -1,12 +1,12 @@
 #!/usr/bin/env Rscript
-# nlme fits of R's datasets::Theoph, stored as tests/reference/theoph/nlme_fit.json.
+# nlme fits of R's datasets::Theoph, stored as resources/validation/reference/theoph/nlme_fit.json.
 # (1) Plateau's reference model: one-compartment first-order absorption, log-normal BSV on
 #     CL, V, ka with diagonal Omega, additive residual error, maximum likelihood (method = "ML").
 # (2) The published models of Pinheiro & Bates 2000 section 8.2 (Mixed-Effects Models in S and
 #     S-PLUS), re-run here exactly as in the book's script shipped with nlme (scripts/ch08.R):
 #     fm1Theo.nlme (general Omega on lKe, lKa, lCl), fm2Theo.nlme (pdDiag on the three),
 #     fm3Theo.nlme (pdDiag on lKa, lCl).
-# Run from the repository root:  Rscript tests/reference/theoph/nlme_fit.R
+# Run from the repository root:  Rscript resources/validation/reference/theoph/nlme_fit.R
 args <- commandArgs(trailingOnly = FALSE)
 here <- dirname(normalizePath(sub("^--file=", "", args[grep("^--file=", args)])))
 source(file.path(here, "tojson.R"))
@@ -84,7 +84,7 @@ for (nm in names(pub)) {
 }
 
 out <- list(
-  script = "tests/reference/theoph/nlme_fit.R",
+  script = "resources/validation/reference/theoph/nlme_fit.R",
   source = "R nlme::nlme (Pinheiro and Bates 2000, Mixed-Effects Models in S and S-PLUS, section 8.2; the published models re-run from the book's script shipped with nlme, scripts/ch08.R) on R datasets::Theoph (Boeckmann, Sheiner and Beal 1994)",
   generatedWith = list(R = R.version.string, nlme = as.character(packageVersion("nlme"))),
   notes = paste(
