@@ -90,6 +90,8 @@ export const ProgressSchema = z.strictObject({
   /** Current estimates by name (typical values natural scale, BSV as SD); non-finite ones omitted. */
   estimates: z.record(z.string().max(200), z.number()),
   message: z.string().max(2000).optional(),
+  /** The seed this progress belongs to, in a multi-seed fit job (set by main, not the worker). */
+  seed: z.number().int().min(0).optional(),
 });
 export type ProgressMessage = z.infer<typeof ProgressSchema>;
 
