@@ -87,13 +87,15 @@ export const suite = {
       const workerEntry = cliServiceRoots().workerEntry;
       const inWorkers = async (seeds: number[]) => {
         const t0 = performance.now();
-        const rec = await fitSeeds(sparse, sparseTdmSpec, { seeds, runOne: runSeedInWorker(sparse, { specJson: sparseTdmSpecJson, worker: { modulePath: workerEntry } }), slots: new CoreSlots(machineCores()) });
-        return { s: (performance.now() - t0) / 1000, rec };
+        let workerCpuMs = 0;
+        const runOne = runSeedInWorker(sparse, { specJson: sparseTdmSpecJson, worker: { modulePath: workerEntry }, onTiming: (_seed, t) => (workerCpuMs += t.cpuMs) });
+        const rec = await fitSeeds(sparse, sparseTdmSpec, { seeds, runOne, slots: new CoreSlots(machineCores()) });
+        return { s: (performance.now() - t0) / 1000, cpuS: workerCpuMs / 1000, rec };
       };
       const one = await inWorkers([1]);
-      figures.push({ name: 'sparse TDM, 120 patients, one seed in a worker (estimation + post-fit)', value: one.s, unit: 's', target: '< 2', note: 'wall time, worker start included' });
+      figures.push({ name: 'sparse TDM, 120 patients, one seed in a worker (estimation + post-fit)', value: one.s, unit: 's', target: '< 2', note: `wall time, worker start included; job CPU ${one.cpuS.toFixed(2)} s` });
       const three = await inWorkers([1, 2, 3]);
-      figures.push({ name: 'sparse TDM, 120 patients, default fit: 3 seeds in parallel workers', value: three.s, unit: 's', target: '< 5', note: `${machineCores()} cores, so ${Math.min(3, machineCores())} seeds at once; ${three.rec.seeds.verdict}` });
+      figures.push({ name: 'sparse TDM, 120 patients, default fit: 3 seeds in parallel workers', value: three.s, unit: 's', target: '< 5', note: `${machineCores()} cores, so ${Math.min(3, machineCores())} seeds at once; jobs' CPU ${three.cpuS.toFixed(2)} s; ${three.rec.seeds.verdict}` });
     }
     {
       // Whole processes on Theoph: node start, reading, the fit (default 3 seeds, in workers) and
