@@ -153,7 +153,10 @@ export interface QueueJob {
   label: string;
   datasetId: string;
   modelId: string;
+  /** The first seed of the job. */
   seed: number;
+  /** Every seed the job fits (the kept one is in its fit record's "seeds" section). */
+  seeds: number[];
   state: JobState;
   /** Position among queued jobs (0 runs next); null once started. */
   position: number | null;

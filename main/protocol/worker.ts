@@ -110,6 +110,8 @@ export const ProgressSchema = z.strictObject({
       durationMs: z.number().min(0).optional(),
     })
     .optional(),
+  /** The seed this progress belongs to, in a multi-seed fit job (set by main, not the worker). */
+  seed: z.number().int().min(0).optional(),
 });
 export type ProgressMessage = z.infer<typeof ProgressSchema>;
 

@@ -2,17 +2,24 @@
  * The fit queue (docs/architecture.md, "Fit queue"): fit jobs (dataset + model + settings + seed)
  * run in engine worker processes, at most `concurrency` at once (default cores - 1, at least 1),
  * in the queue's order, which the user can change; jobs can be cancelled and re-run with other
- * seeds. The queue is saved in the project (queue.json) on every change of state, so a restart
+ * seeds. A job fits all its seeds (fitSeeds, the same multi-seed path as `plateau fit`), one
+ * worker process per seed, and saves the kept fit with the seeds' verdict. Cores are handed out
+ * by one scheduler (CoreSlots, `concurrency` slots): every seed of every job holds a slot while
+ * it computes, first come first served, so the job first in the queue gets the free cores first. The queue is saved in the project (queue.json) on every change of state, so a restart
  * shows it as it was and resumes it (a job that was running is queued again). A worker that
  * crashes or falls silent fails only its own job, with the reason; the others go on.
  */
-import * as os from 'node:os';
 import { z } from 'zod';
+import { parseModelSpec } from '../../engine/spec/modelSpec.js';
+import { parseSaemSettings } from '../../engine/saem/settings.js';
 import type { ErrorValue, JobState, QueueJob, QueueSnapshot } from '../protocol/bridge.js';
 import { ErrorValueSchema } from '../protocol/errors.js';
 import { SaemSettingsInput } from '../protocol/schemas.js';
 import type { ProgressMessage } from '../protocol/worker.js';
+import { CoreSlots, machineCores } from './coreSlots.js';
 import { EngineWorker, type EngineWorkerOptions } from './engineClient.js';
+import { runSeedInWorker } from './fitRunner.js';
+import { fitSeeds, seedList, SEEDS_MAX } from './fitSeeds.js';
 import { newId, type ProjectStore } from './projectStore.js';
 import { ServiceError, toErrorValue } from './serviceError.js';
 
@@ -22,6 +29,8 @@ const JobRecordSchema = z.strictObject({
   datasetId: z.string(),
   modelId: z.string(),
   seed: z.number().int(),
+  /** Every seed of the job (the first is `seed`); absent in queues saved before multi-seed jobs. */
+  seeds: z.array(z.number().int()).min(1).max(SEEDS_MAX).optional(),
   settings: SaemSettingsInput.optional(),
   postFit: z.strictObject({ run: z.boolean().optional(), repeat: z.number().int().min(2).max(20).optional() }).optional(),
   state: z.enum(['queued', 'running', 'done', 'failed', 'cancelled']),
@@ -39,6 +48,7 @@ const QueueFileSchema = z.strictObject({ format: z.literal('plateau-queue'), sch
 export interface EnqueueRequest {
   datasetId: string;
   modelId: string;
+  /** The seeds of the one job (default: the settings' or model's seed and seed count). */
   seeds?: number[];
   settings?: z.infer<typeof SaemSettingsInput>;
   postFit?: { run?: boolean; repeat?: number };
@@ -51,16 +61,18 @@ export interface FitQueueOptions {
   concurrency?: number;
   /** Start running queued jobs at once (default true). */
   autoStart?: boolean;
+  /** The core scheduler (default: `concurrency` slots of its own). */
+  slots?: CoreSlots;
 }
 
 export function defaultConcurrency(): number {
-  const cores = typeof os.availableParallelism === 'function' ? os.availableParallelism() : os.cpus().length;
-  return Math.max(1, cores - 1);
+  return Math.max(1, machineCores() - 1);
 }
 
 interface Live {
   controller: AbortController;
-  worker?: EngineWorker;
+  /** The workers of the job's seeds now computing. */
+  workers: Set<EngineWorker>;
   progress?: ProgressMessage;
   startedMs: number;
 }
@@ -69,6 +81,7 @@ type Listener<T> = (payload: T) => void;
 
 export class FitQueue {
   readonly concurrency: number;
+  readonly slots: CoreSlots;
   private jobs: JobRecord[] = [];
   private readonly live = new Map<string, Live>();
   /** Wall time each finished job spent in its worker (ms), for the overhead benchmark. */
@@ -87,6 +100,7 @@ export class FitQueue {
     private readonly options: FitQueueOptions,
   ) {
     this.concurrency = Math.max(1, Math.floor(options.concurrency ?? defaultConcurrency()));
+    this.slots = options.slots ?? new CoreSlots(this.concurrency);
   }
 
   /** Load the queue saved in the project; jobs that were running are queued again. */
@@ -152,6 +166,7 @@ export class FitQueue {
         datasetId: j.datasetId,
         modelId: j.modelId,
         seed: j.seed,
+        seeds: j.seeds ?? [j.seed],
         state: j.state,
         position: j.state === 'queued' ? position++ : null,
         createdAt: j.createdAt,
@@ -177,35 +192,42 @@ export class FitQueue {
 
   /** Process id of the worker running a job (tests and diagnostics). */
   workerPid(jobId: string): number | undefined {
-    return this.live.get(jobId)?.worker?.pid;
+    for (const w of this.live.get(jobId)?.workers ?? []) if (w.pid !== undefined) return w.pid;
+    return undefined;
   }
 
   // --- commands ----------------------------------------------------------------------------
 
+  /** Queue one fit job that runs all the request's seeds; answers its id (in a list). */
   async enqueue(req: EnqueueRequest): Promise<string[]> {
     this.store.datasetEntry(req.datasetId);
     const model = this.store.project.models.find((m) => m.id === req.modelId);
     if (!model) throw new ServiceError('usage', `no model with id ${req.modelId} in this project`);
     const dataset = this.store.datasetEntry(req.datasetId);
-    const seeds = req.seeds && req.seeds.length ? req.seeds : [1];
-    const ids: string[] = [];
-    for (const seed of seeds) {
-      const id = newId('j');
-      ids.push(id);
-      this.jobs.push({
-        id,
-        label: req.label ? (seeds.length > 1 ? `${req.label} (seed ${seed})` : req.label) : `${model.name} on ${dataset.name}, seed ${seed}`,
-        datasetId: req.datasetId,
-        modelId: req.modelId,
-        seed,
-        ...(req.settings ? { settings: req.settings } : {}),
-        ...(req.postFit ? { postFit: req.postFit } : {}),
-        state: 'queued',
-        createdAt: new Date().toISOString(),
-      });
+    let seeds = req.seeds && req.seeds.length ? [...req.seeds] : undefined;
+    if (!seeds) {
+      const spec = parseModelSpec((await this.store.getModel(req.modelId)).specJson);
+      const settings = parseSaemSettings(spec.estimation, (req.settings ?? {}) as never);
+      seeds = seedList(settings.seed, settings.seeds);
     }
+    if (seeds.length > SEEDS_MAX) throw new ServiceError('usage', `a fit job runs at most ${SEEDS_MAX} seeds, got ${seeds.length}; queue several jobs instead`);
+    if (new Set(seeds).size !== seeds.length) throw new ServiceError('usage', `the seeds of a fit job must differ, got ${seeds.join(', ')}`);
+    const id = newId('j');
+    const seedText = seeds.length > 1 ? `seeds ${seeds.join(', ')}` : `seed ${seeds[0]}`;
+    this.jobs.push({
+      id,
+      label: req.label ?? `${model.name} on ${dataset.name}, ${seedText}`,
+      datasetId: req.datasetId,
+      modelId: req.modelId,
+      seed: seeds[0],
+      seeds,
+      ...(req.settings ? { settings: req.settings } : {}),
+      ...(req.postFit ? { postFit: req.postFit } : {}),
+      state: 'queued',
+      createdAt: new Date().toISOString(),
+    });
     await this.changed();
-    return ids;
+    return [id];
   }
 
   async cancel(jobId: string): Promise<void> {
@@ -234,11 +256,12 @@ export class FitQueue {
     await this.changed();
   }
 
-  /** Queue the job again with other seeds (one new job per seed). */
+  /** Queue the job again as one new job with other seeds. */
   async rerun(jobId: string, seeds: number[]): Promise<string[]> {
     const j = this.need(jobId);
-    const base = j.label.replace(/,? \(?seed \d+\)?$/, '');
-    return this.enqueue({ datasetId: j.datasetId, modelId: j.modelId, seeds, ...(j.settings ? { settings: j.settings } : {}), ...(j.postFit ? { postFit: j.postFit } : {}), label: base });
+    const base = j.label.replace(/,? \(?seeds? [\d, ]+\)?$/, '');
+    const seedText = seeds.length > 1 ? `seeds ${seeds.join(', ')}` : `seed ${seeds[0]}`;
+    return this.enqueue({ datasetId: j.datasetId, modelId: j.modelId, seeds, ...(j.settings ? { settings: j.settings } : {}), ...(j.postFit ? { postFit: j.postFit } : {}), label: `${base}, ${seedText}` });
   }
 
   /** Resolves when no job is queued or running (tests, shutdown). */
@@ -253,7 +276,7 @@ export class FitQueue {
    */
   async close(): Promise<void> {
     this.closed = true;
-    for (const live of this.live.values()) live.worker?.kill();
+    for (const live of this.live.values()) for (const w of live.workers) w.kill();
     for (const w of this.idle.splice(0)) w.kill();
   }
 
@@ -290,7 +313,7 @@ export class FitQueue {
       next.state = 'running';
       next.startedAt = new Date().toISOString();
       delete next.error;
-      const live: Live = { controller: new AbortController(), startedMs: Date.now() };
+      const live: Live = { controller: new AbortController(), workers: new Set(), startedMs: Date.now() };
       this.live.set(next.id, live);
       void this.run(next, live);
     }
@@ -312,44 +335,59 @@ export class FitQueue {
     try {
       const dataset = await this.store.getDataset(j.datasetId);
       const model = await this.store.getModel(j.modelId);
-      const worker = this.takeWorker();
-      live.worker = worker;
-      const record = (await worker.run(
-        {
-          kind: 'fit',
-          dataset: JSON.parse(JSON.stringify(dataset)) as never,
-          spec: model.specJson,
-          seed: j.seed,
-          ...(j.settings ? { settings: j.settings } : {}),
-          postFit: j.postFit?.run !== false,
-          ...(j.postFit?.repeat !== undefined ? { repeat: j.postFit.repeat } : {}),
+      const seeds = j.seeds ?? [j.seed];
+      const settings = { ...(j.settings ?? {}), seeds: seeds.length } as never;
+      const runOne = runSeedInWorker(dataset, {
+        specJson: model.specJson,
+        ...(j.settings ? { settings: j.settings as never } : {}),
+        postFit: j.postFit?.run !== false,
+        ...(j.postFit?.repeat !== undefined ? { repeat: j.postFit.repeat } : {}),
+        worker: this.options.worker,
+        jobId: (seed) => `${j.id}:seed-${seed}`,
+        takeWorker: () => {
+          const w = this.takeWorker();
+          live.workers.add(w);
+          return w;
         },
-        {
-          jobId: j.id,
-          signal: live.controller.signal,
-          onTiming: (t) => this.workerWallMs.set(j.id, t.wallMs),
-          onProgress: (p) => {
-            live.progress = p;
-            for (const l of this.progressListeners) {
-              try {
-                l(p);
-              } catch {
-                // ignore listener faults
-              }
+        giveBack: (w) => {
+          live.workers.delete(w);
+          if (w.alive && !this.closed && this.idle.length < this.concurrency) this.idle.push(w);
+          else w.kill();
+        },
+        onTiming: (_seed, t) => this.workerWallMs.set(j.id, (this.workerWallMs.get(j.id) ?? 0) + t.wallMs),
+      });
+      const record = await fitSeeds(dataset, model.spec, {
+        seeds,
+        settings,
+        runOne: async (seed, signal, onProgress) => {
+          try {
+            return await runOne(seed, signal, onProgress);
+          } finally {
+            // A worker not given back (failed or cancelled) was ended by the runner.
+            for (const w of live.workers) if (!w.alive) live.workers.delete(w);
+          }
+        },
+        slots: this.slots,
+        signal: live.controller.signal,
+        onProgress: (seed, p) => {
+          const message: ProgressMessage = { jobId: j.id, seed, ...p };
+          live.progress = message;
+          for (const l of this.progressListeners) {
+            try {
+              l(message);
+            } catch {
+              // ignore listener faults
             }
-          },
+          }
         },
-      )) as Record<string, unknown>;
-      if (worker.alive && !this.closed && this.idle.length < this.concurrency) this.idle.push(worker);
-      else worker.kill();
-      const fitId = await this.store.saveFit({ name: j.label, datasetId: j.datasetId, modelId: j.modelId, seed: j.seed }, record);
+      });
+      const fitId = await this.store.saveFit({ name: j.label, datasetId: j.datasetId, modelId: j.modelId, seed: typeof record.seed === 'number' ? record.seed : j.seed }, record as unknown as Record<string, unknown>);
       outcome = { state: 'done', fitId };
     } catch (e) {
-      const error = toErrorValue(e);
-      if (live.worker?.alive && !live.worker.busy && !this.closed && this.idle.length < this.concurrency) this.idle.push(live.worker);
-      else live.worker?.kill();
+      const error = e instanceof Error && e.name === 'AbortError' ? toErrorValue(new ServiceError('cancelled', 'the fit job was cancelled')) : toErrorValue(e);
       outcome = error.kind === 'cancelled' && live.controller.signal.aborted ? { state: 'cancelled', error } : { state: 'failed', error };
     }
+    for (const w of live.workers) w.kill();
     this.live.delete(j.id);
     if (this.closed) return;
     this.finish(j, outcome.state, outcome);

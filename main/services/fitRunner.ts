@@ -7,7 +7,10 @@
  */
 import { parseModelSpec } from '../../engine/spec/modelSpec.js';
 import type { ProgressMessage } from '../protocol/worker.js';
-import { runEngineJob } from './engineClient.js';
+import type { Dataset } from '../../engine/data/types.js';
+import { EngineWorker, runEngineJob, type EngineWorkerOptions } from './engineClient.js';
+import type { PosthocFitRecord } from './fitPosthoc.js';
+import type { RunOneSeed } from './fitSeeds.js';
 import { readJsonFile } from './files.js';
 import { readDataset } from './fitService.js';
 import type { SaemSettings } from '../../engine/saem/settings.js';
@@ -46,4 +49,62 @@ export async function fitFilesInWorker(o: FitInWorkerOptions): Promise<Record<st
     { ...(o.signal ? { signal: o.signal } : {}), ...(o.onProgress ? { onProgress: o.onProgress } : {}) },
   );
   return value as Record<string, unknown>;
+}
+
+export interface SeedWorkerOptions {
+  /** The model spec as JSON (the worker parses it again). */
+  specJson: Record<string, unknown>;
+  settings?: Partial<SaemSettings>;
+  /** Run the post-fit steps (default true; without them the record has no -2LL to choose by). */
+  postFit?: boolean;
+  repeat?: number;
+  /** Where the worker comes from (default: a fresh process per seed, ended afterwards). */
+  worker: EngineWorkerOptions;
+  takeWorker?: () => EngineWorker;
+  /** Given back a worker that finished its job cleanly (default: it is ended). */
+  giveBack?: (w: EngineWorker) => void;
+  /** Job ids (so progress can be matched to a queue job); default random. */
+  jobId?: (seed: number) => string;
+  /** Each seed's worker wall time (benchmarks). */
+  onTiming?: (seed: number, t: { cpuMs: number; wallMs: number }) => void;
+}
+
+/**
+ * fitSeeds' runOne in engine worker processes: one fit job (estimation and post-fit steps) per
+ * seed, in its own worker, so seeds run in parallel on separate cores and the command line
+ * shares the app's path. Cancelling ends the seed's job (its thread is terminated).
+ */
+export function runSeedInWorker(dataset: Dataset, o: SeedWorkerOptions): RunOneSeed {
+  const wire = JSON.parse(JSON.stringify(dataset)) as never;
+  return async (seed, signal, onProgress) => {
+    const w = o.takeWorker ? o.takeWorker() : EngineWorker.spawn(o.worker);
+    let clean = false;
+    try {
+      const value = await w.run(
+        {
+          kind: 'fit',
+          dataset: wire,
+          spec: o.specJson,
+          seed,
+          ...(o.settings ? { settings: o.settings as never } : {}),
+          postFit: o.postFit !== false,
+          ...(o.repeat !== undefined ? { repeat: o.repeat } : {}),
+        },
+        {
+          signal,
+          ...(o.jobId ? { jobId: o.jobId(seed) } : {}),
+          ...(o.onTiming ? { onTiming: (t: { cpuMs: number; wallMs: number }) => o.onTiming!(seed, t) } : {}),
+          onProgress: (p: ProgressMessage) => {
+            const { jobId: _jobId, ...rest } = p;
+            void onProgress(rest);
+          },
+        },
+      );
+      clean = true;
+      return value as PosthocFitRecord;
+    } finally {
+      if (clean && o.giveBack && w.alive && !w.busy) o.giveBack(w);
+      else w.kill();
+    }
+  };
 }

@@ -10,7 +10,10 @@
  * that sends {dataset, spec, seed, settings} to a worker, relays its progress messages to
  * onProgress, kills the worker when the signal aborts and resolves with the record it returns.
  * `concurrency` bounds how many runOne calls are in flight at once (in-process runs gain nothing
- * from more than 1, as they share one thread).
+ * from more than 1, as they share one thread). With `slots` (the shared core scheduler,
+ * main/services/coreSlots.ts) each run also holds a core slot while it computes, so the seeds of
+ * every fit and the queue's jobs share the machine's cores. The worker runner is
+ * `runSeedInWorker` (main/services/fitRunner.ts). When one seed fails, the others are cancelled.
  */
 import type { Dataset } from '../../engine/data/types.js';
 import { seedAgreement, type SeedAgreement, type SeedFitSummary } from '../../engine/posthoc/seedAgreement.js';
@@ -18,6 +21,7 @@ import type { AbortSignalLike, SaemProgress } from '../../engine/saem/saem.js';
 import type { SaemSettings } from '../../engine/saem/settings.js';
 import { parseSaemSettings } from '../../engine/saem/settings.js';
 import type { ModelSpec } from '../../engine/spec/modelSpec.js';
+import type { CoreSlots } from './coreSlots.js';
 import { fitDataset } from './fitService.js';
 import { addPosthoc, type FitPosthocOptions, type PosthocFitRecord } from './fitPosthoc.js';
 
@@ -25,18 +29,41 @@ import { addPosthoc, type FitPosthocOptions, type PosthocFitRecord } from './fit
 export const SEEDS_MIN = 1;
 export const SEEDS_MAX = 16;
 
-export type RunOneSeed = (seed: number, signal: AbortSignalLike | undefined, onProgress: (p: SaemProgress) => void | Promise<void>) => Promise<PosthocFitRecord>;
+/**
+ * Progress of one seed, in the form the worker sends (main/protocol/worker.ts ProgressMessage
+ * without its job id): phase, iteration, planned iterations, current estimates by name.
+ */
+export interface SeedProgress {
+  phase: 'search' | 'averaging' | 'post-fit' | 'repeat' | 'parse' | 'simulate' | 'advise';
+  iteration: number;
+  maxIterations: number;
+  estimates: Record<string, number>;
+  message?: string;
+}
+
+export type RunOneSeed = (seed: number, signal: AbortSignal, onProgress: (p: SeedProgress) => void | Promise<void>) => Promise<PosthocFitRecord>;
+
+/** An estimator progress report in the worker's form (finite estimates by name). */
+export function seedProgress(p: SaemProgress): SeedProgress {
+  const estimates = Object.create(null) as Record<string, number>;
+  p.estimateNames.forEach((n, i) => {
+    if (Number.isFinite(p.estimates[i])) estimates[n] = p.estimates[i];
+  });
+  return { phase: p.phase, iteration: p.iteration, maxIterations: p.plannedIterations, estimates };
+}
 
 export interface FitSeedsOptions {
   /** The seeds to run (default: the spec's seed and the next ones, `seeds` of them in all). */
   seeds?: readonly number[];
   /** One complete fit from one seed (default: in this process). */
   runOne?: RunOneSeed;
-  /** How many runs at once (default 1). */
+  /** How many runs at once (default 1; with `slots`, all seeds, bounded by the free slots). */
   concurrency?: number;
+  /** The shared core scheduler: each run holds one slot while it computes. */
+  slots?: CoreSlots;
   signal?: AbortSignalLike;
-  /** Progress of each seed's estimation. */
-  onProgress?: (seed: number, p: SaemProgress) => void | Promise<void>;
+  /** Progress of each seed (estimation, then its post-fit steps). */
+  onProgress?: (seed: number, p: SeedProgress) => void | Promise<void>;
   /** Setting overrides for every seed (in-process runner). */
   settings?: Partial<SaemSettings>;
   /** Post-fit options for every seed (in-process runner). */
@@ -66,7 +93,7 @@ export function seedList(base: number, count: number): number[] {
 /** The default runOne: estimation and post-fit steps in this process. */
 export function runSeedInProcess(dataset: Dataset, spec: ModelSpec, options: Pick<FitSeedsOptions, 'settings' | 'posthoc'> = {}): RunOneSeed {
   return async (seed, signal, onProgress) => {
-    const outcome = await fitDataset(dataset, spec, { seed, onProgress, ...(signal ? { signal } : {}), ...(options.settings ? { settings: options.settings } : {}) });
+    const outcome = await fitDataset(dataset, spec, { seed, onProgress: (p) => onProgress(seedProgress(p)), signal, ...(options.settings ? { settings: options.settings } : {}) });
     return addPosthoc(outcome, options.posthoc ? { posthoc: options.posthoc } : {});
   };
 }
@@ -79,19 +106,40 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
   const seeds = options.seeds ? [...options.seeds] : seedList(settings.seed, settings.seeds);
   if (seeds.length < SEEDS_MIN || seeds.length > SEEDS_MAX) throw new RangeError(`a fit runs ${SEEDS_MIN} to ${SEEDS_MAX} seeds, got ${seeds.length}`);
   const runOne = options.runOne ?? runSeedInProcess(dataset, spec, options);
-  const concurrency = Math.max(1, Math.min(seeds.length, options.concurrency ?? 1));
+  const concurrency = Math.max(1, Math.min(seeds.length, options.concurrency ?? (options.slots ? seeds.length : 1)));
+  // One controller for the runs: the caller's cancel, or the first failure, stops them all.
+  const stop = new AbortController();
+  const outer = options.signal;
+  const onOuterAbort = () => stop.abort();
+  if (outer && typeof (outer as AbortSignal).addEventListener === 'function') (outer as AbortSignal).addEventListener('abort', onOuterAbort, { once: true });
   const records: PosthocFitRecord[] = new Array(seeds.length);
+  let failure: { error: unknown } | undefined;
   let next = 0;
+  const runK = async (k: number) => {
+    await options.onStatus?.(`seed ${seeds[k]} (${k + 1} of ${seeds.length})`);
+    records[k] = await runOne(seeds[k], stop.signal, (p) => options.onProgress?.(seeds[k], p));
+  };
   const worker = async () => {
-    while (next < seeds.length) {
+    while (next < seeds.length && !failure) {
       const k = next++;
-      if (options.signal?.aborted) return;
-      await options.onStatus?.(`seed ${seeds[k]} (${k + 1} of ${seeds.length})`);
-      records[k] = await runOne(seeds[k], options.signal, (p) => options.onProgress?.(seeds[k], p));
+      if (outer?.aborted) stop.abort();
+      if (stop.signal.aborted) return;
+      try {
+        if (options.slots) await options.slots.withSlot(() => runK(k), stop.signal);
+        else await runK(k);
+      } catch (error) {
+        if (!failure && !stop.signal.aborted) failure = { error };
+        stop.abort();
+      }
     }
   };
-  await Promise.all(Array.from({ length: concurrency }, worker));
-  if (options.signal?.aborted || records.some((r) => r === undefined)) {
+  try {
+    await Promise.all(Array.from({ length: concurrency }, worker));
+  } finally {
+    if (outer && typeof (outer as AbortSignal).removeEventListener === 'function') (outer as AbortSignal).removeEventListener('abort', onOuterAbort);
+  }
+  if (failure && !outer?.aborted) throw failure.error;
+  if (outer?.aborted || records.some((r) => r === undefined)) {
     const e = new Error('the fit was cancelled');
     e.name = 'AbortError';
     throw e;

@@ -456,7 +456,8 @@ export class ProjectStore {
     await this.writeItem(`fits/${id}/fit.json`, record);
     const likelihood = record.likelihood as { minus2LL?: unknown } | undefined;
     const minus2LL = typeof likelihood?.minus2LL === 'number' && Number.isFinite(likelihood.minus2LL) ? likelihood.minus2LL : null;
-    const robustness = record.robustness as { verdict?: unknown } | undefined;
+    // The seeds' verdict of a multi-seed fit, else the older repeated-fit verdict.
+    const robustness = (record.seeds ?? record.robustness) as { verdict?: unknown } | undefined;
     const warnings = Array.isArray(record.warnings) ? record.warnings.length : 0;
     await this.mutate((p) => void p.fits.push({ id, ...meta, createdAt: now(), minus2LL, ...(typeof robustness?.verdict === 'string' ? { verdict: robustness.verdict } : {}), warnings }));
     const spec = record.spec as { structure?: unknown } | undefined;

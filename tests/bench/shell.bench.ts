@@ -57,7 +57,7 @@ export const suite = {
     const K = 8;
     const queue = await FitQueue.open(store, { concurrency: 1, worker: { modulePath: workerEntry } });
     const t0 = performance.now();
-    await queue.enqueue({ datasetId, modelId, seeds: Array.from({ length: K }, (_, i) => i + 1), settings: TINY, postFit: { run: false } });
+    for (let i = 0; i < K; i++) await queue.enqueue({ datasetId, modelId, seeds: [i + 1], settings: TINY, postFit: { run: false } });
     await queue.whenIdle();
     const queueMs = (performance.now() - t0) / K;
     const failed = queue.snapshot().jobs.filter((j) => j.state !== 'done').length;

@@ -30,11 +30,12 @@ export function theophDataset(): Dataset {
 }
 
 /** Theoph: one compartment, first-order absorption, log-normal BSV on CL, V, ka, additive error. */
-export const theophSpec: ModelSpec = parseModelSpec({
+export const theophSpecJson = {
   structure: '1cmt',
   parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
   residual: { model: 'additive', a: 1 },
-});
+};
+export const theophSpec: ModelSpec = parseModelSpec(theophSpecJson);
 
 /** The model the TDM levels are simulated from. */
 export const tdmTruth: ModelSpec = parseModelSpec({

@@ -21,7 +21,8 @@ export const phenobarbSpec: ModelSpec = parseModelSpec({
   residual: { model: 'additive', a: 3 },
 });
 
-export const sparseTdmSpec: ModelSpec = parseModelSpec({
+/** The sparse design's model as JSON (what a worker job or `plateau fit --model` gets). */
+export const sparseTdmSpecJson = {
   name: 'sparse TDM 2cmt infusion (simulation)',
   structure: '2cmt',
   parameters: { CL: { typical: 3, bsv: 0.5 }, V1: { typical: 20, bsv: 0.5 }, Q: { typical: 4, bsv: null }, V2: { typical: 40, bsv: null, fixed: true } },
@@ -30,7 +31,8 @@ export const sparseTdmSpec: ModelSpec = parseModelSpec({
     { parameter: 'V1', covariate: 'weight_kg', relation: 'power', reference: 70, coefficient: 1, fixed: true },
   ],
   residual: { model: 'combined', a: 1, b: 0.2 },
-});
+};
+export const sparseTdmSpec: ModelSpec = parseModelSpec(sparseTdmSpecJson);
 
 
 /** A dataset of tests/reference (found from the source or the compiled dist/ location). */

@@ -7,9 +7,13 @@
 import { mkdtempSync, readFileSync } from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { beforeAll, describe, expect, it } from 'vitest';
 import { runCli } from '../../main/cli/run.js';
 import { captureIo } from '../helpers/captureIo.js';
+import { ensureBuilt } from './services/build.js';
+
+// `plateau fit` runs its seeds in the compiled engine worker.
+beforeAll(() => ensureBuilt(), 300_000);
 
 const root = path.resolve(__dirname, '../..');
 

@@ -2,12 +2,16 @@
 import { formatFitSummary } from '../../../engine/saem/fitRecord.js';
 import { ModelDataError } from '../../../engine/stats/model.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { compileModel } from '../../../engine/stats/model.js';
+import { CoreSlots, machineCores } from '../../services/coreSlots.js';
 import { readDataset } from '../../services/fitService.js';
 import { formatPosthocSummary } from '../../services/fitPosthoc.js';
-import { fitSeeds, formatSeeds, SEEDS_MAX, SEEDS_MIN } from '../../services/fitSeeds.js';
-import { readJsonFile } from '../../services/files.js';
+import { runSeedInWorker } from '../../services/fitRunner.js';
+import { fitSeeds, formatSeeds, SEEDS_MAX, SEEDS_MIN, type SeedProgress } from '../../services/fitSeeds.js';
+import { checkOutputPath, readJsonFile } from '../../services/files.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
 import { resolvePath, writeFileAtomic } from '../../services/files.js';
+import { cliServiceRoots } from '../run.js';
 import { CliError, type CliCommand } from '../types.js';
 
 const usage = `usage: plateau fit --data <canonical.csv|spreadsheet> --model <spec.json> [--mapping <template.json>]
@@ -24,8 +28,9 @@ a summary. The spec's "estimation" block holds the estimator settings; --seed ov
               the fit runs from seeds N, N+1, ..., reports whether they agree and keeps the one
               with the lowest importance-sampling -2LL; --seeds 1 runs one seed only
   --out       write the fit result (JSON) to this file
-  --progress  print the estimates every 10 iterations to stderr
+  --progress  print each seed's phase, iteration and estimates to stderr (about once a second)
 
+The seeds run in parallel engine worker processes, as many at once as the machine has cores.
 Each seed's fit is followed by standard errors, -2LL (importance sampling), AIC, BIC, individual
 conditional distributions, shrinkage and diagnostics (NPDE, VPC); the kept fit is written to
 fit.json with the seeds' verdict ("seeds") and its degeneracy checks ("degeneracy").`;
@@ -58,22 +63,33 @@ export const command: CliCommand = {
     if (seeds !== undefined && (seeds < SEEDS_MIN || seeds > SEEDS_MAX)) throw new CliError(`--seeds must be an integer in [${SEEDS_MIN}, ${SEEDS_MAX}], got ${seeds}`);
     const progress = booleanFlag(args, 'progress');
     const mapping = stringFlag(args, 'mapping');
+    const out = stringFlag(args, 'out');
+    const outFile = out !== undefined ? resolvePath(io.cwd, out) : undefined;
     let record;
     try {
+      // Checked before any worker starts: a fit of minutes must not end in "cannot write".
+      if (outFile !== undefined) await checkOutputPath(outFile);
       const dataset = await readDataset(resolvePath(io.cwd, stringFlag(args, 'data')!), mapping !== undefined ? resolvePath(io.cwd, mapping) : undefined);
-      const spec = parseModelSpec(await readJsonFile(resolvePath(io.cwd, stringFlag(args, 'model')!)));
+      const specJson = (await readJsonFile(resolvePath(io.cwd, stringFlag(args, 'model')!))) as Record<string, unknown>;
+      const spec = parseModelSpec(specJson);
+      compileModel(spec, dataset); // the model must match the data before any process starts
+      const settings = { ...(seed !== undefined ? { seed } : {}), ...(seeds !== undefined ? { seeds } : {}) };
+      const lastPrinted = new Map<number, { atMs: number; phase: string }>();
       record = await fitSeeds(dataset, spec, {
-        settings: { ...(seed !== undefined ? { seed } : {}), ...(seeds !== undefined ? { seeds } : {}) },
+        settings,
+        runOne: runSeedInWorker(dataset, { specJson, settings, worker: { modulePath: cliServiceRoots().workerEntry } }),
+        slots: new CoreSlots(machineCores()),
         ...(signal ? { signal } : {}),
         ...(progress
           ? {
               onStatus: (m: string) => io.stderr(`[${m}]\n`),
-              onProgress: (s: number, p) => {
-                if (p.iteration % 10 !== 0 && p.iteration !== p.searchEnd) return;
-                const est = p.estimateNames.map((n, q) => `${n}=${p.estimates[q].toPrecision(4)}`).join(' ');
-                io.stderr(`[seed ${s} ${p.phase} ${p.iteration}/${p.plannedIterations}] ${est}\n`);
-                // Let the event loop breathe so a cancellation can arrive.
-                return new Promise<void>((resolve) => setImmediate(resolve));
+              onProgress: (s: number, p: SeedProgress) => {
+                const last = lastPrinted.get(s);
+                const now = Date.now();
+                if (last && last.phase === p.phase && now - last.atMs < 1000) return;
+                lastPrinted.set(s, { atMs: now, phase: p.phase });
+                const est = Object.entries(p.estimates).map(([n, x]) => `${n}=${x.toPrecision(4)}`).join(' ');
+                io.stderr(`[seed ${s} ${p.phase} ${p.iteration}/${p.maxIterations}] ${p.message ?? est}\n`);
               },
             }
           : {}),
@@ -85,11 +101,9 @@ export const command: CliCommand = {
     }
     io.stdout(`${formatFitSummary(record, formatSeeds(record.seeds))}\n`);
     io.stdout(`${formatPosthocSummary(record)}\n`);
-    const out = stringFlag(args, 'out');
-    if (out !== undefined) {
-      const file = resolvePath(io.cwd, out);
-      await writeFileAtomic(file, `${JSON.stringify(record, null, 1)}\n`);
-      io.stdout(`\nwrote ${file}\n`);
+    if (outFile !== undefined) {
+      await writeFileAtomic(outFile, `${JSON.stringify(record, null, 1)}\n`);
+      io.stdout(`\nwrote ${outFile}\n`);
     }
     return 0;
   },

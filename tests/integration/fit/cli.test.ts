@@ -1,9 +1,13 @@
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { beforeAll, describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
 import { captureIo } from '../../helpers/captureIo.js';
+import { ensureBuilt } from '../services/build.js';
+
+// `plateau fit` runs its seeds in the compiled engine worker.
+beforeAll(() => ensureBuilt(), 300_000);
 
 const theophCsv = path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv');
 
@@ -22,7 +26,7 @@ describe('plateau fit', () => {
   it('fits, prints a summary and writes fit.json with the documented fields', async () => {
     const t = captureIo(dir);
     const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--seed', '7', '--out', 'fit.json', '--progress'], t.io);
-    expect(t.err()).toMatch(/\[seed \d+ search 10\//);
+    expect(t.err()).toMatch(/\[seed \d+ search \d+\/\d+\] CL=/);
     expect(code).toBe(0);
     const text = t.out();
     expect(text).toContain('CL (typical)');
@@ -50,6 +54,16 @@ describe('plateau fit', () => {
     const code = await runCli(['fit', '--data', theophCsv, '--model', 'bad.json'], t.io);
     expect(code).toBe(1);
     expect(t.err()).toContain('estimation.chains');
+  });
+
+  it('refuses an --out it cannot write before any fit starts', async () => {
+    const t = captureIo(dir);
+    const started = Date.now();
+    const code = await runCli(['fit', '--data', theophCsv, '--model', 'spec.json', '--out', 'no-such-folder/fit.json'], t.io);
+    expect(code).toBe(1);
+    expect(t.err()).toMatch(/cannot write .*fit\.json: the folder .*no-such-folder does not exist/);
+    expect(t.err()).not.toContain('[seed');
+    expect(Date.now() - started).toBeLessThan(2000);
   });
 
   it('needs --data and --model', async () => {

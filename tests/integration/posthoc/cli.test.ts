@@ -2,9 +2,13 @@
 import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import * as os from 'node:os';
 import * as path from 'node:path';
-import { describe, expect, it } from 'vitest';
+import { beforeAll, describe, expect, it } from 'vitest';
 import { runCli } from '../../../main/cli/run.js';
 import { captureIo } from '../../helpers/captureIo.js';
+import { ensureBuilt } from '../services/build.js';
+
+// `plateau fit` runs its seeds in the compiled engine worker.
+beforeAll(() => ensureBuilt(), 300_000);
 
 const theophCsv = path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv');
 const spec = {

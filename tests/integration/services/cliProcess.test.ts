@@ -30,11 +30,11 @@ describe('command line and worker processes', () => {
   it('Ctrl-C during the post-fit steps stops fit: exit 130, no --out, no temp file', async () => {
     const dir = mkdtempSync(path.join(tmpdir(), 'plateau-sigint-'));
     // detached: its own process group, so the signal goes to the group as a terminal's Ctrl-C does.
-    const child = spawn(process.execPath, [bin, 'fit', '--data', demo('ward-levels.csv'), '--model', demo('ward-model.json'), '--seeds', '1', '--progress', '--out', 'fit.json'], { cwd: dir, detached: true, stdio: ['ignore', 'pipe', 'pipe'] });
+    const child = spawn(process.execPath, [bin, 'fit', '--data', demo('ward-levels.csv'), '--model', demo('ward-model.json'), '--progress', '--out', 'fit.json'], { cwd: dir, detached: true, stdio: ['ignore', 'pipe', 'pipe'] });
     let err = '';
     const exit = exitOf(child);
-    await new Promise<void>((resolve) => child.stderr!.on('data', (d) => ((err += d), /averaging (\d+)\/\1\]/.test(err) && resolve())));
-    // The last averaging iteration is reported: the post-fit steps are running now.
+    await new Promise<void>((resolve) => child.stderr!.on('data', (d) => ((err += d), /\[seed \d+ post-fit/.test(err) && resolve())));
+    // A seed's post-fit steps are running now (in its engine worker).
     const t0 = performance.now();
     process.kill(-child.pid!, 'SIGINT');
     const { code } = await exit;

@@ -12,6 +12,7 @@ import type { QueueSnapshot } from '../../../main/protocol/bridge.js';
 import { FitQueue } from '../../../main/services/fitQueue.js';
 import { fitDataset } from '../../../main/services/fitService.js';
 import { addPosthoc } from '../../../main/services/fitPosthoc.js';
+import { fitSeeds } from '../../../main/services/fitSeeds.js';
 import { ProjectStore } from '../../../main/services/projectStore.js';
 import { engineWorkerPath, ensureBuilt, resourcesDir } from './build.js';
 
@@ -20,6 +21,9 @@ beforeAll(() => ensureBuilt(), 300_000);
 const SHORT = { searchMinIterations: 40, searchMaxIterations: 60, averagingIterations: 30 };
 /** Long enough to be caught mid-fit (several seconds on the demo data). */
 const LONG = { searchMinIterations: 4000, searchMaxIterations: 4000, autoEndSearch: false, averagingIterations: 200 };
+
+/** A record as JSON without its wall and CPU times. */
+const withoutTimes = (r: unknown) => JSON.parse(JSON.stringify(r, (k, v) => (k === 'timing' || /Ms$/.test(k) ? undefined : v)));
 
 const open: FitQueue[] = [];
 afterEach(async () => {
@@ -63,33 +67,41 @@ function waitForProgress(q: FitQueue, jobId: string, pred: (phase: string, itera
 }
 
 describe('fit queue with real workers', () => {
-  it('runs three fits two at a time with the same results as direct engine calls', async () => {
+  it('runs a multi-seed job and two single-seed jobs, two cores at a time, with the same results as the in-process path', async () => {
     const { store, q, datasetId, modelId } = await setup(2);
     let maxRunning = 0;
+    let maxSlots = 0;
     q.onQueue((s) => (maxRunning = Math.max(maxRunning, s.jobs.filter((j) => j.state === 'running').length)));
-    const ids = await q.enqueue({ datasetId, modelId, seeds: [11, 12], settings: SHORT, postFit: { run: false } });
-    const [withPost] = await q.enqueue({ datasetId, modelId, seeds: [13], settings: SHORT });
+    q.onProgress(() => (maxSlots = Math.max(maxSlots, q.slots.inUse)));
+    const [multi] = await q.enqueue({ datasetId, modelId, seeds: [11, 12], settings: SHORT });
+    const [single] = await q.enqueue({ datasetId, modelId, seeds: [13], settings: SHORT, postFit: { run: false } });
+    const [withPost] = await q.enqueue({ datasetId, modelId, seeds: [14], settings: SHORT, postFit: { run: true } });
+    expect(q.snapshot().jobs.map((j) => j.seeds)).toEqual([[11, 12], [13], [14]]);
     await q.whenIdle();
     const snap = q.snapshot();
     expect(snap.jobs.map((j) => j.state)).toEqual(['done', 'done', 'done']);
     expect(maxRunning).toBe(2);
+    expect(maxSlots).toBeLessThanOrEqual(2);
+    expect(q.slots.inUse).toBe(0);
     const dataset = await store.getDataset(datasetId);
     const spec = (await store.getModel(modelId)).spec;
-    for (const [i, seed] of [11, 12].entries()) {
-      const job = snap.jobs.find((j) => j.id === ids[i])!;
-      const fromQueue = await store.getFit(job.fitId!);
-      const direct = await fitDataset(dataset, spec, { seed, settings: SHORT });
-      expect(fromQueue.population).toEqual(JSON.parse(JSON.stringify(direct.record.population)));
-      expect(fromQueue.dataHash).toBe(direct.record.dataHash);
-    }
-    const post = await store.getFit(snap.jobs.find((j) => j.id === withPost)!.fitId!);
-    const directOutcome = await fitDataset(dataset, spec, { seed: 13, settings: SHORT });
-    const directPost = await addPosthoc(directOutcome);
+    const fitOf = (id: string) => store.getFit(snap.jobs.find((j) => j.id === id)!.fitId!);
+    // The multi-seed job: the same record as fitSeeds in this process, seeds' verdict included.
+    const fromQueue = await fitOf(multi);
+    const inProcess = await fitSeeds(dataset, spec, { seeds: [11, 12], settings: SHORT });
+    expect(withoutTimes(fromQueue)).toEqual(withoutTimes(inProcess));
+    expect((fromQueue.seeds as { seeds: number[] }).seeds).toEqual([11, 12]);
+    const summary = store.project.fits.find((f) => f.id === snap.jobs[0].fitId)!;
+    expect(summary.verdict).toBe(inProcess.seeds.verdict);
+    const direct = await fitDataset(dataset, spec, { seed: 13, settings: SHORT });
+    expect((await fitOf(single)).population).toEqual(JSON.parse(JSON.stringify(direct.record.population)));
+    const directPost = await addPosthoc(await fitDataset(dataset, spec, { seed: 14, settings: SHORT }));
+    const post = await fitOf(withPost);
     expect(post.population).toEqual(JSON.parse(JSON.stringify(directPost.population)));
     expect(post.likelihood).toEqual(JSON.parse(JSON.stringify(directPost.likelihood)));
     const audit = await store.readAudit();
-    expect(audit.filter((a) => a.action === 'fit.save').map((a) => a.seed).sort()).toEqual([11, 12, 13]);
-  }, 120_000);
+    expect(audit.filter((a) => a.action === 'fit.save').map((a) => a.seed).sort()).toEqual([inProcess.seed, 13, 14].sort());
+  }, 180_000);
 
   it('fails only the job whose worker was killed (SIGKILL), with the reason', async () => {
     const { q, datasetId, modelId } = await setup(2);
@@ -128,16 +140,20 @@ describe('fit queue with real workers', () => {
     const q2 = await FitQueue.open(store2, { concurrency: 1, autoStart: false, worker: { modulePath: engineWorkerPath } });
     open.push(q2);
     const before = q2.snapshot();
-    expect(before.jobs.map((j) => [j.seed, j.state])).toEqual([
-      [21, 'queued'],
-      [22, 'queued'],
-      [23, 'queued'],
+    expect(before.jobs.map((j) => [j.seeds, j.state])).toEqual([
+      [[21], 'queued'],
+      [[22, 23], 'queued'],
     ]);
     expect(q2.notes.join(' ')).toMatch(/queued again/);
     await q2.cancel(first); // the long one: not needed for the check
+    // Without seeds, a job fits the model's default seed count from its seed.
+    const [byDefault] = await q2.enqueue({ datasetId, modelId, settings: { ...SHORT, seed: 40 } });
+    expect(q2.snapshot().jobs.find((j) => j.id === byDefault)!.seeds).toEqual([40, 41, 42]);
+    await q2.cancel(byDefault);
+    await expect(q2.enqueue({ datasetId, modelId, seeds: [5, 5] })).rejects.toThrow(/must differ/);
     q2.start();
     await q2.whenIdle();
-    expect(q2.snapshot().jobs.map((j) => j.state)).toEqual(['cancelled', 'done', 'done']);
+    expect(q2.snapshot().jobs.map((j) => j.state)).toEqual(['cancelled', 'done', 'cancelled']);
   }, 120_000);
 
   it('cancels within 1 s mid-fit and mid-post-fit', async () => {

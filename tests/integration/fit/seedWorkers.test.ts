@@ -1,0 +1,65 @@
+/**
+ * The seeds of a fit in engine worker processes (main/services/fitRunner.ts runSeedInWorker) on
+ * R's Theoph (datasets::Theoph, tests/reference/theoph): the record equals the in-process path
+ * for the same seeds, number for number (the worker runs the same engine code; only the
+ * timing fields differ), and the shared core slots bound how many seeds compute at once.
+ */
+import { readFileSync } from 'node:fs';
+import * as path from 'node:path';
+import { beforeAll, describe, expect, it } from 'vitest';
+import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
+import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { CoreSlots } from '../../../main/services/coreSlots.js';
+import { runSeedInWorker } from '../../../main/services/fitRunner.js';
+import { fitSeeds, runSeedInProcess, type RunOneSeed } from '../../../main/services/fitSeeds.js';
+import { engineWorkerPath, ensureBuilt } from '../services/build.js';
+
+beforeAll(() => ensureBuilt(), 300_000);
+
+const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../reference/theoph/theoph.csv'), 'utf8'));
+const specJson = {
+  structure: '1cmt',
+  parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
+  residual: { model: 'additive', a: 1 },
+  estimation: { seed: 3, seeds: 3, searchMinIterations: 40, searchMaxIterations: 60, averagingIterations: 30, chains: 2 },
+};
+const spec = parseModelSpec(specJson);
+
+/** The record without its wall/CPU times, as JSON (the worker's answer is JSON too). */
+function comparable(record: unknown): unknown {
+  return JSON.parse(JSON.stringify(record, (k, v) => (k === 'timing' || /Ms$|Seconds$|S$/.test(k) ? undefined : v)));
+}
+
+describe('seeds in worker processes', () => {
+  it('give the same record as the in-process path for the same seeds, with at most `slots` at once', async () => {
+    const slots = new CoreSlots(2);
+    let maxInUse = 0;
+    const inner = runSeedInWorker(dataset, { specJson, worker: { modulePath: engineWorkerPath } });
+    const runOne: RunOneSeed = async (seed, signal, onProgress) => {
+      maxInUse = Math.max(maxInUse, slots.inUse);
+      return inner(seed, signal, onProgress);
+    };
+    const phases = new Set<string>();
+    const inWorkers = await fitSeeds(dataset, spec, { runOne, slots, onProgress: (_s, p) => void phases.add(p.phase) });
+    const inProcess = await fitSeeds(dataset, spec);
+    expect(inWorkers.seeds.runs.map((r) => r.seed)).toEqual([3, 4, 5]);
+    expect(maxInUse).toBeLessThanOrEqual(2);
+    expect(slots.inUse).toBe(0);
+    expect(phases.has('search')).toBe(true);
+    expect(comparable(inWorkers)).toEqual(comparable(inProcess));
+  }, 180_000);
+
+  it('a cancel stops every seed and rejects as cancelled', async () => {
+    const ctl = new AbortController();
+    const long = runSeedInWorker(dataset, { specJson, settings: { searchMinIterations: 5000, searchMaxIterations: 5000, autoEndSearch: false }, worker: { modulePath: engineWorkerPath } });
+    const started = Date.now();
+    const run = fitSeeds(dataset, spec, {
+      runOne: long,
+      slots: new CoreSlots(2),
+      signal: ctl.signal,
+      onProgress: () => ctl.abort(),
+    });
+    await expect(run).rejects.toMatchObject({ name: 'AbortError' });
+    expect(Date.now() - started).toBeLessThan(20_000);
+  }, 60_000);
+});
