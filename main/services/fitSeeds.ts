@@ -21,6 +21,7 @@ import type { AbortSignalLike, SaemProgress } from '../../engine/saem/saem.js';
 import type { SaemSettings } from '../../engine/saem/settings.js';
 import { parseSaemSettings } from '../../engine/saem/settings.js';
 import type { ModelSpec } from '../../engine/spec/modelSpec.js';
+import type { ProgressMessage } from '../protocol/worker.js';
 import type { CoreSlots } from './coreSlots.js';
 import { fitDataset } from './fitService.js';
 import { addPosthoc, type FitPosthocOptions, type PosthocFitRecord } from './fitPosthoc.js';
@@ -34,7 +35,7 @@ export const SEEDS_MAX = 16;
  * without its job id): phase, iteration, planned iterations, current estimates by name.
  */
 export interface SeedProgress {
-  phase: 'search' | 'averaging' | 'post-fit' | 'repeat' | 'parse' | 'simulate' | 'advise';
+  phase: ProgressMessage['phase'];
   iteration: number;
   maxIterations: number;
   estimates: Record<string, number>;
