@@ -196,9 +196,50 @@ export async function checkOutputPath(file: string): Promise<void> {
   }
 }
 
+/** True when a process with this id is running (EPERM: it runs as another user). */
+function processAlive(pid: number): boolean {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (e) {
+    return (e as NodeJS.ErrnoException).code === 'EPERM';
+  }
+}
+
+/**
+ * Remove temp files of `file` (`.name.pid.rand.tmp`) left by a process killed during a write
+ * (SIGKILL runs no exit hook): those whose process is gone, and this process's own that no
+ * write in flight holds (a reused pid). Another live process's temp file is left alone.
+ */
+export async function removeStaleTemps(file: string): Promise<string[]> {
+  const dir = path.dirname(file);
+  const base = path.basename(file);
+  const prefix = `.${base}.`;
+  let names: string[];
+  try {
+    names = await fs.readdir(dir);
+  } catch {
+    return [];
+  }
+  const removed: string[] = [];
+  for (const name of names) {
+    if (!name.startsWith(prefix) || !name.endsWith('.tmp')) continue;
+    const m = /^(\d+)\.[0-9a-f]{8}\.tmp$/.exec(name.slice(prefix.length));
+    if (!m) continue;
+    const pid = Number(m[1]);
+    const full = path.join(dir, name);
+    const stale = pid === process.pid ? !inFlightTemps.has(full) : !processAlive(pid);
+    if (!stale) continue;
+    await fs.rm(full, { force: true }).catch(() => undefined);
+    removed.push(full);
+  }
+  return removed;
+}
+
 /**
  * Write a file atomically: a temporary file in the same folder, flushed, then renamed over the
- * target, so a reader never sees half a file and a crash leaves the old file intact.
+ * target, so a reader never sees half a file and a crash leaves the old file intact. Temp files
+ * of the same target left by a killed process are removed first (removeStaleTemps).
  */
 export async function writeFileAtomic(file: string, data: string | Uint8Array): Promise<void> {
   checkNotCancelled(file);
@@ -210,6 +251,7 @@ export async function writeFileAtomic(file: string, data: string | Uint8Array): 
     if (e instanceof ServiceError) throw e;
     throw new ServiceError('file', `cannot write ${file}: the folder ${dir} does not exist`);
   }
+  await removeStaleTemps(file);
   const tmp = path.join(dir, `.${path.basename(file)}.${process.pid}.${randomBytes(4).toString('hex')}.tmp`);
   let handle: fs.FileHandle | undefined;
   trackTemp(tmp);
