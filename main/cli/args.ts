@@ -131,7 +131,8 @@ export function booleanFlag(args: ParsedArgs, name: string): boolean {
 export function numberFlag(args: ParsedArgs, name: string, opts: { integer?: boolean; usage?: string; min?: number; max?: number } = {}): number | undefined {
   const raw = stringFlag(args, name);
   if (raw === undefined) return undefined;
-  const n = raw.trim() === '' ? NaN : Number(raw);
+  // Decimal notation only: Number() would also read "0x10" as 16 and " 12 " as 12.
+  const n = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/.test(raw) ? Number(raw) : NaN;
   const range = opts.min !== undefined && opts.max !== undefined ? ` from ${opts.min} to ${opts.max}` : opts.min !== undefined ? ` >= ${opts.min}` : opts.max !== undefined ? ` <= ${opts.max}` : '';
   const kind = `${opts.integer ? 'an integer' : 'a number'}${range}`;
   if (!Number.isFinite(n) || (opts.integer && !Number.isInteger(n)) || (opts.min !== undefined && n < opts.min) || (opts.max !== undefined && n > opts.max)) {

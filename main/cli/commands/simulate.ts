@@ -2,6 +2,7 @@
 import * as path from 'node:path';
 import { writeCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { parseSaemSettings } from '../../../engine/saem/settings.js';
 import { loadDataset } from '../../services/datasetLoader.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
 import { checkOutputPath, readJsonFile, resolvePath, writeFileAtomic } from '../../services/files.js';
@@ -26,7 +27,7 @@ gives that subject's own value.
   --seed N             seed for --variability, an integer from 0 to 4294967295 (default 1);
                        same seed, same result
   --out <file>         .csv (canonical CSV, conc_mg_L filled) or .json; default: CSV to stdout
-                       (on stdout, control characters in ids are shown escaped, e.g. \x1b)`;
+                       (on stdout, control characters in ids are shown escaped, e.g. \\x1b)`;
 
 const specs = {
   model: { type: 'string', required: true },
@@ -78,6 +79,8 @@ export const command: CliCommand = {
     if (out !== undefined) await checkOutputPath(resolvePath(io.cwd, out));
     const specFile = resolvePath(io.cwd, stringFlag(args, 'model')!);
     const spec = parseModelSpec(await readJsonFile(specFile));
+    // The estimation block is not used here, but a wrong one is named now rather than at fit time.
+    parseSaemSettings(spec.estimation);
     const dataFile = resolvePath(io.cwd, stringFlag(args, 'data')!);
     const mapping = stringFlag(args, 'mapping');
     const dataset = await loadDataset(dataFile, mapping !== undefined ? { mapping: resolvePath(io.cwd, mapping) } : {});

@@ -179,3 +179,60 @@ describe('no internal exception text reaches the user (issue 11, item 8)', () =>
     for (const m of seen) expect(m).not.toMatch(/invalid (distance|block|stored|code)|incorrect header|Cannot create a Buffer|unexpected end of file|Cannot set properties|TypeError|RangeError/i);
   });
 });
+
+describe('found by the CLI fuzz (tests/fuzz/cli.fuzz.test.ts): refused instead of silently read', () => {
+  it('a key given twice in one JSON object is refused (JSON.parse keeps the last without a word)', async () => {
+    const dir = workspace();
+    const text = readFileSync(demo('ward-model.json'), 'utf8').replace('"structure": "1cmt",', '"structure": "2cmt", "structure": "1cmt",');
+    writeFileSync(path.join(dir, 'dup.json'), text);
+    const r = await run(dir, 'simulate', '--model', 'dup.json', '--data', 'data.csv');
+    expect(r.code).toBe(1);
+    expect(r.err).toMatch(/dup\.json is not valid input at line \d+, column \d+: the key "structure" appears twice in one object/);
+  });
+
+  it('nesting beyond 200 levels is a clear error, not a stack overflow', async () => {
+    const dir = workspace();
+    writeFileSync(path.join(dir, 'deep.json'), '['.repeat(100_000) + ']'.repeat(100_000));
+    const r = await run(dir, 'simulate', '--model', 'deep.json', '--data', 'data.csv');
+    expect(r.code).toBe(1);
+    expect(r.err).toContain('nesting deeper than 200 levels');
+    expect(r.err).not.toContain('internal error');
+  });
+
+  it('null where null is not a documented value is refused (it was read as "use the default")', async () => {
+    const dir = workspace();
+    const spec = JSON.parse(readFileSync(demo('ward-model.json'), 'utf8')) as { parameters: { V: Record<string, unknown> }; covariates: Record<string, unknown>[] };
+    spec.parameters.V.transform = null;
+    spec.covariates[0].coefficient = null;
+    writeFileSync(path.join(dir, 'nulls.json'), JSON.stringify(spec));
+    const r = await run(dir, 'simulate', '--model', 'nulls.json', '--data', 'data.csv');
+    expect(r.code).toBe(1);
+    expect(r.err).toContain('parameters.V.transform: null is not a value here');
+    expect(r.err).toContain('covariates[0].coefficient: null is not a value here');
+  });
+
+  it('a wrong estimation block is named by simulate and dose, which do not use it', async () => {
+    const dir = workspace();
+    const spec = JSON.parse(readFileSync(demo('ward-model.json'), 'utf8')) as { estimation: Record<string, unknown> };
+    spec.estimation.seed = '12';
+    writeFileSync(path.join(dir, 'est.json'), JSON.stringify(spec));
+    expect((await run(dir, 'simulate', '--model', 'est.json', '--data', 'data.csv')).err).toMatch(/seed/);
+    const d = await run(dir, 'dose', '--model', 'est.json', '--patient', 'patient.json');
+    expect(d.code).toBe(1);
+    expect(d.err).toMatch(/estimation|seed/);
+    expect(d.out).not.toContain('dose advice for patient');
+  });
+
+  it('a target MIC of 1e308 is refused; option numbers are decimal only (0x10 is not 16)', async () => {
+    const dir = workspace();
+    const target = JSON.parse(readFileSync(path.join(repoRoot, 'resources/targets/vancomycin-auc24.json'), 'utf8')) as Record<string, unknown>;
+    target.micMgL = 1e308;
+    writeFileSync(path.join(dir, 'target.json'), JSON.stringify(target));
+    const r = await run(dir, 'dose', '--model', 'model.json', '--patient', 'patient.json', '--target', 'target.json');
+    expect(r.code).toBe(1);
+    expect(r.err).toContain('micMgL: must be a number > 0 and at most 1024');
+    const h = await run(dir, 'simulate', '--model', 'model.json', '--data', 'data.csv', '--variability', '--seed', '0x10');
+    expect(h.code).toBe(2);
+    expect(h.err).toContain('--seed must be an integer from 0 to 4294967295, got "0x10"');
+  });
+});
