@@ -159,6 +159,27 @@ describe('SIGKILL at random moments never leaves a broken file, and stale temp f
     }, 120_000);
   }
 
+  it('a writer SIGKILLed in the middle of a large write leaves a temp file, which the next command removes', async () => {
+    const dir = workspace();
+    const target = path.join(dir, 'sim.csv');
+    writeFileSync(target, 'subject,time_h\nA,0\n');
+    // A process that writes 200 MB through the one atomic writer, killed while it writes.
+    const files = path.join(repoRoot, 'dist/main/services/files.js');
+    const script = `import('${files.replace(/\\/g, '/')}').then((m) => m.writeFileAtomic(${JSON.stringify(target)}, Buffer.alloc(200 * 1024 * 1024, 65)))`;
+    const child = spawn(process.execPath, ['-e', script], { stdio: 'ignore' });
+    const deadline = Date.now() + 20_000;
+    while (tempsIn(dir).length === 0 && Date.now() < deadline) await new Promise((r) => setTimeout(r, 5));
+    child.kill('SIGKILL');
+    await new Promise((r) => child.on('exit', r));
+    expect(tempsIn(dir).length).toBe(1);
+    // The target is still the previous complete file.
+    expect(readFileSync(target, 'utf8')).toBe('subject,time_h\nA,0\n');
+    const r = await runCli(dir, ['simulate', '--model', 'ward-model.json', '--data', 'ward-levels.csv', '--out', 'sim.csv']);
+    expect(r.code).toBe(0);
+    expect(tempsIn(dir)).toEqual([]);
+    expect(brokenReason(target)).toBeUndefined();
+  }, 60_000);
+
   it('a temp file of a process that is gone is removed before the next write; a live one is kept', async () => {
     const dir = workspace();
     // The pid of a process that has ended.
