@@ -197,10 +197,14 @@ export function parseTarget(json: unknown): TargetSpec {
   const localProtocol = typeof json.localProtocol === 'string' && /check local protocol/i.test(json.localProtocol) ? json.localProtocol : 'check local protocol';
   if (json.sourceStatus !== undefined && json.sourceStatus !== 'verified' && json.sourceStatus !== 'from memory') problems.push('sourceStatus: must be "verified" or "from memory"');
   const sourceStatus = json.sourceStatus === 'verified' ? 'verified' : 'from memory';
+  // Upper bounds (common practice): an MIC or threshold beyond 1024 mg/L, or a preferred interval
+  // beyond a week, is a typing error, and 1e308 would make every metric ratio 0.
+  const UPPER: Record<string, number> = { micMgL: 1024, thresholdMgL: 2000, preferIntervalH: 168, unboundFraction: 1 };
   const num = (k: string): number | undefined => {
     const v = json[k];
     if (v === undefined) return undefined;
     if (!(finite(v) && v > 0)) problems.push(`${k}: must be a number > 0`);
+    else if (UPPER[k] !== undefined && v > UPPER[k] && k !== 'unboundFraction') problems.push(`${k}: must be a number > 0 and at most ${UPPER[k]}, got ${v}`);
     return v as number;
   };
   const micMgL = num('micMgL');

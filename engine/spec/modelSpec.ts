@@ -126,6 +126,17 @@ function isRecord(x: unknown): x is Record<string, unknown> {
 }
 const finite = (x: unknown): x is number => typeof x === 'number' && Number.isFinite(x);
 
+/**
+ * A null where null is not a documented value (only `bsv: null`, "no between-subject
+ * variability") would otherwise be read as "use the default": refused, so no input is silently
+ * reinterpreted. Leave the key out for the default.
+ */
+function nullProblems(raw: Record<string, unknown>, at: string, nullable: readonly string[]): string[] {
+  return Object.keys(raw)
+    .filter((k) => raw[k] === null && !nullable.includes(k))
+    .map((k) => `${at}.${k}: null is not a value here; leave the key out for the default`);
+}
+
 /** Parse and validate a model spec from already-parsed JSON. Throws SpecError listing every problem. */
 export function parseModelSpec(json: unknown): ModelSpec {
   const problems: string[] = [];
@@ -155,6 +166,7 @@ export function parseModelSpec(json: unknown): ModelSpec {
         continue;
       }
       problems.push(...unknownKeyProblems(raw, PARAMETER_KEYS, at));
+      problems.push(...nullProblems(raw, at, ['bsv']));
       const transform = (raw.transform ?? (name === 'F' ? 'logit' : 'log')) as Transform;
       if (!TRANSFORMS.includes(transform)) problems.push(`${at}.transform: must be log, logit or none`);
       const typical = raw.typical;
@@ -187,6 +199,7 @@ export function parseModelSpec(json: unknown): ModelSpec {
       const at = `covariates[${i}]`;
       if (!isRecord(c)) return problems.push(`${at}: must be an object`);
       problems.push(...unknownKeyProblems(c, COVARIATE_EFFECT_KEYS, at));
+      problems.push(...nullProblems(c, at, []));
       const parameter = c.parameter as PkParameterName;
       if (!(typeof parameter === 'string' && parameter in parameters)) problems.push(`${at}.parameter: ${JSON.stringify(c.parameter)} is not a parameter of this model`);
       if (!(typeof c.covariate === 'string' && c.covariate.length > 0)) problems.push(`${at}.covariate: must name a covariate column`);

@@ -124,13 +124,19 @@ export function booleanFlag(args: ParsedArgs, name: string): boolean {
   return args.flags[name] === true;
 }
 
-/** Parse a flag value as a finite number (integer when asked), or a usage error naming the flag. */
-export function numberFlag(args: ParsedArgs, name: string, opts: { integer?: boolean; usage?: string } = {}): number | undefined {
+/**
+ * Parse a flag value as a finite number (integer when asked) within [min, max] when given, or a
+ * usage error naming the flag and its range.
+ */
+export function numberFlag(args: ParsedArgs, name: string, opts: { integer?: boolean; usage?: string; min?: number; max?: number } = {}): number | undefined {
   const raw = stringFlag(args, name);
   if (raw === undefined) return undefined;
-  const n = raw.trim() === '' ? NaN : Number(raw);
-  if (!Number.isFinite(n) || (opts.integer && !Number.isInteger(n))) {
-    throw new UsageError(`option --${name} must be ${opts.integer ? 'an integer' : 'a number'}, got "${raw}"`, opts.usage);
+  // Decimal notation only: Number() would also read "0x10" as 16 and " 12 " as 12.
+  const n = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/.test(raw) ? Number(raw) : NaN;
+  const range = opts.min !== undefined && opts.max !== undefined ? ` from ${opts.min} to ${opts.max}` : opts.min !== undefined ? ` >= ${opts.min}` : opts.max !== undefined ? ` <= ${opts.max}` : '';
+  const kind = `${opts.integer ? 'an integer' : 'a number'}${range}`;
+  if (!Number.isFinite(n) || (opts.integer && !Number.isInteger(n)) || (opts.min !== undefined && n < opts.min) || (opts.max !== undefined && n > opts.max)) {
+    throw new UsageError(`option --${name} must be ${kind}, got "${raw.length > 40 ? raw.slice(0, 40) + '...' : raw}"`, opts.usage);
   }
   return n;
 }

@@ -11,6 +11,7 @@ import { SpecError } from '../../engine/spec/modelSpec.js';
 import { CovariateValueError } from '../../engine/spec/individual.js';
 import { DatasetLoadError } from '../services/datasetLoader.js';
 import { ServiceError } from '../services/serviceError.js';
+import { printable } from '../../engine/text/printable.js';
 import { CliError, UsageError, type CliCommand, type CliIo } from './types.js';
 
 export interface RunOptions {
@@ -112,37 +113,46 @@ function withNewline(text: string): string {
   return text.endsWith('\n') ? text : `${text}\n`;
 }
 
+/** Text from files can reach an error message (ids, cell values): escape control characters line by line. */
+function safe(text: string): string {
+  return text.split('\n').map(printable).join('\n');
+}
+
 /** Print a failure readably and return its exit code; no stack trace unless debugging. */
-export function reportError(error: unknown, io: CliIo, debug: boolean, usage?: string): number {
+export function reportError(error: unknown, io: CliIo, debug: boolean, usage?: string, command?: string): number {
   if (error instanceof UsageError) {
-    io.stderr(`plateau: ${error.message}\n`);
+    io.stderr(`plateau: ${safe(error.message)}\n`);
     const u = error.usage ?? usage;
     if (u) io.stderr(`\n${withNewline(u)}`);
     return 2;
   }
   if (error instanceof DataError) {
-    io.stderr(`plateau: ${withNewline(error.message)}`);
+    io.stderr(`plateau: ${withNewline(safe(error.message))}`);
     io.stderr('Fix the rows listed above and run the command again.\n');
     if (debug && error.stack) io.stderr(`${error.stack}\n`);
     return 1;
   }
   if (error instanceof SpecError) {
     io.stderr(`plateau: the model spec has ${error.problems.length} problem(s):\n`);
-    for (const p of error.problems) io.stderr(`  ${p}\n`);
+    for (const p of error.problems) io.stderr(`  ${safe(p)}\n`);
     io.stderr('Fix these fields in the spec file (see README, "Model spec").\n');
     if (debug && error.stack) io.stderr(`${error.stack}\n`);
     return 1;
   }
   // Errors that already say what to do (ours, and the import service's by name) print as they are.
   if (error instanceof CliError || error instanceof ServiceError || error instanceof DatasetLoadError || error instanceof CovariateValueError || (error instanceof Error && EXPECTED_ERROR_NAMES.has(error.name))) {
-    io.stderr(`plateau: ${withNewline(error.message)}`);
+    io.stderr(`plateau: ${withNewline(safe(error.message))}`);
     if (debug && error.stack) io.stderr(`${error.stack}\n`);
     return 1;
   }
-  const message = error instanceof Error ? error.message : String(error);
-  io.stderr(`plateau: ${withNewline(message)}`);
-  if (debug && error instanceof Error && error.stack) io.stderr(`${error.stack}\n`);
-  else io.stderr('(set PLATEAU_DEBUG=1 to see where it happened)\n');
+  // Anything else is a bug in Plateau: its raw text names code, not the user's file, so it is
+  // shown only when debugging.
+  io.stderr(`plateau: internal error: an unexpected failure in Plateau, not a problem found in your files${command ? ` (command ${command})` : ''}\n`);
+  if (debug) {
+    const message = error instanceof Error ? error.message : String(error);
+    io.stderr(`${printable(message)}\n`);
+    if (error instanceof Error && error.stack) io.stderr(`${error.stack}\n`);
+  } else io.stderr('(run again with PLATEAU_DEBUG=1 to see what failed and where, and report it)\n');
   return 1;
 }
 
@@ -195,6 +205,6 @@ export async function runCli(argv: readonly string[], io: CliIo, options: RunOpt
     const code = await c.command.run([...rest], io, options.signal);
     return Number.isInteger(code) ? code : 1;
   } catch (e) {
-    return reportError(e, io, debug, c.command.usage);
+    return reportError(e, io, debug, c.command.usage, first);
   }
 }

@@ -40,6 +40,14 @@ export function parseTimeGrid(text: string): TimeGrid {
   return { startH, stepH, endH };
 }
 
+/** Grid points over all subjects at most (about 16 bytes each in the output): larger work is refused up front. */
+export const MAX_TOTAL_GRID_POINTS = 2_000_000;
+
+/** Number of points of a grid. */
+export function gridPointCount(g: TimeGrid): number {
+  return Math.floor((g.endH - g.startH) / g.stepH + 1e-9) + 1;
+}
+
 export function gridTimes(g: TimeGrid): Float64Array {
   const n = Math.floor((g.endH - g.startH) / g.stepH + 1e-9) + 1;
   const t = new Float64Array(n);

@@ -2,6 +2,7 @@
  * Dose advice on the Node side: finds the resources (caution text, target presets), reads the
  * model, patient and target files, and runs the engine. Shared by the CLI and, later, the app.
  */
+import { parseSaemSettings } from '../../engine/saem/settings.js';
 import { existsSync, promises as fs } from 'node:fs';
 import * as path from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -83,7 +84,17 @@ function parseAs<T>(file: string, parse: () => T, what: string): T {
 export async function loadModelFile(file: string, option = '--model'): Promise<PopulationModel> {
   const json = await readJsonFile(file);
   checkKind(file, json, ['model spec', 'fit.json'], 'a model spec or fit.json', option);
-  return parseAs(file, () => loadPopulationModel(json), 'invalid model file');
+  return parseAs(
+    file,
+    () => {
+      const model = loadPopulationModel(json);
+      // The estimation block is not used for dosing, but a wrong one is named, not ignored.
+      const estimation = (json as { estimation?: unknown }).estimation;
+      if (estimation !== undefined && typeof estimation === 'object' && estimation !== null && !Array.isArray(estimation)) parseSaemSettings(estimation as Record<string, unknown>);
+      return model;
+    },
+    'invalid model file',
+  );
 }
 
 export async function loadPatientFile(file: string, option = '--patient'): Promise<Patient> {

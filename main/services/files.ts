@@ -32,10 +32,11 @@ export function lineColumn(text: string, offset: number): { line: number; column
 }
 
 /**
- * Find where JSON text first breaks the grammar (RFC 8259) and why. Used only after JSON.parse
- * has failed, because Node 20's messages do not always give a position.
+ * Find where JSON text first breaks the grammar (RFC 8259) and why: used after JSON.parse has
+ * failed, because Node 20's messages do not always give a position. With `checkDuplicates`, a
+ * key given twice in one object is an error too (JSON.parse keeps the last silently).
  */
-export function locateJsonError(text: string): { offset: number; reason: string } | undefined {
+export function locateJsonError(text: string, checkDuplicates = false): { offset: number; reason: string } | undefined {
   let i = 0;
   const fail = (reason: string): never => {
     throw { offset: i, reason };
@@ -45,17 +46,28 @@ export function locateJsonError(text: string): { offset: number; reason: string 
   };
   const describe = () => (i >= text.length ? 'the file ends too early' : `unexpected ${JSON.stringify(text[i])}`);
   const value = (depth: number): void => {
-    if (depth > 10_000) fail('nesting too deep');
+    // No Plateau file nests beyond a few levels; a deeper one is refused before the stack runs out.
+    if (depth > MAX_JSON_DEPTH) fail(`nesting deeper than ${MAX_JSON_DEPTH} levels`);
     ws();
     const c = text[i];
     if (c === '{') {
       i++;
       ws();
       if (text[i] === '}') return void i++;
+      const keys = new Set<string>();
       for (;;) {
         ws();
         if (text[i] !== '"') fail(`${describe()} where a "quoted" key was expected`);
+        const keyStart = i;
         string();
+        if (checkDuplicates) {
+          const key = JSON.parse(text.slice(keyStart, i)) as string;
+          if (keys.has(key)) {
+            i = keyStart;
+            fail(`the key ${JSON.stringify(key).slice(0, 80)} appears twice in one object (which one is meant?)`);
+          }
+          keys.add(key);
+        }
         ws();
         if (text[i] !== ':') fail(`${describe()} where ':' was expected`);
         i++;
@@ -124,12 +136,23 @@ export function locateJsonError(text: string): { offset: number; reason: string 
   }
 }
 
+/** Deepest nesting of objects and arrays accepted in an input file. */
+export const MAX_JSON_DEPTH = 200;
+
 /** Parse JSON text; a syntax error names the file, line and column. */
 export function parseJsonText(text: string, file: string): unknown {
   const body = text.charCodeAt(0) === 0xfeff ? text.slice(1) : text;
   try {
-    return JSON.parse(body);
+    const value: unknown = JSON.parse(body);
+    // JSON.parse keeps the last of two equal keys without a word: a file with both is refused.
+    const dup = locateJsonError(body, true);
+    if (dup) {
+      const { line, column } = lineColumn(body, dup.offset);
+      throw new ServiceError('file', `${file} is not valid input at line ${line}, column ${column}: ${dup.reason}`);
+    }
+    return value;
   } catch (e) {
+    if (e instanceof ServiceError) throw e;
     const located = locateJsonError(body);
     if (!located) throw new ServiceError('file', `${file} is not valid JSON: ${(e as Error).message}`);
     const { line, column } = lineColumn(body, located.offset);
@@ -196,9 +219,50 @@ export async function checkOutputPath(file: string): Promise<void> {
   }
 }
 
+/** True when a process with this id is running (EPERM: it runs as another user). */
+function processAlive(pid: number): boolean {
+  try {
+    process.kill(pid, 0);
+    return true;
+  } catch (e) {
+    return (e as NodeJS.ErrnoException).code === 'EPERM';
+  }
+}
+
+/**
+ * Remove temp files of `file` (`.name.pid.rand.tmp`) left by a process killed during a write
+ * (SIGKILL runs no exit hook): those whose process is gone, and this process's own that no
+ * write in flight holds (a reused pid). Another live process's temp file is left alone.
+ */
+export async function removeStaleTemps(file: string): Promise<string[]> {
+  const dir = path.dirname(file);
+  const base = path.basename(file);
+  const prefix = `.${base}.`;
+  let names: string[];
+  try {
+    names = await fs.readdir(dir);
+  } catch {
+    return [];
+  }
+  const removed: string[] = [];
+  for (const name of names) {
+    if (!name.startsWith(prefix) || !name.endsWith('.tmp')) continue;
+    const m = /^(\d+)\.[0-9a-f]{8}\.tmp$/.exec(name.slice(prefix.length));
+    if (!m) continue;
+    const pid = Number(m[1]);
+    const full = path.join(dir, name);
+    const stale = pid === process.pid ? !inFlightTemps.has(full) : !processAlive(pid);
+    if (!stale) continue;
+    await fs.rm(full, { force: true }).catch(() => undefined);
+    removed.push(full);
+  }
+  return removed;
+}
+
 /**
  * Write a file atomically: a temporary file in the same folder, flushed, then renamed over the
- * target, so a reader never sees half a file and a crash leaves the old file intact.
+ * target, so a reader never sees half a file and a crash leaves the old file intact. Temp files
+ * of the same target left by a killed process are removed first (removeStaleTemps).
  */
 export async function writeFileAtomic(file: string, data: string | Uint8Array): Promise<void> {
   checkNotCancelled(file);
@@ -210,6 +274,7 @@ export async function writeFileAtomic(file: string, data: string | Uint8Array): 
     if (e instanceof ServiceError) throw e;
     throw new ServiceError('file', `cannot write ${file}: the folder ${dir} does not exist`);
   }
+  await removeStaleTemps(file);
   const tmp = path.join(dir, `.${path.basename(file)}.${process.pid}.${randomBytes(4).toString('hex')}.tmp`);
   let handle: fs.FileHandle | undefined;
   trackTemp(tmp);

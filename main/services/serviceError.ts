@@ -52,7 +52,17 @@ const USER_ERROR_KINDS: ReadonlyMap<string, ServiceErrorKind> = new Map<string, 
   ['PosthocError', 'numeric'],
 ]);
 
-/** Any thrown value as an ErrorValue; unknown exceptions become 'internal' with their message. */
+/**
+ * The raw text of an unexpected exception, for people who debug Plateau: shown only when
+ * PLATEAU_DEBUG=1 (otherwise ''), never to a user by default, because it names code, not their file.
+ */
+export function debugDetail(error: unknown): string {
+  if (typeof process === 'undefined' || process.env.PLATEAU_DEBUG !== '1') return '';
+  const raw = error instanceof Error ? error.message : String(error);
+  return ` [debug: ${raw.slice(0, 500)}]`;
+}
+
+/** Any thrown value as an ErrorValue; unknown exceptions become 'internal', their raw text only under PLATEAU_DEBUG. */
 export function toErrorValue(error: unknown): ErrorValue {
   if (error instanceof ServiceError) return { kind: error.kind, message: error.message, problems: [...error.problems] };
   if (error instanceof DataError) return { kind: 'data', message: error.message, problems: error.problems.map((p) => [p.row !== undefined ? `line ${p.row}` : '', p.subject !== undefined ? `subject ${p.subject}` : '', p.field ?? '', p.message].filter(Boolean).join(': ')) };
@@ -62,6 +72,5 @@ export function toErrorValue(error: unknown): ErrorValue {
     const problems = (error as { problems?: unknown }).problems;
     return { kind: USER_ERROR_KINDS.get(error.name)!, message: error.message, problems: Array.isArray(problems) ? problems.map((p) => (typeof p === 'string' ? p : JSON.stringify(p))) : [] };
   }
-  const message = error instanceof Error ? error.message : String(error);
-  return { kind: 'internal', message: `internal error: ${message}`, problems: [] };
+  return { kind: 'internal', message: `internal error: an unexpected failure in Plateau (not a problem in your files); run again with PLATEAU_DEBUG=1 to see it${debugDetail(error)}`, problems: [] };
 }

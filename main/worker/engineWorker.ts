@@ -14,7 +14,7 @@ import { Worker } from 'node:worker_threads';
 import { ENGINE_VERSION } from '../../engine/version.js';
 import { guardPlainData, WORKER_LIMITS } from '../protocol/guard.js';
 import { HEARTBEAT_INTERVAL_MS, ToWorkerSchema, type FromWorker, type JobRequest } from '../protocol/worker.js';
-import type { ErrorValue } from '../services/serviceError.js';
+import { debugDetail, type ErrorValue } from '../services/serviceError.js';
 
 interface ElectronParentPort {
   on(event: 'message', listener: (e: { data: unknown }) => void): void;
@@ -70,7 +70,7 @@ function makeThread(): JobThread {
     drop(t);
     if (t.jobId === undefined) return;
     const oom = e.code === 'ERR_WORKER_OUT_OF_MEMORY';
-    fail(t.jobId, oom ? { kind: 'worker', message: `the job needed more than ${JOB_HEAP_MB} MB of memory and was stopped`, problems: [] } : { kind: 'internal', message: `internal error in the job: ${e.message}`, problems: [] });
+    fail(t.jobId, oom ? { kind: 'worker', message: `the job needed more than ${JOB_HEAP_MB} MB of memory and was stopped`, problems: [] } : { kind: 'internal', message: `internal error: the job thread failed unexpectedly (not a problem in your files); run again with PLATEAU_DEBUG=1 to see it${debugDetail(e)}`, problems: [] });
   });
   t.worker.on('exit', (code) => {
     drop(t);

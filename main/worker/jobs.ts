@@ -20,7 +20,7 @@ import { simulateDataset } from '../cli/simulation.js';
 import type { JobRequest, ProgressPhase } from '../protocol/worker.js';
 import { addPosthoc } from '../services/fitPosthoc.js';
 import { fitDataset, type FitOutcome } from '../services/fitService.js';
-import { ServiceError } from '../services/serviceError.js';
+import { debugDetail, ServiceError, toErrorValue } from '../services/serviceError.js';
 import { datasetFromWire } from '../services/datasetWire.js';
 import { handleParseMessage } from './parseWorker.js';
 import { inspectZipContainer } from './limits.js';
@@ -103,7 +103,21 @@ function previewRows(bytes: Uint8Array): { sheet: string; rows: string[][] }[] {
   }
 }
 
+/**
+ * Run one job. An unexpected exception (a bug, not a user error) becomes a message naming the
+ * job and its file; the exception's own text only under PLATEAU_DEBUG=1.
+ */
 export async function runJob(job: JobRequest, ctx: JobContext): Promise<unknown> {
+  try {
+    return await runJobUnguarded(job, ctx);
+  } catch (e) {
+    if (toErrorValue(e).kind !== 'internal') throw e;
+    const what = job.kind === 'parse' ? `reading ${printable(job.fileName)}` : `the ${job.kind} job`;
+    throw new ServiceError('internal', `internal error while ${what}: an unexpected failure in Plateau, not a problem found in your files; run again with PLATEAU_DEBUG=1 to see it${debugDetail(e)}`);
+  }
+}
+
+async function runJobUnguarded(job: JobRequest, ctx: JobContext): Promise<unknown> {
   switch (job.kind) {
     case 'parse': {
       ctx.onProgress({ phase: 'parse', iteration: 0, maxIterations: 1, estimates: Object.create(null), message: `reading ${job.fileName}` });

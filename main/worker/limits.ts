@@ -77,7 +77,8 @@ export function inspectZipContainer(
       try {
         out = inflateRawSync(data, { maxOutputLength: Math.max(1, size) });
       } catch (e) {
-        return fail(`zip entry ${name} does not unpack (${(e as Error).message})`);
+        const raw = process.env.PLATEAU_DEBUG === '1' ? ` [debug: ${(e as Error).message}]` : '';
+        return fail(`zip entry ${name}: its compressed data is damaged and does not unpack${raw}`);
       }
     } else return fail(`zip entry ${name} uses compression method ${method}, which spreadsheets do not use`);
     if (out.length !== size) return fail(`zip entry ${name} unpacks to ${out.length} bytes, not the ${size} declared`);

@@ -7,6 +7,7 @@ import { analyseWorkbook } from '../../engine/import/analyse.js';
 import { WorkbookError } from '../../engine/import/workbook.js';
 import { TemplateError } from '../../engine/import/roles.js';
 import { validateParseRequest, type ParseResponse } from '../services/importProtocol.js';
+import { debugDetail } from '../services/serviceError.js';
 import { DEFAULT_MAX_FILE_BYTES, inspectZipContainer } from './limits.js';
 import * as path from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -47,8 +48,8 @@ export function handleParseMessage(raw: unknown): ParseResponse {
   } catch (e) {
     if (e instanceof WorkbookError) return { type: 'error', id: req.id, kind: 'workbook', message: `${req.fileName}: ${e.message}` };
     if (e instanceof TemplateError) return { type: 'error', id: req.id, kind: 'template', message: e.message, problems: e.problems };
-    const why = e instanceof Error ? e.message : String(e);
-    return { type: 'error', id: req.id, kind: 'internal', message: `${req.fileName} could not be read (${why.slice(0, 500)}): the file may be damaged; save it again from the source system` };
+    // The exception's own text names code, not the file: shown only under PLATEAU_DEBUG=1.
+    return { type: 'error', id: req.id, kind: 'internal', message: `${req.fileName} could not be read: its content is damaged or of a form Plateau does not read; save it again from the source system (as .xlsx or .csv)${debugDetail(e)}` };
   }
 }
 

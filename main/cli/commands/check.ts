@@ -4,7 +4,7 @@
  */
 import * as path from 'node:path';
 import { parseArgs, stringFlag, booleanFlag, numberFlag } from '../args.js';
-import { resolvePath, writeFileAtomic } from '../../services/files.js';
+import { checkOutputPath, resolvePath, writeFileAtomic } from '../../services/files.js';
 import { CliError, UsageError, type CliCommand } from '../types.js';
 import type { ImportOptions, MappingTemplate } from '../../../engine/import/roles.js';
 import type { ImportReport } from '../../../engine/import/build.js';
@@ -30,11 +30,13 @@ Options:
   --month-first            read text dates like 03/04/2024 as 4 March
   --decimal-comma          numbers are written 12,5
   --drug <name>            drug name (molar mass looked up for umol/L levels)
-  --molar-mass <g/mol>     molar mass of the drug for umol/L or nmol/L levels
-  --lloq <mg/L>            LLOQ for levels reported as BLQ/ND without a limit
+  --molar-mass <g/mol>     molar mass of the drug for umol/L or nmol/L levels (1 to 1000000)
+  --lloq <mg/L>            LLOQ for levels reported as BLQ/ND without a limit (> 0, at most 1000)
   --default-route <route>  bolus, infusion or oral, for doses without a route
   --clock-changes <rule>   eu (default), us or none: which daylight-saving dates to warn about
-  --time-limit <s>         stop parsing after this many seconds (default 60)
+  --time-limit <s>         stop parsing after this many seconds (default 60, at most 3600)
+
+Output files are checked (folder exists, writable) before the export is read.
 
 Times are taken as written (ward clock, no time zone). Exit code 0 when there is no error, 1 when
 some rows have errors (they are excluded), 2 for wrong usage.`;
@@ -125,12 +127,12 @@ export const command: CliCommand = {
     }
     const molar = numberFlag(args, 'molar-mass', { usage });
     if (molar !== undefined) {
-      if (!(molar > 0)) throw new UsageError('--molar-mass must be > 0 (g/mol)', usage);
+      if (!(molar >= 1 && molar <= 1_000_000)) throw new UsageError('--molar-mass must be from 1 to 1000000 (g/mol)', usage);
       options.molarMassGPerMol = molar;
     }
     const lloq = numberFlag(args, 'lloq', { usage });
     if (lloq !== undefined) {
-      if (!(lloq > 0)) throw new UsageError('--lloq must be > 0 (mg/L)', usage);
+      if (!(lloq > 0 && lloq <= 1000)) throw new UsageError('--lloq must be > 0 and at most 1000 (mg/L)', usage);
       options.defaultLloqMgL = lloq;
     }
     const route = stringFlag(args, 'default-route');
@@ -144,7 +146,14 @@ export const command: CliCommand = {
       options.clockChanges = cc;
     }
     const limitS = numberFlag(args, 'time-limit', { usage });
-    if (limitS !== undefined && !(limitS > 0)) throw new UsageError('--time-limit must be > 0 seconds', usage);
+    // Beyond 3600 s a timer would also overflow (Node fires timers over 2^31 ms at once).
+    if (limitS !== undefined && !(limitS > 0 && limitS <= 3600)) throw new UsageError('--time-limit must be > 0 and at most 3600 seconds', usage);
+    // Output paths are checked before the export is read, so a typo does not cost the parse.
+    const outFlags = ['report', 'save-mapping', 'export-dataset'] as const;
+    for (const flag of outFlags) {
+      const value = stringFlag(args, flag);
+      if (value !== undefined) await checkOutputPath(resolvePath(io.cwd, value));
+    }
 
     const dataPath = resolvePath(io.cwd, stringFlag(args, 'data')!);
     const mappingFlag = stringFlag(args, 'mapping');

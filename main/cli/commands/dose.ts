@@ -4,7 +4,7 @@ import { parseRegimen, RegimenParseError } from '../../../engine/dosing/regimens
 import { ENGINE_VERSION } from '../../../engine/version.js';
 import { listTargetPresets, loadCaution, loadModelFile, loadPatientFile, loadTarget, runDoseAdvice } from '../../services/doseService.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
-import { resolvePath, writeFileAtomic } from '../../services/files.js';
+import { checkOutputPath, resolvePath, writeFileAtomic } from '../../services/files.js';
 import { UsageError, type CliCommand, type CliIo } from '../types.js';
 
 const usage = `Usage: plateau dose --model <fit.json|model.json> --patient <patient.json> [--target <preset|target.json>]
@@ -22,7 +22,7 @@ probability of reaching the target and of toxic exposure. Always printed with th
                         is evaluated and nothing is ranked. Presets: vancomycin-auc24,
                         aminoglycoside-peak-mic, beta-lactam-ft-mic (resources/targets)
   --out <file>          write the advice as JSON
-  --seed N              seed of the posterior draws (default 1); same seed, same advice
+  --seed N              seed of the posterior draws, 0 to 4294967295 (default 1); same seed, same advice
   --evaluate "<text>"   evaluate one regimen, e.g. "1000mg q12h 1h", "1g q24h 30min",
                         "load 2000mg 1000mg q12h 2h", "500mg q8h bolus"
   --draws N             posterior draws, 100 to 100000 (default 2000)
@@ -125,7 +125,7 @@ async function runDose(argv: readonly string[], io: CliIo, outputs: { out?: stri
   }
   outputs.out = stringFlag(args, 'out');
   outputs.json = booleanFlag(args, 'json');
-  const seed = numberFlag(args, 'seed', { integer: true, usage }) ?? 1;
+  const seed = numberFlag(args, 'seed', { integer: true, min: 0, max: 4294967295, usage }) ?? 1;
   const draws = numberFlag(args, 'draws', { integer: true, usage });
   if (draws !== undefined && !(draws >= 100 && draws <= 100_000)) throw new UsageError('--draws must be between 100 and 100000', usage);
   const mic = numberFlag(args, 'mic', { usage });
@@ -145,6 +145,8 @@ async function runDose(argv: readonly string[], io: CliIo, outputs: { out?: stri
       throw e;
     }
   }
+  // The output path is checked before the work (the error record then goes nowhere: stderr says why).
+  if (outputs.out !== undefined) await checkOutputPath(resolvePath(io.cwd, outputs.out));
   const population = await loadModelFile(resolvePath(io.cwd, stringFlag(args, 'model')!));
   const patient = await loadPatientFile(resolvePath(io.cwd, stringFlag(args, 'patient')!));
   if (nextDoseH !== undefined) {

@@ -1,6 +1,6 @@
 /** `plateau verify`: the installation verification suite, with a report to sign. */
 import * as path from 'node:path';
-import { resolvePath, writeFileAtomic } from '../../services/files.js';
+import { checkOutputPath, resolvePath, writeFileAtomic } from '../../services/files.js';
 import { findChromium, htmlToPdf, PDF_HELP } from '../../verify/pdf.js';
 import { renderReportHtml } from '../../verify/reportHtml.js';
 import { runVerification } from '../../verify/runner.js';
@@ -59,6 +59,8 @@ export const command: CliCommand = {
     const ext = out ? path.extname(out).toLowerCase() : '';
     if (out && !FORMATS.has(ext)) throw new UsageError(`--out ${out}: the report is written as .pdf, .html or .json (the name says which)`, usage);
     const outPath = out ? resolvePath(io.cwd, out) : undefined;
+    // Checked before the suite runs, so a typo in the folder does not cost the run.
+    if (outPath) await checkOutputPath(outPath);
     let chromium: string | undefined;
     if (ext === '.pdf') {
       chromium = findChromium();

@@ -92,13 +92,15 @@ describe('runCli', () => {
     expect(io.err).not.toMatch(/\bat .*\.(m?js|ts):\d+/);
   });
 
-  it('an unexpected error prints its message; the stack only when debugging', async () => {
+  it('an unexpected error says "internal error"; its raw text and stack only when debugging (issue 11)', async () => {
     const quiet = captureIo();
     expect(await runCli(['fails', 'other'], quiet, { commandsDir, debug: false })).toBe(1);
-    expect(quiet.err).toContain('plateau: something odd');
+    expect(quiet.err).toContain('plateau: internal error');
+    expect(quiet.err).not.toContain('something odd');
     expect(quiet.err).toContain('PLATEAU_DEBUG=1');
     const loud = captureIo();
     await runCli(['fails', 'other'], loud, { commandsDir, debug: true });
+    expect(loud.err).toContain('something odd');
     expect(loud.err).toMatch(/at .*fails\.mjs/);
   });
 });
