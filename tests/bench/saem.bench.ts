@@ -105,7 +105,7 @@ export const suite = {
       try {
         writeFileSync(path.join(dir, 'spec.json'), JSON.stringify(theophSpecJson));
         const bin = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../../main/cli/plateau.js');
-        const csv = findRepoFile('tests/reference/theoph/theoph.csv');
+        const csv = findRepoFile('resources/validation/reference/theoph/theoph.csv');
         const plateau = (extra: string[]) => median([0, 1, 2].map(() => processMs(process.execPath, [bin, 'fit', '--data', csv, '--model', 'spec.json', '--out', 'fit.json', ...extra], dir)));
         figures.push({ name: 'whole process: plateau fit on Theoph (default: 3 seeds + post-fit), median of 3', value: plateau([]) / 1000, unit: 's', note: 'node start to fit.json written' });
         figures.push({ name: 'whole process: plateau fit on Theoph --seeds 1, median of 3', value: plateau(['--seeds', '1']) / 1000, unit: 's' });

@@ -1,6 +1,6 @@
 /**
  * The seeds of a fit in engine worker processes (main/services/fitRunner.ts runSeedInWorker) on
- * R's Theoph (datasets::Theoph, tests/reference/theoph): the record equals the in-process path
+ * R's Theoph (datasets::Theoph, resources/validation/reference/theoph): the record equals the in-process path
  * for the same seeds, number for number (the worker runs the same engine code; only the
  * timing fields differ), and the shared core slots bound how many seeds compute at once.
  */
@@ -16,7 +16,7 @@ import { engineWorkerPath, ensureBuilt } from '../services/build.js';
 
 beforeAll(() => ensureBuilt(), 300_000);
 
-const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../reference/theoph/theoph.csv'), 'utf8'));
+const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv'), 'utf8'));
 const specJson = {
   structure: '1cmt',
   parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },

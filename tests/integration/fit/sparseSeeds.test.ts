@@ -22,7 +22,7 @@ import type { ModelSpec } from '../../../engine/spec/modelSpec.js';
 import { compileModel } from '../../../engine/stats/model.js';
 import { phenobarbSpec, sparseTdmSpec } from '../../helpers/sparseSpecs.js';
 
-const ref = path.resolve(__dirname, '../../reference');
+const repo = path.resolve(__dirname, '../../..');
 const SEEDS = [1, 2, 3, 4, 5];
 
 interface Case {
@@ -37,15 +37,15 @@ interface Case {
 const CASES: Case[] = [
   {
     name: "nlme's Phenobarb",
-    csv: 'phenobarb/phenobarb.csv',
-    json: 'phenobarb/exact_mle.json',
+    csv: 'resources/validation/reference/phenobarb/phenobarb.csv',
+    json: 'resources/validation/reference/phenobarb/exact_mle.json',
     spec: phenobarbSpec,
     keys: { CL: 'CL_L_per_h', V: 'V_L', 'CL~weight_kg': 'CL_weight_exponent', 'V~weight_kg': 'V_weight_exponent', bsv_CL: 'omega_CL', bsv_V: 'omega_V', residual_additive_mg_L: 'a_mg_L' },
   },
   {
     name: 'sparse 2-cmt TDM design (simulation)',
-    csv: 'tdm-sparse/tdm_sparse.csv',
-    json: 'tdm-sparse/exact_mle.json',
+    csv: 'tests/reference/tdm-sparse/tdm_sparse.csv',
+    json: 'tests/reference/tdm-sparse/exact_mle.json',
     spec: sparseTdmSpec,
     keys: { CL: 'CL_L_per_h', V1: 'V1_L', Q: 'Q_L_per_h', bsv_CL: 'omega_CL', bsv_V1: 'omega_V1', residual_additive_mg_L: 'a_mg_L', residual_proportional: 'b' },
   },
@@ -53,9 +53,9 @@ const CASES: Case[] = [
 
 for (const c of CASES) {
   describe(`${c.name}: every seed lands on the exact MLE`, () => {
-    const exact = JSON.parse(readFileSync(path.join(ref, c.json), 'utf8'));
+    const exact = JSON.parse(readFileSync(path.join(repo, c.json), 'utf8'));
     const exactMinus2LL: number = exact.quadratureConvergence['25'];
-    const model = compileModel(c.spec, parseCanonicalCsv(readFileSync(path.join(ref, c.csv), 'utf8')));
+    const model = compileModel(c.spec, parseCanonicalCsv(readFileSync(path.join(repo, c.csv), 'utf8')));
     const fits: { seed: number; result: SaemResult; minus2LL: number }[] = [];
     beforeAll(async () => {
       for (const seed of SEEDS) {
