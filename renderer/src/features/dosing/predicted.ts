@@ -1,0 +1,35 @@
+/** The recommendation's uncertainty in ward words: each goal metric's median and 80 % interval. */
+import { METRIC_LABELS, type MetricId } from '../../../../engine/dosing/targets.js';
+import { sig } from '../../lib/format/numbers.js';
+import type { Advice } from './types.js';
+
+type Regimen = Advice['regimens'][number];
+
+export function predictedText(advice: Advice, r: Regimen): string {
+  const metrics = [...new Set((advice.target?.goals ?? []).map((g) => g.metric as MetricId))];
+  const parts: string[] = [];
+  for (const id of metrics) {
+    const b = r.metrics[id];
+    if (!b) continue;
+    const { label, unit } = METRIC_LABELS[id];
+    parts.push(`${label} ${sig(b.median)} ${unit} (80 % interval ${sig(b.q10)}–${sig(b.q90)})`);
+  }
+  return parts.length ? `predicted at steady state: ${parts.join('; ')}` : '';
+}
+
+interface ProjectLike { datasets: Array<{ name: string; hash: string; subjects: number; levels: number }> }
+
+/**
+ * Where the model's values come from, in words: a site fit names the project's dataset it was
+ * fitted to (found by the data's hash) rather than only the hash; a published model its source.
+ */
+export function provenanceText(advice: Advice, project: ProjectLike | null | undefined): string {
+  const m = advice.model as Advice['model'] & { dataHash?: string; seed?: number | string; engineVersion?: string };
+  const ds = m.dataHash ? project?.datasets.find((d) => d.hash === m.dataHash) : undefined;
+  if (m.kind === 'site fit') {
+    const data = ds ? `fitted at this site to the dataset "${ds.name}" (${ds.subjects} patients, ${ds.levels} levels)` : m.dataHash ? `fitted at this site to a dataset not in this project (data ${m.dataHash.slice(0, 19)}…)` : 'fitted at this site';
+    const own = m.source && !/^site fit( of dataset)?/.test(m.source) ? `; source: ${m.source.replace(/\.$/, '')}` : '';
+    return `${data}${m.seed !== undefined ? `, seed ${m.seed}` : ''}${m.engineVersion ? `, engine ${m.engineVersion}` : ''}${own}`;
+  }
+  return m.source ? `entered from a publication; source: ${m.source.replace(/\.$/, '')}` : 'entered from a publication; no source given';
+}
