@@ -54,3 +54,14 @@ describe('clock axis ticks', () => {
     expect(clockTickHours('2026-11-23T08:30', 0, 20).map((h) => clockTick('2026-11-23T08:30', h))[0]).toBe('23 Nov 09:00');
   });
 });
+
+describe('covariates in words', () => {
+  it('names the patient-file keys with their units', async () => {
+    const { covariateText, covariateName } = await import('../../../renderer/src/features/dosing/predicted.js');
+    expect(covariateText('weight_kg', 78)).toBe('weight 78 kg');
+    expect(covariateText('scr_mg_dL', 1.17647)).toBe('serum creatinine 1.176 mg/dL');
+    expect(covariateText('sex', 'F')).toBe('sex F');
+    expect(covariateText('albumin_g_L', 30)).toBe('albumin_g_L 30');
+    expect(covariateName('crcl_mL_min')).toBe('creatinine clearance');
+  });
+});

@@ -25,11 +25,35 @@ interface ProjectLike { datasets: Array<{ name: string; hash: string; subjects: 
  */
 export function provenanceText(advice: Advice, project: ProjectLike | null | undefined): string {
   const m = advice.model as Advice['model'] & { dataHash?: string; seed?: number | string; engineVersion?: string };
-  const ds = m.dataHash ? project?.datasets.find((d) => d.hash === m.dataHash) : undefined;
+  const same = m.dataHash ? (project?.datasets ?? []).filter((d) => d.hash === m.dataHash) : [];
+  const ds = same[0];
+  const also = same.slice(1).map((d) => `"${d.name}"`);
   if (m.kind === 'site fit') {
-    const data = ds ? `fitted at this site to the dataset "${ds.name}" (${ds.subjects} patients, ${ds.levels} levels)` : m.dataHash ? `fitted at this site to a dataset not in this project (data ${m.dataHash.slice(0, 19)}…)` : 'fitted at this site';
+    const data = ds ? `fitted at this site to the dataset "${ds.name}" (${ds.subjects} patients, ${ds.levels} levels${also.length ? `; the same data are also in the project as ${also.join(', ')}` : ''})` : m.dataHash ? `fitted at this site to a dataset not in this project (data ${m.dataHash.slice(0, 19)}…)` : 'fitted at this site';
     const own = m.source && !/^site fit( of dataset)?/.test(m.source) ? `; source: ${m.source.replace(/\.$/, '')}` : '';
     return `${data}${m.seed !== undefined ? `, seed ${m.seed}` : ''}${m.engineVersion ? `, engine ${m.engineVersion}` : ''}${own}`;
   }
   return m.source ? `entered from a publication; source: ${m.source.replace(/\.$/, '')}` : 'entered from a publication; no source given';
+}
+
+/** Covariate keys of the patient file in words with their units: "weight_kg 78" -> "weight 78 kg". */
+const COVARIATE_WORDS: Array<[RegExp, string, string]> = [
+  [/^(weight|wt)_kg$/i, 'weight', 'kg'],
+  [/^height_cm$/i, 'height', 'cm'],
+  [/^age_y$/i, 'age', 'years'],
+  [/^scr_mg_dL$/i, 'serum creatinine', 'mg/dL'],
+  [/^scr_umol_L$/i, 'serum creatinine', 'µmol/L'],
+  [/^crcl_mL_min$/i, 'creatinine clearance', 'mL/min'],
+  [/^egfr_mL_min(_1\.73m2)?$/i, 'eGFR', 'mL/min'],
+  [/^sex$/i, 'sex', ''],
+];
+
+export function covariateName(key: string): string {
+  return COVARIATE_WORDS.find(([re]) => re.test(key))?.[1] ?? key;
+}
+
+export function covariateText(key: string, value: unknown): string {
+  const v = typeof value === 'number' ? String(Number(value.toPrecision(4))) : String(value);
+  for (const [re, word, unit] of COVARIATE_WORDS) if (re.test(key)) return `${word} ${v}${unit ? ` ${unit}` : ''}`;
+  return `${key} ${v}`;
 }

@@ -101,7 +101,7 @@ export function convergenceChart(name: string, values: number[], searchEnd: numb
       normalized: true,
       plugins: {
         legend: { display: false },
-        title: { display: true, text: name, font: { size: 13, weight: 'bold' } },
+        title: { display: true, text: estimateTitle(name), font: { size: 13, weight: 'bold' } },
         annotation: {
           annotations: searchEnd > 0 ? { phase: { type: 'line', xMin: searchEnd, xMax: searchEnd, borderColor: COLOURS.second, borderWidth: 1.5, borderDash: [5, 4], label: { display: false } } } : {},
         } as never,
@@ -111,11 +111,20 @@ export function convergenceChart(name: string, values: number[], searchEnd: numb
   };
 }
 
+/** Names of the fit's estimates in words for chart titles (residual_additive_mg_L -> "residual additive SD (mg/L)"). */
+export function estimateTitle(name: string): string {
+  if (name === 'residual_additive_mg_L') return 'residual additive SD (mg/L)';
+  if (name === 'residual_proportional') return 'residual proportional (fraction)';
+  if (name.startsWith('residual_')) return name.replace(/_/g, ' ');
+  if (name.startsWith('bsv_')) return `BSV of ${name.slice(4)} (SD)`;
+  return name;
+}
+
 export function covariateScatter(points: Pt[], parameter: string, covariate: string): ChartConfiguration<'scatter'> {
   return {
     type: 'scatter',
     data: { datasets: [{ label: `${parameter} (individual mode)`, data: points, pointRadius: 3.5, backgroundColor: 'rgba(44,95,122,0.6)' }] },
-    options: { parsing: false, scales: { x: axis(covariate), y: axis(`${parameter}, individual mode (log scale)`, 'logarithmic') }, plugins: { legend: { display: false } } },
+    options: { parsing: false, scales: { x: axis(covariate), y: axis(`${parameter} (log axis)`, 'logarithmic') }, plugins: { legend: { display: false }, title: { display: true, text: `${parameter} at each subject's mode against ${covariate}`, font: { size: 12 } } } },
   };
 }
 
