@@ -33,7 +33,7 @@ export function provenanceText(advice: Advice, project: ProjectLike | null | und
     const own = m.source && !/^site fit( of dataset)?/.test(m.source) ? `; source: ${m.source.replace(/\.$/, '')}` : '';
     return `${data}${m.seed !== undefined ? `, seed ${m.seed}` : ''}${m.engineVersion ? `, engine ${m.engineVersion}` : ''}${own}`;
   }
-  return m.source ? `entered from a publication; source: ${m.source.replace(/\.$/, '')}` : 'entered from a publication; no source given';
+  return m.source ? `values from its source: ${m.source.replace(/\.$/, '')}` : 'no source given for its values';
 }
 
 /** Covariate keys of the patient file in words with their units: "weight_kg 78" -> "weight 78 kg". */

@@ -124,7 +124,7 @@ export function covariateScatter(points: Pt[], parameter: string, covariate: str
   return {
     type: 'scatter',
     data: { datasets: [{ label: `${parameter} (individual mode)`, data: points, pointRadius: 3.5, backgroundColor: 'rgba(44,95,122,0.6)' }] },
-    options: { parsing: false, scales: { x: axis(covariate), y: axis(`${parameter} (log axis)`, 'logarithmic') }, plugins: { legend: { display: false }, title: { display: true, text: `${parameter} at each subject's mode against ${covariate}`, font: { size: 12 } } } },
+    options: { parsing: false, scales: { x: axis(covariate), y: axis(`${parameter} (log axis)`, 'logarithmic') }, plugins: { legend: { display: false }, title: { display: true, text: `${parameter} vs ${covariate}`, font: { size: 12 } } } },
   };
 }
 
