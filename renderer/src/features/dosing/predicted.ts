@@ -14,7 +14,7 @@ export function predictedText(advice: Advice, r: Regimen): string {
     const { label, unit } = METRIC_LABELS[id];
     parts.push(`${label} ${sig(b.median)} ${unit} (80 % interval ${sig(b.q10)}–${sig(b.q90)})`);
   }
-  return parts.length ? `predicted at steady state: ${parts.join('; ')}` : '';
+  return parts.length ? `Predicted at steady state: ${parts.join('; ')}` : '';
 }
 
 interface ProjectLike { datasets: Array<{ name: string; hash: string; subjects: number; levels: number }> }
@@ -31,7 +31,8 @@ export function provenanceText(advice: Advice, project: ProjectLike | null | und
   if (m.kind === 'site fit') {
     const data = ds ? `fitted at this site to the dataset "${ds.name}" (${ds.subjects} patients, ${ds.levels} levels${also.length ? `; the same data are also in the project as ${also.join(', ')}` : ''})` : m.dataHash ? `fitted at this site to a dataset not in this project (data ${m.dataHash.slice(0, 19)}…)` : 'fitted at this site';
     const own = m.source && !/^site fit( of dataset)?/.test(m.source) ? `; source: ${m.source.replace(/\.$/, '')}` : '';
-    return `${data}${m.seed !== undefined ? `, seed ${m.seed}` : ''}${m.engineVersion ? `, engine ${m.engineVersion}` : ''}${own}`;
+    const run = [m.seed !== undefined ? `seed ${m.seed}` : '', m.engineVersion ? `engine ${m.engineVersion}` : ''].filter(Boolean).join(', ');
+    return `${data}${run ? ` (fit with ${run})` : ''}${own}`;
   }
   return m.source ? `values from its source: ${m.source.replace(/\.$/, '')}` : 'no source given for its values';
 }
