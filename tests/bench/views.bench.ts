@@ -4,6 +4,12 @@
  * dose until the curve and its table are redrawn: the engine's forecast over 2000 posterior
  * draws in the page, then the chart). Figures only; nothing is asserted. The demo patient and
  * the example model are invented (example, not for clinical use).
+ *
+ * Results with 1000 patients: a SIMULATION, not patient data. The invented TDM design of
+ * workloads.ts (1000 patients, levels simulated from its two-compartment truth) is fitted by the
+ * engine directly with short settings (30 search + 20 averaging iterations, shortened post-fit
+ * steps), saved in the bench project, and the time from opening Results to the estimates and
+ * every plot drawn is measured in the page.
  */
 import { spawn } from 'node:child_process';
 import { existsSync, mkdtempSync, rmSync } from 'node:fs';
@@ -11,6 +17,11 @@ import { tmpdir } from 'node:os';
 import * as path from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { chromium } from 'playwright-core';
+import { parseModelSpec } from '../../engine/spec/modelSpec.js';
+import { addPosthoc } from '../../main/services/fitPosthoc.js';
+import { fitDataset } from '../../main/services/fitService.js';
+import { ProjectStore } from '../../main/services/projectStore.js';
+import { tdmDataset, tdmFit } from './workloads.js';
 
 interface Figure { name: string; value: number; unit: string; target?: string; note?: string }
 
@@ -24,9 +35,29 @@ const median = (x: number[]) => {
   return s.length % 2 ? s[(s.length - 1) / 2] : (s[s.length / 2 - 1] + s[s.length / 2]) / 2;
 };
 
+/** The demo project plus a finished 1000-patient fit (simulation, short settings) saved in it. */
+async function projectWithLargeFit(dir: string, figures: Figure[]): Promise<string> {
+  const store = await ProjectStore.open(dir, { create: 'demo', resourcesDir: path.join(ROOT, 'resources') });
+  try {
+    const dataset = tdmDataset(1000, 11);
+    const datasetId = await store.addDataset('SIMULATION: 1000 invented patients (bench)', dataset, { source: 'tests/bench/workloads.ts tdmDataset(1000, 11)' });
+    const specJson = { ...JSON.parse(JSON.stringify(tdmFit)), name: 'bench 2-cmt (simulation)', estimation: { searchMinIterations: 30, searchMaxIterations: 30, autoEndSearch: false, averagingIterations: 20 } };
+    const modelId = await store.saveModel('bench 2-cmt (simulation)', specJson);
+    const t0 = Date.now();
+    const outcome = await fitDataset(dataset, parseModelSpec(specJson), { seed: 1 });
+    const record = await addPosthoc(outcome, { posthoc: { conditional: { warmup: 50, maxIterations: 300 }, importance: { samplesPerSubject: 1000 }, diagnostics: { replicates: 50 } } });
+    figures.push({ name: '1000-patient fit for the Results figure (simulation, 30+20 iterations, short post-fit; engine in-process)', value: (Date.now() - t0) / 1000, unit: 's' });
+    return await store.saveFit({ name: 'SIMULATION 1000 patients, bench 2-cmt, seed 1', datasetId, modelId, seed: 1 }, JSON.parse(JSON.stringify(record)) as Record<string, unknown>);
+  } finally {
+    await store.close();
+  }
+}
+
 async function run(): Promise<Figure[]> {
   if (!existsSync(CHROMIUM)) throw new Error(`${CHROMIUM} is missing: apt-get install -y chromium`);
   const project = mkdtempSync(path.join(tmpdir(), 'plateau-bench-'));
+  const figures: Figure[] = [];
+  const largeFitId = await projectWithLargeFit(project, figures);
   const profile = mkdtempSync(path.join(tmpdir(), 'plateau-bench-chromium-'));
   const host = spawn(process.execPath, [path.join(ROOT, 'dist', 'main', 'start.js'), '--web', '--no-open', '--port', '0', '--project', project], { cwd: ROOT, stdio: ['ignore', 'pipe', 'pipe'] });
   let out = '';
@@ -46,7 +77,6 @@ async function run(): Promise<Figure[]> {
       host.stdout.on('data', check);
       check();
     });
-    const figures: Figure[] = [];
     const page = context.pages()[0] ?? (await context.newPage());
 
     // First paint: a cold load (new page) and warm reloads.
@@ -65,9 +95,33 @@ async function run(): Promise<Figure[]> {
     figures.push({ name: 'first contentful paint, reload (median of 3)', value: median(fcp.slice(1)), unit: 'ms', target: '< 1500' });
     figures.push({ name: 'app ready (frame, project and caution loaded), cold', value: ready[0], unit: 'ms', target: '< 1500' });
 
-    // Dosing what-if: the example model (blocked, shown on request), the demo patient.
     await page.getByRole('checkbox', { name: /I have read this/ }).check();
     await page.getByRole('button', { name: 'Continue to Plateau' }).click();
+
+    // Results for the finished 1000-patient fit (the project's last fit, so Results opens it):
+    // from the click on Results to the estimates and the first plots drawn, then every plot
+    // (the print layout draws all of them: goodness of fit, residuals, NPDE, VPCs, individual
+    // fits page 1, covariates, convergence).
+    const navLarge = page.getByRole('navigation', { name: 'Views' });
+    const tLarge = Date.now();
+    await navLarge.getByRole('button', { name: /^Results/ }).click();
+    await page.getByRole('heading', { name: /SIMULATION 1000 patients/ }).waitFor({ timeout: 120_000 });
+    await page.getByRole('table').filter({ hasText: 'Population estimates' }).waitFor({ timeout: 120_000 });
+    await page.getByRole('img', { name: 'Observed against individual predictions' }).waitFor({ timeout: 120_000 });
+    await page.evaluate('new Promise((r) => requestAnimationFrame(() => requestAnimationFrame(r)))');
+    const openMs = Date.now() - tLarge;
+    figures.push({ name: 'Results open, 1000-patient fit (simulation): estimates and the first plots drawn', value: openMs, unit: 'ms', target: '< 1500', note: `fit ${largeFitId}` });
+    await page.evaluate('window.print = () => undefined');
+    const tEvery = Date.now();
+    await page.getByRole('button', { name: 'Print the fit report' }).click();
+    await page.getByRole('img', { name: /^Convergence of / }).first().waitFor({ timeout: 120_000 });
+    await page.getByRole('img', { name: 'Prediction-corrected visual predictive check' }).waitFor({ timeout: 120_000 });
+    await page.evaluate('new Promise((r) => requestAnimationFrame(() => requestAnimationFrame(r)))');
+    figures.push({ name: 'Results, 1000-patient fit (simulation): then every plot drawn (print layout)', value: Date.now() - tEvery, unit: 'ms' });
+    figures.push({ name: 'finished 1000-patient fit to the Results view with all plots drawn (simulation)', value: openMs + (Date.now() - tEvery), unit: 'ms', target: '< 1500' });
+    await page.evaluate('window.dispatchEvent(new Event("afterprint"))');
+
+    // Dosing what-if: the example model (blocked, shown on request), the demo patient.
     await page.getByRole('navigation', { name: 'Views' }).getByRole('button', { name: /^Dosing/ }).click();
     const prior = page.getByLabel('Model the advice is based on');
     await prior.selectOption((await prior.locator('option', { hasText: 'Example vancomycin-like' }).getAttribute('value')) as string);
@@ -114,7 +168,7 @@ async function run(): Promise<Figure[]> {
     await page.getByRole('table').filter({ hasText: 'Population estimates' }).waitFor({ timeout: 60_000 });
     await page.getByRole('img', { name: 'Observed against individual predictions' }).waitFor();
     await page.evaluate('new Promise((r) => requestAnimationFrame(() => requestAnimationFrame(r)))');
-    figures.push({ name: 'Results view open with estimates and the first plots (demo fit, 48 subjects)', value: Date.now() - tOpen, unit: 'ms', target: '< 1500', note: 'the issue asks for a 1000-patient fit; not measured here' });
+    figures.push({ name: 'Results view open with estimates and the first plots (demo fit, 48 subjects)', value: Date.now() - tOpen, unit: 'ms', target: '< 1500' });
     await page.evaluate('window.print = () => undefined');
     const tAll = Date.now();
     await page.getByRole('button', { name: 'Print the fit report' }).click();

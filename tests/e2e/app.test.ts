@@ -229,8 +229,8 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByText('Source: give the publication').waitFor();
     await page.getByLabel('Model name', { exact: true }).fill('Invented literature-style model (test)');
     await page.getByLabel(/^Source: the publication/).fill('Invented for the UI test; adults on a general ward');
-    await page.getByLabel('From', { exact: true }).fill('40');
-    await page.getByLabel('To', { exact: true }).fill('130');
+    await page.getByLabel('Covariate range 1: from').fill('40');
+    await page.getByLabel('Covariate range 1: to').fill('130');
     await page.getByLabel('CL published value (L/h)').fill('3.5');
     await page.getByLabel('V published value (L)').fill('50');
     await page.getByLabel('CL BSV SD').fill('0.3');

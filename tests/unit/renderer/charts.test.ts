@@ -1,7 +1,7 @@
 /** The chart configurations are pure functions of the records: what each plot shows and leaves out. */
 import { describe, expect, it } from 'vitest';
 import type { ObservationDiagnostics } from '../../../engine/posthoc/diagnostics.js';
-import { convergenceChart, observedVsPredicted, residualPlot } from '../../../renderer/src/features/results/charts.js';
+import { convergenceChart, covariateScatter, observedVsPredicted, residualPlot } from '../../../renderer/src/features/results/charts.js';
 
 const obs: ObservationDiagnostics[] = [
   { subject: 'A', timeH: 1, dv: 10, censored: false, pred: 8, ipred: 9.5, iwres: 0.3, npde: 0.1 },
@@ -22,7 +22,12 @@ describe('Results chart configurations', () => {
   });
   it('residuals: missing values are left out, never drawn as 0', () => {
     expect(points(residualPlot(obs, 'iwres', 'time'), 0)).toEqual([{ x: 1, y: 0.3 }]);
-    expect(points(residualPlot(obs, 'npde', 'pred'), 0)).toEqual([{ x: 8, y: 0.1 }, { x: 1.5, y: -0.4 }]);
+    // Sorted by x: chart.js with parsing off takes the data as sorted (its documented requirement).
+    expect(points(residualPlot(obs, 'npde', 'pred'), 0)).toEqual([{ x: 1.5, y: -0.4 }, { x: 8, y: 0.1 }]);
+  });
+  it('scatter data are sorted by x, so chart.js (parsing off) draws every point over the whole range', () => {
+    const c = covariateScatter([{ x: 62, y: 4 }, { x: 85, y: 5 }, { x: 60, y: 3 }, { x: 77, y: 4.5 }], 'CL', 'weight_kg');
+    expect(points(c, 0).map((p) => p.x)).toEqual([60, 62, 77, 85]);
   });
   it('convergence: one point per reported iteration, the averaging boundary where it began', () => {
     const c = convergenceChart('CL', [5, 4.5, 4.4], 2, '#000', [10, 20, 30]);

@@ -3,6 +3,7 @@ import type { ChartConfiguration, ChartDataset } from 'chart.js';
 import type { Forecast } from '../../../../engine/dosing/forecast.js';
 import type { TargetSpec } from '../../../../engine/dosing/targets.js';
 import { COLOURS } from '../../lib/charts/setup.js';
+import { clockTick, clockTickHours } from '../../lib/format/clock.js';
 import type { Advice } from './types.js';
 
 type Pt = { x: number; y: number };
@@ -62,12 +63,32 @@ export function forecastChartConfig(advice: Advice, fc: Forecast | null, whatIf:
       normalized: true,
       interaction: { mode: 'nearest', intersect: false },
       scales: {
-        x: { type: 'linear', title: { display: true, text: advice.patient.clockOrigin ? `time (h from the first dose, ${advice.patient.clockOrigin})` : 'time (h from the first dose)' } },
+        x: xAxis(advice.patient.clockOrigin),
         y: { type: logScale ? 'logarithmic' : 'linear', title: { display: true, text: 'concentration (mg/L)' }, ...(logScale ? {} : { min: 0 }) },
       },
       plugins: {
         legend: { labels: { filter: (item) => !/lower edge$/.test(item.text) } },
         annotation: { annotations } as never,
+      },
+    },
+  };
+}
+
+/** Time axis: ward clock ticks ("24 Nov" over "08:00") for a clock-entered patient, else hours from the first dose. */
+function xAxis(origin: string | undefined): Record<string, unknown> {
+  if (!origin) return { type: 'linear', title: { display: true, text: 'time (h from the first dose)' } };
+  return {
+    type: 'linear',
+    title: { display: true, text: 'ward clock (date and time)' },
+    afterBuildTicks: (axis: { min: number; max: number; ticks: Array<{ value: number }> }) => {
+      const hs = clockTickHours(origin, axis.min, axis.max);
+      if (hs.length) axis.ticks = hs.map((value) => ({ value }));
+    },
+    ticks: {
+      callback: (v: number | string) => {
+        const text = clockTick(origin, Number(v));
+        const cut = text.lastIndexOf(' ');
+        return [text.slice(0, cut), text.slice(cut + 1)];
       },
     },
   };

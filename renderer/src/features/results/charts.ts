@@ -10,12 +10,19 @@ import { COLOURS, SERIES } from '../../lib/charts/setup.js';
 type Pt = { x: number; y: number };
 type Scale = 'linear' | 'logarithmic';
 
+/**
+ * chart.js with `parsing: false` takes every dataset as sorted by x (it finds the visible points
+ * and the axis range by bisection and from the first and last points): scatter data must be
+ * sorted or points silently vanish and the axis shows only part of the range.
+ */
+export const byX = <T extends { x: number }>(points: T[]): T[] => points.sort((a, b) => a.x - b.x);
+
 const axis = (text: string, type: Scale = 'linear', extra: Record<string, unknown> = {}) => ({ type, title: { display: true, text }, ...extra });
 
 export function observedVsPredicted(obs: readonly ObservationDiagnostics[], which: 'pred' | 'ipred', log: boolean): ChartConfiguration<'scatter'> {
   const scale: Scale = log ? 'logarithmic' : 'linear';
-  const pts = obs.filter((o) => !o.censored && o[which] !== null && (!log || (o.dv > 0 && (o[which] as number) > 0))).map((o) => ({ x: o[which] as number, y: o.dv }));
-  const cens = obs.filter((o) => o.censored && o[which] !== null && (!log || (o.dv > 0 && (o[which] as number) > 0))).map((o) => ({ x: o[which] as number, y: o.dv }));
+  const pts = byX(obs.filter((o) => !o.censored && o[which] !== null && (!log || (o.dv > 0 && (o[which] as number) > 0))).map((o) => ({ x: o[which] as number, y: o.dv })));
+  const cens = byX(obs.filter((o) => o.censored && o[which] !== null && (!log || (o.dv > 0 && (o[which] as number) > 0))).map((o) => ({ x: o[which] as number, y: o.dv })));
   const all = [...pts, ...cens];
   const lo = log ? Math.min(...all.map((p) => Math.min(p.x, p.y))) : 0;
   const hi = Math.max(1e-9, ...all.map((p) => Math.max(p.x, p.y)));
@@ -41,6 +48,7 @@ export function residualPlot(obs: readonly ObservationDiagnostics[], which: 'iwr
     if (y === null || x === null || !Number.isFinite(y)) continue;
     pts.push({ x, y });
   }
+  byX(pts);
   const xs = pts.map((p) => p.x);
   const x0 = Math.min(0, ...xs);
   const x1 = Math.max(1, ...xs);
@@ -65,7 +73,7 @@ export function vpcPlot(vpc: VpcData, obs: readonly ObservationDiagnostics[], lo
   ];
   const line = (get: (b: VpcData['bins'][number]) => number | null, label: string, dash: number[] = []): ChartDataset<'line', Pt[]> => ({ label, data: bins.map((b, i) => ({ x: mid[i], y: get(b) ?? NaN })), borderColor: COLOURS.observed, borderWidth: 2, borderDash: dash, pointRadius: 3, fill: false });
   const pc = vpc.predictionCorrected;
-  const raw = pc ? [] : obs.filter((o) => !o.censored).map((o) => ({ x: o.timeH, y: o.dv }));
+  const raw = pc ? [] : byX(obs.filter((o) => !o.censored).map((o) => ({ x: o.timeH, y: o.dv })));
   const pi = Math.round(vpc.piLevel * 100);
   return {
     type: 'line',
@@ -101,7 +109,7 @@ export function convergenceChart(name: string, values: number[], searchEnd: numb
       normalized: true,
       plugins: {
         legend: { display: false },
-        title: { display: true, text: name, font: { size: 13, weight: 'bold' } },
+        title: { display: true, text: estimateTitle(name), font: { size: 13, weight: 'bold' } },
         annotation: {
           annotations: searchEnd > 0 ? { phase: { type: 'line', xMin: searchEnd, xMax: searchEnd, borderColor: COLOURS.second, borderWidth: 1.5, borderDash: [5, 4], label: { display: false } } } : {},
         } as never,
@@ -111,11 +119,20 @@ export function convergenceChart(name: string, values: number[], searchEnd: numb
   };
 }
 
+/** Names of the fit's estimates in words for chart titles (residual_additive_mg_L -> "residual additive SD (mg/L)"). */
+export function estimateTitle(name: string): string {
+  if (name === 'residual_additive_mg_L') return 'residual additive SD (mg/L)';
+  if (name === 'residual_proportional') return 'residual proportional (fraction)';
+  if (name.startsWith('residual_')) return name.replace(/_/g, ' ');
+  if (name.startsWith('bsv_')) return `BSV of ${name.slice(4)} (SD)`;
+  return name;
+}
+
 export function covariateScatter(points: Pt[], parameter: string, covariate: string): ChartConfiguration<'scatter'> {
   return {
     type: 'scatter',
-    data: { datasets: [{ label: `${parameter} (individual mode)`, data: points, pointRadius: 3.5, backgroundColor: 'rgba(44,95,122,0.6)' }] },
-    options: { parsing: false, scales: { x: axis(covariate), y: axis(`${parameter}, individual mode (log scale)`, 'logarithmic') }, plugins: { legend: { display: false } } },
+    data: { datasets: [{ label: `${parameter} (individual mode)`, data: byX([...points]), pointRadius: 3.5, backgroundColor: 'rgba(44,95,122,0.6)' }] },
+    options: { parsing: false, scales: { x: axis(covariate), y: axis(`${parameter} (log axis)`, 'logarithmic') }, plugins: { legend: { display: false }, title: { display: true, text: `${parameter} vs ${covariate}`, font: { size: 12 } } } },
   };
 }
 

@@ -31,6 +31,8 @@ export function setupCharts(): typeof Chart {
   Chart.defaults.borderColor = '#dde2e4';
   Chart.defaults.animation = false;
   Chart.defaults.maintainAspectRatio = false;
+  // Room for the last x tick label, which chart.js otherwise clips on small charts.
+  Chart.defaults.layout.padding = { right: 14, top: 2, bottom: 0, left: 0 };
   done = true;
   return Chart;
 }

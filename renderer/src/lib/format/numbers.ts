@@ -58,3 +58,21 @@ export function hours(h: number | null | undefined): string {
 export function cvFromLogSd(omega: number): number {
   return 100 * Math.sqrt(Math.expm1(omega * omega));
 }
+
+/**
+ * A value with its Monte Carlo (or other) error: the error to 2 significant digits and the value
+ * to the same decimal place ("596.91 ± 0.12"), so no digit is shown that the error makes noise.
+ */
+export function withError(x: number | null | undefined, err: number | null | undefined): string {
+  if (x === null || x === undefined || !Number.isFinite(x)) return MISSING;
+  if (err === null || err === undefined || !Number.isFinite(err) || err <= 0) return fixedLike(x, 1);
+  const e = sig(err, 2);
+  const decimals = e.includes('.') ? e.length - e.indexOf('.') - 1 : 0;
+  return `${x.toFixed(decimals)} ± ${e}`;
+}
+
+/** x with a fixed number of decimals (for -2LL, AIC, BIC: differences matter, not digits). */
+export function fixedLike(x: number | null | undefined, decimals: number): string {
+  if (x === null || x === undefined || !Number.isFinite(x)) return MISSING;
+  return x.toFixed(decimals);
+}
