@@ -36,7 +36,7 @@ export function forecastChartConfig(advice: Advice, fc: Forecast | null, whatIf:
     borderColor: COLOURS.observed,
   });
   const annotations: Record<string, unknown> = {
-    nextDose: {
+    doseDueAt: {
       type: 'line',
       xMin: advice.patient.nextDoseH,
       xMax: advice.patient.nextDoseH,

@@ -36,7 +36,7 @@ export interface PatientForm {
   doses: DoseRow[];
   levels: LevelRow[];
   /** When the next dose can start (same time format); empty = one usual interval after the last. */
-  nextDose: string;
+  doseDueAt: string;
   /** Other fields of a loaded patient file (e.g. a renal history), sent on unchanged so none is lost. */
   extra: Record<string, unknown>;
 }
@@ -53,7 +53,7 @@ export function emptyForm(): PatientForm {
     otherCovariates: Object.create(null),
     doses: [{ time: '', amountMg: '', durationH: '1', route: 'iv' }],
     levels: [],
-    nextDose: '',
+    doseDueAt: '',
     extra: Object.create(null),
   };
 }
@@ -141,13 +141,13 @@ export function formToPatient(f: PatientForm): FormResult {
   });
 
   const patient: Record<string, unknown> = { ...f.extra, id: f.id.trim(), covariates, doses, levels };
-  if (f.nextDose.trim()) {
+  if (f.doseDueAt.trim()) {
     if (f.timeMode === 'clock') {
-      const t = timeOf(f.nextDose, 'Next dose');
+      const t = timeOf(f.doseDueAt, 'Next dose');
       if (t !== undefined) patient.next_dose = t;
     } else {
-      const h = num(f.nextDose);
-      if (h === undefined || Number.isNaN(h)) problems.push(`Next dose: "${f.nextDose}" is not a number of hours.`);
+      const h = num(f.doseDueAt);
+      if (h === undefined || Number.isNaN(h)) problems.push(`Next dose: "${f.doseDueAt}" is not a number of hours.`);
       else patient.next_dose_h = h;
     }
   }
@@ -195,8 +195,8 @@ export function formFromPatientJson(p: Record<string, unknown>): PatientForm {
   const t = (r: Record<string, unknown>) => String(f.timeMode === 'clock' ? (r.time ?? '') : (r.time_h ?? ''));
   f.doses = doses.map((d) => ({ time: t(d), amountMg: String(d.amount_mg ?? ''), durationH: String(d.duration_h ?? 0), route: d.route === 'oral' ? 'oral' : 'iv' }));
   f.levels = levels.map((l) => ({ time: t(l), concMgL: String(l.conc_mg_L ?? ''), censored: l.censored === true, kind: l.kind === 'trough' || l.kind === 'peak' ? l.kind : '' }));
-  if (typeof p.next_dose === 'string') f.nextDose = p.next_dose;
-  else if (typeof p.next_dose_h === 'number') f.nextDose = String(p.next_dose_h);
+  if (typeof p.next_dose === 'string') f.doseDueAt = p.next_dose;
+  else if (typeof p.next_dose_h === 'number') f.doseDueAt = String(p.next_dose_h);
   const known = new Set(['id', 'covariates', 'doses', 'levels', 'next_dose', 'next_dose_h']);
   const extra: Record<string, unknown> = Object.create(null);
   for (const [k, v] of Object.entries(p)) if (!known.has(k)) extra[k] = v;
