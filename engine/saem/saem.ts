@@ -29,15 +29,13 @@
  * abort message while the fit runs returns a promise from onProgress (e.g. every 10
  * iterations) so its event loop can turn.
  */
-import { createStreams, type RngStream } from '../rng/index.js';
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
-import { choleskyLower, invertFromCholesky, solveWithCholesky } from '../stats/dense.js';
-import { combinedErrorDerivatives, residualSd } from '../stats/residual.js';
-import { truncatedNormalBelow } from '../stats/normalTail.js';
+import { choleskyLower, solveWithCholesky } from '../stats/dense.js';
+import { combinedErrorDerivatives } from '../stats/residual.js';
 import { estimateNamesOf, numericalComponents, positiveEstimates, readNumerical, writeEstimates as writeEstimatesOf, writeNumerical } from './layout.js';
 import { effectiveSettleWindow, settledAt, stepSize } from './schedules.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
-import { buildComponentwiseKernel, buildIndependenceKernel, buildRandomWalkKernel, scaleAdaptation, type ChainState, type LogDensityTarget } from '../mcmc/kernels.js';
+import { createOmegaFactor, createSimulationState, proposalLogLik, refreshChains as refreshChainsOf, refreshOmegaFactor as factorOmega, simulationStep } from './simulation.js';
 
 export type SaemPhase = 'search' | 'averaging';
 
@@ -165,16 +163,8 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const hasEta = Uint8Array.from(model.parameters, (q) => (q.etaIndex >= 0 ? 1 : 0));
 
   // Omega factor: Cholesky (for proposals), inverse (for the prior).
-  const omegaChol = new Float64Array(nEta * nEta);
-  const omegaInv = new Float64Array(nEta * nEta);
-  const omegaSd = new Float64Array(nEta);
-  function refreshOmegaFactor(): boolean {
-    if (nEta === 0) return true;
-    if (!choleskyLower(theta.omega, nEta, omegaChol)) return false;
-    invertFromCholesky(omegaChol, nEta, omegaInv);
-    for (let k = 0; k < nEta; k++) omegaSd[k] = Math.sqrt(theta.omega[k * nEta + k]);
-    return true;
-  }
+  const omegaFactor = createOmegaFactor(nEta);
+  const refreshOmegaFactor = (): boolean => factorOmega(omegaFactor, theta.omega);
   refreshOmegaFactor();
 
   // Per-subject design rows z_i = [1, x_i] and Z'Z.
@@ -218,51 +208,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const numLow = new Float64Array(nNum * nNum);
   const numStep = new Float64Array(nNum);
 
-  // Chain state.
-  const phiS = new Float64Array(NL * p);
-  const llS = new Float64Array(NL);
-  const meanAll = new Float64Array(N * p);
-  const obsOff = new Int32Array(N + 1);
-  for (let i = 0; i < N; i++) obsOff[i + 1] = obsOff[i] + subjects[i].nObs;
-  const fS = new Float64Array(L * nObsTotal);
-  const yS = new Float64Array(L * nObsTotal);
-  const fView: Float64Array[] = new Array(NL);
-  const yView: Float64Array[] = new Array(NL);
-  for (let i = 0; i < N; i++)
-    for (let c = 0; c < L; c++) {
-      const s = i * L + c;
-      const off = L * obsOff[i] + c * subjects[i].nObs;
-      fView[s] = fS.subarray(off, off + subjects[i].nObs);
-      yView[s] = yS.subarray(off, off + subjects[i].nObs);
-      yView[s].set(subjects[i].y);
-    }
-  let maxObs = 0;
-  for (const s of subjects) maxObs = Math.max(maxObs, s.nObs);
-  const fPropBuf = new Float64Array(maxObs);
-  const fPropView = subjects.map((s) => fPropBuf.subarray(0, s.nObs));
+  // Chains, kernels and their adaptation (engine/saem/simulation.ts).
+  const sim = createSimulationState(model, settings, L, theta, omegaFactor, warnings);
   const phiProp = new Float64Array(p);
   const meanRow = new Float64Array(p);
-
-  const root = createStreams(settings.seed);
-  const streams: RngStream[] = new Array(NL);
-  for (let i = 0; i < N; i++) for (let c = 0; c < L; c++) streams[i * L + c] = root.stream('saem', 'subject', i, 'chain', c);
-
-  // Kernel adaptation (scales relative to Omega) towards the target acceptance, one update per
-  // search iteration, frozen after search (DESIGN.md §5).
-  const target = settings.targetAcceptance;
-  const kappaAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-4, max: 10 });
-  const compAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-3, max: 10 });
-  const subjectAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-4, max: 20 });
-  /** kappa: variance multiplier of the full random walk N(phi, kappa Omega). */
-  const kappa = kappaAdaptation.init(1, nEta > 0 ? 2.38 * 2.38 / nEta / 2 : 1);
-  /** Component step SDs in units of each omega SD. */
-  const compScale = compAdaptation.init(nEta, 0.5);
-  let accInd = 0, triesInd = 0, accRw = 0, triesRw = 0;
-  const accComp = new Float64Array(nEta);
-  const triesComp = new Float64Array(nEta);
-  let totAccInd = 0, totTriesInd = 0, totAccRw = 0, totTriesRw = 0;
-  const totAccComp = new Float64Array(nEta);
-  const totTriesComp = new Float64Array(nEta);
 
   // Sufficient statistics (chain-averaged) and their stochastic approximations.
   const szp = new Float64Array(R * nEta);
@@ -279,208 +228,6 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const natScratch = new Float64Array(p);
   let indivCount = 0;
 
-  function refreshMeans(): void {
-    for (let i = 0; i < N; i++) {
-      model.meanPhi(i, theta, meanRow);
-      meanAll.set(meanRow, i * p);
-    }
-  }
-
-  /** Log-likelihood of a proposed phi (subject i) into fPropView[i]. */
-  function propLogLik(i: number, phi: Float64Array, a: number, b: number): number {
-    const f = fPropView[i];
-    if (!model.predict(i, phi, f)) return -Infinity;
-    return model.logLikFromPredictions(i, f, a, b);
-  }
-
-  function quadInv(eta: Float64Array): number {
-    let q = 0;
-    for (let r = 0; r < nEta; r++) {
-      let row = 0;
-      for (let c = 0; c < nEta; c++) row += omegaInv[r * nEta + c] * eta[c];
-      q += eta[r] * row;
-    }
-    return q;
-  }
-
-  // The kernels (engine/mcmc) move eta_i = phi_i - mean_i over the BSV components; the target is
-  // p(y_i | phi_i) x N(eta_i; 0, Omega), and an accepted point keeps its predictions.
-  const etaS = new Float64Array(NL * nEta);
-  const chainStates: ChainState[] = new Array(NL);
-  for (let s = 0; s < NL; s++) chainStates[s] = { position: etaS.subarray(s * nEta, (s + 1) * nEta), logLikelihood: 0, logPrior: 0 };
-  const zeroCentre = new Float64Array(nEta);
-  const compSd = new Float64Array(nEta);
-  const subjectTarget: LogDensityTarget & { subject: number; chain: number } = {
-    dim: nEta,
-    subject: 0,
-    chain: 0,
-    logLikelihood(eta) {
-      const i = this.subject;
-      const mBase = i * p;
-      const sBase = this.chain * p;
-      for (let j = 0; j < p; j++) phiProp[j] = hasEta[j] ? meanAll[mBase + j] : phiS[sBase + j];
-      for (let k = 0; k < nEta; k++) phiProp[etaParam[k]] += eta[k];
-      return propLogLik(i, phiProp, theta.a, theta.b);
-    },
-    logPrior(eta) {
-      return -0.5 * quadInv(eta);
-    },
-    accept() {
-      fView[this.chain].set(fPropView[this.subject]);
-    },
-  };
-  // Independent proposal from N(mean_i, Omega): the prior cancels in the ratio.
-  const independentKernel = buildIndependenceKernel({ dim: nEta, df: null, priorProposal: true });
-  const randomWalkKernel = buildRandomWalkKernel(nEta);
-  const componentKernel = buildComponentwiseKernel(nEta);
-
-  // Initial chains at the population means.
-  refreshMeans();
-  for (let i = 0; i < N; i++)
-    for (let c = 0; c < L; c++) {
-      const s = i * L + c;
-      phiS.set(meanAll.subarray(i * p, i * p + p), s * p);
-      if (!model.predict(i, phiS.subarray(s * p, s * p + p), fView[s])) {
-        llS[s] = -Infinity;
-      } else llS[s] = model.logLikFromPredictions(i, fView[s], theta.a, theta.b);
-    }
-  for (let i = 0; i < N; i++)
-    if (llS[i * L] === -Infinity)
-      warnings.push(`subject ${subjects[i].id}: the initial typical values give an impossible prediction; the chains start there and move only if a proposal is valid`);
-
-  // Per-subject covariance of the draws (exponentially weighted over search) and its factor.
-  const subjW = new Float64Array(N);
-  const subjS1 = new Float64Array(N * nEta);
-  const subjS2 = new Float64Array(N * nEta * nEta);
-  const subjCov = new Float64Array(nEta * nEta);
-  const subjChol = new Float64Array(N * nEta * nEta);
-  const subjReady = new Uint8Array(N);
-  const subjCholView = Array.from({ length: N }, (_, i) => subjChol.subarray(i * nEta * nEta, (i + 1) * nEta * nEta));
-  /** Variance multiplier of the subject-shaped random walk. */
-  const adaptScale = subjectAdaptation.init(1, nEta > 0 ? (2.38 * 2.38) / nEta : 1);
-  let accAd = 0, triesAd = 0, totAccAd = 0, totTriesAd = 0;
-  let adaptUpdates = 0;
-  function updateSubjectCovariances(): void {
-    const forget = 0.98;
-    adaptUpdates++;
-    for (let i = 0; i < N; i++) {
-      subjW[i] = forget * subjW[i] + L;
-      for (let q = 0; q < nEta; q++) subjS1[i * nEta + q] *= forget;
-      for (let q = 0; q < nEta * nEta; q++) subjS2[i * nEta * nEta + q] *= forget;
-      for (let c = 0; c < L; c++) {
-        const base = (i * L + c) * p;
-        for (let k = 0; k < nEta; k++) {
-          const v = phiS[base + etaParam[k]];
-          subjS1[i * nEta + k] += v;
-          for (let k2 = 0; k2 <= k; k2++) subjS2[i * nEta * nEta + k * nEta + k2] += v * phiS[base + etaParam[k2]];
-        }
-      }
-    }
-    if (adaptUpdates < 20 || adaptUpdates % 5 !== 0) return;
-    for (let i = 0; i < N; i++) {
-      const w = subjW[i];
-      for (let k = 0; k < nEta; k++)
-        for (let k2 = 0; k2 <= k; k2++) {
-          const v = subjS2[i * nEta * nEta + k * nEta + k2] / w - (subjS1[i * nEta + k] / w) * (subjS1[i * nEta + k2] / w);
-          subjCov[k * nEta + k2] = subjCov[k2 * nEta + k] = v;
-        }
-      // A small share of Omega keeps the proposal non-degenerate while the chain is still stuck.
-      for (let k = 0; k < nEta; k++) subjCov[k * nEta + k] += 1e-3 * theta.omega[k * nEta + k];
-      subjReady[i] = choleskyLower(subjCov, nEta, subjCholView[i]) ? 1 : 0;
-    }
-  }
-
-  function simulate(exploring: boolean): void {
-    accInd = triesInd = accRw = triesRw = accAd = triesAd = 0;
-    const sqrtAdapt = Math.sqrt(adaptScale.scale[0]);
-    accComp.fill(0);
-    triesComp.fill(0);
-    const sqrtKappa = Math.sqrt(kappa.scale[0]);
-    for (let k = 0; k < nEta; k++) compSd[k] = compScale.scale[k] * omegaSd[k];
-    for (let i = 0; i < N; i++) {
-      const mBase = i * p;
-      for (let c = 0; c < L; c++) {
-        const s = i * L + c;
-        const rng = streams[s];
-        const base = s * p;
-        if (nEta > 0) {
-          const st = chainStates[s];
-          const eta = st.position;
-          for (let k = 0; k < nEta; k++) eta[k] = phiS[base + etaParam[k]] - meanAll[mBase + etaParam[k]];
-          st.logLikelihood = llS[s];
-          st.logPrior = -0.5 * quadInv(eta);
-          subjectTarget.subject = i;
-          subjectTarget.chain = s;
-          // 1. Independent proposal from N(mean_i, Omega).
-          for (let it = 0; it < settings.independentSteps; it++) {
-            triesInd++;
-            if (independentKernel.step(rng, subjectTarget, st, zeroCentre, omegaChol)) accInd++;
-          }
-          // 2. Full random walk N(phi, kappa Omega).
-          for (let it = 0; it < settings.randomWalkSteps; it++) {
-            triesRw++;
-            if (randomWalkKernel.step(rng, subjectTarget, st, omegaChol, sqrtKappa)) accRw++;
-          }
-          // 3. Component-wise random walk with adaptive scales.
-          for (let sw = 0; sw < settings.componentSweeps; sw++) {
-            for (let k = 0; k < nEta; k++) triesComp[k]++;
-            componentKernel.sweep(rng, subjectTarget, st, compSd, accComp);
-          }
-          // 4. Random walk shaped by the subject's own conditional covariance (adaptive
-          // Metropolis, Haario, Saksman & Tamminen 2001, from memory): mixes along ridges of
-          // p(phi_i | y_i) that Omega-shaped proposals cross only in tiny steps.
-          if (subjReady[i] && settings.adaptiveSteps > 0)
-            for (let it = 0; it < settings.adaptiveSteps; it++) {
-              triesAd++;
-              if (randomWalkKernel.step(rng, subjectTarget, st, subjCholView[i], sqrtAdapt)) accAd++;
-            }
-          llS[s] = st.logLikelihood;
-          for (let k = 0; k < nEta; k++) phiS[base + etaParam[k]] = meanAll[mBase + etaParam[k]] + eta[k];
-        }
-        // Censored levels: draw from N(f, g^2) truncated below the LLOQ (log scale for log-additive).
-        const sub = subjects[i];
-        if (sub.nCensored > 0) {
-          const f = fView[s];
-          const y = yView[s];
-          for (let o = 0; o < sub.nObs; o++) {
-            if (!sub.censored[o]) continue;
-            const fo = f[o];
-            if (rm === 'log-additive') {
-              if (!(fo > 0)) {
-                y[o] = sub.lloqMgL[o];
-                continue;
-              }
-              const z = truncatedNormalBelow((Math.log(sub.lloqMgL[o]) - Math.log(fo)) / theta.a, rng.uniform());
-              y[o] = fo * Math.exp(theta.a * z);
-            } else {
-              const g = residualSd(rm, theta.a, theta.b, fo);
-              if (!(g > 0) || !Number.isFinite(fo)) {
-                y[o] = sub.lloqMgL[o];
-                continue;
-              }
-              y[o] = fo + g * truncatedNormalBelow((sub.lloqMgL[o] - fo) / g, rng.uniform());
-            }
-          }
-        }
-      }
-    }
-    if (exploring && nEta > 0 && settings.adaptiveSteps > 0) updateSubjectCovariances();
-    totAccInd += accInd, totTriesInd += triesInd, totAccRw += accRw, totTriesRw += triesRw, totAccAd += accAd, totTriesAd += triesAd;
-    for (let k = 0; k < nEta; k++) (totAccComp[k] += accComp[k]), (totTriesComp[k] += triesComp[k]);
-    if (exploring) {
-      // kappa <- kappa (1 + delta (acc - target)), likewise the component scales (DESIGN.md §5).
-      kappa.accepted[0] = accRw;
-      kappa.tries[0] = triesRw;
-      kappaAdaptation.update(kappa);
-      adaptScale.accepted[0] = accAd;
-      adaptScale.tries[0] = triesAd;
-      subjectAdaptation.update(adaptScale);
-      compScale.accepted.set(accComp);
-      compScale.tries.set(triesComp);
-      compAdaptation.update(compScale);
-    }
-  }
-
   /** Complete-data sufficient statistics at the current draws, averaged over chains. */
   function computeStatistics(): void {
     szp.fill(0);
@@ -493,12 +240,12 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         const s = i * L + c;
         const base = s * p;
         for (let k = 0; k < nEta; k++) {
-          const v = phiS[base + etaParam[k]];
+          const v = sim.phiByChain[base + etaParam[k]];
           for (let r = 0; r < R; r++) szp[r * nEta + k] += zRow[i * R + r] * v * invL;
-          for (let k2 = 0; k2 <= k; k2++) spp[k * nEta + k2] += v * phiS[base + etaParam[k2]] * invL;
+          for (let k2 = 0; k2 <= k; k2++) spp[k * nEta + k2] += v * sim.phiByChain[base + etaParam[k2]] * invL;
         }
-        const f = fView[s];
-        const y = yView[s];
+        const f = sim.predictionsByChain[s];
+        const y = sim.levelsByChain[s];
         for (let o = 0; o < sub.nObs; o++) {
           let e: number;
           if (rm === 'additive') e = y[o] - f[o];
@@ -539,9 +286,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         const s = i * L + c;
         let ll: number;
         if (numStructural) {
-          for (let j = 0; j < p; j++) phiProp[j] = hasEta[j] ? phiS[s * p + j] : meanRow[j];
-          ll = propLogLik(i, phiProp, a, b);
-        } else ll = model.logLikFromPredictions(i, fView[s], a, b);
+          for (let j = 0; j < p; j++) phiProp[j] = hasEta[j] ? sim.phiByChain[s * p + j] : meanRow[j];
+          ll = proposalLogLik(sim, i, phiProp, a, b);
+        } else ll = model.logLikFromPredictions(i, sim.predictionsByChain[s], a, b);
         total += ll;
       }
     }
@@ -592,7 +339,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     for (let i = 0; i < N; i++) {
       const sub = subjects[i];
       for (let c = 0; c < L; c++) {
-        const f = fView[i * L + c];
+        const f = sim.predictionsByChain[i * L + c];
         for (let o = 0; o < sub.nObs; o++) {
           if (!combinedErrorDerivatives(theta.a, theta.b, sub.y[o], f[o], sub.censored[o] === 1, sub.lloqMgL[o], der)) continue;
           numGrad[0] += der[1] * invL;
@@ -658,15 +405,15 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         for (let fi = 0; fi < nFree; fi++) {
           const m = freeIdx[fi];
           let rhs = 0;
-          for (let k2 = 0; k2 < nEta; k2++) rhs += omegaInv[coefEta[m] * nEta + k2] * szpBar[coefZ[m] * nEta + k2];
+          for (let k2 = 0; k2 < nEta; k2++) rhs += omegaFactor.inverse[coefEta[m] * nEta + k2] * szpBar[coefZ[m] * nEta + k2];
           for (let m2 = 0; m2 < nCoef; m2++) {
             if (!coefFixed[m2]) continue;
-            rhs -= omegaInv[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]] * coefValue[m2];
+            rhs -= omegaFactor.inverse[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]] * coefValue[m2];
           }
           glsRhs[fi] = rhs;
           for (let fj = 0; fj < nFree; fj++) {
             const m2 = freeIdx[fj];
-            glsA[fi * nFree + fj] = omegaInv[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]];
+            glsA[fi * nFree + fj] = omegaFactor.inverse[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]];
           }
         }
         if (choleskyLower(glsA, nFree, glsL)) {
@@ -735,19 +482,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     }
   }
 
-  /** The chains keep their phi; refresh means, non-BSV components and cached log-likelihoods. */
-  function refreshChains(): void {
-    refreshMeans();
-    for (let i = 0; i < N; i++)
-      for (let c = 0; c < L; c++) {
-        const s = i * L + c;
-        if (numStructural) {
-          for (let j = 0; j < p; j++) if (!hasEta[j]) phiS[s * p + j] = meanAll[i * p + j];
-          const phi = phiS.subarray(s * p, s * p + p);
-          llS[s] = model.predict(i, phi, fView[s]) ? model.logLikFromPredictions(i, fView[s], theta.a, theta.b) : -Infinity;
-        } else llS[s] = model.logLikFromPredictions(i, fView[s], theta.a, theta.b);
-      }
-  }
+  const refreshChains = (): void => refreshChainsOf(sim, theta, numStructural);
 
   const writeEstimates = (out: Float64Array): void => writeEstimatesOf(model, theta, out);
   /** Working scale of each estimate for the settle test: log of positive quantities. */
@@ -834,7 +569,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       if (this.done) return;
       const exploring = searchEnd === null;
       iteration++;
-      simulate(exploring);
+      simulationStep(sim, theta, exploring);
       computeStatistics();
       if (exploring) storeWindowStatistics(iteration);
       const gamma = stepSize(iteration, searchEnd, warmCount, settings.stepExponent);
@@ -855,7 +590,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         if (iteration > lastStart) {
           for (let s = 0; s < NL; s++) {
             const i = (s / L) | 0;
-            const phi = phiS.subarray(s * p, s * p + p);
+            const phi = sim.phiByChain.subarray(s * p, s * p + p);
             model.toNatural(phi, natScratch);
             for (let j = 0; j < p; j++) {
               indivSum[i * p + j] += natScratch[j];
@@ -894,8 +629,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       }
       const estimates = new Float64Array(nEst);
       writeEstimates(estimates);
+      const total = sim.totalAcceptance;
       const compAcc = new Float64Array(nEta);
-      for (let k = 0; k < nEta; k++) compAcc[k] = totTriesComp[k] > 0 ? totAccComp[k] / totTriesComp[k] : NaN;
+      for (let k = 0; k < nEta; k++) compAcc[k] = total.componentTries[k] > 0 ? total.componentAccepted[k] / total.componentTries[k] : NaN;
       for (let q = 0; q < nEst; q++)
         if (!Number.isFinite(estimates[q])) warnings.push(`estimate ${estimateNames[q]} is not a finite number: the fit failed; check the initial values and the data`);
       return {
@@ -912,10 +648,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         individualMean,
         individualPhiMean,
         acceptance: {
-          independent: totTriesInd > 0 ? totAccInd / totTriesInd : NaN,
-          randomWalk: totTriesRw > 0 ? totAccRw / totTriesRw : NaN,
+          independent: total.independentTries > 0 ? total.independentAccepted / total.independentTries : NaN,
+          randomWalk: total.randomWalkTries > 0 ? total.randomWalkAccepted / total.randomWalkTries : NaN,
           component: compAcc,
-          adaptive: totTriesAd > 0 ? totAccAd / totTriesAd : NaN,
+          adaptive: total.adaptiveTries > 0 ? total.adaptiveAccepted / total.adaptiveTries : NaN,
         },
         warnings,
         timingMs: { total: tEnd - tStart, search: tSearchEnd - tStart, averaging: tEnd - tSearchEnd },
