@@ -35,7 +35,8 @@ import { combinedErrorDerivatives } from '../stats/residual.js';
 import { estimateNamesOf, numericalComponents, positiveEstimates, readNumerical, writeEstimates as writeEstimatesOf, writeNumerical } from './layout.js';
 import { effectiveSettleWindow, settledAt, stepSize } from './schedules.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
-import { createOmegaFactor, createSimulationState, proposalLogLik, refreshChains as refreshChainsOf, refreshOmegaFactor as factorOmega, simulationStep } from './simulation.js';
+import { approximateStatistics, closedFormMStep, computeStatistics, createMStepState } from './mStep.js';
+import { createOmegaFactor, createSimulationState, proposalLogLik, refreshChains as refreshChainsOf, refreshOmegaFactor, simulationStep } from './simulation.js';
 
 export type SaemPhase = 'search' | 'averaging';
 
@@ -164,38 +165,11 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 
   // Omega factor: Cholesky (for proposals), inverse (for the prior).
   const omegaFactor = createOmegaFactor(nEta);
-  const refreshOmegaFactor = (): boolean => factorOmega(omegaFactor, theta.omega);
-  refreshOmegaFactor();
+  refreshOmegaFactor(omegaFactor, theta.omega);
 
-  // Per-subject design rows z_i = [1, x_i] and Z'Z.
-  const zz = new Float64Array(R * R);
-  const zRow = new Float64Array(N * R);
-  for (let i = 0; i < N; i++) {
-    zRow[i * R] = 1;
-    for (let t = 0; t < T; t++) zRow[i * R + 1 + t] = subjects[i].design[t];
-    for (let r = 0; r < R; r++) for (let c = 0; c < R; c++) zz[r * R + c] += zRow[i * R + r] * zRow[i * R + c];
-  }
-
-  // GLS coefficient layout for parameters with BSV: per random effect, intercept then its terms.
-  const coefEta: number[] = [];
-  const coefZ: number[] = [];
-  const coefFixed: number[] = [];
-  const coefMu: number[] = []; // parameter index when the coefficient is an intercept, else -1
-  const coefBeta: number[] = []; // term index, else -1
-  for (let k = 0; k < nEta; k++) {
-    const j = etaParam[k];
-    coefEta.push(k), coefZ.push(0), coefFixed.push(model.parameters[j].fixed ? 1 : 0), coefMu.push(j), coefBeta.push(-1);
-    for (let t = 0; t < T; t++)
-      if (termParam[t] === j) coefEta.push(k), coefZ.push(1 + t), coefFixed.push(model.covariateTerms[t].fixed ? 1 : 0), coefMu.push(-1), coefBeta.push(t);
-  }
-  const nCoef = coefEta.length;
-  const freeIdx = Int32Array.from([...Array(nCoef).keys()].filter((m) => !coefFixed[m]));
-  const nFree = freeIdx.length;
-  const glsA = new Float64Array(nFree * nFree);
-  const glsL = new Float64Array(nFree * nFree);
-  const glsRhs = new Float64Array(nFree);
-  const coefValue = new Float64Array(nCoef);
-  const bMat = new Float64Array(R * nEta);
+  // Design rows, GLS layout and sufficient statistics of the M-step (engine/saem/mStep.ts).
+  const mStepState = createMStepState(model, settings);
+  const stats = mStepState.statistics;
 
   // Numerical block: typical values / coefficients of parameters without BSV, combined-error (log a, log b).
   const { components: numComps, structural: numStructural } = numericalComponents(model);
@@ -213,13 +187,6 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const phiProp = new Float64Array(p);
   const meanRow = new Float64Array(p);
 
-  // Sufficient statistics (chain-averaged) and their stochastic approximations.
-  const szp = new Float64Array(R * nEta);
-  const spp = new Float64Array(nEta * nEta);
-  const szpBar = new Float64Array(R * nEta);
-  const sppBar = new Float64Array(nEta * nEta);
-  let sres = 0;
-  let sresBar = 0;
 
   const trajectory = new Float64Array(maxIter * nEst);
   const current = new Float64Array(nEst);
@@ -227,38 +194,6 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const indivPhiSum = new Float64Array(N * p);
   const natScratch = new Float64Array(p);
   let indivCount = 0;
-
-  /** Complete-data sufficient statistics at the current draws, averaged over chains. */
-  function computeStatistics(): void {
-    szp.fill(0);
-    spp.fill(0);
-    let res = 0;
-    const invL = 1 / L;
-    for (let i = 0; i < N; i++) {
-      const sub = subjects[i];
-      for (let c = 0; c < L; c++) {
-        const s = i * L + c;
-        const base = s * p;
-        for (let k = 0; k < nEta; k++) {
-          const v = sim.phiByChain[base + etaParam[k]];
-          for (let r = 0; r < R; r++) szp[r * nEta + k] += zRow[i * R + r] * v * invL;
-          for (let k2 = 0; k2 <= k; k2++) spp[k * nEta + k2] += v * sim.phiByChain[base + etaParam[k2]] * invL;
-        }
-        const f = sim.predictionsByChain[s];
-        const y = sim.levelsByChain[s];
-        for (let o = 0; o < sub.nObs; o++) {
-          let e: number;
-          if (rm === 'additive') e = y[o] - f[o];
-          else if (rm === 'proportional') e = (y[o] - f[o]) / f[o];
-          else if (rm === 'log-additive') e = Math.log(y[o]) - Math.log(f[o]);
-          else e = 0;
-          res += e * e * invL;
-        }
-      }
-    }
-    for (let k = 0; k < nEta; k++) for (let k2 = 0; k2 < k; k2++) spp[k2 * nEta + k] = spp[k * nEta + k2];
-    sres = Number.isFinite(res) ? res : sresBar;
-  }
 
   /** Complete-data log-likelihood of the numerical block at numTheta (chain-averaged). */
   function numObjective(x: Float64Array): number {
@@ -373,17 +308,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     }
   }
 
-  const omegaPrev = new Float64Array(nEta * nEta);
-  const omegaNew = new Float64Array(nEta * nEta);
-  const blockOf = new Int32Array(nEta);
-  model.blocks.forEach((blk, bi) => blk.forEach((k) => (blockOf[k] = bi)));
-  let omegaFailures = 0;
-
   function mStep(gamma: number, annealing: boolean): void {
-    for (let q = 0; q < R * nEta; q++) szpBar[q] += gamma * (szp[q] - szpBar[q]);
-    for (let q = 0; q < nEta * nEta; q++) sppBar[q] += gamma * (spp[q] - sppBar[q]);
-    sresBar += gamma * (sres - sresBar);
-    mStepClosedForm(annealing);
+    approximateStatistics(mStepState, gamma);
+    closedFormMStep(mStepState, theta, omegaFactor, annealing);
     if (nNum > 0) {
       const a0 = theta.a;
       const b0 = theta.b;
@@ -394,92 +321,6 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       }
     }
     refreshChains();
-  }
-
-  /** The closed-form part of the M-step from the current approximations szpBar, sppBar, sresBar. */
-  function mStepClosedForm(annealing: boolean): void {
-    if (nEta > 0) {
-      // GLS for the coefficients of parameters with BSV, weights W = Omega_{k-1}^-1.
-      for (let m = 0; m < nCoef; m++) coefValue[m] = coefMu[m] >= 0 ? theta.mu[coefMu[m]] : theta.beta[coefBeta[m]];
-      if (nFree > 0) {
-        for (let fi = 0; fi < nFree; fi++) {
-          const m = freeIdx[fi];
-          let rhs = 0;
-          for (let k2 = 0; k2 < nEta; k2++) rhs += omegaFactor.inverse[coefEta[m] * nEta + k2] * szpBar[coefZ[m] * nEta + k2];
-          for (let m2 = 0; m2 < nCoef; m2++) {
-            if (!coefFixed[m2]) continue;
-            rhs -= omegaFactor.inverse[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]] * coefValue[m2];
-          }
-          glsRhs[fi] = rhs;
-          for (let fj = 0; fj < nFree; fj++) {
-            const m2 = freeIdx[fj];
-            glsA[fi * nFree + fj] = omegaFactor.inverse[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]];
-          }
-        }
-        if (choleskyLower(glsA, nFree, glsL)) {
-          solveWithCholesky(glsL, nFree, glsRhs);
-          for (let fi = 0; fi < nFree; fi++) {
-            const m = freeIdx[fi];
-            if (Number.isFinite(glsRhs[fi])) coefValue[m] = glsRhs[fi];
-          }
-        }
-        for (let m = 0; m < nCoef; m++) {
-          if (coefMu[m] >= 0) theta.mu[coefMu[m]] = coefValue[m];
-          else theta.beta[coefBeta[m]] = coefValue[m];
-        }
-      }
-      // Omega = (S_pp - B'S_zp - S_zp'B + B'Z'Z B) / N within the blocks.
-      bMat.fill(0);
-      for (let m = 0; m < nCoef; m++) bMat[coefZ[m] * nEta + coefEta[m]] = coefValue[m];
-      omegaPrev.set(theta.omega);
-      for (let k = 0; k < nEta; k++)
-        for (let k2 = 0; k2 <= k; k2++) {
-          let v = 0;
-          if (blockOf[k] === blockOf[k2]) {
-            v = sppBar[k * nEta + k2];
-            for (let r = 0; r < R; r++) {
-              v -= bMat[r * nEta + k] * szpBar[r * nEta + k2] + szpBar[r * nEta + k] * bMat[r * nEta + k2];
-              let bz = 0;
-              for (let r2 = 0; r2 < R; r2++) bz += zz[r * R + r2] * bMat[r2 * nEta + k2];
-              v += bMat[r * nEta + k] * bz;
-            }
-            v /= N;
-          }
-          omegaNew[k * nEta + k2] = omegaNew[k2 * nEta + k] = v;
-        }
-      if (annealing)
-        for (let k = 0; k < nEta; k++) {
-          const floor = settings.annealingTau * omegaPrev[k * nEta + k];
-          if (!(omegaNew[k * nEta + k] >= floor)) {
-            // Raising a variance alone keeps the block positive definite; rescale its covariances too.
-            const ratio = Math.sqrt(floor / Math.max(omegaNew[k * nEta + k], 1e-300));
-            omegaNew[k * nEta + k] = floor;
-            for (let k2 = 0; k2 < nEta; k2++) if (k2 !== k && Number.isFinite(ratio)) {
-              omegaNew[k * nEta + k2] *= ratio;
-              omegaNew[k2 * nEta + k] *= ratio;
-            }
-          }
-        }
-      for (let k = 0; k < nEta; k++) if (!(omegaNew[k * nEta + k] > 1e-12)) omegaNew[k * nEta + k] = 1e-12;
-      theta.omega.set(omegaNew);
-      if (!refreshOmegaFactor()) {
-        omegaFailures++;
-        theta.omega.set(omegaPrev);
-        refreshOmegaFactor();
-      }
-    }
-
-    // Residual error, closed form where the model allows.
-    if (rm !== 'combined' && nObsTotal > 0) {
-      let v = sresBar / nObsTotal;
-      if (rm === 'proportional') {
-        if (annealing) v = Math.max(v, settings.annealingTau * theta.b * theta.b);
-        if (v > 0 && Number.isFinite(v)) theta.b = Math.sqrt(v);
-      } else {
-        if (annealing) v = Math.max(v, settings.annealingTau * theta.a * theta.a);
-        if (v > 0 && Number.isFinite(v)) theta.a = Math.sqrt(v);
-      }
-    }
   }
 
   const refreshChains = (): void => refreshChainsOf(sim, theta, numStructural);
@@ -502,9 +343,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   let warmCount = 0;
   function storeWindowStatistics(k: number): void {
     const slot = (k - 1) % W;
-    ringSzp.set(szp, slot * R * nEta);
-    ringSpp.set(spp, slot * nEta * nEta);
-    ringSres[slot] = sres;
+    ringSzp.set(stats.designPhi, slot * R * nEta);
+    ringSpp.set(stats.phiPhi, slot * nEta * nEta);
+    ringSres[slot] = stats.residualSquares;
   }
   function storeWindowNumerical(k: number): void {
     readNumerical(numComps, theta, ringNum, ((k - 1) % W) * nNum);
@@ -512,13 +353,13 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   function warmStart(k: number): void {
     const n = Math.min(W, k);
     warmCount = n;
-    szpBar.fill(0);
-    sppBar.fill(0);
-    sresBar = 0;
+    stats.designPhiApprox.fill(0);
+    stats.phiPhiApprox.fill(0);
+    stats.residualSquaresApprox = 0;
     for (let slot = 0; slot < n; slot++) {
-      for (let q = 0; q < R * nEta; q++) szpBar[q] += ringSzp[slot * R * nEta + q] / n;
-      for (let q = 0; q < nEta * nEta; q++) sppBar[q] += ringSpp[slot * nEta * nEta + q] / n;
-      sresBar += ringSres[slot] / n;
+      for (let q = 0; q < R * nEta; q++) stats.designPhiApprox[q] += ringSzp[slot * R * nEta + q] / n;
+      for (let q = 0; q < nEta * nEta; q++) stats.phiPhiApprox[q] += ringSpp[slot * nEta * nEta + q] / n;
+      stats.residualSquaresApprox += ringSres[slot] / n;
     }
     for (let m = 0; m < nNum; m++) {
       let v = 0;
@@ -526,10 +367,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       writeNumerical(numComps[m], v, theta);
     }
     // M-step from the window means (gamma 0 keeps the statistics as set).
-    sres = sresBar;
-    szp.set(szpBar);
-    spp.set(sppBar);
-    mStepClosedForm(false);
+    stats.residualSquares = stats.residualSquaresApprox;
+    stats.designPhi.set(stats.designPhiApprox);
+    stats.phiPhi.set(stats.phiPhiApprox);
+    closedFormMStep(mStepState, theta, omegaFactor, false);
     refreshChains();
     writeEstimates(current);
     trajectory.set(current, (k - 1) * nEst);
@@ -570,7 +411,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       const exploring = searchEnd === null;
       iteration++;
       simulationStep(sim, theta, exploring);
-      computeStatistics();
+      computeStatistics(mStepState, sim);
       if (exploring) storeWindowStatistics(iteration);
       const gamma = stepSize(iteration, searchEnd, warmCount, settings.stepExponent);
       if (!options.freezePopulation) mStep(gamma, exploring && iteration <= annealingIterations);
@@ -619,7 +460,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       }
       if (searchEnd !== null && !searchSettled && settings.autoEndSearch)
         warnings.push(`search reached its cap of ${settings.searchMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.searchMaxIterations`);
-      if (omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${omegaFailures} iteration(s); the previous Omega was kept there`);
+      if (mStepState.omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${mStepState.omegaFailures} iteration(s); the previous Omega was kept there`);
       if (avgCount > 0) {
         for (let j = 0; j < p; j++) theta.mu[j] = avgMu[j] / avgCount;
         for (let t = 0; t < T; t++) theta.beta[t] = avgBeta[t] / avgCount;
