@@ -24,6 +24,11 @@
  * early in the search phase (at most (1 - tau) fall per iteration). Randomness: one stream per
  * subject and chain from the seed, so results do not depend on the order of work.
  *
+ * Layout: engine/saem/simulation.ts holds step (1) and the chain refresh, engine/saem/mStep.ts the
+ * sufficient statistics and the closed-form M-step, engine/saem/layout.ts the estimate order and
+ * engine/saem/schedules.ts the step size and settle test; this file keeps the stochastic Newton
+ * step of the numerical block (with its own finite differences) and drives the iterations.
+ *
  * The iteration itself is synchronous and allocation-free; `runSaem` drives it, reports progress
  * every iteration and checks the abort signal between iterations. A host that must receive an
  * abort message while the fit runs returns a promise from onProgress (e.g. every 10
@@ -141,9 +146,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const nEta = model.nEta;
   const T = model.covariateTerms.length;
   const R = 1 + T;
-  const L = resolveChains(settings, N);
-  const NL = N * L;
-  const rm = model.residualModel;
+  const nChains = resolveChains(settings, N);
+  const nChainsTotal = N * nChains;
+  const residualModel = model.residualModel;
   const subjects = model.subjects;
   const nObsTotal = model.nObsTotal;
   const warnings: string[] = [...model.warnings];
@@ -171,159 +176,160 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const mStepState = createMStepState(model, settings);
   const stats = mStepState.statistics;
 
-  // Numerical block: typical values / coefficients of parameters without BSV, combined-error (log a, log b).
-  const { components: numComps, structural: numStructural } = numericalComponents(model);
-  const nNum = numComps.length;
-  const numTheta = new Float64Array(nNum);
-  const numGrad = new Float64Array(nNum);
-  const numHess = new Float64Array(nNum * nNum);
-  const numHessBar = new Float64Array(nNum * nNum);
-  const numNegH = new Float64Array(nNum * nNum);
-  const numLow = new Float64Array(nNum * nNum);
-  const numStep = new Float64Array(nNum);
+  // Numerical block, moved by the stochastic Newton step: typical values / coefficients of
+  // parameters without BSV, combined-error (log a, log b).
+  const { components: newtonComponents, structural: newtonHasStructural } = numericalComponents(model);
+  const nNewton = newtonComponents.length;
+  const newtonX = new Float64Array(nNewton);
+  const newtonGradient = new Float64Array(nNewton);
+  const newtonHessian = new Float64Array(nNewton * nNewton);
+  const newtonHessianApprox = new Float64Array(nNewton * nNewton);
+  const negHessianApprox = new Float64Array(nNewton * nNewton);
+  const negHessianCholesky = new Float64Array(nNewton * nNewton);
+  const newtonDirection = new Float64Array(nNewton);
 
   // Chains, kernels and their adaptation (engine/saem/simulation.ts).
-  const sim = createSimulationState(model, settings, L, theta, omegaFactor, warnings);
-  const phiProp = new Float64Array(p);
-  const meanRow = new Float64Array(p);
+  const sim = createSimulationState(model, settings, nChains, theta, omegaFactor, warnings);
+  const proposalPhi = new Float64Array(p);
+  const meanPhiRow = new Float64Array(p);
 
 
   const trajectory = new Float64Array(maxIter * nEst);
   const current = new Float64Array(nEst);
-  const indivSum = new Float64Array(N * p);
-  const indivPhiSum = new Float64Array(N * p);
-  const natScratch = new Float64Array(p);
-  let indivCount = 0;
+  const individualNaturalSum = new Float64Array(N * p);
+  const individualPhiSum = new Float64Array(N * p);
+  const naturalScratch = new Float64Array(p);
+  let individualDrawCount = 0;
 
-  /** Complete-data log-likelihood of the numerical block at numTheta (chain-averaged). */
-  function numObjective(x: Float64Array): number {
+  /** Complete-data log-likelihood of the numerical block at newtonX (chain-averaged). */
+  function newtonObjective(x: Float64Array): number {
     let a = theta.a;
     let b = theta.b;
-    for (let m = 0; m < nNum; m++) {
-      const nc = numComps[m];
+    for (let m = 0; m < nNewton; m++) {
+      const nc = newtonComponents[m];
       if (nc.kind === 'loga') a = Math.exp(x[m]);
       else if (nc.kind === 'logb') b = Math.exp(x[m]);
     }
     let total = 0;
     for (let i = 0; i < N; i++) {
-      if (numStructural) {
+      if (newtonHasStructural) {
         // mean of the non-BSV components under x
-        for (let j = 0; j < p; j++) meanRow[j] = hasEta[j] ? 0 : theta.mu[j];
-        for (let m = 0; m < nNum; m++) if (numComps[m].kind === 'mu') meanRow[numComps[m].index] = x[m];
+        for (let j = 0; j < p; j++) meanPhiRow[j] = hasEta[j] ? 0 : theta.mu[j];
+        for (let m = 0; m < nNewton; m++) if (newtonComponents[m].kind === 'mu') meanPhiRow[newtonComponents[m].index] = x[m];
         for (let t = 0; t < T; t++) {
           if (hasEta[termParam[t]]) continue;
           let coef = theta.beta[t];
-          for (let m = 0; m < nNum; m++) if (numComps[m].kind === 'beta' && numComps[m].index === t) coef = x[m];
-          meanRow[termParam[t]] += coef * subjects[i].design[t];
+          for (let m = 0; m < nNewton; m++) if (newtonComponents[m].kind === 'beta' && newtonComponents[m].index === t) coef = x[m];
+          meanPhiRow[termParam[t]] += coef * subjects[i].design[t];
         }
       }
-      for (let c = 0; c < L; c++) {
-        const s = i * L + c;
+      for (let c = 0; c < nChains; c++) {
+        const s = i * nChains + c;
         let ll: number;
-        if (numStructural) {
-          for (let j = 0; j < p; j++) phiProp[j] = hasEta[j] ? sim.phiByChain[s * p + j] : meanRow[j];
-          ll = proposalLogLik(sim, i, phiProp, a, b);
+        if (newtonHasStructural) {
+          for (let j = 0; j < p; j++) proposalPhi[j] = hasEta[j] ? sim.phiByChain[s * p + j] : meanPhiRow[j];
+          ll = proposalLogLik(sim, i, proposalPhi, a, b);
         } else ll = model.logLikFromPredictions(i, sim.predictionsByChain[s], a, b);
         total += ll;
       }
     }
-    return total / L;
+    return total / nChains;
   }
 
   /** Gradient and Hessian of the numerical block's objective by central differences. */
-  function finiteDifferenceDerivatives(): boolean {
-    const f0 = numObjective(numTheta);
-    if (!Number.isFinite(f0)) return false;
-    for (let m = 0; m < nNum; m++) {
-      const h = 1e-3 * Math.max(1, Math.abs(numTheta[m]));
-      xTmp.set(numTheta);
-      xTmp[m] = numTheta[m] + h;
-      const fp = numObjective(xTmp);
-      xTmp[m] = numTheta[m] - h;
-      const fm = numObjective(xTmp);
-      numGrad[m] = (fp - fm) / (2 * h);
-      numHess[m * nNum + m] = (fp - 2 * f0 + fm) / (h * h);
+  function newtonFiniteDifferences(): boolean {
+    const objectiveAtX = newtonObjective(newtonX);
+    if (!Number.isFinite(objectiveAtX)) return false;
+    for (let m = 0; m < nNewton; m++) {
+      const h = 1e-3 * Math.max(1, Math.abs(newtonX[m]));
+      newtonXShifted.set(newtonX);
+      newtonXShifted[m] = newtonX[m] + h;
+      const objectivePlus = newtonObjective(newtonXShifted);
+      newtonXShifted[m] = newtonX[m] - h;
+      const objectiveMinus = newtonObjective(newtonXShifted);
+      newtonGradient[m] = (objectivePlus - objectiveMinus) / (2 * h);
+      newtonHessian[m * nNewton + m] = (objectivePlus - 2 * objectiveAtX + objectiveMinus) / (h * h);
     }
-    for (let m = 0; m < nNum; m++)
-      for (let m2 = m + 1; m2 < nNum; m2++) {
-        const h1 = 1e-3 * Math.max(1, Math.abs(numTheta[m]));
-        const h2 = 1e-3 * Math.max(1, Math.abs(numTheta[m2]));
+    for (let m = 0; m < nNewton; m++)
+      for (let m2 = m + 1; m2 < nNewton; m2++) {
+        const h1 = 1e-3 * Math.max(1, Math.abs(newtonX[m]));
+        const h2 = 1e-3 * Math.max(1, Math.abs(newtonX[m2]));
         let acc = 0;
         for (let corner = 0; corner < 4; corner++) {
           const s1 = corner < 2 ? 1 : -1;
           const s2 = corner % 2 === 0 ? 1 : -1;
           const w = s1 * s2;
-          xTmp.set(numTheta);
-          xTmp[m] += s1 * h1;
-          xTmp[m2] += s2 * h2;
-          acc += w * numObjective(xTmp);
+          newtonXShifted.set(newtonX);
+          newtonXShifted[m] += s1 * h1;
+          newtonXShifted[m2] += s2 * h2;
+          acc += w * newtonObjective(newtonXShifted);
         }
-        numHess[m * nNum + m2] = numHess[m2 * nNum + m] = acc / (4 * h1 * h2);
+        newtonHessian[m * nNewton + m2] = newtonHessian[m2 * nNewton + m] = acc / (4 * h1 * h2);
       }
-    for (let q = 0; q < nNum * nNum; q++) if (!Number.isFinite(numHess[q])) return false;
-    for (let m = 0; m < nNum; m++) if (!Number.isFinite(numGrad[m])) return false;
+    for (let q = 0; q < nNewton * nNewton; q++) if (!Number.isFinite(newtonHessian[q])) return false;
+    for (let m = 0; m < nNewton; m++) if (!Number.isFinite(newtonGradient[m])) return false;
     return true;
   }
 
   /** Combined error alone: analytic gradient and Hessian in (log a, log b), one pass over the levels. */
-  const der = new Float64Array(6);
-  function combinedDerivatives(): boolean {
-    numGrad.fill(0);
-    numHess.fill(0);
-    const invL = 1 / L;
+  const combinedDerivativeScratch = new Float64Array(6);
+  function combinedErrorNewtonDerivatives(): boolean {
+    newtonGradient.fill(0);
+    newtonHessian.fill(0);
+    const invChains = 1 / nChains;
     for (let i = 0; i < N; i++) {
       const sub = subjects[i];
-      for (let c = 0; c < L; c++) {
-        const f = sim.predictionsByChain[i * L + c];
+      for (let c = 0; c < nChains; c++) {
+        const f = sim.predictionsByChain[i * nChains + c];
         for (let o = 0; o < sub.nObs; o++) {
-          if (!combinedErrorDerivatives(theta.a, theta.b, sub.y[o], f[o], sub.censored[o] === 1, sub.lloqMgL[o], der)) continue;
-          numGrad[0] += der[1] * invL;
-          numGrad[1] += der[2] * invL;
-          numHess[0] += der[3] * invL;
-          numHess[3] += der[4] * invL;
-          numHess[1] += der[5] * invL;
+          if (!combinedErrorDerivatives(theta.a, theta.b, sub.y[o], f[o], sub.censored[o] === 1, sub.lloqMgL[o], combinedDerivativeScratch)) continue;
+          newtonGradient[0] += combinedDerivativeScratch[1] * invChains;
+          newtonGradient[1] += combinedDerivativeScratch[2] * invChains;
+          newtonHessian[0] += combinedDerivativeScratch[3] * invChains;
+          newtonHessian[3] += combinedDerivativeScratch[4] * invChains;
+          newtonHessian[1] += combinedDerivativeScratch[5] * invChains;
         }
       }
     }
-    numHess[2] = numHess[1];
-    for (let q = 0; q < 4; q++) if (!Number.isFinite(numHess[q])) return false;
-    return Number.isFinite(numGrad[0]) && Number.isFinite(numGrad[1]);
+    newtonHessian[2] = newtonHessian[1];
+    for (let q = 0; q < 4; q++) if (!Number.isFinite(newtonHessian[q])) return false;
+    return Number.isFinite(newtonGradient[0]) && Number.isFinite(newtonGradient[1]);
   }
 
-  const xTmp = new Float64Array(nNum);
-  function numericalStep(gamma: number): void {
-    readNumerical(numComps, theta, numTheta);
-    if (!numStructural && rm === 'combined') {
-      if (!combinedDerivatives()) return;
-    } else if (!finiteDifferenceDerivatives()) return;
-    for (let q = 0; q < nNum * nNum; q++) numHessBar[q] += gamma * (numHess[q] - numHessBar[q]);
-    for (let q = 0; q < nNum * nNum; q++) numNegH[q] = -numHessBar[q];
-    numStep.set(numGrad);
-    if (choleskyLower(numNegH, nNum, numLow)) solveWithCholesky(numLow, nNum, numStep);
-    else for (let m = 0; m < nNum; m++) numStep[m] = numGrad[m] / Math.max(Math.abs(numHessBar[m * nNum + m]), 1e-8);
-    for (let m = 0; m < nNum; m++) {
-      const cap = Math.max(1, Math.abs(numTheta[m]) * 0.5);
-      const d = Math.max(-cap, Math.min(cap, numStep[m]));
-      writeNumerical(numComps[m], numTheta[m] + gamma * d, theta);
+  const newtonXShifted = new Float64Array(nNewton);
+  function newtonStep(gamma: number): void {
+    readNumerical(newtonComponents, theta, newtonX);
+    if (!newtonHasStructural && residualModel === 'combined') {
+      if (!combinedErrorNewtonDerivatives()) return;
+    } else if (!newtonFiniteDifferences()) return;
+    for (let q = 0; q < nNewton * nNewton; q++) newtonHessianApprox[q] += gamma * (newtonHessian[q] - newtonHessianApprox[q]);
+    for (let q = 0; q < nNewton * nNewton; q++) negHessianApprox[q] = -newtonHessianApprox[q];
+    newtonDirection.set(newtonGradient);
+    if (choleskyLower(negHessianApprox, nNewton, negHessianCholesky)) solveWithCholesky(negHessianCholesky, nNewton, newtonDirection);
+    else for (let m = 0; m < nNewton; m++) newtonDirection[m] = newtonGradient[m] / Math.max(Math.abs(newtonHessianApprox[m * nNewton + m]), 1e-8);
+    for (let m = 0; m < nNewton; m++) {
+      const cap = Math.max(1, Math.abs(newtonX[m]) * 0.5);
+      const d = Math.max(-cap, Math.min(cap, newtonDirection[m]));
+      writeNumerical(newtonComponents[m], newtonX[m] + gamma * d, theta);
     }
   }
 
   function mStep(gamma: number, annealing: boolean): void {
     approximateStatistics(mStepState, gamma);
     closedFormMStep(mStepState, theta, omegaFactor, annealing);
-    if (nNum > 0) {
-      const a0 = theta.a;
-      const b0 = theta.b;
-      numericalStep(gamma);
-      if (annealing && rm === 'combined') {
-        theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * a0);
-        theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * b0);
+    if (nNewton > 0) {
+      const aBeforeNewton = theta.a;
+      const bBeforeNewton = theta.b;
+      newtonStep(gamma);
+      if (annealing && residualModel === 'combined') {
+        theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * aBeforeNewton);
+        theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * bBeforeNewton);
       }
     }
     refreshChains();
   }
 
-  const refreshChains = (): void => refreshChainsOf(sim, theta, numStructural);
+  const refreshChains = (): void => refreshChainsOf(sim, theta, newtonHasStructural);
 
   const writeEstimates = (out: Float64Array): void => writeEstimatesOf(model, theta, out);
   /** Working scale of each estimate for the settle test: log of positive quantities. */
@@ -336,35 +342,35 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   // average runs over every draw from iteration K1 - W + 1 on. Starting from one noisy iterate
   // instead costs a great deal when much information is missing (EM contracts slowly).
   const W = settleWindow;
-  const ringSzp = new Float64Array(W * R * nEta);
-  const ringSpp = new Float64Array(W * nEta * nEta);
-  const ringSres = new Float64Array(W);
-  const ringNum = new Float64Array(W * nNum);
-  let warmCount = 0;
+  const windowDesignPhi = new Float64Array(W * R * nEta);
+  const windowPhiPhi = new Float64Array(W * nEta * nEta);
+  const windowResidualSquares = new Float64Array(W);
+  const windowNewtonX = new Float64Array(W * nNewton);
+  let warmStartWindow = 0;
   function storeWindowStatistics(k: number): void {
     const slot = (k - 1) % W;
-    ringSzp.set(stats.designPhi, slot * R * nEta);
-    ringSpp.set(stats.phiPhi, slot * nEta * nEta);
-    ringSres[slot] = stats.residualSquares;
+    windowDesignPhi.set(stats.designPhi, slot * R * nEta);
+    windowPhiPhi.set(stats.phiPhi, slot * nEta * nEta);
+    windowResidualSquares[slot] = stats.residualSquares;
   }
   function storeWindowNumerical(k: number): void {
-    readNumerical(numComps, theta, ringNum, ((k - 1) % W) * nNum);
+    readNumerical(newtonComponents, theta, windowNewtonX, ((k - 1) % W) * nNewton);
   }
   function warmStart(k: number): void {
     const n = Math.min(W, k);
-    warmCount = n;
+    warmStartWindow = n;
     stats.designPhiApprox.fill(0);
     stats.phiPhiApprox.fill(0);
     stats.residualSquaresApprox = 0;
     for (let slot = 0; slot < n; slot++) {
-      for (let q = 0; q < R * nEta; q++) stats.designPhiApprox[q] += ringSzp[slot * R * nEta + q] / n;
-      for (let q = 0; q < nEta * nEta; q++) stats.phiPhiApprox[q] += ringSpp[slot * nEta * nEta + q] / n;
-      stats.residualSquaresApprox += ringSres[slot] / n;
+      for (let q = 0; q < R * nEta; q++) stats.designPhiApprox[q] += windowDesignPhi[slot * R * nEta + q] / n;
+      for (let q = 0; q < nEta * nEta; q++) stats.phiPhiApprox[q] += windowPhiPhi[slot * nEta * nEta + q] / n;
+      stats.residualSquaresApprox += windowResidualSquares[slot] / n;
     }
-    for (let m = 0; m < nNum; m++) {
+    for (let m = 0; m < nNewton; m++) {
       let v = 0;
-      for (let slot = 0; slot < n; slot++) v += ringNum[slot * nNum + m] / n;
-      writeNumerical(numComps[m], v, theta);
+      for (let slot = 0; slot < n; slot++) v += windowNewtonX[slot * nNewton + m] / n;
+      writeNumerical(newtonComponents[m], v, theta);
     }
     // M-step from the window means (gamma 0 keeps the statistics as set).
     stats.residualSquares = stats.residualSquaresApprox;
@@ -376,10 +382,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     trajectory.set(current, (k - 1) * nEst);
   }
 
-  const avgMu = new Float64Array(p);
-  const avgBeta = new Float64Array(T);
-  const avgOmega = new Float64Array(nEta * nEta);
-  let avgA = 0, avgB = 0, avgCount = 0;
+  const averagedMu = new Float64Array(p);
+  const averagedBeta = new Float64Array(T);
+  const averagedOmega = new Float64Array(nEta * nEta);
+  let averagedA = 0, averagedB = 0, averagedCount = 0;
 
   let iteration = 0;
   let searchEnd: number | null = null;
@@ -413,32 +419,32 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       simulationStep(sim, theta, exploring);
       computeStatistics(mStepState, sim);
       if (exploring) storeWindowStatistics(iteration);
-      const gamma = stepSize(iteration, searchEnd, warmCount, settings.stepExponent);
+      const gamma = stepSize(iteration, searchEnd, warmStartWindow, settings.stepExponent);
       if (!options.freezePopulation) mStep(gamma, exploring && iteration <= annealingIterations);
       if (exploring) storeWindowNumerical(iteration);
       writeEstimates(current);
       trajectory.set(current, (iteration - 1) * nEst);
       if (!exploring) {
         if (settings.iterateAveraging && iteration > searchEnd! + Math.floor(settings.averagingIterations / 2)) {
-          for (let j = 0; j < p; j++) avgMu[j] += theta.mu[j];
-          for (let t = 0; t < T; t++) avgBeta[t] += theta.beta[t];
-          for (let q = 0; q < nEta * nEta; q++) avgOmega[q] += theta.omega[q];
-          avgA += theta.a;
-          avgB += theta.b;
-          avgCount++;
+          for (let j = 0; j < p; j++) averagedMu[j] += theta.mu[j];
+          for (let t = 0; t < T; t++) averagedBeta[t] += theta.beta[t];
+          for (let q = 0; q < nEta * nEta; q++) averagedOmega[q] += theta.omega[q];
+          averagedA += theta.a;
+          averagedB += theta.b;
+          averagedCount++;
         }
         const lastStart = searchEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
         if (iteration > lastStart) {
-          for (let s = 0; s < NL; s++) {
-            const i = (s / L) | 0;
+          for (let s = 0; s < nChainsTotal; s++) {
+            const i = (s / nChains) | 0;
             const phi = sim.phiByChain.subarray(s * p, s * p + p);
-            model.toNatural(phi, natScratch);
+            model.toNatural(phi, naturalScratch);
             for (let j = 0; j < p; j++) {
-              indivSum[i * p + j] += natScratch[j];
-              indivPhiSum[i * p + j] += phi[j];
+              individualNaturalSum[i * p + j] += naturalScratch[j];
+              individualPhiSum[i * p + j] += phi[j];
             }
           }
-          indivCount += L;
+          individualDrawCount += nChains;
         }
       } else {
         if (settings.autoEndSearch && iteration >= settings.searchMinIterations && settled(iteration)) searchSettled = true;
@@ -451,22 +457,22 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     },
     finish(): SaemResult {
       const tEnd = now();
-      const count = Math.max(1, indivCount / L);
+      const count = Math.max(1, individualDrawCount / nChains);
       const individualMean = new Float64Array(N * p);
       const individualPhiMean = new Float64Array(N * p);
       for (let q = 0; q < N * p; q++) {
-        individualMean[q] = indivSum[q] / (count * L);
-        individualPhiMean[q] = indivPhiSum[q] / (count * L);
+        individualMean[q] = individualNaturalSum[q] / (count * nChains);
+        individualPhiMean[q] = individualPhiSum[q] / (count * nChains);
       }
       if (searchEnd !== null && !searchSettled && settings.autoEndSearch)
         warnings.push(`search reached its cap of ${settings.searchMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.searchMaxIterations`);
       if (mStepState.omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${mStepState.omegaFailures} iteration(s); the previous Omega was kept there`);
-      if (avgCount > 0) {
-        for (let j = 0; j < p; j++) theta.mu[j] = avgMu[j] / avgCount;
-        for (let t = 0; t < T; t++) theta.beta[t] = avgBeta[t] / avgCount;
-        for (let q = 0; q < nEta * nEta; q++) theta.omega[q] = avgOmega[q] / avgCount;
-        theta.a = avgA / avgCount;
-        theta.b = avgB / avgCount;
+      if (averagedCount > 0) {
+        for (let j = 0; j < p; j++) theta.mu[j] = averagedMu[j] / averagedCount;
+        for (let t = 0; t < T; t++) theta.beta[t] = averagedBeta[t] / averagedCount;
+        for (let q = 0; q < nEta * nEta; q++) theta.omega[q] = averagedOmega[q] / averagedCount;
+        theta.a = averagedA / averagedCount;
+        theta.b = averagedB / averagedCount;
       }
       const estimates = new Float64Array(nEst);
       writeEstimates(estimates);
@@ -478,7 +484,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       return {
         settings,
         seed: settings.seed,
-        chains: L,
+        chains: nChains,
         theta: { mu: Float64Array.from(theta.mu), beta: Float64Array.from(theta.beta), omega: Float64Array.from(theta.omega), a: theta.a, b: theta.b },
         estimateNames,
         estimates,
