@@ -26,8 +26,9 @@
  *
  * Layout: engine/saem/simulation.ts holds step (1) and the chain refresh, engine/saem/mStep.ts the
  * sufficient statistics and the closed-form M-step, engine/saem/layout.ts the estimate order and
- * engine/saem/schedules.ts the step size and settle test; this file keeps the stochastic Newton
- * step of the numerical block (with its own finite differences) and drives the iterations.
+ * engine/saem/schedules.ts the step size and settle test, engine/saem/newtonStep.ts the stochastic
+ * Newton step of the numerical block (with its own finite differences); this file drives the
+ * iterations: warm start of the averaging phase, iterate averaging, individual means, result.
  *
  * The iteration itself is synchronous and allocation-free; `runSaem` drives it, reports progress
  * every iteration and checks the abort signal between iterations. A host that must receive an
@@ -35,13 +36,12 @@
  * iterations) so its event loop can turn.
  */
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
-import { choleskyLower, solveWithCholesky } from '../stats/dense.js';
-import { combinedErrorDerivatives } from '../stats/residual.js';
-import { estimateNamesOf, numericalComponents, positiveEstimates, readNumerical, writeEstimates as writeEstimatesOf, writeNumerical } from './layout.js';
+import { estimateNamesOf, positiveEstimates, readNumerical, writeEstimates as writeEstimatesOf, writeNumerical } from './layout.js';
 import { effectiveSettleWindow, settledAt, stepSize } from './schedules.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
 import { approximateStatistics, closedFormMStep, computeStatistics, createMStepState } from './mStep.js';
-import { createOmegaFactor, createSimulationState, proposalLogLik, refreshChains as refreshChainsOf, refreshOmegaFactor, simulationStep } from './simulation.js';
+import { createNewtonStep } from './newtonStep.js';
+import { createOmegaFactor, createSimulationState, refreshChains as refreshChainsOf, refreshOmegaFactor, simulationStep } from './simulation.js';
 
 export type SaemPhase = 'search' | 'averaging';
 
@@ -149,8 +149,6 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const nChains = resolveChains(settings, N);
   const nChainsTotal = N * nChains;
   const residualModel = model.residualModel;
-  const subjects = model.subjects;
-  const nObsTotal = model.nObsTotal;
   const warnings: string[] = [...model.warnings];
   const estimateNames = estimateNamesOf(model);
   const nEst = estimateNames.length;
@@ -164,9 +162,6 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     a: model.initial.a,
     b: model.initial.b,
   };
-  const etaParam = model.etaParameter;
-  const termParam = Int32Array.from(model.covariateTerms, (t) => t.parameterIndex);
-  const hasEta = Uint8Array.from(model.parameters, (q) => (q.etaIndex >= 0 ? 1 : 0));
 
   // Omega factor: Cholesky (for proposals), inverse (for the prior).
   const omegaFactor = createOmegaFactor(nEta);
@@ -176,23 +171,14 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const mStepState = createMStepState(model, settings);
   const stats = mStepState.statistics;
 
-  // Numerical block, moved by the stochastic Newton step: typical values / coefficients of
-  // parameters without BSV, combined-error (log a, log b).
-  const { components: newtonComponents, structural: newtonHasStructural } = numericalComponents(model);
-  const nNewton = newtonComponents.length;
-  const newtonX = new Float64Array(nNewton);
-  const newtonGradient = new Float64Array(nNewton);
-  const newtonHessian = new Float64Array(nNewton * nNewton);
-  const newtonHessianApprox = new Float64Array(nNewton * nNewton);
-  const negHessianApprox = new Float64Array(nNewton * nNewton);
-  const negHessianCholesky = new Float64Array(nNewton * nNewton);
-  const newtonDirection = new Float64Array(nNewton);
-
   // Chains, kernels and their adaptation (engine/saem/simulation.ts).
   const sim = createSimulationState(model, settings, nChains, theta, omegaFactor, warnings);
-  const proposalPhi = new Float64Array(p);
-  const meanPhiRow = new Float64Array(p);
-
+  // Numerical block, moved by the stochastic Newton step (engine/saem/newtonStep.ts): typical
+  // values / coefficients of parameters without BSV, combined-error (log a, log b).
+  const newton = createNewtonStep(model, theta, sim);
+  const newtonComponents = newton.components;
+  const newtonHasStructural = newton.structural;
+  const nNewton = newtonComponents.length;
 
   const trajectory = new Float64Array(maxIter * nEst);
   const current = new Float64Array(nEst);
@@ -201,126 +187,13 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const naturalScratch = new Float64Array(p);
   let individualDrawCount = 0;
 
-  /** Complete-data log-likelihood of the numerical block at newtonX (chain-averaged). */
-  function newtonObjective(x: Float64Array): number {
-    let a = theta.a;
-    let b = theta.b;
-    for (let m = 0; m < nNewton; m++) {
-      const nc = newtonComponents[m];
-      if (nc.kind === 'loga') a = Math.exp(x[m]);
-      else if (nc.kind === 'logb') b = Math.exp(x[m]);
-    }
-    let total = 0;
-    for (let i = 0; i < N; i++) {
-      if (newtonHasStructural) {
-        // mean of the non-BSV components under x
-        for (let j = 0; j < p; j++) meanPhiRow[j] = hasEta[j] ? 0 : theta.mu[j];
-        for (let m = 0; m < nNewton; m++) if (newtonComponents[m].kind === 'mu') meanPhiRow[newtonComponents[m].index] = x[m];
-        for (let t = 0; t < T; t++) {
-          if (hasEta[termParam[t]]) continue;
-          let coef = theta.beta[t];
-          for (let m = 0; m < nNewton; m++) if (newtonComponents[m].kind === 'beta' && newtonComponents[m].index === t) coef = x[m];
-          meanPhiRow[termParam[t]] += coef * subjects[i].design[t];
-        }
-      }
-      for (let c = 0; c < nChains; c++) {
-        const s = i * nChains + c;
-        let ll: number;
-        if (newtonHasStructural) {
-          for (let j = 0; j < p; j++) proposalPhi[j] = hasEta[j] ? sim.phiByChain[s * p + j] : meanPhiRow[j];
-          ll = proposalLogLik(sim, i, proposalPhi, a, b);
-        } else ll = model.logLikFromPredictions(i, sim.predictionsByChain[s], a, b);
-        total += ll;
-      }
-    }
-    return total / nChains;
-  }
-
-  /** Gradient and Hessian of the numerical block's objective by central differences. */
-  function newtonFiniteDifferences(): boolean {
-    const objectiveAtX = newtonObjective(newtonX);
-    if (!Number.isFinite(objectiveAtX)) return false;
-    for (let m = 0; m < nNewton; m++) {
-      const h = 1e-3 * Math.max(1, Math.abs(newtonX[m]));
-      newtonXShifted.set(newtonX);
-      newtonXShifted[m] = newtonX[m] + h;
-      const objectivePlus = newtonObjective(newtonXShifted);
-      newtonXShifted[m] = newtonX[m] - h;
-      const objectiveMinus = newtonObjective(newtonXShifted);
-      newtonGradient[m] = (objectivePlus - objectiveMinus) / (2 * h);
-      newtonHessian[m * nNewton + m] = (objectivePlus - 2 * objectiveAtX + objectiveMinus) / (h * h);
-    }
-    for (let m = 0; m < nNewton; m++)
-      for (let m2 = m + 1; m2 < nNewton; m2++) {
-        const h1 = 1e-3 * Math.max(1, Math.abs(newtonX[m]));
-        const h2 = 1e-3 * Math.max(1, Math.abs(newtonX[m2]));
-        let acc = 0;
-        for (let corner = 0; corner < 4; corner++) {
-          const s1 = corner < 2 ? 1 : -1;
-          const s2 = corner % 2 === 0 ? 1 : -1;
-          const w = s1 * s2;
-          newtonXShifted.set(newtonX);
-          newtonXShifted[m] += s1 * h1;
-          newtonXShifted[m2] += s2 * h2;
-          acc += w * newtonObjective(newtonXShifted);
-        }
-        newtonHessian[m * nNewton + m2] = newtonHessian[m2 * nNewton + m] = acc / (4 * h1 * h2);
-      }
-    for (let q = 0; q < nNewton * nNewton; q++) if (!Number.isFinite(newtonHessian[q])) return false;
-    for (let m = 0; m < nNewton; m++) if (!Number.isFinite(newtonGradient[m])) return false;
-    return true;
-  }
-
-  /** Combined error alone: analytic gradient and Hessian in (log a, log b), one pass over the levels. */
-  const combinedDerivativeScratch = new Float64Array(6);
-  function combinedErrorNewtonDerivatives(): boolean {
-    newtonGradient.fill(0);
-    newtonHessian.fill(0);
-    const invChains = 1 / nChains;
-    for (let i = 0; i < N; i++) {
-      const sub = subjects[i];
-      for (let c = 0; c < nChains; c++) {
-        const f = sim.predictionsByChain[i * nChains + c];
-        for (let o = 0; o < sub.nObs; o++) {
-          if (!combinedErrorDerivatives(theta.a, theta.b, sub.y[o], f[o], sub.censored[o] === 1, sub.lloqMgL[o], combinedDerivativeScratch)) continue;
-          newtonGradient[0] += combinedDerivativeScratch[1] * invChains;
-          newtonGradient[1] += combinedDerivativeScratch[2] * invChains;
-          newtonHessian[0] += combinedDerivativeScratch[3] * invChains;
-          newtonHessian[3] += combinedDerivativeScratch[4] * invChains;
-          newtonHessian[1] += combinedDerivativeScratch[5] * invChains;
-        }
-      }
-    }
-    newtonHessian[2] = newtonHessian[1];
-    for (let q = 0; q < 4; q++) if (!Number.isFinite(newtonHessian[q])) return false;
-    return Number.isFinite(newtonGradient[0]) && Number.isFinite(newtonGradient[1]);
-  }
-
-  const newtonXShifted = new Float64Array(nNewton);
-  function newtonStep(gamma: number): void {
-    readNumerical(newtonComponents, theta, newtonX);
-    if (!newtonHasStructural && residualModel === 'combined') {
-      if (!combinedErrorNewtonDerivatives()) return;
-    } else if (!newtonFiniteDifferences()) return;
-    for (let q = 0; q < nNewton * nNewton; q++) newtonHessianApprox[q] += gamma * (newtonHessian[q] - newtonHessianApprox[q]);
-    for (let q = 0; q < nNewton * nNewton; q++) negHessianApprox[q] = -newtonHessianApprox[q];
-    newtonDirection.set(newtonGradient);
-    if (choleskyLower(negHessianApprox, nNewton, negHessianCholesky)) solveWithCholesky(negHessianCholesky, nNewton, newtonDirection);
-    else for (let m = 0; m < nNewton; m++) newtonDirection[m] = newtonGradient[m] / Math.max(Math.abs(newtonHessianApprox[m * nNewton + m]), 1e-8);
-    for (let m = 0; m < nNewton; m++) {
-      const cap = Math.max(1, Math.abs(newtonX[m]) * 0.5);
-      const d = Math.max(-cap, Math.min(cap, newtonDirection[m]));
-      writeNumerical(newtonComponents[m], newtonX[m] + gamma * d, theta);
-    }
-  }
-
   function mStep(gamma: number, annealing: boolean): void {
     approximateStatistics(mStepState, gamma);
     closedFormMStep(mStepState, theta, omegaFactor, annealing);
     if (nNewton > 0) {
       const aBeforeNewton = theta.a;
       const bBeforeNewton = theta.b;
-      newtonStep(gamma);
+      newton.step(gamma);
       if (annealing && residualModel === 'combined') {
         theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * aBeforeNewton);
         theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * bBeforeNewton);
