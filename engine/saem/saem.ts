@@ -27,8 +27,9 @@
  * Layout: engine/saem/simulation.ts holds step (1) and the chain refresh, engine/saem/mStep.ts the
  * sufficient statistics and the closed-form M-step, engine/saem/layout.ts the estimate order and
  * engine/saem/schedules.ts the step size and settle test, engine/saem/newtonStep.ts the stochastic
- * Newton step of the numerical block (with its own finite differences); this file drives the
- * iterations: warm start of the averaging phase, iterate averaging, individual means, result.
+ * Newton step of the numerical block (with its own finite differences), engine/saem/settleWindow.ts
+ * the window that opens the averaging phase; this file drives the iterations: annealing, iterate
+ * averaging, individual means, result.
  *
  * The iteration itself is synchronous and allocation-free; `runSaem` drives it, reports progress
  * every iteration and checks the abort signal between iterations. A host that must receive an
@@ -36,11 +37,12 @@
  * iterations) so its event loop can turn.
  */
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
-import { estimateNamesOf, positiveEstimates, readNumerical, writeEstimates as writeEstimatesOf, writeNumerical } from './layout.js';
+import { estimateNamesOf, positiveEstimates, writeEstimates as writeEstimatesOf } from './layout.js';
 import { effectiveSettleWindow, settledAt, stepSize } from './schedules.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
 import { approximateStatistics, closedFormMStep, computeStatistics, createMStepState } from './mStep.js';
 import { createNewtonStep } from './newtonStep.js';
+import { createSettleWindowStore, openFromWindowMeans, storeWindowNewton, storeWindowStatistics } from './settleWindow.js';
 import { createOmegaFactor, createSimulationState, refreshChains as refreshChainsOf, refreshOmegaFactor, simulationStep } from './simulation.js';
 
 export type SaemPhase = 'search' | 'averaging';
@@ -210,45 +212,13 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const settleWindow = effectiveSettleWindow(settings.settleWindow, settings.searchMinIterations);
   const settled = (k: number): boolean => settledAt(k, trajectory, nEst, positive, settleWindow, settings.settleTolerance);
 
-  // The last settleWindow search iterations (judged stationary by the settle test) open
-  // the averaging phase: its statistics start as their mean and gamma_k = 1/(k - K1 + W), so the
-  // average runs over every draw from iteration K1 - W + 1 on. Starting from one noisy iterate
-  // instead costs a great deal when much information is missing (EM contracts slowly).
-  const W = settleWindow;
-  const windowDesignPhi = new Float64Array(W * R * nEta);
-  const windowPhiPhi = new Float64Array(W * nEta * nEta);
-  const windowResidualSquares = new Float64Array(W);
-  const windowNewtonX = new Float64Array(W * nNewton);
+  // The last settleWindow search iterations (judged stationary by the settle test) open the
+  // averaging phase from their means (engine/saem/settleWindow.ts).
+  const windowStore = createSettleWindowStore(settleWindow, R, nEta, nNewton);
   let warmStartWindow = 0;
-  function storeWindowStatistics(k: number): void {
-    const slot = (k - 1) % W;
-    windowDesignPhi.set(stats.designPhi, slot * R * nEta);
-    windowPhiPhi.set(stats.phiPhi, slot * nEta * nEta);
-    windowResidualSquares[slot] = stats.residualSquares;
-  }
-  function storeWindowNumerical(k: number): void {
-    readNumerical(newtonComponents, theta, windowNewtonX, ((k - 1) % W) * nNewton);
-  }
   function warmStart(k: number): void {
-    const n = Math.min(W, k);
-    warmStartWindow = n;
-    stats.designPhiApprox.fill(0);
-    stats.phiPhiApprox.fill(0);
-    stats.residualSquaresApprox = 0;
-    for (let slot = 0; slot < n; slot++) {
-      for (let q = 0; q < R * nEta; q++) stats.designPhiApprox[q] += windowDesignPhi[slot * R * nEta + q] / n;
-      for (let q = 0; q < nEta * nEta; q++) stats.phiPhiApprox[q] += windowPhiPhi[slot * nEta * nEta + q] / n;
-      stats.residualSquaresApprox += windowResidualSquares[slot] / n;
-    }
-    for (let m = 0; m < nNewton; m++) {
-      let v = 0;
-      for (let slot = 0; slot < n; slot++) v += windowNewtonX[slot * nNewton + m] / n;
-      writeNumerical(newtonComponents[m], v, theta);
-    }
+    warmStartWindow = openFromWindowMeans(windowStore, stats, newtonComponents, theta, k);
     // M-step from the window means (gamma 0 keeps the statistics as set).
-    stats.residualSquares = stats.residualSquaresApprox;
-    stats.designPhi.set(stats.designPhiApprox);
-    stats.phiPhi.set(stats.phiPhiApprox);
     closedFormMStep(mStepState, theta, omegaFactor, false);
     refreshChains();
     writeEstimates(current);
@@ -291,10 +261,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       iteration++;
       simulationStep(sim, theta, exploring);
       computeStatistics(mStepState, sim);
-      if (exploring) storeWindowStatistics(iteration);
+      if (exploring) storeWindowStatistics(windowStore, stats, iteration);
       const gamma = stepSize(iteration, searchEnd, warmStartWindow, settings.stepExponent);
       if (!options.freezePopulation) mStep(gamma, exploring && iteration <= annealingIterations);
-      if (exploring) storeWindowNumerical(iteration);
+      if (exploring) storeWindowNewton(windowStore, newtonComponents, theta, iteration);
       writeEstimates(current);
       trajectory.set(current, (iteration - 1) * nEst);
       if (!exploring) {
