@@ -24,20 +24,26 @@
  * early in the search phase (at most (1 - tau) fall per iteration). Randomness: one stream per
  * subject and chain from the seed, so results do not depend on the order of work.
  *
+ * Layout: engine/saem/simulation.ts holds step (1) and the chain refresh, engine/saem/mStep.ts the
+ * sufficient statistics and the closed-form M-step, engine/saem/layout.ts the estimate order and
+ * engine/saem/schedules.ts the step size and settle test, engine/saem/newtonStep.ts the stochastic
+ * Newton step of the numerical block (with its own finite differences), engine/saem/settleWindow.ts
+ * the window that opens the averaging phase; this file drives the iterations: annealing, iterate
+ * averaging, individual means, result.
+ *
  * The iteration itself is synchronous and allocation-free; `runSaem` drives it, reports progress
  * every iteration and checks the abort signal between iterations. A host that must receive an
  * abort message while the fit runs returns a promise from onProgress (e.g. every 10
  * iterations) so its event loop can turn.
  */
-import { createStreams, type RngStream } from '../rng/index.js';
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
-import { choleskyLower, invertFromCholesky, solveWithCholesky } from '../stats/dense.js';
-import { combinedErrorDerivatives, residualSd } from '../stats/residual.js';
-import { truncatedNormalBelow } from '../stats/normalTail.js';
-import { estimateNamesOf, numericalComponents, positiveEstimates, readNumerical, writeEstimates as writeEstimatesOf, writeNumerical } from './layout.js';
+import { estimateNamesOf, positiveEstimates, writeEstimates as writeEstimatesOf } from './layout.js';
 import { effectiveSettleWindow, settledAt, stepSize } from './schedules.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
-import { buildComponentwiseKernel, buildIndependenceKernel, buildRandomWalkKernel, scaleAdaptation, type ChainState, type LogDensityTarget } from '../mcmc/kernels.js';
+import { approximateStatistics, closedFormMStep, computeStatistics, createMStepState } from './mStep.js';
+import { createNewtonStep } from './newtonStep.js';
+import { createSettleWindowStore, openFromWindowMeans, storeWindowNewton, storeWindowStatistics } from './settleWindow.js';
+import { createOmegaFactor, createSimulationState, refreshChains as refreshChainsOf, refreshOmegaFactor, simulationStep } from './simulation.js';
 
 export type SaemPhase = 'search' | 'averaging';
 
@@ -142,11 +148,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const nEta = model.nEta;
   const T = model.covariateTerms.length;
   const R = 1 + T;
-  const L = resolveChains(settings, N);
-  const NL = N * L;
-  const rm = model.residualModel;
-  const subjects = model.subjects;
-  const nObsTotal = model.nObsTotal;
+  const nChains = resolveChains(settings, N);
+  const nChainsTotal = N * nChains;
+  const residualModel = model.residualModel;
   const warnings: string[] = [...model.warnings];
   const estimateNames = estimateNamesOf(model);
   const nEst = estimateNames.length;
@@ -160,594 +164,47 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     a: model.initial.a,
     b: model.initial.b,
   };
-  const etaParam = model.etaParameter;
-  const termParam = Int32Array.from(model.covariateTerms, (t) => t.parameterIndex);
-  const hasEta = Uint8Array.from(model.parameters, (q) => (q.etaIndex >= 0 ? 1 : 0));
 
   // Omega factor: Cholesky (for proposals), inverse (for the prior).
-  const omegaChol = new Float64Array(nEta * nEta);
-  const omegaInv = new Float64Array(nEta * nEta);
-  const omegaSd = new Float64Array(nEta);
-  function refreshOmegaFactor(): boolean {
-    if (nEta === 0) return true;
-    if (!choleskyLower(theta.omega, nEta, omegaChol)) return false;
-    invertFromCholesky(omegaChol, nEta, omegaInv);
-    for (let k = 0; k < nEta; k++) omegaSd[k] = Math.sqrt(theta.omega[k * nEta + k]);
-    return true;
-  }
-  refreshOmegaFactor();
+  const omegaFactor = createOmegaFactor(nEta);
+  refreshOmegaFactor(omegaFactor, theta.omega);
 
-  // Per-subject design rows z_i = [1, x_i] and Z'Z.
-  const zz = new Float64Array(R * R);
-  const zRow = new Float64Array(N * R);
-  for (let i = 0; i < N; i++) {
-    zRow[i * R] = 1;
-    for (let t = 0; t < T; t++) zRow[i * R + 1 + t] = subjects[i].design[t];
-    for (let r = 0; r < R; r++) for (let c = 0; c < R; c++) zz[r * R + c] += zRow[i * R + r] * zRow[i * R + c];
-  }
+  // Design rows, GLS layout and sufficient statistics of the M-step (engine/saem/mStep.ts).
+  const mStepState = createMStepState(model, settings);
+  const stats = mStepState.statistics;
 
-  // GLS coefficient layout for parameters with BSV: per random effect, intercept then its terms.
-  const coefEta: number[] = [];
-  const coefZ: number[] = [];
-  const coefFixed: number[] = [];
-  const coefMu: number[] = []; // parameter index when the coefficient is an intercept, else -1
-  const coefBeta: number[] = []; // term index, else -1
-  for (let k = 0; k < nEta; k++) {
-    const j = etaParam[k];
-    coefEta.push(k), coefZ.push(0), coefFixed.push(model.parameters[j].fixed ? 1 : 0), coefMu.push(j), coefBeta.push(-1);
-    for (let t = 0; t < T; t++)
-      if (termParam[t] === j) coefEta.push(k), coefZ.push(1 + t), coefFixed.push(model.covariateTerms[t].fixed ? 1 : 0), coefMu.push(-1), coefBeta.push(t);
-  }
-  const nCoef = coefEta.length;
-  const freeIdx = Int32Array.from([...Array(nCoef).keys()].filter((m) => !coefFixed[m]));
-  const nFree = freeIdx.length;
-  const glsA = new Float64Array(nFree * nFree);
-  const glsL = new Float64Array(nFree * nFree);
-  const glsRhs = new Float64Array(nFree);
-  const coefValue = new Float64Array(nCoef);
-  const bMat = new Float64Array(R * nEta);
-
-  // Numerical block: typical values / coefficients of parameters without BSV, combined-error (log a, log b).
-  const { components: numComps, structural: numStructural } = numericalComponents(model);
-  const nNum = numComps.length;
-  const numTheta = new Float64Array(nNum);
-  const numGrad = new Float64Array(nNum);
-  const numHess = new Float64Array(nNum * nNum);
-  const numHessBar = new Float64Array(nNum * nNum);
-  const numNegH = new Float64Array(nNum * nNum);
-  const numLow = new Float64Array(nNum * nNum);
-  const numStep = new Float64Array(nNum);
-
-  // Chain state.
-  const phiS = new Float64Array(NL * p);
-  const llS = new Float64Array(NL);
-  const meanAll = new Float64Array(N * p);
-  const obsOff = new Int32Array(N + 1);
-  for (let i = 0; i < N; i++) obsOff[i + 1] = obsOff[i] + subjects[i].nObs;
-  const fS = new Float64Array(L * nObsTotal);
-  const yS = new Float64Array(L * nObsTotal);
-  const fView: Float64Array[] = new Array(NL);
-  const yView: Float64Array[] = new Array(NL);
-  for (let i = 0; i < N; i++)
-    for (let c = 0; c < L; c++) {
-      const s = i * L + c;
-      const off = L * obsOff[i] + c * subjects[i].nObs;
-      fView[s] = fS.subarray(off, off + subjects[i].nObs);
-      yView[s] = yS.subarray(off, off + subjects[i].nObs);
-      yView[s].set(subjects[i].y);
-    }
-  let maxObs = 0;
-  for (const s of subjects) maxObs = Math.max(maxObs, s.nObs);
-  const fPropBuf = new Float64Array(maxObs);
-  const fPropView = subjects.map((s) => fPropBuf.subarray(0, s.nObs));
-  const phiProp = new Float64Array(p);
-  const meanRow = new Float64Array(p);
-
-  const root = createStreams(settings.seed);
-  const streams: RngStream[] = new Array(NL);
-  for (let i = 0; i < N; i++) for (let c = 0; c < L; c++) streams[i * L + c] = root.stream('saem', 'subject', i, 'chain', c);
-
-  // Kernel adaptation (scales relative to Omega) towards the target acceptance, one update per
-  // search iteration, frozen after search (DESIGN.md §5).
-  const target = settings.targetAcceptance;
-  const kappaAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-4, max: 10 });
-  const compAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-3, max: 10 });
-  const subjectAdaptation = scaleAdaptation({ target, rate: 0.4, min: 1e-4, max: 20 });
-  /** kappa: variance multiplier of the full random walk N(phi, kappa Omega). */
-  const kappa = kappaAdaptation.init(1, nEta > 0 ? 2.38 * 2.38 / nEta / 2 : 1);
-  /** Component step SDs in units of each omega SD. */
-  const compScale = compAdaptation.init(nEta, 0.5);
-  let accInd = 0, triesInd = 0, accRw = 0, triesRw = 0;
-  const accComp = new Float64Array(nEta);
-  const triesComp = new Float64Array(nEta);
-  let totAccInd = 0, totTriesInd = 0, totAccRw = 0, totTriesRw = 0;
-  const totAccComp = new Float64Array(nEta);
-  const totTriesComp = new Float64Array(nEta);
-
-  // Sufficient statistics (chain-averaged) and their stochastic approximations.
-  const szp = new Float64Array(R * nEta);
-  const spp = new Float64Array(nEta * nEta);
-  const szpBar = new Float64Array(R * nEta);
-  const sppBar = new Float64Array(nEta * nEta);
-  let sres = 0;
-  let sresBar = 0;
+  // Chains, kernels and their adaptation (engine/saem/simulation.ts).
+  const sim = createSimulationState(model, settings, nChains, theta, omegaFactor, warnings);
+  // Numerical block, moved by the stochastic Newton step (engine/saem/newtonStep.ts): typical
+  // values / coefficients of parameters without BSV, combined-error (log a, log b).
+  const newton = createNewtonStep(model, theta, sim);
+  const newtonComponents = newton.components;
+  const newtonHasStructural = newton.structural;
+  const nNewton = newtonComponents.length;
 
   const trajectory = new Float64Array(maxIter * nEst);
   const current = new Float64Array(nEst);
-  const indivSum = new Float64Array(N * p);
-  const indivPhiSum = new Float64Array(N * p);
-  const natScratch = new Float64Array(p);
-  let indivCount = 0;
-
-  function refreshMeans(): void {
-    for (let i = 0; i < N; i++) {
-      model.meanPhi(i, theta, meanRow);
-      meanAll.set(meanRow, i * p);
-    }
-  }
-
-  /** Log-likelihood of a proposed phi (subject i) into fPropView[i]. */
-  function propLogLik(i: number, phi: Float64Array, a: number, b: number): number {
-    const f = fPropView[i];
-    if (!model.predict(i, phi, f)) return -Infinity;
-    return model.logLikFromPredictions(i, f, a, b);
-  }
-
-  function quadInv(eta: Float64Array): number {
-    let q = 0;
-    for (let r = 0; r < nEta; r++) {
-      let row = 0;
-      for (let c = 0; c < nEta; c++) row += omegaInv[r * nEta + c] * eta[c];
-      q += eta[r] * row;
-    }
-    return q;
-  }
-
-  // The kernels (engine/mcmc) move eta_i = phi_i - mean_i over the BSV components; the target is
-  // p(y_i | phi_i) x N(eta_i; 0, Omega), and an accepted point keeps its predictions.
-  const etaS = new Float64Array(NL * nEta);
-  const chainStates: ChainState[] = new Array(NL);
-  for (let s = 0; s < NL; s++) chainStates[s] = { position: etaS.subarray(s * nEta, (s + 1) * nEta), logLikelihood: 0, logPrior: 0 };
-  const zeroCentre = new Float64Array(nEta);
-  const compSd = new Float64Array(nEta);
-  const subjectTarget: LogDensityTarget & { subject: number; chain: number } = {
-    dim: nEta,
-    subject: 0,
-    chain: 0,
-    logLikelihood(eta) {
-      const i = this.subject;
-      const mBase = i * p;
-      const sBase = this.chain * p;
-      for (let j = 0; j < p; j++) phiProp[j] = hasEta[j] ? meanAll[mBase + j] : phiS[sBase + j];
-      for (let k = 0; k < nEta; k++) phiProp[etaParam[k]] += eta[k];
-      return propLogLik(i, phiProp, theta.a, theta.b);
-    },
-    logPrior(eta) {
-      return -0.5 * quadInv(eta);
-    },
-    accept() {
-      fView[this.chain].set(fPropView[this.subject]);
-    },
-  };
-  // Independent proposal from N(mean_i, Omega): the prior cancels in the ratio.
-  const independentKernel = buildIndependenceKernel({ dim: nEta, df: null, priorProposal: true });
-  const randomWalkKernel = buildRandomWalkKernel(nEta);
-  const componentKernel = buildComponentwiseKernel(nEta);
-
-  // Initial chains at the population means.
-  refreshMeans();
-  for (let i = 0; i < N; i++)
-    for (let c = 0; c < L; c++) {
-      const s = i * L + c;
-      phiS.set(meanAll.subarray(i * p, i * p + p), s * p);
-      if (!model.predict(i, phiS.subarray(s * p, s * p + p), fView[s])) {
-        llS[s] = -Infinity;
-      } else llS[s] = model.logLikFromPredictions(i, fView[s], theta.a, theta.b);
-    }
-  for (let i = 0; i < N; i++)
-    if (llS[i * L] === -Infinity)
-      warnings.push(`subject ${subjects[i].id}: the initial typical values give an impossible prediction; the chains start there and move only if a proposal is valid`);
-
-  // Per-subject covariance of the draws (exponentially weighted over search) and its factor.
-  const subjW = new Float64Array(N);
-  const subjS1 = new Float64Array(N * nEta);
-  const subjS2 = new Float64Array(N * nEta * nEta);
-  const subjCov = new Float64Array(nEta * nEta);
-  const subjChol = new Float64Array(N * nEta * nEta);
-  const subjReady = new Uint8Array(N);
-  const subjCholView = Array.from({ length: N }, (_, i) => subjChol.subarray(i * nEta * nEta, (i + 1) * nEta * nEta));
-  /** Variance multiplier of the subject-shaped random walk. */
-  const adaptScale = subjectAdaptation.init(1, nEta > 0 ? (2.38 * 2.38) / nEta : 1);
-  let accAd = 0, triesAd = 0, totAccAd = 0, totTriesAd = 0;
-  let adaptUpdates = 0;
-  function updateSubjectCovariances(): void {
-    const forget = 0.98;
-    adaptUpdates++;
-    for (let i = 0; i < N; i++) {
-      subjW[i] = forget * subjW[i] + L;
-      for (let q = 0; q < nEta; q++) subjS1[i * nEta + q] *= forget;
-      for (let q = 0; q < nEta * nEta; q++) subjS2[i * nEta * nEta + q] *= forget;
-      for (let c = 0; c < L; c++) {
-        const base = (i * L + c) * p;
-        for (let k = 0; k < nEta; k++) {
-          const v = phiS[base + etaParam[k]];
-          subjS1[i * nEta + k] += v;
-          for (let k2 = 0; k2 <= k; k2++) subjS2[i * nEta * nEta + k * nEta + k2] += v * phiS[base + etaParam[k2]];
-        }
-      }
-    }
-    if (adaptUpdates < 20 || adaptUpdates % 5 !== 0) return;
-    for (let i = 0; i < N; i++) {
-      const w = subjW[i];
-      for (let k = 0; k < nEta; k++)
-        for (let k2 = 0; k2 <= k; k2++) {
-          const v = subjS2[i * nEta * nEta + k * nEta + k2] / w - (subjS1[i * nEta + k] / w) * (subjS1[i * nEta + k2] / w);
-          subjCov[k * nEta + k2] = subjCov[k2 * nEta + k] = v;
-        }
-      // A small share of Omega keeps the proposal non-degenerate while the chain is still stuck.
-      for (let k = 0; k < nEta; k++) subjCov[k * nEta + k] += 1e-3 * theta.omega[k * nEta + k];
-      subjReady[i] = choleskyLower(subjCov, nEta, subjCholView[i]) ? 1 : 0;
-    }
-  }
-
-  function simulate(exploring: boolean): void {
-    accInd = triesInd = accRw = triesRw = accAd = triesAd = 0;
-    const sqrtAdapt = Math.sqrt(adaptScale.scale[0]);
-    accComp.fill(0);
-    triesComp.fill(0);
-    const sqrtKappa = Math.sqrt(kappa.scale[0]);
-    for (let k = 0; k < nEta; k++) compSd[k] = compScale.scale[k] * omegaSd[k];
-    for (let i = 0; i < N; i++) {
-      const mBase = i * p;
-      for (let c = 0; c < L; c++) {
-        const s = i * L + c;
-        const rng = streams[s];
-        const base = s * p;
-        if (nEta > 0) {
-          const st = chainStates[s];
-          const eta = st.position;
-          for (let k = 0; k < nEta; k++) eta[k] = phiS[base + etaParam[k]] - meanAll[mBase + etaParam[k]];
-          st.logLikelihood = llS[s];
-          st.logPrior = -0.5 * quadInv(eta);
-          subjectTarget.subject = i;
-          subjectTarget.chain = s;
-          // 1. Independent proposal from N(mean_i, Omega).
-          for (let it = 0; it < settings.independentSteps; it++) {
-            triesInd++;
-            if (independentKernel.step(rng, subjectTarget, st, zeroCentre, omegaChol)) accInd++;
-          }
-          // 2. Full random walk N(phi, kappa Omega).
-          for (let it = 0; it < settings.randomWalkSteps; it++) {
-            triesRw++;
-            if (randomWalkKernel.step(rng, subjectTarget, st, omegaChol, sqrtKappa)) accRw++;
-          }
-          // 3. Component-wise random walk with adaptive scales.
-          for (let sw = 0; sw < settings.componentSweeps; sw++) {
-            for (let k = 0; k < nEta; k++) triesComp[k]++;
-            componentKernel.sweep(rng, subjectTarget, st, compSd, accComp);
-          }
-          // 4. Random walk shaped by the subject's own conditional covariance (adaptive
-          // Metropolis, Haario, Saksman & Tamminen 2001, from memory): mixes along ridges of
-          // p(phi_i | y_i) that Omega-shaped proposals cross only in tiny steps.
-          if (subjReady[i] && settings.adaptiveSteps > 0)
-            for (let it = 0; it < settings.adaptiveSteps; it++) {
-              triesAd++;
-              if (randomWalkKernel.step(rng, subjectTarget, st, subjCholView[i], sqrtAdapt)) accAd++;
-            }
-          llS[s] = st.logLikelihood;
-          for (let k = 0; k < nEta; k++) phiS[base + etaParam[k]] = meanAll[mBase + etaParam[k]] + eta[k];
-        }
-        // Censored levels: draw from N(f, g^2) truncated below the LLOQ (log scale for log-additive).
-        const sub = subjects[i];
-        if (sub.nCensored > 0) {
-          const f = fView[s];
-          const y = yView[s];
-          for (let o = 0; o < sub.nObs; o++) {
-            if (!sub.censored[o]) continue;
-            const fo = f[o];
-            if (rm === 'log-additive') {
-              if (!(fo > 0)) {
-                y[o] = sub.lloqMgL[o];
-                continue;
-              }
-              const z = truncatedNormalBelow((Math.log(sub.lloqMgL[o]) - Math.log(fo)) / theta.a, rng.uniform());
-              y[o] = fo * Math.exp(theta.a * z);
-            } else {
-              const g = residualSd(rm, theta.a, theta.b, fo);
-              if (!(g > 0) || !Number.isFinite(fo)) {
-                y[o] = sub.lloqMgL[o];
-                continue;
-              }
-              y[o] = fo + g * truncatedNormalBelow((sub.lloqMgL[o] - fo) / g, rng.uniform());
-            }
-          }
-        }
-      }
-    }
-    if (exploring && nEta > 0 && settings.adaptiveSteps > 0) updateSubjectCovariances();
-    totAccInd += accInd, totTriesInd += triesInd, totAccRw += accRw, totTriesRw += triesRw, totAccAd += accAd, totTriesAd += triesAd;
-    for (let k = 0; k < nEta; k++) (totAccComp[k] += accComp[k]), (totTriesComp[k] += triesComp[k]);
-    if (exploring) {
-      // kappa <- kappa (1 + delta (acc - target)), likewise the component scales (DESIGN.md §5).
-      kappa.accepted[0] = accRw;
-      kappa.tries[0] = triesRw;
-      kappaAdaptation.update(kappa);
-      adaptScale.accepted[0] = accAd;
-      adaptScale.tries[0] = triesAd;
-      subjectAdaptation.update(adaptScale);
-      compScale.accepted.set(accComp);
-      compScale.tries.set(triesComp);
-      compAdaptation.update(compScale);
-    }
-  }
-
-  /** Complete-data sufficient statistics at the current draws, averaged over chains. */
-  function computeStatistics(): void {
-    szp.fill(0);
-    spp.fill(0);
-    let res = 0;
-    const invL = 1 / L;
-    for (let i = 0; i < N; i++) {
-      const sub = subjects[i];
-      for (let c = 0; c < L; c++) {
-        const s = i * L + c;
-        const base = s * p;
-        for (let k = 0; k < nEta; k++) {
-          const v = phiS[base + etaParam[k]];
-          for (let r = 0; r < R; r++) szp[r * nEta + k] += zRow[i * R + r] * v * invL;
-          for (let k2 = 0; k2 <= k; k2++) spp[k * nEta + k2] += v * phiS[base + etaParam[k2]] * invL;
-        }
-        const f = fView[s];
-        const y = yView[s];
-        for (let o = 0; o < sub.nObs; o++) {
-          let e: number;
-          if (rm === 'additive') e = y[o] - f[o];
-          else if (rm === 'proportional') e = (y[o] - f[o]) / f[o];
-          else if (rm === 'log-additive') e = Math.log(y[o]) - Math.log(f[o]);
-          else e = 0;
-          res += e * e * invL;
-        }
-      }
-    }
-    for (let k = 0; k < nEta; k++) for (let k2 = 0; k2 < k; k2++) spp[k2 * nEta + k] = spp[k * nEta + k2];
-    sres = Number.isFinite(res) ? res : sresBar;
-  }
-
-  /** Complete-data log-likelihood of the numerical block at numTheta (chain-averaged). */
-  function numObjective(x: Float64Array): number {
-    let a = theta.a;
-    let b = theta.b;
-    for (let m = 0; m < nNum; m++) {
-      const nc = numComps[m];
-      if (nc.kind === 'loga') a = Math.exp(x[m]);
-      else if (nc.kind === 'logb') b = Math.exp(x[m]);
-    }
-    let total = 0;
-    for (let i = 0; i < N; i++) {
-      if (numStructural) {
-        // mean of the non-BSV components under x
-        for (let j = 0; j < p; j++) meanRow[j] = hasEta[j] ? 0 : theta.mu[j];
-        for (let m = 0; m < nNum; m++) if (numComps[m].kind === 'mu') meanRow[numComps[m].index] = x[m];
-        for (let t = 0; t < T; t++) {
-          if (hasEta[termParam[t]]) continue;
-          let coef = theta.beta[t];
-          for (let m = 0; m < nNum; m++) if (numComps[m].kind === 'beta' && numComps[m].index === t) coef = x[m];
-          meanRow[termParam[t]] += coef * subjects[i].design[t];
-        }
-      }
-      for (let c = 0; c < L; c++) {
-        const s = i * L + c;
-        let ll: number;
-        if (numStructural) {
-          for (let j = 0; j < p; j++) phiProp[j] = hasEta[j] ? phiS[s * p + j] : meanRow[j];
-          ll = propLogLik(i, phiProp, a, b);
-        } else ll = model.logLikFromPredictions(i, fView[s], a, b);
-        total += ll;
-      }
-    }
-    return total / L;
-  }
-
-  /** Gradient and Hessian of the numerical block's objective by central differences. */
-  function finiteDifferenceDerivatives(): boolean {
-    const f0 = numObjective(numTheta);
-    if (!Number.isFinite(f0)) return false;
-    for (let m = 0; m < nNum; m++) {
-      const h = 1e-3 * Math.max(1, Math.abs(numTheta[m]));
-      xTmp.set(numTheta);
-      xTmp[m] = numTheta[m] + h;
-      const fp = numObjective(xTmp);
-      xTmp[m] = numTheta[m] - h;
-      const fm = numObjective(xTmp);
-      numGrad[m] = (fp - fm) / (2 * h);
-      numHess[m * nNum + m] = (fp - 2 * f0 + fm) / (h * h);
-    }
-    for (let m = 0; m < nNum; m++)
-      for (let m2 = m + 1; m2 < nNum; m2++) {
-        const h1 = 1e-3 * Math.max(1, Math.abs(numTheta[m]));
-        const h2 = 1e-3 * Math.max(1, Math.abs(numTheta[m2]));
-        let acc = 0;
-        for (let corner = 0; corner < 4; corner++) {
-          const s1 = corner < 2 ? 1 : -1;
-          const s2 = corner % 2 === 0 ? 1 : -1;
-          const w = s1 * s2;
-          xTmp.set(numTheta);
-          xTmp[m] += s1 * h1;
-          xTmp[m2] += s2 * h2;
-          acc += w * numObjective(xTmp);
-        }
-        numHess[m * nNum + m2] = numHess[m2 * nNum + m] = acc / (4 * h1 * h2);
-      }
-    for (let q = 0; q < nNum * nNum; q++) if (!Number.isFinite(numHess[q])) return false;
-    for (let m = 0; m < nNum; m++) if (!Number.isFinite(numGrad[m])) return false;
-    return true;
-  }
-
-  /** Combined error alone: analytic gradient and Hessian in (log a, log b), one pass over the levels. */
-  const der = new Float64Array(6);
-  function combinedDerivatives(): boolean {
-    numGrad.fill(0);
-    numHess.fill(0);
-    const invL = 1 / L;
-    for (let i = 0; i < N; i++) {
-      const sub = subjects[i];
-      for (let c = 0; c < L; c++) {
-        const f = fView[i * L + c];
-        for (let o = 0; o < sub.nObs; o++) {
-          if (!combinedErrorDerivatives(theta.a, theta.b, sub.y[o], f[o], sub.censored[o] === 1, sub.lloqMgL[o], der)) continue;
-          numGrad[0] += der[1] * invL;
-          numGrad[1] += der[2] * invL;
-          numHess[0] += der[3] * invL;
-          numHess[3] += der[4] * invL;
-          numHess[1] += der[5] * invL;
-        }
-      }
-    }
-    numHess[2] = numHess[1];
-    for (let q = 0; q < 4; q++) if (!Number.isFinite(numHess[q])) return false;
-    return Number.isFinite(numGrad[0]) && Number.isFinite(numGrad[1]);
-  }
-
-  const xTmp = new Float64Array(nNum);
-  function numericalStep(gamma: number): void {
-    readNumerical(numComps, theta, numTheta);
-    if (!numStructural && rm === 'combined') {
-      if (!combinedDerivatives()) return;
-    } else if (!finiteDifferenceDerivatives()) return;
-    for (let q = 0; q < nNum * nNum; q++) numHessBar[q] += gamma * (numHess[q] - numHessBar[q]);
-    for (let q = 0; q < nNum * nNum; q++) numNegH[q] = -numHessBar[q];
-    numStep.set(numGrad);
-    if (choleskyLower(numNegH, nNum, numLow)) solveWithCholesky(numLow, nNum, numStep);
-    else for (let m = 0; m < nNum; m++) numStep[m] = numGrad[m] / Math.max(Math.abs(numHessBar[m * nNum + m]), 1e-8);
-    for (let m = 0; m < nNum; m++) {
-      const cap = Math.max(1, Math.abs(numTheta[m]) * 0.5);
-      const d = Math.max(-cap, Math.min(cap, numStep[m]));
-      writeNumerical(numComps[m], numTheta[m] + gamma * d, theta);
-    }
-  }
-
-  const omegaPrev = new Float64Array(nEta * nEta);
-  const omegaNew = new Float64Array(nEta * nEta);
-  const blockOf = new Int32Array(nEta);
-  model.blocks.forEach((blk, bi) => blk.forEach((k) => (blockOf[k] = bi)));
-  let omegaFailures = 0;
+  const individualNaturalSum = new Float64Array(N * p);
+  const individualPhiSum = new Float64Array(N * p);
+  const naturalScratch = new Float64Array(p);
+  let individualDrawCount = 0;
 
   function mStep(gamma: number, annealing: boolean): void {
-    for (let q = 0; q < R * nEta; q++) szpBar[q] += gamma * (szp[q] - szpBar[q]);
-    for (let q = 0; q < nEta * nEta; q++) sppBar[q] += gamma * (spp[q] - sppBar[q]);
-    sresBar += gamma * (sres - sresBar);
-    mStepClosedForm(annealing);
-    if (nNum > 0) {
-      const a0 = theta.a;
-      const b0 = theta.b;
-      numericalStep(gamma);
-      if (annealing && rm === 'combined') {
-        theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * a0);
-        theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * b0);
+    approximateStatistics(mStepState, gamma);
+    closedFormMStep(mStepState, theta, omegaFactor, annealing);
+    if (nNewton > 0) {
+      const aBeforeNewton = theta.a;
+      const bBeforeNewton = theta.b;
+      newton.step(gamma);
+      if (annealing && residualModel === 'combined') {
+        theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * aBeforeNewton);
+        theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * bBeforeNewton);
       }
     }
     refreshChains();
   }
 
-  /** The closed-form part of the M-step from the current approximations szpBar, sppBar, sresBar. */
-  function mStepClosedForm(annealing: boolean): void {
-    if (nEta > 0) {
-      // GLS for the coefficients of parameters with BSV, weights W = Omega_{k-1}^-1.
-      for (let m = 0; m < nCoef; m++) coefValue[m] = coefMu[m] >= 0 ? theta.mu[coefMu[m]] : theta.beta[coefBeta[m]];
-      if (nFree > 0) {
-        for (let fi = 0; fi < nFree; fi++) {
-          const m = freeIdx[fi];
-          let rhs = 0;
-          for (let k2 = 0; k2 < nEta; k2++) rhs += omegaInv[coefEta[m] * nEta + k2] * szpBar[coefZ[m] * nEta + k2];
-          for (let m2 = 0; m2 < nCoef; m2++) {
-            if (!coefFixed[m2]) continue;
-            rhs -= omegaInv[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]] * coefValue[m2];
-          }
-          glsRhs[fi] = rhs;
-          for (let fj = 0; fj < nFree; fj++) {
-            const m2 = freeIdx[fj];
-            glsA[fi * nFree + fj] = omegaInv[coefEta[m] * nEta + coefEta[m2]] * zz[coefZ[m] * R + coefZ[m2]];
-          }
-        }
-        if (choleskyLower(glsA, nFree, glsL)) {
-          solveWithCholesky(glsL, nFree, glsRhs);
-          for (let fi = 0; fi < nFree; fi++) {
-            const m = freeIdx[fi];
-            if (Number.isFinite(glsRhs[fi])) coefValue[m] = glsRhs[fi];
-          }
-        }
-        for (let m = 0; m < nCoef; m++) {
-          if (coefMu[m] >= 0) theta.mu[coefMu[m]] = coefValue[m];
-          else theta.beta[coefBeta[m]] = coefValue[m];
-        }
-      }
-      // Omega = (S_pp - B'S_zp - S_zp'B + B'Z'Z B) / N within the blocks.
-      bMat.fill(0);
-      for (let m = 0; m < nCoef; m++) bMat[coefZ[m] * nEta + coefEta[m]] = coefValue[m];
-      omegaPrev.set(theta.omega);
-      for (let k = 0; k < nEta; k++)
-        for (let k2 = 0; k2 <= k; k2++) {
-          let v = 0;
-          if (blockOf[k] === blockOf[k2]) {
-            v = sppBar[k * nEta + k2];
-            for (let r = 0; r < R; r++) {
-              v -= bMat[r * nEta + k] * szpBar[r * nEta + k2] + szpBar[r * nEta + k] * bMat[r * nEta + k2];
-              let bz = 0;
-              for (let r2 = 0; r2 < R; r2++) bz += zz[r * R + r2] * bMat[r2 * nEta + k2];
-              v += bMat[r * nEta + k] * bz;
-            }
-            v /= N;
-          }
-          omegaNew[k * nEta + k2] = omegaNew[k2 * nEta + k] = v;
-        }
-      if (annealing)
-        for (let k = 0; k < nEta; k++) {
-          const floor = settings.annealingTau * omegaPrev[k * nEta + k];
-          if (!(omegaNew[k * nEta + k] >= floor)) {
-            // Raising a variance alone keeps the block positive definite; rescale its covariances too.
-            const ratio = Math.sqrt(floor / Math.max(omegaNew[k * nEta + k], 1e-300));
-            omegaNew[k * nEta + k] = floor;
-            for (let k2 = 0; k2 < nEta; k2++) if (k2 !== k && Number.isFinite(ratio)) {
-              omegaNew[k * nEta + k2] *= ratio;
-              omegaNew[k2 * nEta + k] *= ratio;
-            }
-          }
-        }
-      for (let k = 0; k < nEta; k++) if (!(omegaNew[k * nEta + k] > 1e-12)) omegaNew[k * nEta + k] = 1e-12;
-      theta.omega.set(omegaNew);
-      if (!refreshOmegaFactor()) {
-        omegaFailures++;
-        theta.omega.set(omegaPrev);
-        refreshOmegaFactor();
-      }
-    }
-
-    // Residual error, closed form where the model allows.
-    if (rm !== 'combined' && nObsTotal > 0) {
-      let v = sresBar / nObsTotal;
-      if (rm === 'proportional') {
-        if (annealing) v = Math.max(v, settings.annealingTau * theta.b * theta.b);
-        if (v > 0 && Number.isFinite(v)) theta.b = Math.sqrt(v);
-      } else {
-        if (annealing) v = Math.max(v, settings.annealingTau * theta.a * theta.a);
-        if (v > 0 && Number.isFinite(v)) theta.a = Math.sqrt(v);
-      }
-    }
-  }
-
-  /** The chains keep their phi; refresh means, non-BSV components and cached log-likelihoods. */
-  function refreshChains(): void {
-    refreshMeans();
-    for (let i = 0; i < N; i++)
-      for (let c = 0; c < L; c++) {
-        const s = i * L + c;
-        if (numStructural) {
-          for (let j = 0; j < p; j++) if (!hasEta[j]) phiS[s * p + j] = meanAll[i * p + j];
-          const phi = phiS.subarray(s * p, s * p + p);
-          llS[s] = model.predict(i, phi, fView[s]) ? model.logLikFromPredictions(i, fView[s], theta.a, theta.b) : -Infinity;
-        } else llS[s] = model.logLikFromPredictions(i, fView[s], theta.a, theta.b);
-      }
-  }
+  const refreshChains = (): void => refreshChainsOf(sim, theta, newtonHasStructural);
 
   const writeEstimates = (out: Float64Array): void => writeEstimatesOf(model, theta, out);
   /** Working scale of each estimate for the settle test: log of positive quantities. */
@@ -755,55 +212,23 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const settleWindow = effectiveSettleWindow(settings.settleWindow, settings.searchMinIterations);
   const settled = (k: number): boolean => settledAt(k, trajectory, nEst, positive, settleWindow, settings.settleTolerance);
 
-  // The last settleWindow search iterations (judged stationary by the settle test) open
-  // the averaging phase: its statistics start as their mean and gamma_k = 1/(k - K1 + W), so the
-  // average runs over every draw from iteration K1 - W + 1 on. Starting from one noisy iterate
-  // instead costs a great deal when much information is missing (EM contracts slowly).
-  const W = settleWindow;
-  const ringSzp = new Float64Array(W * R * nEta);
-  const ringSpp = new Float64Array(W * nEta * nEta);
-  const ringSres = new Float64Array(W);
-  const ringNum = new Float64Array(W * nNum);
-  let warmCount = 0;
-  function storeWindowStatistics(k: number): void {
-    const slot = (k - 1) % W;
-    ringSzp.set(szp, slot * R * nEta);
-    ringSpp.set(spp, slot * nEta * nEta);
-    ringSres[slot] = sres;
-  }
-  function storeWindowNumerical(k: number): void {
-    readNumerical(numComps, theta, ringNum, ((k - 1) % W) * nNum);
-  }
+  // The last settleWindow search iterations (judged stationary by the settle test) open the
+  // averaging phase from their means (engine/saem/settleWindow.ts).
+  const windowStore = createSettleWindowStore(settleWindow, R, nEta, nNewton);
+  let warmStartWindow = 0;
   function warmStart(k: number): void {
-    const n = Math.min(W, k);
-    warmCount = n;
-    szpBar.fill(0);
-    sppBar.fill(0);
-    sresBar = 0;
-    for (let slot = 0; slot < n; slot++) {
-      for (let q = 0; q < R * nEta; q++) szpBar[q] += ringSzp[slot * R * nEta + q] / n;
-      for (let q = 0; q < nEta * nEta; q++) sppBar[q] += ringSpp[slot * nEta * nEta + q] / n;
-      sresBar += ringSres[slot] / n;
-    }
-    for (let m = 0; m < nNum; m++) {
-      let v = 0;
-      for (let slot = 0; slot < n; slot++) v += ringNum[slot * nNum + m] / n;
-      writeNumerical(numComps[m], v, theta);
-    }
+    warmStartWindow = openFromWindowMeans(windowStore, stats, newtonComponents, theta, k);
     // M-step from the window means (gamma 0 keeps the statistics as set).
-    sres = sresBar;
-    szp.set(szpBar);
-    spp.set(sppBar);
-    mStepClosedForm(false);
+    closedFormMStep(mStepState, theta, omegaFactor, false);
     refreshChains();
     writeEstimates(current);
     trajectory.set(current, (k - 1) * nEst);
   }
 
-  const avgMu = new Float64Array(p);
-  const avgBeta = new Float64Array(T);
-  const avgOmega = new Float64Array(nEta * nEta);
-  let avgA = 0, avgB = 0, avgCount = 0;
+  const averagedMu = new Float64Array(p);
+  const averagedBeta = new Float64Array(T);
+  const averagedOmega = new Float64Array(nEta * nEta);
+  let averagedA = 0, averagedB = 0, averagedCount = 0;
 
   let iteration = 0;
   let searchEnd: number | null = null;
@@ -834,35 +259,35 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       if (this.done) return;
       const exploring = searchEnd === null;
       iteration++;
-      simulate(exploring);
-      computeStatistics();
-      if (exploring) storeWindowStatistics(iteration);
-      const gamma = stepSize(iteration, searchEnd, warmCount, settings.stepExponent);
+      simulationStep(sim, theta, exploring);
+      computeStatistics(mStepState, sim);
+      if (exploring) storeWindowStatistics(windowStore, stats, iteration);
+      const gamma = stepSize(iteration, searchEnd, warmStartWindow, settings.stepExponent);
       if (!options.freezePopulation) mStep(gamma, exploring && iteration <= annealingIterations);
-      if (exploring) storeWindowNumerical(iteration);
+      if (exploring) storeWindowNewton(windowStore, newtonComponents, theta, iteration);
       writeEstimates(current);
       trajectory.set(current, (iteration - 1) * nEst);
       if (!exploring) {
         if (settings.iterateAveraging && iteration > searchEnd! + Math.floor(settings.averagingIterations / 2)) {
-          for (let j = 0; j < p; j++) avgMu[j] += theta.mu[j];
-          for (let t = 0; t < T; t++) avgBeta[t] += theta.beta[t];
-          for (let q = 0; q < nEta * nEta; q++) avgOmega[q] += theta.omega[q];
-          avgA += theta.a;
-          avgB += theta.b;
-          avgCount++;
+          for (let j = 0; j < p; j++) averagedMu[j] += theta.mu[j];
+          for (let t = 0; t < T; t++) averagedBeta[t] += theta.beta[t];
+          for (let q = 0; q < nEta * nEta; q++) averagedOmega[q] += theta.omega[q];
+          averagedA += theta.a;
+          averagedB += theta.b;
+          averagedCount++;
         }
         const lastStart = searchEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
         if (iteration > lastStart) {
-          for (let s = 0; s < NL; s++) {
-            const i = (s / L) | 0;
-            const phi = phiS.subarray(s * p, s * p + p);
-            model.toNatural(phi, natScratch);
+          for (let s = 0; s < nChainsTotal; s++) {
+            const i = (s / nChains) | 0;
+            const phi = sim.phiByChain.subarray(s * p, s * p + p);
+            model.toNatural(phi, naturalScratch);
             for (let j = 0; j < p; j++) {
-              indivSum[i * p + j] += natScratch[j];
-              indivPhiSum[i * p + j] += phi[j];
+              individualNaturalSum[i * p + j] += naturalScratch[j];
+              individualPhiSum[i * p + j] += phi[j];
             }
           }
-          indivCount += L;
+          individualDrawCount += nChains;
         }
       } else {
         if (settings.autoEndSearch && iteration >= settings.searchMinIterations && settled(iteration)) searchSettled = true;
@@ -875,33 +300,34 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     },
     finish(): SaemResult {
       const tEnd = now();
-      const count = Math.max(1, indivCount / L);
+      const count = Math.max(1, individualDrawCount / nChains);
       const individualMean = new Float64Array(N * p);
       const individualPhiMean = new Float64Array(N * p);
       for (let q = 0; q < N * p; q++) {
-        individualMean[q] = indivSum[q] / (count * L);
-        individualPhiMean[q] = indivPhiSum[q] / (count * L);
+        individualMean[q] = individualNaturalSum[q] / (count * nChains);
+        individualPhiMean[q] = individualPhiSum[q] / (count * nChains);
       }
       if (searchEnd !== null && !searchSettled && settings.autoEndSearch)
         warnings.push(`search reached its cap of ${settings.searchMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.searchMaxIterations`);
-      if (omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${omegaFailures} iteration(s); the previous Omega was kept there`);
-      if (avgCount > 0) {
-        for (let j = 0; j < p; j++) theta.mu[j] = avgMu[j] / avgCount;
-        for (let t = 0; t < T; t++) theta.beta[t] = avgBeta[t] / avgCount;
-        for (let q = 0; q < nEta * nEta; q++) theta.omega[q] = avgOmega[q] / avgCount;
-        theta.a = avgA / avgCount;
-        theta.b = avgB / avgCount;
+      if (mStepState.omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${mStepState.omegaFailures} iteration(s); the previous Omega was kept there`);
+      if (averagedCount > 0) {
+        for (let j = 0; j < p; j++) theta.mu[j] = averagedMu[j] / averagedCount;
+        for (let t = 0; t < T; t++) theta.beta[t] = averagedBeta[t] / averagedCount;
+        for (let q = 0; q < nEta * nEta; q++) theta.omega[q] = averagedOmega[q] / averagedCount;
+        theta.a = averagedA / averagedCount;
+        theta.b = averagedB / averagedCount;
       }
       const estimates = new Float64Array(nEst);
       writeEstimates(estimates);
+      const total = sim.totalAcceptance;
       const compAcc = new Float64Array(nEta);
-      for (let k = 0; k < nEta; k++) compAcc[k] = totTriesComp[k] > 0 ? totAccComp[k] / totTriesComp[k] : NaN;
+      for (let k = 0; k < nEta; k++) compAcc[k] = total.componentTries[k] > 0 ? total.componentAccepted[k] / total.componentTries[k] : NaN;
       for (let q = 0; q < nEst; q++)
         if (!Number.isFinite(estimates[q])) warnings.push(`estimate ${estimateNames[q]} is not a finite number: the fit failed; check the initial values and the data`);
       return {
         settings,
         seed: settings.seed,
-        chains: L,
+        chains: nChains,
         theta: { mu: Float64Array.from(theta.mu), beta: Float64Array.from(theta.beta), omega: Float64Array.from(theta.omega), a: theta.a, b: theta.b },
         estimateNames,
         estimates,
@@ -912,10 +338,10 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         individualMean,
         individualPhiMean,
         acceptance: {
-          independent: totTriesInd > 0 ? totAccInd / totTriesInd : NaN,
-          randomWalk: totTriesRw > 0 ? totAccRw / totTriesRw : NaN,
+          independent: total.independentTries > 0 ? total.independentAccepted / total.independentTries : NaN,
+          randomWalk: total.randomWalkTries > 0 ? total.randomWalkAccepted / total.randomWalkTries : NaN,
           component: compAcc,
-          adaptive: totTriesAd > 0 ? totAccAd / totTriesAd : NaN,
+          adaptive: total.adaptiveTries > 0 ? total.adaptiveAccepted / total.adaptiveTries : NaN,
         },
         warnings,
         timingMs: { total: tEnd - tStart, search: tSearchEnd - tStart, averaging: tEnd - tSearchEnd },
