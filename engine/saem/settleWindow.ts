@@ -22,16 +22,16 @@ export interface SettleWindowStore {
   readonly newtonX: Float64Array;
 }
 
-export function createSettleWindowStore(window: number, designWidth: number, nEta: number, nNewton: number): SettleWindowStore {
+export function createSettleWindowStore(windowIterations: number, designWidth: number, nEta: number, nNewton: number): SettleWindowStore {
   return {
-    window,
+    window: windowIterations,
     designPhiSize: designWidth * nEta,
     phiPhiSize: nEta * nEta,
     nNewton,
-    designPhi: new Float64Array(window * designWidth * nEta),
-    phiPhi: new Float64Array(window * nEta * nEta),
-    residualSquares: new Float64Array(window),
-    newtonX: new Float64Array(window * nNewton),
+    designPhi: new Float64Array(windowIterations * designWidth * nEta),
+    phiPhi: new Float64Array(windowIterations * nEta * nEta),
+    residualSquares: new Float64Array(windowIterations),
+    newtonX: new Float64Array(windowIterations * nNewton),
   };
 }
 
