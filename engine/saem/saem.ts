@@ -38,7 +38,7 @@
  */
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import { estimateNamesOf, positiveEstimates, writeEstimates as writeEstimatesOf } from './layout.js';
-import { effectiveSettleWindow, settledAt, stepSize } from './schedules.js';
+import { annealingSchedule, effectiveSettleWindow, settledAt, stepSizeSchedule } from './schedules.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
 import { approximateStatistics, closedFormMStep, computeStatistics, createMStepState } from './mStep.js';
 import { createNewtonStep } from './newtonStep.js';
@@ -189,17 +189,19 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const naturalScratch = new Float64Array(p);
   let individualDrawCount = 0;
 
-  function mStep(gamma: number, annealing: boolean): void {
+  // Schedules (engine/saem/schedules.ts): the step size gamma_k with its phase switch, and the
+  // annealing that keeps variances from falling too fast early in the search.
+  const stepSchedule = stepSizeSchedule.init(settings);
+  const annealing = annealingSchedule.init(settings);
+
+  function mStep(gamma: number): void {
     approximateStatistics(mStepState, gamma);
-    closedFormMStep(mStepState, theta, omegaFactor, annealing);
+    closedFormMStep(mStepState, theta, omegaFactor, annealing.active);
     if (nNewton > 0) {
       const aBeforeNewton = theta.a;
       const bBeforeNewton = theta.b;
       newton.step(gamma);
-      if (annealing && residualModel === 'combined') {
-        theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * aBeforeNewton);
-        theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * bBeforeNewton);
-      }
+      if (residualModel === 'combined') annealingSchedule.holdCombinedError(annealing, theta, aBeforeNewton, bBeforeNewton);
     }
     refreshChains();
   }
@@ -215,14 +217,15 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   // The last settleWindow search iterations (judged stationary by the settle test) open the
   // averaging phase from their means (engine/saem/settleWindow.ts).
   const windowStore = createSettleWindowStore(settleWindow, R, nEta, nNewton);
-  let warmStartWindow = 0;
-  function warmStart(k: number): void {
-    warmStartWindow = openFromWindowMeans(windowStore, stats, newtonComponents, theta, k);
+  /** Opens the averaging phase at iteration k; returns the number of window iterations it used. */
+  function warmStart(k: number): number {
+    const warmCount = openFromWindowMeans(windowStore, stats, newtonComponents, theta, k);
     // M-step from the window means (gamma 0 keeps the statistics as set).
     closedFormMStep(mStepState, theta, omegaFactor, false);
     refreshChains();
     writeEstimates(current);
     trajectory.set(current, (k - 1) * nEst);
+    return warmCount;
   }
 
   const averagedMu = new Float64Array(p);
@@ -234,7 +237,6 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   let searchEnd: number | null = null;
   let searchSettled = false;
   let tSearchEnd = tStart;
-  const annealingIterations = settings.annealingIterations ?? Math.floor(settings.searchMinIterations / 2);
 
   const run: SaemRun = {
     settings,
@@ -262,8 +264,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       simulationStep(sim, theta, exploring);
       computeStatistics(mStepState, sim);
       if (exploring) storeWindowStatistics(windowStore, stats, iteration);
-      const gamma = stepSize(iteration, searchEnd, warmStartWindow, settings.stepExponent);
-      if (!options.freezePopulation) mStep(gamma, exploring && iteration <= annealingIterations);
+      const gamma = stepSizeSchedule.update(stepSchedule, iteration);
+      annealingSchedule.update(annealing, iteration, exploring);
+      if (!options.freezePopulation) mStep(gamma);
       if (exploring) storeWindowNewton(windowStore, newtonComponents, theta, iteration);
       writeEstimates(current);
       trajectory.set(current, (iteration - 1) * nEst);
@@ -293,7 +296,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         if (settings.autoEndSearch && iteration >= settings.searchMinIterations && settled(iteration)) searchSettled = true;
         if (searchSettled || iteration >= settings.searchMaxIterations) {
           searchEnd = iteration;
-          if (!options.freezePopulation) warmStart(iteration);
+          const warmCount = options.freezePopulation ? 0 : warmStart(iteration);
+          stepSizeSchedule.final(stepSchedule, searchEnd, warmCount);
+          annealingSchedule.final(annealing);
           tSearchEnd = now();
         }
       }
