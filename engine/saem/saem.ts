@@ -196,7 +196,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 
   function mStep(gamma: number): void {
     approximateStatistics(mStepState, gamma);
-    closedFormMStep(mStepState, theta, omegaFactor, annealing.active);
+    closedFormMStep(mStepState, theta, omegaFactor, annealing.active ? annealing : null);
     if (nNewton > 0) {
       const aBeforeNewton = theta.a;
       const bBeforeNewton = theta.b;
@@ -221,7 +221,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   function warmStart(k: number): number {
     const warmCount = openFromWindowMeans(windowStore, stats, newtonComponents, theta, k);
     // M-step from the window means (gamma 0 keeps the statistics as set).
-    closedFormMStep(mStepState, theta, omegaFactor, false);
+    closedFormMStep(mStepState, theta, omegaFactor, null);
     refreshChains();
     writeEstimates(current);
     trajectory.set(current, (k - 1) * nEst);

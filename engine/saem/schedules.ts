@@ -59,6 +59,14 @@ export const annealingSchedule = {
     schedule.active = searching && iteration <= schedule.iterations;
     return schedule.active;
   },
+  /** The floor annealing keeps on a variance (an Omega diagonal) whose previous value was previousVariance. */
+  varianceFloor(schedule: AnnealingSchedule, previousVariance: number): number {
+    return schedule.tau * previousVariance;
+  },
+  /** The same floor on the variance of an error SD whose previous value was previousSd (tau sd^2, in that order). */
+  sdVarianceFloor(schedule: AnnealingSchedule, previousSd: number): number {
+    return schedule.tau * previousSd * previousSd;
+  },
   /**
    * The floor annealing keeps on the combined error after the numerical step (which the closed
    * form M-step does not move): a and b fall by at most a factor sqrt(tau), so their variances
