@@ -143,13 +143,14 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const settings = parseSaemSettings(model.spec.estimation, { ...(options.settings ?? {}), ...(options.seed !== undefined ? { seed: options.seed } : {}) });
   const now = options.now ?? Date.now;
   const tStart = now();
-  const N = model.nSubjects;
-  const p = model.nParams;
-  const nEta = model.nEta;
-  const T = model.covariateTerms.length;
-  const R = 1 + T;
-  const nChains = resolveChains(settings, N);
-  const nChainsTotal = N * nChains;
+  const nSubjects = model.nSubjects;
+  const nParams = model.nParams;
+  const nRandomEffects = model.nEta;
+  const nCovariateTerms = model.covariateTerms.length;
+  // Columns of the design row of a parameter with BSV: intercept and covariate terms.
+  const designWidth = 1 + nCovariateTerms;
+  const nChains = resolveChains(settings, nSubjects);
+  const nChainsTotal = nSubjects * nChains;
   const residualModel = model.residualModel;
   const warnings: string[] = [...model.warnings];
   const estimateNames = estimateNamesOf(model);
@@ -166,7 +167,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   };
 
   // Omega factor: Cholesky (for proposals), inverse (for the prior).
-  const omegaFactor = createOmegaFactor(nEta);
+  const omegaFactor = createOmegaFactor(nRandomEffects);
   refreshOmegaFactor(omegaFactor, theta.omega);
 
   // Design rows, GLS layout and sufficient statistics of the M-step (engine/saem/mStep.ts).
@@ -184,9 +185,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 
   const trajectory = new Float64Array(maxIter * nEst);
   const current = new Float64Array(nEst);
-  const individualNaturalSum = new Float64Array(N * p);
-  const individualPhiSum = new Float64Array(N * p);
-  const naturalScratch = new Float64Array(p);
+  const individualNaturalSum = new Float64Array(nSubjects * nParams);
+  const individualPhiSum = new Float64Array(nSubjects * nParams);
+  const naturalScratch = new Float64Array(nParams);
   let individualDrawCount = 0;
 
   // Schedules (engine/saem/schedules.ts): the step size gamma_k with its phase switch, and the
@@ -216,7 +217,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 
   // The last settleWindow search iterations (judged stationary by the settle test) open the
   // averaging phase from their means (engine/saem/settleWindow.ts).
-  const windowStore = createSettleWindowStore(settleWindow, R, nEta, nNewton);
+  const windowStore = createSettleWindowStore(settleWindow, designWidth, nRandomEffects, nNewton);
   /** Opens the averaging phase at iteration k; returns the number of window iterations it used. */
   function warmStart(k: number): number {
     const warmCount = openFromWindowMeans(windowStore, stats, newtonComponents, theta, k);
@@ -228,9 +229,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     return warmCount;
   }
 
-  const averagedMu = new Float64Array(p);
-  const averagedBeta = new Float64Array(T);
-  const averagedOmega = new Float64Array(nEta * nEta);
+  const averagedMu = new Float64Array(nParams);
+  const averagedBeta = new Float64Array(nCovariateTerms);
+  const averagedOmega = new Float64Array(nRandomEffects * nRandomEffects);
   let averagedA = 0, averagedB = 0, averagedCount = 0;
 
   let iteration = 0;
@@ -272,9 +273,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       trajectory.set(current, (iteration - 1) * nEst);
       if (!exploring) {
         if (settings.iterateAveraging && iteration > searchEnd! + Math.floor(settings.averagingIterations / 2)) {
-          for (let j = 0; j < p; j++) averagedMu[j] += theta.mu[j];
-          for (let t = 0; t < T; t++) averagedBeta[t] += theta.beta[t];
-          for (let q = 0; q < nEta * nEta; q++) averagedOmega[q] += theta.omega[q];
+          for (let j = 0; j < nParams; j++) averagedMu[j] += theta.mu[j];
+          for (let t = 0; t < nCovariateTerms; t++) averagedBeta[t] += theta.beta[t];
+          for (let q = 0; q < nRandomEffects * nRandomEffects; q++) averagedOmega[q] += theta.omega[q];
           averagedA += theta.a;
           averagedB += theta.b;
           averagedCount++;
@@ -283,11 +284,11 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         if (iteration > lastStart) {
           for (let s = 0; s < nChainsTotal; s++) {
             const i = (s / nChains) | 0;
-            const phi = sim.phiByChain.subarray(s * p, s * p + p);
+            const phi = sim.phiByChain.subarray(s * nParams, s * nParams + nParams);
             model.toNatural(phi, naturalScratch);
-            for (let j = 0; j < p; j++) {
-              individualNaturalSum[i * p + j] += naturalScratch[j];
-              individualPhiSum[i * p + j] += phi[j];
+            for (let j = 0; j < nParams; j++) {
+              individualNaturalSum[i * nParams + j] += naturalScratch[j];
+              individualPhiSum[i * nParams + j] += phi[j];
             }
           }
           individualDrawCount += nChains;
@@ -306,9 +307,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     finish(): SaemResult {
       const tEnd = now();
       const count = Math.max(1, individualDrawCount / nChains);
-      const individualMean = new Float64Array(N * p);
-      const individualPhiMean = new Float64Array(N * p);
-      for (let q = 0; q < N * p; q++) {
+      const individualMean = new Float64Array(nSubjects * nParams);
+      const individualPhiMean = new Float64Array(nSubjects * nParams);
+      for (let q = 0; q < nSubjects * nParams; q++) {
         individualMean[q] = individualNaturalSum[q] / (count * nChains);
         individualPhiMean[q] = individualPhiSum[q] / (count * nChains);
       }
@@ -316,17 +317,17 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         warnings.push(`search reached its cap of ${settings.searchMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.searchMaxIterations`);
       if (mStepState.omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${mStepState.omegaFailures} iteration(s); the previous Omega was kept there`);
       if (averagedCount > 0) {
-        for (let j = 0; j < p; j++) theta.mu[j] = averagedMu[j] / averagedCount;
-        for (let t = 0; t < T; t++) theta.beta[t] = averagedBeta[t] / averagedCount;
-        for (let q = 0; q < nEta * nEta; q++) theta.omega[q] = averagedOmega[q] / averagedCount;
+        for (let j = 0; j < nParams; j++) theta.mu[j] = averagedMu[j] / averagedCount;
+        for (let t = 0; t < nCovariateTerms; t++) theta.beta[t] = averagedBeta[t] / averagedCount;
+        for (let q = 0; q < nRandomEffects * nRandomEffects; q++) theta.omega[q] = averagedOmega[q] / averagedCount;
         theta.a = averagedA / averagedCount;
         theta.b = averagedB / averagedCount;
       }
       const estimates = new Float64Array(nEst);
       writeEstimates(estimates);
       const total = sim.totalAcceptance;
-      const compAcc = new Float64Array(nEta);
-      for (let k = 0; k < nEta; k++) compAcc[k] = total.componentTries[k] > 0 ? total.componentAccepted[k] / total.componentTries[k] : NaN;
+      const compAcc = new Float64Array(nRandomEffects);
+      for (let k = 0; k < nRandomEffects; k++) compAcc[k] = total.componentTries[k] > 0 ? total.componentAccepted[k] / total.componentTries[k] : NaN;
       for (let q = 0; q < nEst; q++)
         if (!Number.isFinite(estimates[q])) warnings.push(`estimate ${estimateNames[q]} is not a finite number: the fit failed; check the initial values and the data`);
       return {
