@@ -191,7 +191,8 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   let individualDrawCount = 0;
 
   // Schedules (engine/saem/schedules.ts): the step size gamma_k with its phase switch, and the
-  // annealing that keeps variances from falling too fast early in the search.
+  // annealing that keeps variances from falling too fast early in the search. The run's phase is
+  // the step-size schedule's: searchEnd is null while the search runs.
   const stepSchedule = stepSizeSchedule.init(settings);
   const annealing = annealingSchedule.init(settings);
 
@@ -235,7 +236,6 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   let averagedA = 0, averagedB = 0, averagedCount = 0;
 
   let iteration = 0;
-  let searchEnd: number | null = null;
   let searchSettled = false;
   let tSearchEnd = tStart;
 
@@ -243,24 +243,24 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     settings,
     estimateNames,
     get done() {
-      return searchEnd !== null && iteration >= searchEnd + settings.averagingIterations;
+      return stepSchedule.searchEnd !== null && iteration >= stepSchedule.searchEnd + settings.averagingIterations;
     },
     get iteration() {
       return iteration;
     },
     get phase(): SaemPhase {
-      return searchEnd === null ? 'search' : 'averaging';
+      return stepSchedule.searchEnd === null ? 'search' : 'averaging';
     },
     get searchEnd() {
-      return searchEnd;
+      return stepSchedule.searchEnd;
     },
     get plannedIterations() {
-      return (searchEnd ?? settings.searchMaxIterations) + settings.averagingIterations;
+      return (stepSchedule.searchEnd ?? settings.searchMaxIterations) + settings.averagingIterations;
     },
     current,
     step() {
       if (this.done) return;
-      const exploring = searchEnd === null;
+      const exploring = stepSchedule.searchEnd === null;
       iteration++;
       simulationStep(sim, theta, exploring);
       computeStatistics(mStepState, sim);
@@ -272,7 +272,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       writeEstimates(current);
       trajectory.set(current, (iteration - 1) * nEst);
       if (!exploring) {
-        if (settings.iterateAveraging && iteration > searchEnd! + Math.floor(settings.averagingIterations / 2)) {
+        if (settings.iterateAveraging && iteration > stepSchedule.searchEnd! + Math.floor(settings.averagingIterations / 2)) {
           for (let j = 0; j < nParams; j++) averagedMu[j] += theta.mu[j];
           for (let t = 0; t < nCovariateTerms; t++) averagedBeta[t] += theta.beta[t];
           for (let q = 0; q < nRandomEffects * nRandomEffects; q++) averagedOmega[q] += theta.omega[q];
@@ -280,7 +280,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
           averagedB += theta.b;
           averagedCount++;
         }
-        const lastStart = searchEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
+        const lastStart = stepSchedule.searchEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
         if (iteration > lastStart) {
           for (let s = 0; s < nChainsTotal; s++) {
             const i = (s / nChains) | 0;
@@ -296,9 +296,8 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       } else {
         if (settings.autoEndSearch && iteration >= settings.searchMinIterations && settled(iteration)) searchSettled = true;
         if (searchSettled || iteration >= settings.searchMaxIterations) {
-          searchEnd = iteration;
           const warmCount = options.freezePopulation ? 0 : warmStart(iteration);
-          stepSizeSchedule.final(stepSchedule, searchEnd, warmCount);
+          stepSizeSchedule.final(stepSchedule, iteration, warmCount);
           annealingSchedule.final(annealing);
           tSearchEnd = now();
         }
@@ -313,7 +312,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         individualMean[q] = individualNaturalSum[q] / (count * nChains);
         individualPhiMean[q] = individualPhiSum[q] / (count * nChains);
       }
-      if (searchEnd !== null && !searchSettled && settings.autoEndSearch)
+      if (stepSchedule.searchEnd !== null && !searchSettled && settings.autoEndSearch)
         warnings.push(`search reached its cap of ${settings.searchMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.searchMaxIterations`);
       if (mStepState.omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${mStepState.omegaFailures} iteration(s); the previous Omega was kept there`);
       if (averagedCount > 0) {
@@ -339,7 +338,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         estimates,
         trajectory: trajectory.slice(0, iteration * nEst),
         iterations: iteration,
-        searchEnd: searchEnd ?? iteration,
+        searchEnd: stepSchedule.searchEnd ?? iteration,
         searchSettled,
         individualMean,
         individualPhiMean,
