@@ -26,10 +26,11 @@
  *
  * Layout: engine/saem/simulation.ts holds step (1) and the chain refresh, engine/saem/mStep.ts the
  * sufficient statistics and the closed-form M-step, engine/saem/layout.ts the estimate order and
- * engine/saem/schedules.ts the step size and settle test, engine/saem/newtonStep.ts the stochastic
+ * engine/saem/schedules.ts the step size (with the phase switch) and the annealing as
+ * init / update / final records, and the settle test, engine/saem/newtonStep.ts the stochastic
  * Newton step of the numerical block (with its own finite differences), engine/saem/settleWindow.ts
- * the window that opens the averaging phase; this file drives the iterations: annealing, iterate
- * averaging, individual means, result.
+ * the window that opens the averaging phase; this file drives the iterations: iterate averaging,
+ * individual means, result.
  *
  * The iteration itself is synchronous and allocation-free; `runSaem` drives it, reports progress
  * every iteration and checks the abort signal between iterations. A host that must receive an
