@@ -12,6 +12,7 @@
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import { choleskyLower, solveWithCholesky } from '../stats/dense.js';
 import type { SaemSettings } from './settings.js';
+import { annealingSchedule, type AnnealingSchedule } from './schedules.js';
 import { refreshOmegaFactor, type OmegaFactor, type SimulationState } from './simulation.js';
 
 /** The complete-data sufficient statistics of this iteration and their stochastic approximations. */
@@ -185,9 +186,10 @@ export function approximateStatistics(state: MStepState, gamma: number): void {
 /**
  * The closed-form part of the M-step from the current approximations: updates theta (mu, beta
  * of parameters with BSV, Omega, and a or b outside the combined model) and `omegaFactor`.
- * With `annealing`, variances fall by at most (1 - annealingTau) per iteration.
+ * With `annealing` (the annealing schedule, null when this iteration does not anneal), variances
+ * keep its floors (engine/saem/schedules.ts).
  */
-export function closedFormMStep(state: MStepState, theta: PopulationParameters, omegaFactor: OmegaFactor, annealing: boolean): void {
+export function closedFormMStep(state: MStepState, theta: PopulationParameters, omegaFactor: OmegaFactor, annealing: AnnealingSchedule | null): void {
   const { model, settings, designCross, coefEta, coefDesignColumn, coefFixed, coefMu, coefBeta, freeCoefs, glsMatrix, glsRhs, coefValue, coefMatrix, omegaPrevious, omegaCandidate, blockOf } = state;
   const { designPhiApprox, phiPhiApprox } = state.statistics;
   const N = model.nSubjects;
@@ -248,7 +250,7 @@ export function closedFormMStep(state: MStepState, theta: PopulationParameters, 
       }
     if (annealing)
       for (let k = 0; k < nEta; k++) {
-        const floor = settings.annealingTau * omegaPrevious[k * nEta + k];
+        const floor = annealingSchedule.varianceFloor(annealing, omegaPrevious[k * nEta + k]);
         if (!(omegaCandidate[k * nEta + k] >= floor)) {
           // Raising a variance alone keeps the block positive definite; rescale its covariances too.
           const ratio = Math.sqrt(floor / Math.max(omegaCandidate[k * nEta + k], 1e-300));
@@ -272,10 +274,10 @@ export function closedFormMStep(state: MStepState, theta: PopulationParameters, 
   if (residualModel !== 'combined' && model.nObsTotal > 0) {
     let v = state.statistics.residualSquaresApprox / model.nObsTotal;
     if (residualModel === 'proportional') {
-      if (annealing) v = Math.max(v, settings.annealingTau * theta.b * theta.b);
+      if (annealing) v = Math.max(v, annealingSchedule.sdVarianceFloor(annealing, theta.b));
       if (v > 0 && Number.isFinite(v)) theta.b = Math.sqrt(v);
     } else {
-      if (annealing) v = Math.max(v, settings.annealingTau * theta.a * theta.a);
+      if (annealing) v = Math.max(v, annealingSchedule.sdVarianceFloor(annealing, theta.a));
       if (v > 0 && Number.isFinite(v)) theta.a = Math.sqrt(v);
     }
   }

@@ -26,10 +26,11 @@
  *
  * Layout: engine/saem/simulation.ts holds step (1) and the chain refresh, engine/saem/mStep.ts the
  * sufficient statistics and the closed-form M-step, engine/saem/layout.ts the estimate order and
- * engine/saem/schedules.ts the step size and settle test, engine/saem/newtonStep.ts the stochastic
+ * engine/saem/schedules.ts the step size (with the phase switch) and the annealing as
+ * init / update / final records, and the settle test, engine/saem/newtonStep.ts the stochastic
  * Newton step of the numerical block (with its own finite differences), engine/saem/settleWindow.ts
- * the window that opens the averaging phase; this file drives the iterations: annealing, iterate
- * averaging, individual means, result.
+ * the window that opens the averaging phase; this file drives the iterations: iterate averaging,
+ * individual means, result.
  *
  * The iteration itself is synchronous and allocation-free; `runSaem` drives it, reports progress
  * every iteration and checks the abort signal between iterations. A host that must receive an
@@ -38,7 +39,7 @@
  */
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import { estimateNamesOf, positiveEstimates, writeEstimates as writeEstimatesOf } from './layout.js';
-import { effectiveSettleWindow, settledAt, stepSize } from './schedules.js';
+import { annealingSchedule, effectiveSettleWindow, settledAt, stepSizeSchedule } from './schedules.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.js';
 import { approximateStatistics, closedFormMStep, computeStatistics, createMStepState } from './mStep.js';
 import { createNewtonStep } from './newtonStep.js';
@@ -143,13 +144,14 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const settings = parseSaemSettings(model.spec.estimation, { ...(options.settings ?? {}), ...(options.seed !== undefined ? { seed: options.seed } : {}) });
   const now = options.now ?? Date.now;
   const tStart = now();
-  const N = model.nSubjects;
-  const p = model.nParams;
-  const nEta = model.nEta;
-  const T = model.covariateTerms.length;
-  const R = 1 + T;
-  const nChains = resolveChains(settings, N);
-  const nChainsTotal = N * nChains;
+  const nSubjects = model.nSubjects;
+  const nParams = model.nParams;
+  const nRandomEffects = model.nEta;
+  const nCovariateTerms = model.covariateTerms.length;
+  // Columns of the design row of a parameter with BSV: intercept and covariate terms.
+  const designWidth = 1 + nCovariateTerms;
+  const nChains = resolveChains(settings, nSubjects);
+  const nChainsTotal = nSubjects * nChains;
   const residualModel = model.residualModel;
   const warnings: string[] = [...model.warnings];
   const estimateNames = estimateNamesOf(model);
@@ -166,7 +168,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   };
 
   // Omega factor: Cholesky (for proposals), inverse (for the prior).
-  const omegaFactor = createOmegaFactor(nEta);
+  const omegaFactor = createOmegaFactor(nRandomEffects);
   refreshOmegaFactor(omegaFactor, theta.omega);
 
   // Design rows, GLS layout and sufficient statistics of the M-step (engine/saem/mStep.ts).
@@ -184,22 +186,25 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 
   const trajectory = new Float64Array(maxIter * nEst);
   const current = new Float64Array(nEst);
-  const individualNaturalSum = new Float64Array(N * p);
-  const individualPhiSum = new Float64Array(N * p);
-  const naturalScratch = new Float64Array(p);
+  const individualNaturalSum = new Float64Array(nSubjects * nParams);
+  const individualPhiSum = new Float64Array(nSubjects * nParams);
+  const naturalScratch = new Float64Array(nParams);
   let individualDrawCount = 0;
 
-  function mStep(gamma: number, annealing: boolean): void {
+  // Schedules (engine/saem/schedules.ts): the step size gamma_k with its phase switch, and the
+  // annealing that keeps variances from falling too fast early in the search. The run's phase is
+  // the step-size schedule's: searchEnd is null while the search runs.
+  const stepSchedule = stepSizeSchedule.init(settings);
+  const annealing = annealingSchedule.init(settings);
+
+  function mStep(gamma: number): void {
     approximateStatistics(mStepState, gamma);
-    closedFormMStep(mStepState, theta, omegaFactor, annealing);
+    closedFormMStep(mStepState, theta, omegaFactor, annealing.active ? annealing : null);
     if (nNewton > 0) {
       const aBeforeNewton = theta.a;
       const bBeforeNewton = theta.b;
       newton.step(gamma);
-      if (annealing && residualModel === 'combined') {
-        theta.a = Math.max(theta.a, Math.sqrt(settings.annealingTau) * aBeforeNewton);
-        theta.b = Math.max(theta.b, Math.sqrt(settings.annealingTau) * bBeforeNewton);
-      }
+      if (residualModel === 'combined') annealingSchedule.holdCombinedError(annealing, theta, aBeforeNewton, bBeforeNewton);
     }
     refreshChains();
   }
@@ -214,77 +219,77 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 
   // The last settleWindow search iterations (judged stationary by the settle test) open the
   // averaging phase from their means (engine/saem/settleWindow.ts).
-  const windowStore = createSettleWindowStore(settleWindow, R, nEta, nNewton);
-  let warmStartWindow = 0;
-  function warmStart(k: number): void {
-    warmStartWindow = openFromWindowMeans(windowStore, stats, newtonComponents, theta, k);
+  const windowStore = createSettleWindowStore(settleWindow, designWidth, nRandomEffects, nNewton);
+  /** Opens the averaging phase at iteration k; returns the number of window iterations it used. */
+  function warmStart(k: number): number {
+    const warmCount = openFromWindowMeans(windowStore, stats, newtonComponents, theta, k);
     // M-step from the window means (gamma 0 keeps the statistics as set).
-    closedFormMStep(mStepState, theta, omegaFactor, false);
+    closedFormMStep(mStepState, theta, omegaFactor, null);
     refreshChains();
     writeEstimates(current);
     trajectory.set(current, (k - 1) * nEst);
+    return warmCount;
   }
 
-  const averagedMu = new Float64Array(p);
-  const averagedBeta = new Float64Array(T);
-  const averagedOmega = new Float64Array(nEta * nEta);
+  const averagedMu = new Float64Array(nParams);
+  const averagedBeta = new Float64Array(nCovariateTerms);
+  const averagedOmega = new Float64Array(nRandomEffects * nRandomEffects);
   let averagedA = 0, averagedB = 0, averagedCount = 0;
 
   let iteration = 0;
-  let searchEnd: number | null = null;
   let searchSettled = false;
   let tSearchEnd = tStart;
-  const annealingIterations = settings.annealingIterations ?? Math.floor(settings.searchMinIterations / 2);
 
   const run: SaemRun = {
     settings,
     estimateNames,
     get done() {
-      return searchEnd !== null && iteration >= searchEnd + settings.averagingIterations;
+      return stepSchedule.searchEnd !== null && iteration >= stepSchedule.searchEnd + settings.averagingIterations;
     },
     get iteration() {
       return iteration;
     },
     get phase(): SaemPhase {
-      return searchEnd === null ? 'search' : 'averaging';
+      return stepSchedule.searchEnd === null ? 'search' : 'averaging';
     },
     get searchEnd() {
-      return searchEnd;
+      return stepSchedule.searchEnd;
     },
     get plannedIterations() {
-      return (searchEnd ?? settings.searchMaxIterations) + settings.averagingIterations;
+      return (stepSchedule.searchEnd ?? settings.searchMaxIterations) + settings.averagingIterations;
     },
     current,
     step() {
       if (this.done) return;
-      const exploring = searchEnd === null;
+      const exploring = stepSchedule.searchEnd === null;
       iteration++;
       simulationStep(sim, theta, exploring);
       computeStatistics(mStepState, sim);
       if (exploring) storeWindowStatistics(windowStore, stats, iteration);
-      const gamma = stepSize(iteration, searchEnd, warmStartWindow, settings.stepExponent);
-      if (!options.freezePopulation) mStep(gamma, exploring && iteration <= annealingIterations);
+      const gamma = stepSizeSchedule.update(stepSchedule, iteration);
+      annealingSchedule.update(annealing, iteration, exploring);
+      if (!options.freezePopulation) mStep(gamma);
       if (exploring) storeWindowNewton(windowStore, newtonComponents, theta, iteration);
       writeEstimates(current);
       trajectory.set(current, (iteration - 1) * nEst);
       if (!exploring) {
-        if (settings.iterateAveraging && iteration > searchEnd! + Math.floor(settings.averagingIterations / 2)) {
-          for (let j = 0; j < p; j++) averagedMu[j] += theta.mu[j];
-          for (let t = 0; t < T; t++) averagedBeta[t] += theta.beta[t];
-          for (let q = 0; q < nEta * nEta; q++) averagedOmega[q] += theta.omega[q];
+        if (settings.iterateAveraging && iteration > stepSchedule.searchEnd! + Math.floor(settings.averagingIterations / 2)) {
+          for (let j = 0; j < nParams; j++) averagedMu[j] += theta.mu[j];
+          for (let t = 0; t < nCovariateTerms; t++) averagedBeta[t] += theta.beta[t];
+          for (let q = 0; q < nRandomEffects * nRandomEffects; q++) averagedOmega[q] += theta.omega[q];
           averagedA += theta.a;
           averagedB += theta.b;
           averagedCount++;
         }
-        const lastStart = searchEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
+        const lastStart = stepSchedule.searchEnd! + settings.averagingIterations - Math.min(settings.individualDraws, settings.averagingIterations);
         if (iteration > lastStart) {
           for (let s = 0; s < nChainsTotal; s++) {
             const i = (s / nChains) | 0;
-            const phi = sim.phiByChain.subarray(s * p, s * p + p);
+            const phi = sim.phiByChain.subarray(s * nParams, s * nParams + nParams);
             model.toNatural(phi, naturalScratch);
-            for (let j = 0; j < p; j++) {
-              individualNaturalSum[i * p + j] += naturalScratch[j];
-              individualPhiSum[i * p + j] += phi[j];
+            for (let j = 0; j < nParams; j++) {
+              individualNaturalSum[i * nParams + j] += naturalScratch[j];
+              individualPhiSum[i * nParams + j] += phi[j];
             }
           }
           individualDrawCount += nChains;
@@ -292,8 +297,9 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       } else {
         if (settings.autoEndSearch && iteration >= settings.searchMinIterations && settled(iteration)) searchSettled = true;
         if (searchSettled || iteration >= settings.searchMaxIterations) {
-          searchEnd = iteration;
-          if (!options.freezePopulation) warmStart(iteration);
+          const warmCount = options.freezePopulation ? 0 : warmStart(iteration);
+          stepSizeSchedule.final(stepSchedule, iteration, warmCount);
+          annealingSchedule.final(annealing);
           tSearchEnd = now();
         }
       }
@@ -301,27 +307,27 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     finish(): SaemResult {
       const tEnd = now();
       const count = Math.max(1, individualDrawCount / nChains);
-      const individualMean = new Float64Array(N * p);
-      const individualPhiMean = new Float64Array(N * p);
-      for (let q = 0; q < N * p; q++) {
+      const individualMean = new Float64Array(nSubjects * nParams);
+      const individualPhiMean = new Float64Array(nSubjects * nParams);
+      for (let q = 0; q < nSubjects * nParams; q++) {
         individualMean[q] = individualNaturalSum[q] / (count * nChains);
         individualPhiMean[q] = individualPhiSum[q] / (count * nChains);
       }
-      if (searchEnd !== null && !searchSettled && settings.autoEndSearch)
+      if (stepSchedule.searchEnd !== null && !searchSettled && settings.autoEndSearch)
         warnings.push(`search reached its cap of ${settings.searchMaxIterations} iterations before the trajectory settled; check the convergence plot or raise estimation.searchMaxIterations`);
       if (mStepState.omegaFailures > 0) warnings.push(`Omega lost positive definiteness in ${mStepState.omegaFailures} iteration(s); the previous Omega was kept there`);
       if (averagedCount > 0) {
-        for (let j = 0; j < p; j++) theta.mu[j] = averagedMu[j] / averagedCount;
-        for (let t = 0; t < T; t++) theta.beta[t] = averagedBeta[t] / averagedCount;
-        for (let q = 0; q < nEta * nEta; q++) theta.omega[q] = averagedOmega[q] / averagedCount;
+        for (let j = 0; j < nParams; j++) theta.mu[j] = averagedMu[j] / averagedCount;
+        for (let t = 0; t < nCovariateTerms; t++) theta.beta[t] = averagedBeta[t] / averagedCount;
+        for (let q = 0; q < nRandomEffects * nRandomEffects; q++) theta.omega[q] = averagedOmega[q] / averagedCount;
         theta.a = averagedA / averagedCount;
         theta.b = averagedB / averagedCount;
       }
       const estimates = new Float64Array(nEst);
       writeEstimates(estimates);
       const total = sim.totalAcceptance;
-      const compAcc = new Float64Array(nEta);
-      for (let k = 0; k < nEta; k++) compAcc[k] = total.componentTries[k] > 0 ? total.componentAccepted[k] / total.componentTries[k] : NaN;
+      const compAcc = new Float64Array(nRandomEffects);
+      for (let k = 0; k < nRandomEffects; k++) compAcc[k] = total.componentTries[k] > 0 ? total.componentAccepted[k] / total.componentTries[k] : NaN;
       for (let q = 0; q < nEst; q++)
         if (!Number.isFinite(estimates[q])) warnings.push(`estimate ${estimateNames[q]} is not a finite number: the fit failed; check the initial values and the data`);
       return {
@@ -333,7 +339,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
         estimates,
         trajectory: trajectory.slice(0, iteration * nEst),
         iterations: iteration,
-        searchEnd: searchEnd ?? iteration,
+        searchEnd: stepSchedule.searchEnd ?? iteration,
         searchSettled,
         individualMean,
         individualPhiMean,
