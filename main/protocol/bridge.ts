@@ -11,7 +11,6 @@ import type { ImportReport } from '../../engine/import/build.js';
 import type { MappingTemplate } from '../../engine/import/roles.js';
 import type { SheetPreview } from '../../engine/import/workbook.js';
 import type { WithPosthoc } from '../../engine/posthoc/index.js';
-import type { RepeatSummary } from '../../engine/posthoc/robustness.js';
 import type { FitRecord } from '../../engine/saem/fitRecord.js';
 import type { ModelSpec } from '../../engine/spec/modelSpec.js';
 import type { ERROR_KINDS } from './errors.js';
@@ -80,7 +79,7 @@ export interface FitSummary {
   seed: number;
   createdAt: string;
   minus2LL: number | null;
-  /** Robustness verdict when repeated fits were run. */
+  /** The seeds' agreement verdict of a multi-seed fit. */
   verdict?: string;
   warnings: number;
 }
@@ -176,7 +175,7 @@ export interface QueueSnapshot {
 }
 
 /** fit.json: the estimator's record with the post-fit additions. */
-export type FitRecordValue = (WithPosthoc<FitRecord> & { robustness?: RepeatSummary }) | FitRecord;
+export type FitRecordValue = WithPosthoc<FitRecord> | FitRecord;
 export interface FitValue {
   fitId: string;
   name: string;

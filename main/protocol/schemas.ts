@@ -63,8 +63,6 @@ export const SaemSettingsInput = z.strictObject({
 export const PostFitInput = z.strictObject({
   /** Run the post-fit steps (SEs, -2LL, diagnostics); default true. */
   run: z.boolean().optional(),
-  /** Repeated fits in all (robustness), 2..20. */
-  repeat: z.number().int().min(2).max(20).optional(),
 });
 
 export const DosingTargetInput = z.union([z.string().regex(/^[a-z0-9][a-z0-9-]{0,79}$/, 'a preset id'), JsonObject]);

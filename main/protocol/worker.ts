@@ -30,7 +30,6 @@ export const FitJob = z.strictObject({
   settings: SaemSettingsInput.optional(),
   /** Run the post-fit steps after the estimator in the same job (default true). */
   postFit: z.boolean().optional(),
-  repeat: z.number().int().min(2).max(20).optional(),
 });
 export const PostFitJob = z.strictObject({
   kind: z.literal('postFit'),
@@ -39,7 +38,6 @@ export const PostFitJob = z.strictObject({
   /** The fit record from a fit job (engine/saem/fitRecord). */
   record: JsonObject,
   seed: Seed.optional(),
-  repeat: z.number().int().min(2).max(20).optional(),
 });
 export const SimulateJob = z.strictObject({
   kind: z.literal('simulate'),
@@ -88,7 +86,7 @@ export const ToWorkerSchema = z.discriminatedUnion('type', [
 ]);
 export type ToWorker = z.infer<typeof ToWorkerSchema>;
 
-export const PROGRESS_PHASES = ['search', 'averaging', 'post-fit', 'repeat', 'parse', 'simulate', 'advise', 'verify'] as const;
+export const PROGRESS_PHASES = ['search', 'averaging', 'post-fit', 'parse', 'simulate', 'advise', 'verify'] as const;
 export type ProgressPhase = (typeof PROGRESS_PHASES)[number];
 
 export const ProgressSchema = z.strictObject({

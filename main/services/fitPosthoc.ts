@@ -1,25 +1,20 @@
 /**
  * The post-fit steps for a finished fit (engine/posthoc): standard errors, likelihood,
- * per-subject conditional distributions, diagnostics, and optionally the repeated-fit check,
- * merged into the fit record. One entry point for the CLI, the worker and the tests.
+ * per-subject conditional distributions and diagnostics, merged into the fit record. One entry point for the CLI, the worker and the tests.
  */
 import { mergePosthoc, posthocRecordFields, PosthocError, runPosthoc, thetaFromPopulation, type PosthocOptions, type WithPosthoc } from '../../engine/posthoc/index.js';
 import { assessDegeneracy, type DegeneracyReport } from '../../engine/posthoc/degeneracy.js';
-import { runRepeatedFits, type RepeatOptions, type RepeatSummary } from '../../engine/posthoc/robustness.js';
 import { naturalToTransformed } from '../../engine/spec/individual.js';
 import type { FitOutcome } from './fitService.js';
 
 export interface FitPosthocOptions {
   /** Seed of the post-fit random streams (default: the fit's seed). */
   seed?: number;
-  /** Run the fit this many times in all (>= 2) from different seeds and initial values. */
-  repeat?: number;
   posthoc?: Partial<PosthocOptions>;
-  repeatOptions?: Partial<RepeatOptions>;
   onStatus?: (message: string) => void | Promise<void>;
 }
 
-export type PosthocFitRecord = WithPosthoc<FitOutcome['record']> & { robustness?: RepeatSummary };
+export type PosthocFitRecord = WithPosthoc<FitOutcome['record']> 
 
 export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions = {}): Promise<PosthocFitRecord> {
   const { model, record } = outcome;
@@ -40,25 +35,6 @@ export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions
     const failed = { ...record, warnings: [...record.warnings, `post-fit steps not run: ${e.message}`] } as unknown as PosthocFitRecord;
     markDegeneracy(failed, assessDegeneracy({ model, theta, minus2LL: null }));
     return failed;
-  }
-  if (options.repeat !== undefined) {
-    merged.robustness = await runRepeatedFits(outcome.spec, outcome.dataset, {
-      runs: options.repeat,
-      seed: record.seed,
-      se: merged.population.map((e) => e.se),
-      first: {
-        seed: record.seed,
-        estimates: record.population.map((e) => e.estimate),
-        minus2LL: merged.likelihood.minus2LL,
-        mcError: merged.likelihood.mcError,
-        initial: Object.assign(Object.create(null) as Record<string, number>, Object.fromEntries(Object.entries(outcome.spec.parameters).map(([k, v]) => [k, v!.typical]))),
-        warnings: [],
-      },
-      settings: record.settings,
-      ...(options.repeatOptions ?? {}),
-      onRun: (run, of) => options.onStatus?.(`repeated fit ${run} of ${of}`),
-    });
-    if (!merged.robustness.stable) merged.warnings.push(`robustness: ${merged.robustness.verdict}`);
   }
   return merged;
 }
@@ -95,15 +71,7 @@ export function formatPosthocSummary(record: PosthocFitRecord): string {
   lines.push(`Shrinkage: eta ${sh.join(', ')}; epsilon ${record.shrinkage.epsilon === null ? '-' : `${(100 * record.shrinkage.epsilon).toFixed(0)}%`}`);
   const t = record.diagnostics?.npde.tests;
   if (t) lines.push(`NPDE: mean ${fmt(t.mean, 3)} (p ${fmt(t.meanTest.pValue, 2)}), variance ${fmt(t.variance, 3)} (p ${fmt(t.varianceTest.pValue, 2)}), normality p ${fmt(t.normalityTest.pValue, 2)}, global p ${fmt(t.globalTest.pValue, 2)}`);
-  if (record.robustness) {
-    lines.push('');
-    lines.push(`Robustness (${record.robustness.runs.length} runs): ${record.robustness.verdict}`);
-    for (const q of record.robustness.parameters) lines.push(`  ${q.label.padEnd(28)} range ${fmt(q.range, 3).padStart(10)}  SE ${fmt(q.se, 3).padStart(10)}${q.stable === false ? '  UNSTABLE' : ''}`);
-    const m = record.robustness.minus2LL;
-    if (m.range !== null) lines.push(`  -2LL range ${fmt(m.range, 3)} (Monte Carlo error ${fmt(m.mcError, 2)})`);
-    lines.push(`  rule: ${record.robustness.rule}`);
-  }
-  const warnings = [...record.posthoc.warnings, ...(record.robustness && !record.robustness.stable ? [`robustness: ${record.robustness.verdict}`] : [])];
+  const warnings = record.posthoc.warnings;
   if (warnings.length) {
     lines.push('');
     lines.push('Post-fit warnings:');

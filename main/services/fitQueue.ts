@@ -32,7 +32,7 @@ const JobRecordSchema = z.strictObject({
   /** Every seed of the job (the first is `seed`); absent in queues saved before multi-seed jobs. */
   seeds: z.array(z.number().int()).min(1).max(SEEDS_MAX).optional(),
   settings: SaemSettingsInput.optional(),
-  postFit: z.strictObject({ run: z.boolean().optional(), repeat: z.number().int().min(2).max(20).optional() }).optional(),
+  postFit: z.strictObject({ run: z.boolean().optional() }).optional(),
   state: z.enum(['queued', 'running', 'done', 'failed', 'cancelled']),
   createdAt: z.string(),
   startedAt: z.string().optional(),
@@ -51,7 +51,7 @@ export interface EnqueueRequest {
   /** The seeds of the one job (default: the settings' or model's seed and seed count). */
   seeds?: number[];
   settings?: z.infer<typeof SaemSettingsInput>;
-  postFit?: { run?: boolean; repeat?: number };
+  postFit?: { run?: boolean };
   label?: string;
 }
 
@@ -108,6 +108,8 @@ export class FitQueue {
     const q = new FitQueue(store, options);
     const raw = await store.readQueueFile();
     if (raw !== undefined) {
+      const dropped = dropRepeatedFits(raw);
+      if (dropped) q.notes.push(`${dropped} fit job(s) saved by an older Plateau asked for repeated fits, which are no longer run: each job's seeds are compared instead (the seeds' agreement in its fit)`);
       const r = QueueFileSchema.safeParse(raw);
       if (!r.success) throw new ServiceError('file', `${store.dir}/queue.json is damaged; it was left untouched (move it away to start with an empty queue)`, r.error.issues.slice(0, 10).map((i) => `${i.path.join('.')}: ${i.message}`));
       q.jobs = r.data.jobs;
@@ -341,7 +343,6 @@ export class FitQueue {
         specJson: model.specJson,
         ...(j.settings ? { settings: j.settings as never } : {}),
         postFit: j.postFit?.run !== false,
-        ...(j.postFit?.repeat !== undefined ? { repeat: j.postFit.repeat } : {}),
         worker: this.options.worker,
         jobId: (seed) => `${j.id}:seed-${seed}`,
         takeWorker: () => {
@@ -393,4 +394,22 @@ export class FitQueue {
     this.finish(j, outcome.state, outcome);
     await this.changed().catch(() => undefined);
   }
+}
+
+/**
+ * Queues saved before multi-seed fits replaced repeated fits may hold `postFit.repeat`; it is
+ * removed (and counted, so the user is told) rather than making the whole queue unreadable.
+ */
+function dropRepeatedFits(raw: unknown): number {
+  const jobs = (raw as { jobs?: unknown } | null)?.jobs;
+  if (!Array.isArray(jobs)) return 0;
+  let n = 0;
+  for (const j of jobs) {
+    const post = (j as { postFit?: unknown } | null)?.postFit;
+    if (post && typeof post === 'object' && Object.prototype.hasOwnProperty.call(post, 'repeat')) {
+      delete (post as Record<string, unknown>).repeat;
+      n++;
+    }
+  }
+  return n;
 }

@@ -23,7 +23,6 @@ export interface FitInWorkerOptions {
   settings?: Partial<SaemSettings>;
   /** Run the post-fit steps (default true). */
   postFit?: boolean;
-  repeat?: number;
   signal?: AbortSignal;
   onProgress?: (p: ProgressMessage) => void;
   /** Compiled engine worker (cliServiceRoots().workerEntry from the CLI). */
@@ -43,7 +42,6 @@ export async function fitFilesInWorker(o: FitInWorkerOptions): Promise<Record<st
       ...(o.seed !== undefined ? { seed: o.seed } : {}),
       ...(o.settings ? { settings: o.settings as never } : {}),
       postFit: o.postFit !== false,
-      ...(o.repeat !== undefined ? { repeat: o.repeat } : {}),
     },
     { modulePath: o.workerEntry },
     { ...(o.signal ? { signal: o.signal } : {}), ...(o.onProgress ? { onProgress: o.onProgress } : {}) },
@@ -57,7 +55,6 @@ export interface SeedWorkerOptions {
   settings?: Partial<SaemSettings>;
   /** Run the post-fit steps (default true; without them the record has no -2LL to choose by). */
   postFit?: boolean;
-  repeat?: number;
   /** Where the worker comes from (default: a fresh process per seed, ended afterwards). */
   worker: EngineWorkerOptions;
   takeWorker?: () => EngineWorker;
@@ -88,7 +85,6 @@ export function runSeedInWorker(dataset: Dataset, o: SeedWorkerOptions): RunOneS
           seed,
           ...(o.settings ? { settings: o.settings as never } : {}),
           postFit: o.postFit !== false,
-          ...(o.repeat !== undefined ? { repeat: o.repeat } : {}),
         },
         {
           signal,

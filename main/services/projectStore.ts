@@ -456,10 +456,10 @@ export class ProjectStore {
     await this.writeItem(`fits/${id}/fit.json`, record);
     const likelihood = record.likelihood as { minus2LL?: unknown } | undefined;
     const minus2LL = typeof likelihood?.minus2LL === 'number' && Number.isFinite(likelihood.minus2LL) ? likelihood.minus2LL : null;
-    // The seeds' verdict of a multi-seed fit, else the older repeated-fit verdict.
-    const robustness = (record.seeds ?? record.robustness) as { verdict?: unknown } | undefined;
+    // The seeds' verdict of a multi-seed fit.
+    const agreement = record.seeds as { verdict?: unknown } | undefined;
     const warnings = Array.isArray(record.warnings) ? record.warnings.length : 0;
-    await this.mutate((p) => void p.fits.push({ id, ...meta, createdAt: now(), minus2LL, ...(typeof robustness?.verdict === 'string' ? { verdict: robustness.verdict } : {}), warnings }));
+    await this.mutate((p) => void p.fits.push({ id, ...meta, createdAt: now(), minus2LL, ...(typeof agreement?.verdict === 'string' ? { verdict: agreement.verdict } : {}), warnings }));
     const spec = record.spec as { structure?: unknown } | undefined;
     await this.audit({ action: 'fit.save', id, dataHash: String(record.dataHash ?? ''), model: `${meta.modelId} (${String(spec?.structure ?? '?')})`, seed: meta.seed, detail: meta.name });
     return id;

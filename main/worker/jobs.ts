@@ -63,20 +63,14 @@ async function runFit(job: Extract<JobRequest, { kind: 'fit' }>, ctx: JobContext
     onProgress: (p) => ctx.onProgress(saemProgress(p)),
   });
   if (job.postFit === false) return plain(outcome.record);
-  return plain(await postFit(outcome, job.repeat, undefined, ctx));
+  return plain(await postFit(outcome, undefined, ctx));
 }
 
-async function postFit(outcome: FitOutcome, repeat: number | undefined, seed: number | undefined, ctx: JobContext): Promise<unknown> {
+async function postFit(outcome: FitOutcome, seed: number | undefined, ctx: JobContext): Promise<unknown> {
   let step = 0;
-  const total = 1 + (repeat ?? 0);
   return addPosthoc(outcome, {
     ...(seed !== undefined ? { seed } : {}),
-    ...(repeat !== undefined ? { repeat } : {}),
-    onStatus: (message) => {
-      const m = /^repeated fit (\d+) of (\d+)/.exec(message);
-      if (m) ctx.onProgress({ phase: 'repeat', iteration: Number(m[1]), maxIterations: Number(m[2]), estimates: Object.create(null), message });
-      else ctx.onProgress({ phase: 'post-fit', iteration: ++step, maxIterations: total, estimates: Object.create(null), message });
-    },
+    onStatus: (message) => ctx.onProgress({ phase: 'post-fit', iteration: ++step, maxIterations: 1, estimates: Object.create(null), message }),
   });
 }
 
@@ -134,7 +128,7 @@ async function runJobUnguarded(job: JobRequest, ctx: JobContext): Promise<unknow
       const record = job.record as unknown as FitRecord;
       if (record.format !== 'plateau-fit' || !Array.isArray(record.population) || !Array.isArray(record.individual))
         throw new ServiceError('usage', 'postFit: the record is not a plateau fit record (format "plateau-fit" with population and individual estimates)');
-      return plain(await postFit({ record, model, dataset, spec }, job.repeat, job.seed, ctx));
+      return plain(await postFit({ record, model, dataset, spec }, job.seed, ctx));
     }
     case 'simulate': {
       const dataset = datasetFromWire(job.dataset);

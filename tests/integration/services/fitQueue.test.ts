@@ -156,6 +156,16 @@ describe('fit queue with real workers', () => {
     expect(q2.snapshot().jobs.map((j) => j.state)).toEqual(['cancelled', 'done', 'cancelled']);
   }, 120_000);
 
+  it('opens a queue saved with the removed repeated-fits option, drops it and says so', async () => {
+    const { dir, store, q, datasetId, modelId } = await setup(1);
+    await q.close();
+    await store.writeQueueFile({ format: 'plateau-queue', schemaVersion: 1, jobs: [{ id: 'j1', label: 'old', datasetId, modelId, seed: 7, seeds: [7], postFit: { run: true, repeat: 3 }, state: 'cancelled', createdAt: new Date().toISOString() }] });
+    const q2 = await FitQueue.open(await ProjectStore.open(dir), { concurrency: 1, autoStart: false, worker: { modulePath: engineWorkerPath } });
+    open.push(q2);
+    expect(q2.snapshot().jobs.map((j) => [j.id, j.state])).toEqual([['j1', 'cancelled']]);
+    expect(q2.notes.join(' ')).toMatch(/1 fit job\(s\) .*repeated fits, which are no longer run/);
+  }, 60_000);
+
   it('cancels within 1 s mid-fit and mid-post-fit', async () => {
     const { q, datasetId, modelId } = await setup(2);
     const [midFit] = await q.enqueue({ datasetId, modelId, seeds: [31], settings: LONG, postFit: { run: false } });
@@ -164,9 +174,9 @@ describe('fit queue with real workers', () => {
     await q.cancel(midFit);
     await waitFor(q, (s) => s.jobs.find((j) => j.id === midFit)!.state === 'cancelled');
     const fitCancelMs = performance.now() - t0;
-    // Queued only now, so its post-fit steps (with repeated fits) are surely still running when cancelled.
-    const [midPost] = await q.enqueue({ datasetId, modelId, seeds: [32], settings: SHORT, postFit: { repeat: 3 } });
-    await waitForProgress(q, midPost, (phase) => phase === 'post-fit' || phase === 'repeat');
+    // Queued only now, so its post-fit steps are caught running when cancelled.
+    const [midPost] = await q.enqueue({ datasetId, modelId, seeds: [32], settings: SHORT, postFit: { run: true } });
+    await waitForProgress(q, midPost, (phase) => phase === 'post-fit');
     t0 = performance.now();
     await q.cancel(midPost);
     const snap = await waitFor(q, (s) => s.jobs.find((j) => j.id === midPost)!.state === 'cancelled');

@@ -8,6 +8,7 @@ import { adviseDose, AdviceError } from '../../../engine/dosing/advise.js';
 import { parsePatient, PatientError } from '../../../engine/dosing/patient.js';
 import { loadPopulationModel, populationModelFromSpec, PopulationModelError } from '../../../engine/dosing/population.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { seedAgreement } from '../../../engine/posthoc/seedAgreement.js';
 
 const SPEC = {
   name: 'checks-test model (invented values)',
@@ -86,6 +87,14 @@ describe('a fit unfit to be a prior', () => {
     const missing = { ...FIT, population: POPULATION.map((e) => (e.parameter === 'V' && e.kind === 'typical' ? { ...e, se: null } : e)) };
     const w = advise(loadPopulationModel(missing)).warnings.find((x) => x.code === 'fit-no-se')!;
     expect(w.message).toContain('typical V');
+  });
+
+  it('a fit whose seeds disagreed is flagged with the verdict (the warning main/services/fitSeeds.ts writes)', () => {
+    const run = (seed: number, estimates: number[], minus2LL: number) => ({ seed, estimates, minus2LL, mcError: 0.1, usableAsPrior: true });
+    const agreement = seedAgreement(['CL', 'BSV V1'], [run(1, [4.0, 0.25], 1635.3), run(2, [4.0, 0.036], 1648.8), run(3, [4.0, 0.24], 1635.4)], [0.1, 0.049]);
+    expect(agreement.agree).toBe(false);
+    const a = advise(loadPopulationModel({ ...FIT, warnings: [`seeds: ${agreement.verdict}`] }));
+    expect(a.warnings.find((w) => w.code === 'fit-warning' && w.message.includes(agreement.verdict))).toMatchObject({ severity: 'flag' });
   });
 
   it('a fit whose record says "do not use" blocks', () => {

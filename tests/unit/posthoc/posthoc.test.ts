@@ -1,8 +1,7 @@
 /**
  * Unit checks of the post-fit building blocks: finite differences, the working-scale parameter
  * vector, the information summary (failures reported, never a silent NaN), the conditional
- * sampler on a case with a closed-form posterior, importance-sampling diagnostics and the
- * repeated-fit verdict.
+ * sampler on a case with a closed-form posterior and importance-sampling diagnostics.
  */
 import { describe, expect, it } from 'vitest';
 import { createDataset } from '../../../engine/data/dataset.js';
@@ -19,7 +18,6 @@ import { PosthocError, runPosthoc } from '../../../engine/posthoc/index.js';
 import { conditionalModes } from '../../../engine/posthoc/modes.js';
 import { centralGradient, centralHessian } from '../../../engine/optim/finiteDifferences.js';
 import { fromWorking, parameterLayout, thetaFromPopulation, toWorking } from '../../../engine/posthoc/parameters.js';
-import { summariseRuns } from '../../../engine/posthoc/robustness.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { compileModel } from '../../../engine/stats/model.js';
 
@@ -253,20 +251,5 @@ describe('runPosthoc on a broken estimate', () => {
     const bad = { ...model.initial, omega: Float64Array.from([-1]) };
     expect(() => runPosthoc(model, bad)).toThrow(PosthocError);
     expect(() => runPosthoc(model, bad)).toThrow(/Omega is not positive definite.*refit/);
-  });
-});
-
-describe('repeated fits: verdict', () => {
-  const run = (seed: number, est: number[], ll: number) => ({ seed, estimates: est, minus2LL: ll, mcError: 0.05, initial: {}, warnings: [] });
-  it('stable when the runs agree within one SE and -2LL within the Monte Carlo error', () => {
-    const s = summariseRuns(['CL', 'V'], [run(1, [1, 10], 100), run(2, [1.01, 10.2], 100.1), run(3, [0.99, 9.9], 100.05)], [0.1, 1]);
-    expect(s.stable).toBe(true);
-    expect(s.verdict).toMatch(/^stable/);
-  });
-  it('unstable names the parameters that move and -2LL', () => {
-    const s = summariseRuns(['CL', 'V'], [run(1, [1, 10], 100), run(2, [1.3, 10.2], 103), run(3, [0.99, 9.9], 100.05)], [0.1, 1]);
-    expect(s.stable).toBe(false);
-    expect(s.unstable).toEqual(['CL', '-2LL']);
-    expect(s.verdict).toMatch(/^unstable: CL, -2LL/);
   });
 });

@@ -95,11 +95,10 @@ export class QueueState {
     this.concurrency = s.concurrency;
   }
 
-  /** `repeat`: after the fit, this many fits in all from other seeds and jittered starts, and their agreement verdict. */
-  async enqueue(datasetId: string, modelId: string, seeds: number[], label?: string, repeat?: number): Promise<boolean> {
+  async enqueue(datasetId: string, modelId: string, seeds: number[], label?: string): Promise<boolean> {
     this.error = null;
     try {
-      await request('queue.enqueue', { datasetId, modelId, seeds, ...(label ? { label } : {}), ...(repeat ? { postFit: { repeat } } : {}) });
+      await request('queue.enqueue', { datasetId, modelId, seeds, ...(label ? { label } : {}) });
       return true;
     } catch (e) {
       this.error = messageOf(e);
