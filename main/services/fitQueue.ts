@@ -290,8 +290,26 @@ export class FitQueue {
     return j;
   }
 
-  private async persist(): Promise<void> {
-    await this.store.writeQueueFile({ format: 'plateau-queue', schemaVersion: 1, jobs: this.jobs });
+  /** The last queue.json write started, and the next one while it waits for that to finish. */
+  private queueWrite: Promise<void> = Promise.resolve();
+  private queueWritePending: Promise<void> | undefined;
+
+  /**
+   * Save the queue. Changes made while a write is in flight share one next write, which reads
+   * the jobs when it starts: every caller still resumes only once a file holding its change is
+   * on disk, but a burst of changes costs two writes, not one each.
+   */
+  private persist(): Promise<void> {
+    if (this.queueWritePending) return this.queueWritePending;
+    const next = this.queueWrite
+      .catch(() => undefined)
+      .then(() => {
+        this.queueWritePending = undefined;
+        return this.store.writeQueueFile({ format: 'plateau-queue', schemaVersion: 1, jobs: this.jobs });
+      });
+    this.queueWritePending = next;
+    this.queueWrite = next;
+    return next;
   }
 
   private async changed(): Promise<void> {

@@ -36,6 +36,8 @@ import { ServiceError } from './serviceError.js';
 
 export const PROJECT_SCHEMA_VERSION = 1;
 export const PROJECT_FILE = 'project.json';
+/** Dataset and model files kept parsed in memory (the most recently used). */
+const ITEM_CACHE_MAX = 8;
 
 const IsoTime = z.string().max(40);
 const ItemId = z.string().regex(/^[A-Za-z0-9][A-Za-z0-9_-]{0,79}$/);
@@ -210,6 +212,7 @@ export class ProjectStore {
   readonly dir: string;
   private state: ProjectFile;
   private chain: Promise<unknown> = Promise.resolve();
+  private queueChain: Promise<unknown> = Promise.resolve();
   /** Set when the project was migrated or temp files were cleaned, for the host's log. */
   readonly notes: string[] = [];
 
@@ -284,9 +287,26 @@ export class ProjectStore {
   /** Release the project's lock once the writes in progress are done. */
   async close(): Promise<void> {
     await this.chain;
+    await this.queueChain;
     const file = path.join(this.dir, 'project.lock');
     heldLocks.delete(file);
     await fs.rm(file, { force: true });
+  }
+
+  /**
+   * The parsed JSON of dataset and model files by id, most recently used last: both are written
+   * once under a new id and never changed, so the fit queue need not read and check the same
+   * file again for every job. Each get builds its result from a copy, as a read from disk would.
+   */
+  private readonly itemCache = new Map<string, unknown>();
+
+  private async readItemCached(rel: string, what: string): Promise<unknown> {
+    let value = this.itemCache.get(rel);
+    if (value === undefined) value = await this.readItem(rel, what);
+    this.itemCache.delete(rel);
+    this.itemCache.set(rel, value);
+    while (this.itemCache.size > ITEM_CACHE_MAX) this.itemCache.delete(this.itemCache.keys().next().value as string);
+    return structuredClone(value);
   }
 
   /** Serialise an operation after every earlier one. */
@@ -406,7 +426,7 @@ export class ProjectStore {
 
   async getDataset(id: string): Promise<Dataset> {
     this.need(this.state.datasets, id, 'dataset');
-    return datasetFromWire(await this.readItem(`datasets/${id}/dataset.json`, 'dataset'));
+    return datasetFromWire(await this.readItemCached(`datasets/${id}/dataset.json`, 'dataset'));
   }
 
   datasetEntry(id: string) {
@@ -445,7 +465,7 @@ export class ProjectStore {
 
   async getModel(id: string): Promise<{ modelId: string; name: string; createdAt: string; spec: ModelSpec; specJson: Record<string, unknown> }> {
     const e = this.need(this.state.models, id, 'model');
-    const item = (await this.readItem(`models/${id}.json`, 'model spec')) as { spec?: unknown };
+    const item = (await this.readItemCached(`models/${id}.json`, 'model spec')) as { spec?: unknown };
     return { modelId: id, name: e.name, createdAt: e.createdAt, spec: parseModelSpec(item.spec), specJson: item.spec as Record<string, unknown> };
   }
 
@@ -545,7 +565,14 @@ export class ProjectStore {
     return parseJsonText(text, file);
   }
 
+  /**
+   * Written in its own order, apart from the project index and items: queue.json depends on no
+   * other file, so a job's state need not wait behind a fit being saved. close() waits for both.
+   */
   writeQueueFile(value: unknown): Promise<void> {
-    return this.serial(() => writeFileAtomic(path.join(this.dir, 'queue.json'), `${JSON.stringify(value, null, 1)}\n`));
+    const text = `${JSON.stringify(value, null, 1)}\n`;
+    const next = this.queueChain.then(() => writeFileAtomic(path.join(this.dir, 'queue.json'), text));
+    this.queueChain = next.catch(() => undefined);
+    return next;
   }
 }
