@@ -6,36 +6,13 @@
  */
 import { createDataset } from '../../../engine/data/dataset.js';
 import type { Dataset } from '../../../engine/data/types.js';
-import type { PkParameterName, StructuralModel } from '../../../engine/models/types.js';
+import { linearModel } from './linearModel.js';
+import type { PkParameterName } from '../../../engine/models/types.js';
 import { runSaem } from '../../../engine/saem/saem.js';
 import type { ModelSpec, ParameterSpec } from '../../../engine/spec/modelSpec.js';
 import { compileModel } from '../../../engine/stats/model.js';
 import { absoluteRow, fmt, relativeRow, summarise, tol, throwIfAborted, type CheckKind } from './common.js';
 import type { CheckRow } from '../types.js';
-
-/** y = b0 + b1 (t - centre): linear in its parameters, so the population model is an LMM. */
-function linearInTime(centre: number): StructuralModel {
-  return {
-    id: '1cmt',
-    label: `linear in time, centred at ${centre}`,
-    parameterOrder: ['b0', 'b1'] as unknown as PkParameterName[],
-    parameters: [
-      { name: 'b0' as PkParameterName, unit: '', description: 'intercept', defaultInitial: 0, transforms: ['none'] },
-      { name: 'b1' as PkParameterName, unit: '', description: 'slope', defaultInitial: 0, transforms: ['none'] },
-    ],
-    compartments: 0,
-    equation: 'y = b0 + b1 (t - centre)',
-    sketch: 'linear',
-    analytic: true,
-    prepare(_doses, timesH) {
-      const t = Float64Array.from(timesH as ArrayLike<number>);
-      return (params, out) => {
-        for (let k = 0; k < t.length; k++) out[k] = params[0] + params[1] * (t[k] - centre);
-        return Number.isFinite(params[0]) && Number.isFinite(params[1]);
-      };
-    },
-  };
-}
 
 /** orthodont.csv (subject, age, distance, sex): level times = age, values = distance. */
 function orthodontDataset(csv: string): Dataset {
@@ -85,7 +62,7 @@ export const lmmFit: CheckKind = {
         residual: { model: 'additive', a: 2 },
         estimation,
       } as unknown as ModelSpec;
-      const model = compileModel(modelSpec, dataset, { structuralModel: linearInTime(v.centre) });
+      const model = compileModel(modelSpec, dataset, { structuralModel: linearModel(v.centre) });
       const r = await runSaem(model, { seed, ...(ctx.signal ? { signal: ctx.signal } : {}) });
       const om = r.theta.omega;
       const sd0 = Math.sqrt(om[0]);
