@@ -56,3 +56,50 @@ export function centralHessian(f: Objective, x: Float64Array, out: Float64Array,
     }
   }
 }
+
+/**
+ * Gradient and Hessian of f at x together from one stencil (the centre, x +- h_i e_i, and the four
+ * corners x +- h_i e_i +- h_j e_j for i < j): 1 + 2n + 2n(n - 1) evaluations, the gradient
+ * sharing the diagonal's points. `stepOf(xi)` gives the absolute step of a component. Returns
+ * f(x); derivatives are NaN or infinite where the stencil met a non-finite value (the caller
+ * checks). `scratch` (length n) holds the shifted points; x is not modified.
+ */
+export function centralDerivatives(
+  f: Objective,
+  x: Float64Array,
+  gradient: Float64Array,
+  hessian: Float64Array,
+  scratch: Float64Array,
+  stepOf: (xi: number) => number,
+): number {
+  const n = x.length;
+  const f0 = f(x);
+  if (!Number.isFinite(f0)) return f0;
+  for (let m = 0; m < n; m++) {
+    const h = stepOf(x[m]);
+    scratch.set(x);
+    scratch[m] = x[m] + h;
+    const fp = f(scratch);
+    scratch[m] = x[m] - h;
+    const fm = f(scratch);
+    gradient[m] = (fp - fm) / (2 * h);
+    hessian[m * n + m] = (fp - 2 * f0 + fm) / (h * h);
+  }
+  for (let m = 0; m < n; m++)
+    for (let m2 = m + 1; m2 < n; m2++) {
+      const h1 = stepOf(x[m]);
+      const h2 = stepOf(x[m2]);
+      // Corners (+,+), (+,-), (-,+), (-,-) with weights +1, -1, -1, +1.
+      let sum = 0;
+      for (let corner = 0; corner < 4; corner++) {
+        const s1 = corner < 2 ? 1 : -1;
+        const s2 = corner % 2 === 0 ? 1 : -1;
+        scratch.set(x);
+        scratch[m] += s1 * h1;
+        scratch[m2] += s2 * h2;
+        sum += s1 * s2 * f(scratch);
+      }
+      hessian[m * n + m2] = hessian[m2 * n + m] = sum / (4 * h1 * h2);
+    }
+  return f0;
+}

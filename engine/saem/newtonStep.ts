@@ -4,8 +4,9 @@
  * BSV; combined-error log a and log b) move by theta <- theta + gamma Hbar^-1 grad of the
  * chain-averaged complete-data log-likelihood at the current draws (Robbins-Monro; by Fisher's
  * identity its fixed point solves the observed-data score equation). Gradient and Hessian come
- * from central finite differences of that objective (this step keeps its own; it does not use
- * engine/optim), or in closed form for combined error alone. Hbar is the stochastic
+ * from central finite differences of that objective (engine/optim's centralDerivatives: gradient
+ * and Hessian from one shared stencil, step 1e-3 max(1, |x|)), or in closed form for combined
+ * error alone. Hbar is the stochastic
  * approximation of the Hessian; each move is capped at max(1, |x| / 2) per component.
  *
  * The predictions depend only on the structural components of x, and the finite-difference
@@ -18,6 +19,7 @@
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import { choleskyLower, solveWithCholesky } from '../stats/dense.js';
 import { combinedErrorDerivatives } from '../stats/residual.js';
+import { centralDerivatives } from '../optim/finiteDifferences.js';
 import { numericalComponents, readNumerical, writeNumerical, type NumericalComponent } from './layout.js';
 import type { SimulationState } from './simulation.js';
 
@@ -102,36 +104,11 @@ export function createNewtonStep(model: CompiledModel, theta: PopulationParamete
     return total / nChains;
   }
 
-  /** Gradient and Hessian of the numerical block's objective by central differences. */
+  /** Gradient and Hessian of the numerical block's objective by central differences (engine/optim). */
+  const newtonStepOf = (xi: number): number => 1e-3 * Math.max(1, Math.abs(xi));
   function newtonFiniteDifferences(): boolean {
-    const objectiveAtX = newtonObjective(newtonX);
+    const objectiveAtX = centralDerivatives(newtonObjective, newtonX, newtonGradient, newtonHessian, newtonXShifted, newtonStepOf);
     if (!Number.isFinite(objectiveAtX)) return false;
-    for (let m = 0; m < nNewton; m++) {
-      const h = 1e-3 * Math.max(1, Math.abs(newtonX[m]));
-      newtonXShifted.set(newtonX);
-      newtonXShifted[m] = newtonX[m] + h;
-      const objectivePlus = newtonObjective(newtonXShifted);
-      newtonXShifted[m] = newtonX[m] - h;
-      const objectiveMinus = newtonObjective(newtonXShifted);
-      newtonGradient[m] = (objectivePlus - objectiveMinus) / (2 * h);
-      newtonHessian[m * nNewton + m] = (objectivePlus - 2 * objectiveAtX + objectiveMinus) / (h * h);
-    }
-    for (let m = 0; m < nNewton; m++)
-      for (let m2 = m + 1; m2 < nNewton; m2++) {
-        const h1 = 1e-3 * Math.max(1, Math.abs(newtonX[m]));
-        const h2 = 1e-3 * Math.max(1, Math.abs(newtonX[m2]));
-        let acc = 0;
-        for (let corner = 0; corner < 4; corner++) {
-          const s1 = corner < 2 ? 1 : -1;
-          const s2 = corner % 2 === 0 ? 1 : -1;
-          const w = s1 * s2;
-          newtonXShifted.set(newtonX);
-          newtonXShifted[m] += s1 * h1;
-          newtonXShifted[m2] += s2 * h2;
-          acc += w * newtonObjective(newtonXShifted);
-        }
-        newtonHessian[m * nNewton + m2] = newtonHessian[m2 * nNewton + m] = acc / (4 * h1 * h2);
-      }
     for (let q = 0; q < nNewton * nNewton; q++) if (!Number.isFinite(newtonHessian[q])) return false;
     for (let m = 0; m < nNewton; m++) if (!Number.isFinite(newtonGradient[m])) return false;
     return true;

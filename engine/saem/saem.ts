@@ -28,7 +28,7 @@
  * sufficient statistics and the closed-form M-step, engine/saem/layout.ts the estimate order and
  * engine/saem/schedules.ts the step size (with the phase switch) and the annealing as
  * init / update / final records, and the settle test, engine/saem/newtonStep.ts the stochastic
- * Newton step of the numerical block (with its own finite differences), engine/saem/settleWindow.ts
+ * Newton step of the numerical block (finite differences from engine/optim), engine/saem/settleWindow.ts
  * the window that opens the averaging phase; this file drives the iterations: iterate averaging,
  * individual means, result.
  *
