@@ -44,7 +44,8 @@ import { parseSaemSettings, resolveChains, type SaemSettings } from './settings.
 import { approximateStatistics, closedFormMStep, computeStatistics, createMStepState } from './mStep.js';
 import { createNewtonStep } from './newtonStep.js';
 import { createSettleWindowStore, openFromWindowMeans, storeWindowNewton, storeWindowStatistics } from './settleWindow.js';
-import { createOmegaFactor, createSimulationState, refreshChains as refreshChainsOf, refreshOmegaFactor, simulationStep } from './simulation.js';
+import { createOmegaFactor, refreshOmegaFactor } from './simulation.js';
+import { createSubjectBlocks, type SaemThreadHost } from './threads.js';
 
 export type SaemPhase = 'search' | 'averaging';
 
@@ -84,6 +85,12 @@ export interface SaemOptions {
   yieldToHost?: () => Promise<void>;
   /** Default 50 ms. */
   yieldEveryMs?: number;
+  /**
+   * Runs the per-subject work on more threads (engine/saem/threads.ts); results are the same to
+   * the last bit for any number of threads. Without it, or for a model with its own structural
+   * function, the fit runs on the calling thread.
+   */
+  threads?: SaemThreadHost;
   /**
    * Keep the population parameters at their initial values (no M-step): the kernels then sample
    * p(phi_i | y_i; theta) at that theta (for checks of the sampler and for post-fit draws).
@@ -137,7 +144,13 @@ export interface SaemRun {
   readonly searchEnd: number | null;
   readonly plannedIterations: number;
   readonly current: Float64Array;
+  /** Threads the run uses (1: the calling thread alone). */
+  readonly threads: number;
+  /** Resolves when the run's threads are ready; step() only after it. */
+  readonly ready: Promise<void>;
   finish(): SaemResult;
+  /** Stop the run's threads (idempotent; finish() calls it). */
+  close(): void;
 }
 
 export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): SaemRun {
@@ -175,11 +188,13 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
   const mStepState = createMStepState(model, settings);
   const stats = mStepState.statistics;
 
-  // Chains, kernels and their adaptation (engine/saem/simulation.ts).
-  const sim = createSimulationState(model, settings, nChains, theta, omegaFactor, warnings);
+  // Chains, kernels and their adaptation (engine/saem/simulation.ts), over subject blocks on one
+  // or more threads (engine/saem/threads.ts).
+  const blocks = createSubjectBlocks(model, settings, nChains, theta, omegaFactor, warnings, options.threads);
+  const sim = blocks.sim;
   // Numerical block, moved by the stochastic Newton step (engine/saem/newtonStep.ts): typical
   // values / coefficients of parameters without BSV, combined-error (log a, log b).
-  const newton = createNewtonStep(model, theta, sim);
+  const newton = createNewtonStep(model, theta, sim, blocks.newtonBatch, () => blocks.evaluateNewton(theta));
   const newtonComponents = newton.components;
   const newtonHasStructural = newton.structural;
   const nNewton = newtonComponents.length;
@@ -209,7 +224,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
     refreshChains();
   }
 
-  const refreshChains = (): void => refreshChainsOf(sim, theta, newtonHasStructural);
+  const refreshChains = (): void => blocks.refresh(theta, newtonHasStructural);
 
   const writeEstimates = (out: Float64Array): void => writeEstimatesOf(model, theta, out);
   /** Working scale of each estimate for the settle test: log of positive quantities. */
@@ -259,11 +274,14 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       return (stepSchedule.searchEnd ?? settings.searchMaxIterations) + settings.averagingIterations;
     },
     current,
+    threads: blocks.threads,
+    ready: blocks.ready,
+    close: () => blocks.close(),
     step() {
       if (this.done) return;
       const exploring = stepSchedule.searchEnd === null;
       iteration++;
-      simulationStep(sim, theta, exploring);
+      blocks.simulate(theta, exploring);
       computeStatistics(mStepState, sim);
       if (exploring) storeWindowStatistics(windowStore, stats, iteration);
       const gamma = stepSizeSchedule.update(stepSchedule, iteration);
@@ -305,6 +323,7 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
       }
     },
     finish(): SaemResult {
+      blocks.close();
       const tEnd = now();
       const count = Math.max(1, individualDrawCount / nChains);
       const individualMean = new Float64Array(nSubjects * nParams);
@@ -360,6 +379,15 @@ export function createSaemRun(model: CompiledModel, options: SaemOptions = {}): 
 /** Run SAEM to the end; rejects with SaemCancelledError when the signal aborts. */
 export async function runSaem(model: CompiledModel, options: SaemOptions = {}): Promise<SaemResult> {
   const run = createSaemRun(model, options);
+  try {
+    await run.ready;
+    return await driveRun(run, options);
+  } finally {
+    run.close();
+  }
+}
+
+async function driveRun(run: SaemRun, options: SaemOptions): Promise<SaemResult> {
   const now = options.now ?? Date.now;
   const yieldEveryMs = options.yieldEveryMs ?? 50;
   let lastYield = now();

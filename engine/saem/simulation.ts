@@ -73,11 +73,56 @@ function createAcceptance(nEta: number): KernelAcceptance {
   };
 }
 
+/**
+ * The per-chain arrays every thread of a fit works on (engine/saem/threads.ts): plain arrays for
+ * one thread, views over SharedArrayBuffers when subject blocks run on other threads. Each thread
+ * writes only its own subjects' entries.
+ */
+export interface ChainBuffers {
+  /** chains x nParams */
+  readonly phi: Float64Array;
+  /** chains */
+  readonly logLik: Float64Array;
+  /** chains x nEta */
+  readonly eta: Float64Array;
+  /** subjects x nParams */
+  readonly meanPhi: Float64Array;
+  /** chains-per-subject x nObsTotal, subject-major */
+  readonly predictions: Float64Array;
+  readonly levels: Float64Array;
+}
+
+/** Lengths of the chain buffers, in Float64 elements. */
+export function chainBufferLengths(model: CompiledModel, chains: number): Record<keyof ChainBuffers, number> {
+  const NL = model.nSubjects * chains;
+  return { phi: NL * model.nParams, logLik: NL, eta: NL * model.nEta, meanPhi: model.nSubjects * model.nParams, predictions: chains * model.nObsTotal, levels: chains * model.nObsTotal };
+}
+
+/** Allocate the chain buffers; over SharedArrayBuffers when `shared`. */
+export function allocateChainBuffers(model: CompiledModel, chains: number, shared: boolean): ChainBuffers {
+  const lengths = chainBufferLengths(model, chains);
+  const make = (n: number) => (shared ? new Float64Array(new SharedArrayBuffer(8 * Math.max(1, n)), 0, n) : new Float64Array(n));
+  return { phi: make(lengths.phi), logLik: make(lengths.logLik), eta: make(lengths.eta), meanPhi: make(lengths.meanPhi), predictions: make(lengths.predictions), levels: make(lengths.levels) };
+}
+
+/** Where a simulation state lives: its buffers and the subjects [from, to) this thread steps. */
+export interface SimulationPlacement {
+  buffers: ChainBuffers;
+  from: number;
+  to: number;
+  /** Start the chains (false on a block thread: the coordinating thread started them in the shared buffers). */
+  initialise: boolean;
+}
+
 /** Everything the simulation step keeps between iterations. Chain index = subject * chains + chain. */
 export interface SimulationState {
   readonly model: CompiledModel;
   readonly settings: SaemSettings;
   readonly chains: number;
+  /** The subjects [from, to) whose chains this state steps (their random streams live here). */
+  readonly from: number;
+  readonly to: number;
+  readonly buffers: ChainBuffers;
   readonly omegaFactor: OmegaFactor;
   /** Current draw of phi (transformed scale) per chain, chains x nParams. */
   readonly phiByChain: Float64Array;
@@ -94,6 +139,7 @@ export interface SimulationState {
   /** Scratch phi of a proposal. */
   readonly proposalPhi: Float64Array;
   readonly meanPhiScratch: Float64Array;
+  /** One stream per chain of [from, to) (entries of other subjects are not created). */
   readonly streams: RngStream[];
   /** Chain states of the kernels; position = eta of the chain. */
   readonly chainStates: ChainState[];
@@ -142,19 +188,20 @@ function quadraticFormOmegaInverse(omegaInverse: Float64Array, nEta: number, eta
   return q;
 }
 
-/** Population means of phi for every subject under theta. */
-export function refreshMeans(state: SimulationState, theta: PopulationParameters): void {
+/** Population means of phi under theta for the subjects [from, to) (default: the state's own). */
+export function refreshMeans(state: SimulationState, theta: PopulationParameters, from = state.from, to = state.to): void {
   const { model, meanPhiBySubject, meanPhiScratch } = state;
   const p = model.nParams;
-  for (let i = 0; i < model.nSubjects; i++) {
+  for (let i = from; i < to; i++) {
     model.meanPhi(i, theta, meanPhiScratch);
     meanPhiBySubject.set(meanPhiScratch, i * p);
   }
 }
 
 /**
- * Build the state and start every chain at its subject's population mean; a subject whose start
- * gives an impossible prediction gets a warning in `warnings`.
+ * Build the state and (placement.initialise) start every chain at its subject's population mean;
+ * a subject whose start gives an impossible prediction gets a warning in `warnings`. By default
+ * one thread owns every subject over plain arrays.
  */
 export function createSimulationState(
   model: CompiledModel,
@@ -163,6 +210,7 @@ export function createSimulationState(
   theta: PopulationParameters,
   omegaFactor: OmegaFactor,
   warnings: string[],
+  placement: SimulationPlacement = { buffers: allocateChainBuffers(model, chains, false), from: 0, to: model.nSubjects, initialise: true },
 ): SimulationState {
   const N = model.nSubjects;
   const p = model.nParams;
@@ -173,22 +221,21 @@ export function createSimulationState(
   const etaParam = model.etaParameter;
   const hasEta = Uint8Array.from(model.parameters, (q) => (q.etaIndex >= 0 ? 1 : 0));
 
-  const phiByChain = new Float64Array(NL * p);
-  const logLikByChain = new Float64Array(NL);
-  const meanPhiBySubject = new Float64Array(N * p);
+  const { buffers, from, to } = placement;
+  const phiByChain = buffers.phi;
+  const logLikByChain = buffers.logLik;
+  const meanPhiBySubject = buffers.meanPhi;
   const obsOffset = new Int32Array(N + 1);
   for (let i = 0; i < N; i++) obsOffset[i + 1] = obsOffset[i] + subjects[i].nObs;
-  const predictionBuffer = new Float64Array(L * model.nObsTotal);
-  const levelBuffer = new Float64Array(L * model.nObsTotal);
   const predictionsByChain: Float64Array[] = new Array(NL);
   const levelsByChain: Float64Array[] = new Array(NL);
   for (let i = 0; i < N; i++)
     for (let c = 0; c < L; c++) {
       const s = i * L + c;
       const off = L * obsOffset[i] + c * subjects[i].nObs;
-      predictionsByChain[s] = predictionBuffer.subarray(off, off + subjects[i].nObs);
-      levelsByChain[s] = levelBuffer.subarray(off, off + subjects[i].nObs);
-      levelsByChain[s].set(subjects[i].y);
+      predictionsByChain[s] = buffers.predictions.subarray(off, off + subjects[i].nObs);
+      levelsByChain[s] = buffers.levels.subarray(off, off + subjects[i].nObs);
+      if (placement.initialise) levelsByChain[s].set(subjects[i].y);
     }
   let maxObs = 0;
   for (const s of subjects) maxObs = Math.max(maxObs, s.nObs);
@@ -198,7 +245,7 @@ export function createSimulationState(
 
   const root = createStreams(settings.seed);
   const streams: RngStream[] = new Array(NL);
-  for (let i = 0; i < N; i++) for (let c = 0; c < L; c++) streams[i * L + c] = root.stream('saem', 'subject', i, 'chain', c);
+  for (let i = from; i < to; i++) for (let c = 0; c < L; c++) streams[i * L + c] = root.stream('saem', 'subject', i, 'chain', c);
 
   // Kernel adaptation (scales relative to Omega) towards the target acceptance, one update per
   // search iteration, frozen after search (DESIGN.md §5).
@@ -211,13 +258,16 @@ export function createSimulationState(
 
   // The kernels (engine/mcmc) move eta_i = phi_i - mean_i over the BSV components; the target is
   // p(y_i | phi_i) x N(eta_i; 0, Omega), and an accepted point keeps its predictions.
-  const etaByChain = new Float64Array(NL * nEta);
+  const etaByChain = buffers.eta;
   const chainStates: ChainState[] = new Array(NL);
   for (let s = 0; s < NL; s++) chainStates[s] = { position: etaByChain.subarray(s * nEta, (s + 1) * nEta), logLikelihood: 0, logPrior: 0 };
   const state: SimulationState = {
     model,
     settings,
     chains: L,
+    from,
+    to,
+    buffers,
     omegaFactor,
     phiByChain,
     logLikByChain,
@@ -276,8 +326,9 @@ export function createSimulationState(
   };
   (state as { subjectTarget: SimulationState['subjectTarget'] }).subjectTarget = subjectTarget;
 
-  // Initial chains at the population means.
-  refreshMeans(state, theta);
+  // Initial chains at the population means (every subject's, by the thread that starts them).
+  if (!placement.initialise) return state;
+  refreshMeans(state, theta, 0, N);
   for (let i = 0; i < N; i++)
     for (let c = 0; c < L; c++) {
       const s = i * L + c;
@@ -292,16 +343,15 @@ export function createSimulationState(
   return state;
 }
 
-function updateSubjectCovariances(state: SimulationState, theta: PopulationParameters): void {
+function updateSubjectCovariances(state: SimulationState, theta: PopulationParameters, from: number, to: number): void {
   const { model, phiByChain, subjectWeight, subjectSum, subjectCrossSum, subjectCovariance } = state;
-  const N = model.nSubjects;
   const p = model.nParams;
   const nEta = model.nEta;
   const L = state.chains;
   const etaParam = model.etaParameter;
   const forget = 0.98;
   state.subjectCovarianceUpdates++;
-  for (let i = 0; i < N; i++) {
+  for (let i = from; i < to; i++) {
     subjectWeight[i] = forget * subjectWeight[i] + L;
     for (let q = 0; q < nEta; q++) subjectSum[i * nEta + q] *= forget;
     for (let q = 0; q < nEta * nEta; q++) subjectCrossSum[i * nEta * nEta + q] *= forget;
@@ -315,7 +365,7 @@ function updateSubjectCovariances(state: SimulationState, theta: PopulationParam
     }
   }
   if (state.subjectCovarianceUpdates < 20 || state.subjectCovarianceUpdates % 5 !== 0) return;
-  for (let i = 0; i < N; i++) {
+  for (let i = from; i < to; i++) {
     const w = subjectWeight[i];
     for (let k = 0; k < nEta; k++)
       for (let k2 = 0; k2 <= k; k2++) {
@@ -328,30 +378,53 @@ function updateSubjectCovariances(state: SimulationState, theta: PopulationParam
   }
 }
 
+/** Zero an acceptance record (before an iteration). */
+export function resetAcceptance(acc: KernelAcceptance): void {
+  acc.independentAccepted = acc.independentTries = acc.randomWalkAccepted = acc.randomWalkTries = acc.adaptiveAccepted = acc.adaptiveTries = 0;
+  acc.componentAccepted.fill(0);
+  acc.componentTries.fill(0);
+}
+
+/** Add `part` to `into` (counts: integers, so the sum does not depend on the order of blocks). */
+export function addAcceptance(into: KernelAcceptance, part: KernelAcceptance): void {
+  into.independentAccepted += part.independentAccepted;
+  into.independentTries += part.independentTries;
+  into.randomWalkAccepted += part.randomWalkAccepted;
+  into.randomWalkTries += part.randomWalkTries;
+  into.adaptiveAccepted += part.adaptiveAccepted;
+  into.adaptiveTries += part.adaptiveTries;
+  for (let k = 0; k < into.componentAccepted.length; k++) (into.componentAccepted[k] += part.componentAccepted[k]), (into.componentTries[k] += part.componentTries[k]);
+}
+
 /**
- * One simulation step at theta: for every subject and chain, the kernels (independent proposal
- * from N(mean_i, Omega), full random walk N(phi, kappa Omega), component-wise random walk,
- * subject-shaped random walk), then draws of the censored levels. During search (`exploring`)
- * the kernel scales adapt towards the target acceptance.
+ * One simulation step at theta on one thread: every subject's chains, then the totals and the
+ * kernel adaptation. Threads run `simulateSubjects` on their blocks and the coordinating thread
+ * concludes (engine/saem/threads.ts).
  */
 export function simulationStep(state: SimulationState, theta: PopulationParameters, exploring: boolean): void {
+  resetAcceptance(state.iterationAcceptance);
+  simulateSubjects(state, theta, exploring, state.iterationAcceptance);
+  concludeSimulationStep(state, exploring);
+}
+
+/**
+ * The kernels for the state's subjects [from, to) at theta, counts added to `acc`: for every
+ * chain, independent proposal from N(mean_i, Omega), full random walk N(phi, kappa Omega),
+ * component-wise random walk, subject-shaped random walk; then draws of the censored levels.
+ * During search (`exploring`) the subjects' own covariances learn from the draws.
+ */
+export function simulateSubjects(state: SimulationState, theta: PopulationParameters, exploring: boolean, acc: KernelAcceptance): void {
   const { model, settings, omegaFactor, phiByChain, logLikByChain, meanPhiBySubject, chainStates, subjectTarget } = state;
-  const N = model.nSubjects;
   const p = model.nParams;
   const nEta = model.nEta;
   const L = state.chains;
   const etaParam = model.etaParameter;
   const residualModel = model.residualModel;
-  const acc = state.iterationAcceptance;
-  const total = state.totalAcceptance;
   subjectTarget.theta = theta;
-  acc.independentAccepted = acc.independentTries = acc.randomWalkAccepted = acc.randomWalkTries = acc.adaptiveAccepted = acc.adaptiveTries = 0;
   const sqrtSubjectScale = Math.sqrt(state.subjectScale.scale[0]);
-  acc.componentAccepted.fill(0);
-  acc.componentTries.fill(0);
   const sqrtKappa = Math.sqrt(state.kappa.scale[0]);
   for (let k = 0; k < nEta; k++) state.componentSd[k] = state.componentScale.scale[k] * omegaFactor.sd[k];
-  for (let i = 0; i < N; i++) {
+  for (let i = state.from; i < state.to; i++) {
     const mBase = i * p;
     for (let c = 0; c < L; c++) {
       const s = i * L + c;
@@ -418,14 +491,13 @@ export function simulationStep(state: SimulationState, theta: PopulationParamete
       }
     }
   }
-  if (exploring && nEta > 0 && settings.adaptiveSteps > 0) updateSubjectCovariances(state, theta);
-  total.independentAccepted += acc.independentAccepted;
-  total.independentTries += acc.independentTries;
-  total.randomWalkAccepted += acc.randomWalkAccepted;
-  total.randomWalkTries += acc.randomWalkTries;
-  total.adaptiveAccepted += acc.adaptiveAccepted;
-  total.adaptiveTries += acc.adaptiveTries;
-  for (let k = 0; k < nEta; k++) (total.componentAccepted[k] += acc.componentAccepted[k]), (total.componentTries[k] += acc.componentTries[k]);
+  if (exploring && nEta > 0 && settings.adaptiveSteps > 0) updateSubjectCovariances(state, theta, state.from, state.to);
+}
+
+/** Fold the iteration's acceptance (state.iterationAcceptance, every block's) into the totals; adapt the kernel scales during search. */
+export function concludeSimulationStep(state: SimulationState, exploring: boolean): void {
+  const acc = state.iterationAcceptance;
+  addAcceptance(state.totalAcceptance, acc);
   if (exploring) {
     // kappa <- kappa (1 + delta (acc - target)), likewise the component scales (DESIGN.md §5).
     state.kappa.accepted[0] = acc.randomWalkAccepted;
@@ -449,7 +521,7 @@ export function refreshChains(state: SimulationState, theta: PopulationParameter
   const p = model.nParams;
   const L = state.chains;
   refreshMeans(state, theta);
-  for (let i = 0; i < model.nSubjects; i++)
+  for (let i = state.from; i < state.to; i++)
     for (let c = 0; c < L; c++) {
       const s = i * L + c;
       if (structuralWithoutBsv) {

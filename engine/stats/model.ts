@@ -105,6 +105,8 @@ export interface OmegaFactor {
 export interface CompiledModel {
   spec: ModelSpec;
   dataset: Dataset;
+  /** True when the structural model is the catalogue's (so another thread can compile the same model from spec and dataset). */
+  catalogueStructure: boolean;
   structural: StructuralModel;
   nSubjects: number;
   nParams: number;
@@ -159,6 +161,12 @@ export interface CompileOptions {
    * model honouring the Predictor contract works, e.g. a linear model for reference checks.
    */
   structuralModel?: StructuralModel;
+  /**
+   * Prepare predictions only for the subjects [from, to) (a thread of a fit that steps only
+   * those; engine/saem/threads.ts): the others' predict() refuses. Checks and warnings still
+   * cover every subject.
+   */
+  preparedSubjects?: { from: number; to: number };
 }
 
 const LOG_2PI = Math.log(2 * Math.PI);
@@ -391,7 +399,8 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
       else design[ti] = String(v) === t.level ? 1 : 0;
     });
     let predictor: Predictor = () => false;
-    if (!problems.length) {
+    const prepared = !options.preparedSubjects || (subjects.length >= options.preparedSubjects.from && subjects.length < options.preparedSubjects.to);
+    if (!problems.length && prepared) {
       try {
         predictor = structural.prepare(s.doses, timesH);
       } catch (e) {
@@ -554,6 +563,7 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
   return {
     spec,
     dataset,
+    catalogueStructure: !options.structuralModel,
     structural,
     nSubjects: subjects.length,
     nParams,

@@ -1,0 +1,56 @@
+/**
+ * The Node host of a fit's block threads (engine/saem/threads.ts): each block thread is a
+ * worker_threads Worker running saemBlockThread.js on its init. A thread that fails before it is
+ * ready rejects `ready` (the fit fails with its reason); after that the engine watches the
+ * threads through shared memory. Block threads end with the fit, and with the thread or process
+ * that started them.
+ */
+import * as path from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { Worker, type ResourceLimits } from 'node:worker_threads';
+import type { BlockThreadHandle, BlockThreadInit, SaemThreadHost } from '../../engine/saem/threads.js';
+
+/** Below this much work per iteration (levels x chains) a fit stays on one thread: starting threads would cost more than they save. */
+export const THREADS_MIN_WORK = 1000;
+
+export interface SaemThreadOptions {
+  /** Heap limits of each block thread (the job thread's own, by default none). */
+  resourceLimits?: ResourceLimits;
+}
+
+/** The compiled entry beside this file; from the TypeScript source (tests), the one in dist/. */
+function blockThreadEntry(): string {
+  const here = fileURLToPath(import.meta.url);
+  return here.endsWith('.ts') ? path.resolve(path.dirname(here), '../../dist/main/worker/saemBlockThread.js') : path.join(path.dirname(here), 'saemBlockThread.js');
+}
+const entry = blockThreadEntry();
+
+export function workerThreadHost(threads: number, options: SaemThreadOptions = {}): SaemThreadHost {
+  if (!(Number.isInteger(threads) && threads >= 1)) throw new RangeError(`threads must be an integer >= 1, got ${threads}`);
+  return {
+    threads,
+    start(init: BlockThreadInit): BlockThreadHandle {
+      const worker = new Worker(entry, { workerData: init, ...(options.resourceLimits ? { resourceLimits: options.resourceLimits } : {}) });
+      let settled = false;
+      const ready = new Promise<void>((resolve, reject) => {
+        worker.once('message', (m: unknown) => {
+          settled = true;
+          if (m === 'ready') resolve();
+          else reject(new Error(`a fit thread could not start: ${String((m as { error?: string })?.error ?? m)}`));
+        });
+        worker.once('exit', (code) => {
+          if (!settled) reject(new Error(`a fit thread stopped before it was ready (exit code ${code})`));
+          settled = true;
+        });
+      });
+      // An error after start is seen by the engine (shared-memory watch); never let it crash the host.
+      worker.on('error', () => undefined);
+      return { ready, terminate: () => void worker.terminate() };
+    },
+  };
+}
+
+/** Threads for a fit of `levels` levels with `chains` chains per subject when `available` cores are granted. */
+export function threadsForFit(available: number, levels: number, chains: number): number {
+  return levels * chains >= THREADS_MIN_WORK ? Math.max(1, available) : 1;
+}
