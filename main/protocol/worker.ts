@@ -28,6 +28,8 @@ export const FitJob = z.strictObject({
   spec: JsonObject,
   seed: Seed.optional(),
   settings: SaemSettingsInput.optional(),
+  /** Threads for the estimator (the cores the scheduler gave the job; default 1). */
+  threads: z.number().int().min(1).max(64).optional(),
   /** Run the post-fit steps after the estimator in the same job (default true). */
   postFit: z.boolean().optional(),
 });

@@ -54,6 +54,13 @@ export class CoreSlots {
     });
   }
 
+  /** A free slot now, or null when none is free or anyone is waiting (nobody is passed over). */
+  tryAcquire(): ReleaseSlot | null {
+    if (this.used >= this.capacity || this.waiters.length > 0) return null;
+    this.used++;
+    return this.releaser();
+  }
+
   /** Run `task` while holding a slot. */
   async withSlot<T>(task: () => Promise<T>, signal?: AbortSignal): Promise<T> {
     const release = await this.acquire(signal);

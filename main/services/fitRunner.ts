@@ -73,7 +73,7 @@ export interface SeedWorkerOptions {
  */
 export function runSeedInWorker(dataset: Dataset, o: SeedWorkerOptions): RunOneSeed {
   const wire = JSON.parse(JSON.stringify(dataset)) as never;
-  return async (seed, signal, onProgress) => {
+  return async (seed, signal, onProgress, threads = 1) => {
     const w = o.takeWorker ? o.takeWorker() : EngineWorker.spawn(o.worker);
     let clean = false;
     try {
@@ -83,6 +83,7 @@ export function runSeedInWorker(dataset: Dataset, o: SeedWorkerOptions): RunOneS
           dataset: wire,
           spec: o.specJson,
           seed,
+          ...(threads > 1 ? { threads } : {}),
           ...(o.settings ? { settings: o.settings as never } : {}),
           postFit: o.postFit !== false,
         },

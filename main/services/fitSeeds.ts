@@ -22,7 +22,7 @@ import type { SaemSettings } from '../../engine/saem/settings.js';
 import { parseSaemSettings } from '../../engine/saem/settings.js';
 import type { ModelSpec } from '../../engine/spec/modelSpec.js';
 import type { ProgressMessage } from '../protocol/worker.js';
-import type { CoreSlots } from './coreSlots.js';
+import type { CoreSlots, ReleaseSlot } from './coreSlots.js';
 import { fitDataset } from './fitService.js';
 import { addPosthoc, type FitPosthocOptions, type PosthocFitRecord } from './fitPosthoc.js';
 
@@ -42,7 +42,8 @@ export interface SeedProgress {
   message?: string;
 }
 
-export type RunOneSeed = (seed: number, signal: AbortSignal, onProgress: (p: SeedProgress) => void | Promise<void>) => Promise<PosthocFitRecord>;
+/** One seed's complete fit; `threads` = the cores the scheduler gave it (default 1). */
+export type RunOneSeed = (seed: number, signal: AbortSignal, onProgress: (p: SeedProgress) => void | Promise<void>, threads?: number) => Promise<PosthocFitRecord>;
 
 /** An estimator progress report in the worker's form (finite estimates by name). */
 export function seedProgress(p: SaemProgress): SeedProgress {
@@ -93,8 +94,8 @@ export function seedList(base: number, count: number): number[] {
 
 /** The default runOne: estimation and post-fit steps in this process. */
 export function runSeedInProcess(dataset: Dataset, spec: ModelSpec, options: Pick<FitSeedsOptions, 'settings' | 'posthoc'> = {}): RunOneSeed {
-  return async (seed, signal, onProgress) => {
-    const outcome = await fitDataset(dataset, spec, { seed, onProgress: (p) => onProgress(seedProgress(p)), signal, ...(options.settings ? { settings: options.settings } : {}) });
+  return async (seed, signal, onProgress, threads = 1) => {
+    const outcome = await fitDataset(dataset, spec, { seed, threads, onProgress: (p) => onProgress(seedProgress(p)), signal, ...(options.settings ? { settings: options.settings } : {}) });
     return addPosthoc(outcome, options.posthoc ? { posthoc: options.posthoc } : {});
   };
 }
@@ -116,9 +117,20 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
   const records: PosthocFitRecord[] = new Array(seeds.length);
   let failure: { error: unknown } | undefined;
   let next = 0;
-  const runK = async (k: number) => {
+  const runK = async (k: number, threads = 1) => {
     await options.onStatus?.(`seed ${seeds[k]} (${k + 1} of ${seeds.length})`);
-    records[k] = await runOne(seeds[k], stop.signal, (p) => options.onProgress?.(seeds[k], p));
+    records[k] = await runOne(seeds[k], stop.signal, (p) => options.onProgress?.(seeds[k], p), threads);
+  };
+  // A seed started when no other seed of this fit waits takes the cores nobody else waits for
+  // (the scheduler's free slots) as threads of its own fit.
+  const withCores = async (k: number, slots: CoreSlots) => {
+    const extra: ReleaseSlot[] = [];
+    try {
+      if (next >= seeds.length) for (let r = slots.tryAcquire(); r; r = slots.tryAcquire()) extra.push(r);
+      await runK(k, 1 + extra.length);
+    } finally {
+      for (const r of extra) r();
+    }
   };
   const worker = async () => {
     while (next < seeds.length && !failure) {
@@ -126,7 +138,7 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
       if (outer?.aborted) stop.abort();
       if (stop.signal.aborted) return;
       try {
-        if (options.slots) await options.slots.withSlot(() => runK(k), stop.signal);
+        if (options.slots) await options.slots.withSlot(() => withCores(k, options.slots!), stop.signal);
         else await runK(k);
       } catch (error) {
         if (!failure && !stop.signal.aborted) failure = { error };

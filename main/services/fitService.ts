@@ -7,11 +7,16 @@ import { covariateRanges } from '../../engine/data/dataset.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { buildFitRecord, type FitRecord } from '../../engine/saem/fitRecord.js';
 import { runSaem, type AbortSignalLike, type SaemProgress } from '../../engine/saem/saem.js';
-import type { SaemSettings } from '../../engine/saem/settings.js';
+import { parseSaemSettings, resolveChains, type SaemSettings } from '../../engine/saem/settings.js';
+import { resourceLimits as threadResourceLimits, isMainThread } from 'node:worker_threads';
+import { threadsForFit, workerThreadHost } from '../worker/saemThreads.js';
 import { parseModelSpec, type ModelSpec } from '../../engine/spec/modelSpec.js';
 import { compileModel, type CompiledModel } from '../../engine/stats/model.js';
 import { readJsonFile } from './files.js';
 import { loadDataset } from './datasetLoader.js';
+
+/** In a job thread, its heap limits, given to the fit's block threads too. */
+const workerResourceLimits = isMainThread ? undefined : threadResourceLimits;
 
 export interface FitFromFilesOptions {
   dataPath: string;
@@ -21,6 +26,8 @@ export interface FitFromFilesOptions {
   settings?: Partial<SaemSettings>;
   onProgress?: (p: SaemProgress) => void | Promise<void>;
   signal?: AbortSignalLike;
+  /** Cores granted to the fit: the estimator uses them when the fit is large enough (main/worker/saemThreads.ts). */
+  threads?: number;
 }
 
 export interface FitOutcome {
@@ -44,10 +51,13 @@ export async function fitFromFiles(options: FitFromFilesOptions): Promise<FitOut
 export async function fitDataset(
   dataset: Dataset,
   spec: ModelSpec,
-  options: Pick<FitFromFilesOptions, 'seed' | 'settings' | 'onProgress' | 'signal'> = {},
+  options: Pick<FitFromFilesOptions, 'seed' | 'settings' | 'onProgress' | 'signal' | 'threads'> = {},
 ): Promise<FitOutcome> {
   const model = compileModel(spec, dataset);
+  const chains = resolveChains(parseSaemSettings(spec.estimation, options.settings ?? {}), model.nSubjects);
+  const threads = threadsForFit(options.threads ?? 1, model.nObsTotal, chains);
   const result = await runSaem(model, {
+    ...(threads > 1 ? { threads: workerThreadHost(threads, workerResourceLimits ? { resourceLimits: workerResourceLimits } : {}) } : {}),
     ...(options.seed !== undefined ? { seed: options.seed } : {}),
     ...(options.settings ? { settings: options.settings } : {}),
     ...(options.onProgress ? { onProgress: options.onProgress } : {}),

@@ -60,6 +60,7 @@ async function runFit(job: Extract<JobRequest, { kind: 'fit' }>, ctx: JobContext
   const outcome = await fitDataset(dataset, spec, {
     ...(job.seed !== undefined ? { seed: job.seed } : {}),
     ...(job.settings ? { settings: job.settings as Partial<SaemSettings> } : {}),
+    ...(job.threads !== undefined ? { threads: job.threads } : {}),
     onProgress: (p) => ctx.onProgress(saemProgress(p)),
   });
   if (job.postFit === false) return plain(outcome.record);

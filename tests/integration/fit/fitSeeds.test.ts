@@ -9,6 +9,7 @@ import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { CoreSlots } from '../../../main/services/coreSlots.js';
 import { fitSeeds, runSeedInProcess, seedList, type RunOneSeed } from '../../../main/services/fitSeeds.js';
 
 const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv'), 'utf8'));
@@ -52,5 +53,26 @@ describe('fitSeeds', () => {
     expect(one.seeds.verdict).toMatch(/one seed only/);
     expect(() => seedList(1, 17)).toThrow(/\[1, 16\]/);
     await expect(fitSeeds(dataset, spec, { signal: { aborted: true } })).rejects.toThrow(/cancelled/);
+  }, 120_000);
+  it('the scheduler gives a seed the free cores as threads once no other seed of the fit waits', async () => {
+    const inner = runSeedInProcess(dataset, spec, { posthoc: { diagnostics: false, linearisedSe: false } });
+    const threadsOf = new Map<number, number>();
+    const runOne: RunOneSeed = async (seed, signal, onProgress, threads) => {
+      threadsOf.set(seed, threads ?? 1);
+      return inner(seed, signal, onProgress, threads);
+    };
+    // One seed on 3 slots: all three. Three seeds on 2 slots: the first two one each; the third
+    // starts when a slot frees and takes what is free then (here in-process runs end one after
+    // the other, so 1 or 2).
+    await fitSeeds(dataset, spec, { runOne, settings: { seeds: 1 }, slots: new CoreSlots(3) });
+    expect(threadsOf.get(10)).toBe(3);
+    threadsOf.clear();
+    const slots = new CoreSlots(2);
+    await fitSeeds(dataset, spec, { runOne, slots });
+    const [first, second, third] = [...threadsOf.values()];
+    expect([first, second]).toEqual([1, 1]);
+    expect(third).toBeGreaterThanOrEqual(1);
+    expect(third).toBeLessThanOrEqual(2);
+    expect(slots.inUse).toBe(0);
   }, 120_000);
 });

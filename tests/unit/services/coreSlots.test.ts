@@ -40,4 +40,19 @@ describe('CoreSlots', () => {
     expect(slots.inUse).toBe(0);
     expect(() => new CoreSlots(0)).toThrow(/capacity/);
   });
+
+  it('tryAcquire takes a free slot only when nobody waits', async () => {
+    const slots = new CoreSlots(2);
+    const a = slots.tryAcquire();
+    expect(a).not.toBeNull();
+    const b = await slots.acquire();
+    expect(slots.tryAcquire()).toBeNull(); // none free
+    const waiting = slots.acquire();
+    a!();
+    // The freed slot went to the waiter, so none is free for tryAcquire.
+    expect(slots.tryAcquire()).toBeNull();
+    (await waiting)();
+    b();
+    expect(slots.inUse).toBe(0);
+  });
 });
