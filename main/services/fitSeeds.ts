@@ -11,7 +11,8 @@
  * onProgress, kills the worker when the signal aborts and resolves with the record it returns.
  * `concurrency` bounds how many runOne calls are in flight at once (in-process runs gain nothing
  * from more than 1, as they share one thread). With `slots` (the shared core scheduler,
- * main/services/coreSlots.ts) each run also holds a core slot while it computes, so the seeds of
+ * main/services/coreSlots.ts) the fit takes its cores from the scheduler (one in its turn, then
+ * those free) and splits them over its seeds, as threads when the cores outnumber the seeds, so
  * every fit and the queue's jobs share the machine's cores. The worker runner is
  * `runSeedInWorker` (main/services/fitRunner.ts). When one seed fails, the others are cancelled.
  */
@@ -19,7 +20,8 @@ import type { Dataset } from '../../engine/data/types.js';
 import { seedAgreement, type SeedAgreement, type SeedFitSummary } from '../../engine/posthoc/seedAgreement.js';
 import type { AbortSignalLike, SaemProgress } from '../../engine/saem/saem.js';
 import type { SaemSettings } from '../../engine/saem/settings.js';
-import { parseSaemSettings } from '../../engine/saem/settings.js';
+import { parseSaemSettings, resolveChains } from '../../engine/saem/settings.js';
+import { threadsForFit } from '../worker/saemThreads.js';
 import type { ModelSpec } from '../../engine/spec/modelSpec.js';
 import type { ProgressMessage } from '../protocol/worker.js';
 import type { CoreSlots, ReleaseSlot } from './coreSlots.js';
@@ -100,6 +102,12 @@ export function runSeedInProcess(dataset: Dataset, spec: ModelSpec, options: Pic
   };
 }
 
+function cancelledError(): Error {
+  const e = new Error('the fit was cancelled');
+  e.name = 'AbortError';
+  return e;
+}
+
 const label = (e: PosthocFitRecord['population'][number]): string =>
   e.kind === 'typical' ? e.parameter : e.kind === 'bsv' ? `BSV ${e.parameter}` : e.kind === 'covariate' ? `${e.parameter}~${e.covariate}` : e.kind === 'correlation' ? `correlation ${e.parameter}` : `residual ${e.parameter}`;
 
@@ -108,7 +116,6 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
   const seeds = options.seeds ? [...options.seeds] : seedList(settings.seed, settings.seeds);
   if (seeds.length < SEEDS_MIN || seeds.length > SEEDS_MAX) throw new RangeError(`a fit runs ${SEEDS_MIN} to ${SEEDS_MAX} seeds, got ${seeds.length}`);
   const runOne = options.runOne ?? runSeedInProcess(dataset, spec, options);
-  const concurrency = Math.max(1, Math.min(seeds.length, options.concurrency ?? (options.slots ? seeds.length : 1)));
   // One controller for the runs: the caller's cancel, or the first failure, stops them all.
   const stop = new AbortController();
   const outer = options.signal;
@@ -117,20 +124,42 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
   const records: PosthocFitRecord[] = new Array(seeds.length);
   let failure: { error: unknown } | undefined;
   let next = 0;
-  const runK = async (k: number, threads = 1) => {
-    await options.onStatus?.(`seed ${seeds[k]} (${k + 1} of ${seeds.length})`);
-    records[k] = await runOne(seeds[k], stop.signal, (p) => options.onProgress?.(seeds[k], p), threads);
-  };
-  // A seed started when no other seed of this fit waits takes the cores nobody else waits for
-  // (the scheduler's free slots) as threads of its own fit.
-  const withCores = async (k: number, slots: CoreSlots) => {
-    const extra: ReleaseSlot[] = [];
-    try {
-      if (next >= seeds.length) for (let r = slots.tryAcquire(); r; r = slots.tryAcquire()) extra.push(r);
-      await runK(k, 1 + extra.length);
-    } finally {
-      for (const r of extra) r();
+
+  // The fit's cores (with the scheduler): one slot in its turn, then the slots free now, up to
+  // one per seed, or more when the fit is large enough for estimator threads. Seeds then run up
+  // to two per core at once, so no core idles while the last seeds finish (3 seeds on 2 cores
+  // take 1.5 seeds' time, not 2); with more cores than seeds each seed gets threads. Slots are
+  // given back as soon as the unfinished seeds need fewer.
+  const held: ReleaseSlot[] = [];
+  const slots = options.slots;
+  const threadsOf = new Array<number>(seeds.length).fill(1);
+  let concurrency = Math.max(1, Math.min(seeds.length, options.concurrency ?? 1));
+  try {
+    if (slots) {
+      held.push(await slots.acquire(stop.signal));
+      const levels = dataset.subjects.reduce((n, s) => n + s.observations.length, 0);
+      const wantsThreads = threadsForFit(2, levels, resolveChains(settings, dataset.subjects.length)) > 1;
+      const most = wantsThreads ? Infinity : seeds.length;
+      for (let r = held.length < most ? slots.tryAcquire() : null; r; r = held.length < most ? slots.tryAcquire() : null) held.push(r);
+      const cores = held.length;
+      concurrency = Math.min(seeds.length, 2 * cores);
+      if (seeds.length < cores) for (let k = 0; k < seeds.length; k++) threadsOf[k] = Math.floor(cores / seeds.length) + (k < cores % seeds.length ? 1 : 0);
     }
+  } catch (error) {
+    for (const r of held.splice(0)) r();
+    if (outer && typeof (outer as AbortSignal).removeEventListener === 'function') (outer as AbortSignal).removeEventListener('abort', onOuterAbort);
+    if (stop.signal.aborted) throw cancelledError();
+    throw error;
+  }
+  const finished = new Uint8Array(seeds.length);
+  const giveBackSpare = () => {
+    let needed = 0;
+    for (let k = 0; k < seeds.length; k++) if (!finished[k]) needed += threadsOf[k];
+    while (held.length > Math.max(1, needed)) held.pop()!();
+  };
+  const runK = async (k: number) => {
+    await options.onStatus?.(`seed ${seeds[k]} (${k + 1} of ${seeds.length})`);
+    records[k] = await runOne(seeds[k], stop.signal, (p) => options.onProgress?.(seeds[k], p), threadsOf[k]);
   };
   const worker = async () => {
     while (next < seeds.length && !failure) {
@@ -138,25 +167,24 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
       if (outer?.aborted) stop.abort();
       if (stop.signal.aborted) return;
       try {
-        if (options.slots) await options.slots.withSlot(() => withCores(k, options.slots!), stop.signal);
-        else await runK(k);
+        await runK(k);
       } catch (error) {
         if (!failure && !stop.signal.aborted) failure = { error };
         stop.abort();
+      } finally {
+        finished[k] = 1;
+        if (slots) giveBackSpare();
       }
     }
   };
   try {
     await Promise.all(Array.from({ length: concurrency }, worker));
   } finally {
+    for (const r of held.splice(0)) r();
     if (outer && typeof (outer as AbortSignal).removeEventListener === 'function') (outer as AbortSignal).removeEventListener('abort', onOuterAbort);
   }
   if (failure && !outer?.aborted) throw failure.error;
-  if (outer?.aborted || records.some((r) => r === undefined)) {
-    const e = new Error('the fit was cancelled');
-    e.name = 'AbortError';
-    throw e;
-  }
+  if (outer?.aborted || records.some((r) => r === undefined)) throw cancelledError();
   const summaries: SeedFitSummary[] = records.map((r, k) => ({
     seed: seeds[k],
     estimates: r.population.map((e) => e.estimate),

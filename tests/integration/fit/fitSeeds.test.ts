@@ -54,25 +54,42 @@ describe('fitSeeds', () => {
     expect(() => seedList(1, 17)).toThrow(/\[1, 16\]/);
     await expect(fitSeeds(dataset, spec, { signal: { aborted: true } })).rejects.toThrow(/cancelled/);
   }, 120_000);
-  it('the scheduler gives a seed the free cores as threads once no other seed of the fit waits', async () => {
+  it('with the scheduler, a fit takes the free cores: threads when cores outnumber seeds, all seeds at once when seeds outnumber cores', async () => {
     const inner = runSeedInProcess(dataset, spec, { posthoc: { diagnostics: false, linearisedSe: false } });
     const threadsOf = new Map<number, number>();
+    let inFlight = 0;
+    let maxInFlight = 0;
+    let slotsInUse = 0;
+    let slots = new CoreSlots(3);
     const runOne: RunOneSeed = async (seed, signal, onProgress, threads) => {
       threadsOf.set(seed, threads ?? 1);
-      return inner(seed, signal, onProgress, threads);
+      slotsInUse = Math.max(slotsInUse, slots.inUse);
+      inFlight++;
+      maxInFlight = Math.max(maxInFlight, inFlight);
+      try {
+        await new Promise((r) => setTimeout(r, 5));
+        return await inner(seed, signal, onProgress, threads);
+      } finally {
+        inFlight--;
+      }
     };
-    // One seed on 3 slots: all three. Three seeds on 2 slots: the first two one each; the third
-    // starts when a slot frees and takes what is free then (here in-process runs end one after
-    // the other, so 1 or 2).
-    await fitSeeds(dataset, spec, { runOne, settings: { seeds: 1 }, slots: new CoreSlots(3) });
+    // One seed of a fit large enough for threads (132 levels x 10 chains) on 3 free slots: 3 threads.
+    await fitSeeds(dataset, spec, { runOne, settings: { seeds: 1, chains: 10 }, slots });
     expect(threadsOf.get(10)).toBe(3);
+    expect(slots.inUse).toBe(0);
+    // The same fit with 2 chains is too small for threads: one slot, one thread.
     threadsOf.clear();
-    const slots = new CoreSlots(2);
+    slotsInUse = 0;
+    await fitSeeds(dataset, spec, { runOne, settings: { seeds: 1 }, slots });
+    expect(threadsOf.get(10)).toBe(1);
+    expect(slotsInUse).toBe(1);
+    // Three seeds on 2 slots: one thread each, all three at once (two per core at most).
+    threadsOf.clear();
+    maxInFlight = 0;
+    slots = new CoreSlots(2);
     await fitSeeds(dataset, spec, { runOne, slots });
-    const [first, second, third] = [...threadsOf.values()];
-    expect([first, second]).toEqual([1, 1]);
-    expect(third).toBeGreaterThanOrEqual(1);
-    expect(third).toBeLessThanOrEqual(2);
+    expect([...threadsOf.values()]).toEqual([1, 1, 1]);
+    expect(maxInFlight).toBe(3);
     expect(slots.inUse).toBe(0);
   }, 120_000);
 });
