@@ -61,4 +61,15 @@ describe('one fit on several threads', () => {
     expect(run.threads).toBe(1);
     run.close();
   });
+
+  it('a block thread that cannot start, or that fails in a task, fails the fit with its reason (no hang)', async () => {
+    const model = compileModel(sparseTdmSpec, referenceDataset('tdm-sparse/tdm_sparse.csv'));
+    const settings = { searchMinIterations: 20, searchMaxIterations: 20, averagingIterations: 10, settleWindow: 5, annealingIterations: 5 };
+    const real = workerThreadHost(2);
+    const cannotStart = { threads: 2, start: () => ({ ready: Promise.reject(new Error('no threads here')), terminate: () => undefined }) };
+    await expect(runSaem(model, { seed: 1, settings, threads: cannotStart })).rejects.toThrow(/no threads here/);
+    // A block beyond the last subject: its first task throws inside the thread.
+    const broken = { threads: 2, start: (init: Parameters<typeof real.start>[0]) => real.start({ ...init, to: init.to + 5 }) };
+    await expect(runSaem(model, { seed: 1, settings, threads: broken })).rejects.toThrow(/a fit thread failed: thread 1/);
+  }, 60_000);
 });
