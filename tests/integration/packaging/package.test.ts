@@ -89,6 +89,8 @@ describe('linux dir package with a stub Electron', () => {
       '/dist/main/start.js',
       '/dist/main/webhost/server.js',
       '/dist/main/worker/engineWorker.js',
+      '/dist/main/worker/jobThread.js',
+      '/dist/main/worker/saemBlockThread.js',
       '/dist/main/services/appService.js',
       '/dist/main/protocol/index.js',
       '/dist/engine/version.js',
