@@ -11,8 +11,8 @@
 import { fork } from 'node:child_process';
 import { rmSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { refuseWritesAfter, setTempFileObserver } from '../services/files.js';
-import { runCli } from './run.js';
+// The supervisor only forks and waits: the command's modules are loaded by the process that
+// runs it (runHere), so the supervisor starts its child without loading them first.
 
 const STOP_GRACE_MS = 2000;
 const CHILD_ENV = 'PLATEAU_CLI_CHILD';
@@ -40,6 +40,7 @@ function onParentGone(): void {
 }
 
 async function runHere(child: boolean): Promise<void> {
+  const [{ refuseWritesAfter, setTempFileObserver }, { runCli }] = await Promise.all([import('../services/files.js'), import('./run.js')]);
   const controller = new AbortController();
   refuseWritesAfter(controller.signal);
   let interrupted = false;

@@ -2,6 +2,9 @@
  * The `plateau` command runner, shared by the bin (plateau.ts) and by in-process tests.
  * Commands are discovered at run time from the commands/ folder beside this file (one module
  * per command exporting `command: CliCommand`), so adding a command edits no shared registry.
+ * A command runs after loading only its own module (the file named after it), so `plateau fit`
+ * does not load the spreadsheet, dosing or verification code of the other commands; help, an
+ * unknown name or a module whose command has another name load them all.
  */
 import { promises as fs } from 'node:fs';
 import * as path from 'node:path';
@@ -9,7 +12,6 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 import { DataError } from '../../engine/data/types.js';
 import { SpecError } from '../../engine/spec/modelSpec.js';
 import { CovariateValueError } from '../../engine/spec/individual.js';
-import { DatasetLoadError } from '../services/datasetLoader.js';
 import { ServiceError } from '../services/serviceError.js';
 import { printable } from '../../engine/text/printable.js';
 import { CliError, UsageError, type CliCommand, type CliIo } from './types.js';
@@ -59,32 +61,53 @@ function isCommand(x: unknown): x is CliCommand {
 /** Load every command module; a module that fails to load is kept as an error, not fatal. */
 export async function loadCommands(dir: string = defaultCommandsDir()): Promise<Map<string, LoadedCommand>> {
   const found = new Map<string, LoadedCommand>();
+  // Under the source tree both a .ts and (never) a .js may exist; prefer .js (compiled) once per name.
+  const byName = await commandFiles(dir);
+  if (!byName) return found;
+  for (const [base, file] of byName) {
+    const c = await loadCommandFile(dir, base, file);
+    found.set(c.name, c);
+  }
+  return found;
+}
+
+/** One command module: its command, or why it cannot be used (keyed by the file's base name). */
+async function loadCommandFile(dir: string, base: string, file: string): Promise<LoadedCommand> {
+  try {
+    const mod = (await import(pathToFileURL(path.join(dir, file)).href)) as { command?: unknown };
+    if (!isCommand(mod.command)) return { name: base, loadError: `${file} does not export \`command\` (a CliCommand)` };
+    return { name: mod.command.name, command: mod.command };
+  } catch (e) {
+    return { name: base, loadError: `${file} failed to load: ${(e as Error).message}` };
+  }
+}
+
+/** The module files in `dir`, one per base name (a compiled .js preferred over its .ts source). */
+async function commandFiles(dir: string): Promise<Map<string, string> | undefined> {
   let files: string[];
   try {
     files = (await fs.readdir(dir)).filter(isCommandModule).sort();
   } catch {
-    return found;
+    return undefined;
   }
-  // Under the source tree both a .ts and (never) a .js may exist; prefer .js (compiled) once per name.
   const byName = new Map<string, string>();
   for (const file of files) {
     const base = file.replace(/\.[cm]?[jt]s$/, '');
     const prev = byName.get(base);
     if (!prev || /\.[cm]?js$/.test(file)) byName.set(base, file);
   }
-  for (const [base, file] of byName) {
-    try {
-      const mod = (await import(pathToFileURL(path.join(dir, file)).href)) as { command?: unknown };
-      if (!isCommand(mod.command)) {
-        found.set(base, { name: base, loadError: `${file} does not export \`command\` (a CliCommand)` });
-        continue;
-      }
-      found.set(mod.command.name, { name: mod.command.name, command: mod.command });
-    } catch (e) {
-      found.set(base, { name: base, loadError: `${file} failed to load: ${(e as Error).message}` });
-    }
-  }
-  return found;
+  return byName;
+}
+
+/**
+ * The command `name` after loading only the module named after it; undefined when there is no
+ * such file or its command has another name (the caller then loads every module).
+ */
+async function loadNamedCommand(dir: string, name: string): Promise<LoadedCommand | undefined> {
+  const file = (await commandFiles(dir))?.get(name);
+  if (file === undefined) return undefined;
+  const c = await loadCommandFile(dir, name, file);
+  return c.name === name ? c : undefined;
 }
 
 function helpText(commands: Map<string, LoadedCommand>): string {
@@ -107,7 +130,8 @@ function helpText(commands: Map<string, LoadedCommand>): string {
   ].join('\n');
 }
 
-const EXPECTED_ERROR_NAMES = new Set(['ImportError', 'WorkbookError', 'TemplateError', 'PatientError', 'PopulationModelError', 'PriorError', 'RegimenParseError', 'TargetError', 'AdviceError', 'ModelDataError', 'SaemCancelledError']);
+// DatasetLoadError by name: its module (the dataset loader) is loaded only by commands that read data.
+const EXPECTED_ERROR_NAMES = new Set(['DatasetLoadError', 'ImportError', 'WorkbookError', 'TemplateError', 'PatientError', 'PopulationModelError', 'PriorError', 'RegimenParseError', 'TargetError', 'AdviceError', 'ModelDataError', 'SaemCancelledError']);
 
 function withNewline(text: string): string {
   return text.endsWith('\n') ? text : `${text}\n`;
@@ -140,7 +164,7 @@ export function reportError(error: unknown, io: CliIo, debug: boolean, usage?: s
     return 1;
   }
   // Errors that already say what to do (ours, and the import service's by name) print as they are.
-  if (error instanceof CliError || error instanceof ServiceError || error instanceof DatasetLoadError || error instanceof CovariateValueError || (error instanceof Error && EXPECTED_ERROR_NAMES.has(error.name))) {
+  if (error instanceof CliError || error instanceof ServiceError || error instanceof CovariateValueError || (error instanceof Error && EXPECTED_ERROR_NAMES.has(error.name))) {
     io.stderr(`plateau: ${withNewline(safe(error.message))}`);
     if (debug && error.stack) io.stderr(`${error.stack}\n`);
     return 1;
@@ -159,13 +183,19 @@ export function reportError(error: unknown, io: CliIo, debug: boolean, usage?: s
 /** Run `plateau <argv...>`; resolves to the exit code. Never throws. */
 export async function runCli(argv: readonly string[], io: CliIo, options: RunOptions = {}): Promise<number> {
   const debug = options.debug ?? (typeof process !== 'undefined' && process.env.PLATEAU_DEBUG === '1');
+  const [first, ...rest] = argv;
+  if (first === '--version') {
+    io.stdout('plateau 0.1.0\n');
+    return 0;
+  }
+  const dir = options.commandsDir ?? defaultCommandsDir();
   let commands: Map<string, LoadedCommand>;
   try {
-    commands = await loadCommands(options.commandsDir);
+    const named = first === undefined || first.startsWith('-') ? undefined : await loadNamedCommand(dir, first);
+    commands = named ? new Map([[named.name, named]]) : await loadCommands(dir);
   } catch (e) {
     return reportError(e, io, debug);
   }
-  const [first, ...rest] = argv;
   if (first === undefined || first === 'help' || first === '--help' || first === '-h') {
     const target = first === 'help' ? rest[0] : undefined;
     if (target !== undefined) {
@@ -183,10 +213,6 @@ export async function runCli(argv: readonly string[], io: CliIo, options: RunOpt
     }
     (first === undefined ? io.stderr : io.stdout)(helpText(commands));
     return first === undefined ? 2 : 0;
-  }
-  if (first === '--version') {
-    io.stdout('plateau 0.1.0\n');
-    return 0;
   }
   const c = commands.get(first);
   if (!c) {

@@ -124,8 +124,4 @@ export const FromWorkerSchema = z.union([
 ]);
 export type FromWorker = z.infer<typeof FromWorkerSchema>;
 
-/** Heartbeat period of a worker; main declares it silent after HEARTBEAT_TIMEOUT_MS without one. */
-export const HEARTBEAT_INTERVAL_MS = 500;
-export const HEARTBEAT_TIMEOUT_MS = 10_000;
-/** Progress messages per job at most this often. */
-export const PROGRESS_MIN_INTERVAL_MS = 100;
+export { HEARTBEAT_INTERVAL_MS, HEARTBEAT_TIMEOUT_MS, PROGRESS_MIN_INTERVAL_MS } from './timing.js';

@@ -5,14 +5,11 @@
  * command with it. The dataset and spec are read and checked here first, so errors in them
  * appear before any process starts.
  */
-import { parseModelSpec } from '../../engine/spec/modelSpec.js';
 import type { ProgressMessage } from '../protocol/worker.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { EngineWorker, runEngineJob, type EngineWorkerOptions } from './engineClient.js';
 import type { PosthocFitRecord } from './fitPosthoc.js';
 import type { RunOneSeed } from './fitSeeds.js';
-import { readJsonFile } from './files.js';
-import { readDataset } from './fitService.js';
 import type { SaemSettings } from '../../engine/saem/settings.js';
 
 export interface FitInWorkerOptions {
@@ -31,6 +28,8 @@ export interface FitInWorkerOptions {
 
 /** The fit record (with its post-fit additions unless postFit is false), as fit.json holds it. */
 export async function fitFilesInWorker(o: FitInWorkerOptions): Promise<Record<string, unknown>> {
+  // Loaded here, not with this module: the seed runner below needs none of the dataset reader.
+  const [{ readDataset }, { readJsonFile }, { parseModelSpec }] = await Promise.all([import('./fitService.js'), import('./files.js'), import('../../engine/spec/modelSpec.js')]);
   const dataset = await readDataset(o.dataPath, o.mappingPath);
   const specJson = (await readJsonFile(o.modelPath)) as Record<string, unknown>;
   parseModelSpec(specJson);
@@ -104,4 +103,41 @@ export function runSeedInWorker(dataset: Dataset, o: SeedWorkerOptions): RunOneS
       else w.kill();
     }
   };
+}
+
+/**
+ * The engine worker processes of one fit's seeds, reused (runSeedInWorker's takeWorker and
+ * giveBack): a worker whose seed ended cleanly runs the next seed, with its job thread, loaded
+ * modules and compiled code kept, so when there are fewer cores than seeds the later seeds start
+ * no process. A worker whose seed failed or was cancelled is ended by the runner, never reused.
+ * `close` ends them all.
+ */
+export class SeedWorkerPool {
+  private readonly idle: EngineWorker[] = [];
+  private readonly made = new Set<EngineWorker>();
+  private closed = false;
+
+  constructor(private readonly options: EngineWorkerOptions) {}
+
+  readonly take = (): EngineWorker => {
+    while (this.idle.length) {
+      const w = this.idle.pop()!;
+      if (w.alive) return w;
+    }
+    const w = EngineWorker.spawn(this.options);
+    this.made.add(w);
+    w.onExit(() => this.made.delete(w));
+    return w;
+  };
+
+  readonly giveBack = (w: EngineWorker): void => {
+    if (w.alive && !this.closed) this.idle.push(w);
+    else w.kill();
+  };
+
+  close(): void {
+    this.closed = true;
+    this.idle.length = 0;
+    for (const w of [...this.made]) w.kill();
+  }
 }

@@ -27,10 +27,9 @@ import type { ProgressMessage } from '../protocol/worker.js';
 import type { CoreSlots, ReleaseSlot } from './coreSlots.js';
 import { fitDataset } from './fitService.js';
 import { addPosthoc, type FitPosthocOptions, type PosthocFitRecord } from './fitPosthoc.js';
+import { SEEDS_MAX, SEEDS_MIN } from './seedBounds.js';
 
-/** Seeds per fit: bounds of the `seeds` setting and of --seeds. */
-export const SEEDS_MIN = 1;
-export const SEEDS_MAX = 16;
+export { SEEDS_MAX, SEEDS_MIN } from './seedBounds.js';
 
 /**
  * Progress of one seed, in the form the worker sends (main/protocol/worker.ts ProgressMessage

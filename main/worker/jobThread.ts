@@ -8,7 +8,8 @@
  * outcome is a result message.
  */
 import { parentPort } from 'node:worker_threads';
-import { PROGRESS_MIN_INTERVAL_MS, type FromWorker, type JobRequest } from '../protocol/worker.js';
+import { PROGRESS_MIN_INTERVAL_MS } from '../protocol/timing.js';
+import type { FromWorker, JobRequest } from '../protocol/worker.js';
 import { toErrorValue } from '../services/serviceError.js';
 import { runJob, type JobProgress } from './jobs.js';
 

@@ -4,29 +4,25 @@
  * Every input arrived over a process line, so each is rebuilt through its engine parser
  * (createDataset, parseModelSpec, parsePatient, parseTarget) before use. Values returned are
  * plain JSON data. Errors are thrown; the caller turns them into ErrorValues.
+ *
+ * The fit's modules are imported with this module, so a job thread started ahead has them
+ * loaded before its first fit; the modules of the other jobs (spreadsheet reading, simulation,
+ * dose advice, verification) are loaded by their first job, so a worker that only fits never
+ * loads them.
  */
-import { adviseDose } from '../../engine/dosing/advise.js';
-import { parsePatient } from '../../engine/dosing/patient.js';
-import { loadPopulationModel } from '../../engine/dosing/population.js';
-import { parseRegimen } from '../../engine/dosing/regimens.js';
-import { parseTarget } from '../../engine/dosing/targets.js';
 import type { FitRecord } from '../../engine/saem/fitRecord.js';
 import type { SaemProgress } from '../../engine/saem/saem.js';
 import type { SaemSettings } from '../../engine/saem/settings.js';
 import { parseModelSpec } from '../../engine/spec/modelSpec.js';
 import { compileModel } from '../../engine/stats/model.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
-import { simulateDataset } from '../cli/simulation.js';
 import type { JobRequest, ProgressPhase } from '../protocol/worker.js';
 import { addPosthoc } from '../services/fitPosthoc.js';
 import { fitDataset, type FitOutcome } from '../services/fitService.js';
 import { debugDetail, ServiceError, toErrorValue } from '../services/serviceError.js';
 import { datasetFromWire } from '../services/datasetWire.js';
-import { handleParseMessage } from './parseWorker.js';
-import { inspectZipContainer } from './limits.js';
-import { readWorkbook } from '../../engine/import/workbook.js';
 import { printable } from '../../engine/text/printable.js';
-import { renderReportHtml, runVerification, type CheckStatus } from '../verify/index.js';
+import type { CheckStatus } from '../verify/index.js';
 
 export interface JobProgress {
   phase: ProgressPhase;
@@ -83,7 +79,8 @@ export const PREVIEW_ROWS = 50;
  * escaped (engine/text/printable), for the import view's grid. Empty when the file cannot be
  * read this way (the analysis already said why).
  */
-function previewRows(bytes: Uint8Array): { sheet: string; rows: string[][] }[] {
+async function previewRows(bytes: Uint8Array): Promise<{ sheet: string; rows: string[][] }[]> {
+  const [{ inspectZipContainer }, { readWorkbook }] = await Promise.all([import('./limits.js'), import('../../engine/import/workbook.js')]);
   try {
     let zipEntries: ((p: string) => Uint8Array | undefined) | undefined;
     if (bytes.length >= 4 && bytes[0] === 0x50 && bytes[1] === 0x4b) {
@@ -116,9 +113,10 @@ async function runJobUnguarded(job: JobRequest, ctx: JobContext): Promise<unknow
   switch (job.kind) {
     case 'parse': {
       ctx.onProgress({ phase: 'parse', iteration: 0, maxIterations: 1, estimates: Object.create(null), message: `reading ${job.fileName}` });
+      const { handleParseMessage } = await import('./parseWorker.js');
       const r = handleParseMessage({ type: 'parse', id: ctx.jobId, fileName: job.fileName, bytes: job.bytes, ...(job.mapping !== undefined ? { mapping: job.mapping } : {}), ...(job.options ? { options: job.options } : {}), ...(job.maxRows ? { maxRows: job.maxRows } : {}) });
       if (r.type === 'error') throw new ServiceError(r.kind === 'template' ? 'spec' : r.kind === 'request' ? 'usage' : 'file', r.message, r.problems ?? []);
-      return { ...plain(r.analysis), previewRows: previewRows(job.bytes) };
+      return { ...plain(r.analysis), previewRows: await previewRows(job.bytes) };
     }
     case 'fit':
       return runFit(job, ctx);
@@ -135,6 +133,7 @@ async function runJobUnguarded(job: JobRequest, ctx: JobContext): Promise<unknow
       const dataset = datasetFromWire(job.dataset);
       const spec = parseModelSpec(job.spec);
       ctx.onProgress({ phase: 'simulate', iteration: 0, maxIterations: 1, estimates: Object.create(null) });
+      const { simulateDataset } = await import('../cli/simulation.js');
       const r = simulateDataset(spec, dataset, { ...(job.variability ? { variability: true } : {}), ...(job.seed !== undefined ? { seed: job.seed } : {}) });
       return {
         model: r.model.id,
@@ -149,6 +148,13 @@ async function runJobUnguarded(job: JobRequest, ctx: JobContext): Promise<unknow
     }
     case 'advise': {
       ctx.onProgress({ phase: 'advise', iteration: 0, maxIterations: 1, estimates: Object.create(null) });
+      const [{ adviseDose }, { parsePatient }, { loadPopulationModel }, { parseRegimen }, { parseTarget }] = await Promise.all([
+        import('../../engine/dosing/advise.js'),
+        import('../../engine/dosing/patient.js'),
+        import('../../engine/dosing/population.js'),
+        import('../../engine/dosing/regimens.js'),
+        import('../../engine/dosing/targets.js'),
+      ]);
       const population = loadPopulationModel(job.model);
       const patient = parsePatient(job.patient);
       if (job.nextDoseH !== undefined) patient.nextDoseH = job.nextDoseH;
@@ -172,6 +178,7 @@ async function runJobUnguarded(job: JobRequest, ctx: JobContext): Promise<unknow
       return plain(advice);
     }
     case 'verify': {
+      const { renderReportHtml, runVerification } = await import('../verify/index.js');
       const report = await runVerification({
         quick: job.quick,
         validationDir: job.validationDir,

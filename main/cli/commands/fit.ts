@@ -1,18 +1,16 @@
-/** `plateau fit`: population fit by SAEM from the command line. */
-import { formatFitSummary } from '../../../engine/saem/fitRecord.js';
-import { ModelDataError } from '../../../engine/stats/model.js';
-import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
-import { compileModel } from '../../../engine/stats/model.js';
+/**
+ * `plateau fit`: population fit by SAEM from the command line. The modules of the fit itself are
+ * loaded after the first engine worker process has been started (workersAhead.ts), so the
+ * worker's start overlaps their loading and the reading of the inputs.
+ */
 import { CoreSlots, machineCores } from '../../services/coreSlots.js';
-import { readDataset } from '../../services/fitService.js';
-import { formatPosthocSummary } from '../../services/fitPosthoc.js';
-import { runSeedInWorker } from '../../services/fitRunner.js';
-import { fitSeeds, formatSeeds, SEEDS_MAX, SEEDS_MIN, type SeedProgress } from '../../services/fitSeeds.js';
-import { checkOutputPath, readJsonFile } from '../../services/files.js';
+import { SEEDS_MAX, SEEDS_MIN } from '../../services/seedBounds.js';
+import { checkOutputPath, readJsonFile, resolvePath, writeFileAtomic } from '../../services/files.js';
+import type { SeedProgress } from '../../services/fitSeeds.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
-import { resolvePath, writeFileAtomic } from '../../services/files.js';
 import { cliServiceRoots } from '../run.js';
 import { CliError, type CliCommand } from '../types.js';
+import { WorkersAhead } from '../workersAhead.js';
 
 const usage = `usage: plateau fit --data <canonical.csv|spreadsheet> --model <spec.json> [--mapping <template.json>]
                   [--seed N] [--seeds K] [--out fit.json] [--progress]
@@ -65,20 +63,46 @@ export const command: CliCommand = {
     const mapping = stringFlag(args, 'mapping');
     const out = stringFlag(args, 'out');
     const outFile = out !== undefined ? resolvePath(io.cwd, out) : undefined;
-    let record;
+    const cores = machineCores();
+    // Checked before any worker starts: a fit of minutes must not end in "cannot write".
+    if (outFile !== undefined) await checkOutputPath(outFile);
+    const workerEntry = cliServiceRoots().workerEntry;
+    const ahead = new WorkersAhead({ modulePath: workerEntry, args: [] });
+    ahead.start(1);
+    let modules;
     try {
-      // Checked before any worker starts: a fit of minutes must not end in "cannot write".
-      if (outFile !== undefined) await checkOutputPath(outFile);
+      modules = await Promise.all([
+        import('../../../engine/saem/fitRecord.js'),
+        import('../../../engine/stats/model.js'),
+        import('../../../engine/spec/modelSpec.js'),
+        import('../../../engine/saem/settings.js'),
+        import('../../services/fitService.js'),
+        import('../../services/fitPosthoc.js'),
+        import('../../services/fitRunner.js'),
+        import('../../services/fitSeeds.js'),
+      ]);
+    } catch (e) {
+      ahead.close();
+      throw e;
+    }
+    const [{ formatFitSummary }, { compileModel, ModelDataError }, { parseModelSpec }, { parseSaemSettings }, { readDataset }, { formatPosthocSummary }, { runSeedInWorker, SeedWorkerPool }, { fitSeeds, formatSeeds }] = modules;
+    let record;
+    let pool: { close(): void } | undefined;
+    try {
       const dataset = await readDataset(resolvePath(io.cwd, stringFlag(args, 'data')!), mapping !== undefined ? resolvePath(io.cwd, mapping) : undefined);
       const specJson = (await readJsonFile(resolvePath(io.cwd, stringFlag(args, 'model')!))) as Record<string, unknown>;
       const spec = parseModelSpec(specJson);
-      compileModel(spec, dataset); // the model must match the data before any process starts
+      compileModel(spec, dataset); // the model must match the data before any seed is sent
       const settings = { ...(seed !== undefined ? { seed } : {}), ...(seeds !== undefined ? { seeds } : {}) };
+      // A worker for each seed that can run at once; a worker whose seed is done runs the next.
+      ahead.start(Math.min(cores, parseSaemSettings(spec.estimation, settings).seeds));
+      const workers = new SeedWorkerPool({ modulePath: workerEntry, spawn: ahead.spawner });
+      pool = workers;
       const lastPrinted = new Map<number, { atMs: number; phase: string }>();
       record = await fitSeeds(dataset, spec, {
         settings,
-        runOne: runSeedInWorker(dataset, { specJson, settings, worker: { modulePath: cliServiceRoots().workerEntry } }),
-        slots: new CoreSlots(machineCores()),
+        runOne: runSeedInWorker(dataset, { specJson, settings, worker: { modulePath: workerEntry }, takeWorker: workers.take, giveBack: workers.giveBack }),
+        slots: new CoreSlots(cores),
         ...(signal ? { signal } : {}),
         ...(progress
           ? {
@@ -98,6 +122,10 @@ export const command: CliCommand = {
       if (e instanceof ModelDataError) throw new CliError(`${e.message}\nFix the model spec or the data and run the command again.`);
       if (e instanceof Error && e.name === 'AbortError') throw new CliError(e.message);
       throw e;
+    } finally {
+      // Every worker process ends with the fit.
+      pool?.close();
+      ahead.close();
     }
     io.stdout(`${formatFitSummary(record, formatSeeds(record.seeds))}\n`);
     io.stdout(`${formatPosthocSummary(record)}\n`);

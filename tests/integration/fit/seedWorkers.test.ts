@@ -10,7 +10,7 @@ import { beforeAll, describe, expect, it } from 'vitest';
 import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { CoreSlots } from '../../../main/services/coreSlots.js';
-import { runSeedInWorker } from '../../../main/services/fitRunner.js';
+import { runSeedInWorker, SeedWorkerPool } from '../../../main/services/fitRunner.js';
 import { fitSeeds, runSeedInProcess, type RunOneSeed } from '../../../main/services/fitSeeds.js';
 import { engineWorkerPath, ensureBuilt } from '../services/build.js';
 
@@ -47,6 +47,28 @@ describe('seeds in worker processes', () => {
     expect(slots.inUse).toBe(0);
     expect(phases.has('search')).toBe(true);
     expect(comparable(inWorkers)).toEqual(comparable(inProcess));
+  }, 180_000);
+
+  it('one reused worker running the seeds one after another gives the same record (the command line with fewer cores than seeds)', async () => {
+    const pool = new SeedWorkerPool({ modulePath: engineWorkerPath });
+    const pids = new Set<number | undefined>();
+    try {
+      const runOne = runSeedInWorker(dataset, {
+        specJson,
+        worker: { modulePath: engineWorkerPath },
+        takeWorker: () => {
+          const w = pool.take();
+          void w.ready.then(() => pids.add(w.pid));
+          return w;
+        },
+        giveBack: pool.giveBack,
+      });
+      const reused = await fitSeeds(dataset, spec, { runOne, slots: new CoreSlots(1) });
+      expect(pids.size).toBe(1);
+      expect(comparable(reused)).toEqual(comparable(await fitSeeds(dataset, spec)));
+    } finally {
+      pool.close();
+    }
   }, 180_000);
 
   it('a cancel stops every seed and rejects as cancelled', async () => {

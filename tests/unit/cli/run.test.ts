@@ -105,6 +105,26 @@ describe('runCli', () => {
   });
 });
 
+describe('runCli loads only the command asked for', () => {
+  it('runs a command without loading the other modules; help and a command in a file of another name load them all', async () => {
+    const dir = mkdtempSync(path.join(tmpdir(), 'plateau-cmds-lazy-'));
+    writeFileSync(path.join(dir, 'echo.mjs'), `export const command = { name: 'echo', summary: 'prints', usage: 'usage: plateau echo', async run(argv, io) { io.stdout(argv.join(' ') + '\\n'); return 0; } };`);
+    writeFileSync(path.join(dir, 'marker.mjs'), `globalThis.__plateauMarkerLoads = (globalThis.__plateauMarkerLoads ?? 0) + 1;\nexport const command = { name: 'marker', summary: 'counts its loads', usage: 'usage: plateau marker', async run() { return 0; } };`);
+    writeFileSync(path.join(dir, 'aliased.mjs'), `export const command = { name: 'renamed', summary: 'a command in a file of another name', usage: 'usage: plateau renamed', async run(argv, io) { io.stdout('renamed ran\\n'); return 0; } };`);
+    const g = globalThis as { __plateauMarkerLoads?: number };
+    const io = captureIo();
+    expect(await runCli(['echo', 'x'], io, { commandsDir: dir })).toBe(0);
+    expect(io.out).toBe('x\n');
+    expect(g.__plateauMarkerLoads).toBeUndefined();
+    expect(await runCli(['renamed'], io, { commandsDir: dir })).toBe(0);
+    expect(io.out).toContain('renamed ran');
+    expect(g.__plateauMarkerLoads).toBe(1);
+    const help = captureIo();
+    expect(await runCli(['help'], help, { commandsDir: dir })).toBe(0);
+    expect(help.out).toMatch(/echo[\s\S]*marker[\s\S]*renamed/);
+  });
+});
+
 describe('cli io helpers', () => {
   it('JSON syntax errors name the file, line and column', () => {
     expect(() => parseJsonText('{\n  "a": 1,\n  "b": }\n', 'spec.json')).toThrow(/spec\.json is not valid JSON at line 3, column 8/);
