@@ -125,10 +125,10 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
   let next = 0;
 
   // The fit's cores (with the scheduler): one slot in its turn, then the slots free now, up to
-  // one per seed, or more when the fit is large enough for estimator threads. Seeds then run up
-  // to two per core at once, so no core idles while the last seeds finish (3 seeds on 2 cores
-  // take 1.5 seeds' time, not 2); with more cores than seeds each seed gets threads. Slots are
-  // given back as soon as the unfinished seeds need fewer.
+  // one per seed, or more when the fit is large enough for estimator threads. When the seeds do
+  // not fill the cores evenly, up to two per core run at once, so no core idles while the last
+  // seeds finish (3 seeds on 2 cores take 1.5 seeds' time, not 2); with more cores than seeds each
+  // seed gets threads. Slots are given back as soon as the unfinished seeds need fewer.
   const held: ReleaseSlot[] = [];
   const slots = options.slots;
   const threadsOf = new Array<number>(seeds.length).fill(1);
@@ -141,7 +141,9 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
       const most = wantsThreads ? Infinity : seeds.length;
       for (let r = held.length < most ? slots.tryAcquire() : null; r; r = held.length < most ? slots.tryAcquire() : null) held.push(r);
       const cores = held.length;
-      concurrency = Math.min(seeds.length, 2 * cores);
+      // All seeds at once only when that shortens the run (3 seeds on 2 cores); when the seeds
+      // fill the cores evenly they run a core's worth at a time (a worker can then be reused).
+      concurrency = cores >= seeds.length ? seeds.length : seeds.length % cores === 0 ? cores : Math.min(seeds.length, 2 * cores);
       if (seeds.length < cores) for (let k = 0; k < seeds.length; k++) threadsOf[k] = Math.floor(cores / seeds.length) + (k < cores % seeds.length ? 1 : 0);
     }
   } catch (error) {
