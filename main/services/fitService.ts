@@ -13,7 +13,6 @@ import { threadsForFit, workerThreadHost } from '../worker/saemThreads.js';
 import { parseModelSpec, type ModelSpec } from '../../engine/spec/modelSpec.js';
 import { compileModel, type CompiledModel } from '../../engine/stats/model.js';
 import { readJsonFile } from './files.js';
-import { loadDataset } from './datasetLoader.js';
 
 /** In a job thread, its heap limits, given to the fit's block threads too. */
 const workerResourceLimits = isMainThread ? undefined : threadResourceLimits;
@@ -39,6 +38,9 @@ export interface FitOutcome {
 
 /** Read a dataset: canonical CSV, or a spreadsheet export with its mapping template (the shared loader). */
 export async function readDataset(dataPath: string, mappingPath?: string): Promise<Dataset> {
+  // Loaded here, not with this module: a fit job in a worker gets its dataset as data and
+  // would otherwise load the spreadsheet reader for nothing.
+  const { loadDataset } = await import('./datasetLoader.js');
   return loadDataset(dataPath, mappingPath !== undefined ? { mapping: mappingPath } : {});
 }
 
