@@ -25,7 +25,7 @@ import { normalQuantile } from '../rng/index.js';
 import { residualSd } from '../stats/residual.js';
 import type { SubjectDensity } from './density.js';
 import { quantileSorted, studentTTwoSided } from './distributions.js';
-import { list, type ModeResult } from './modes.js';
+import { f64, i32, list, u8, type ModeResult } from './modes.js';
 import { npdeTests, type NpdeTests } from './normality.js';
 
 export interface DiagnosticsOptions {
@@ -104,33 +104,69 @@ const num = (x: number): number | null => (Number.isFinite(x) ? x : null);
 
 export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, options: Partial<DiagnosticsOptions> = {}): DiagnosticsResult {
   const o = { ...DEFAULT_DIAGNOSTICS, ...options };
-  const model = density.model;
-  const theta = density.theta;
-  const rm = model.residualModel;
+  const K = o.replicates ?? defaultReplicates(density.model.nObsTotal);
+  const sim = allocateSimulation(density.model, K, false);
+  simulationKernel(density, modes, sim, o.seed).run(0, density.model.nSubjects);
+  return concludeDiagnostics(density, modes, sim, o);
+}
+
+/** Per-level and per-subject outputs of the simulations and NPDE (SharedArrayBuffers when `shared`, for engine/posthoc/threads.ts). */
+export interface SimulationParts {
+  replicates: number;
+  /** Start of each subject's levels, N + 1. */
+  offset: Int32Array;
+  pred: Float64Array;
+  ipred: Float64Array;
+  iwres: Float64Array;
+  npde: Float64Array;
+  imputed: Float64Array;
+  /** Simulations: obs-major per subject, sims[offset*K + k*n + o]. */
+  sims: Float64Array;
+  /** Per subject: simulated profiles without a valid prediction after 10 draws. */
+  failed: Int32Array;
+  /** Per subject: 1 when the simulated covariance was singular. */
+  singular: Uint8Array;
+}
+
+export function allocateSimulation(model: SubjectDensity['model'], K: number, shared: boolean): SimulationParts {
   const N = model.nSubjects;
-  const d = density.nEta;
-  const p = model.nParams;
-  const K = o.replicates ?? defaultReplicates(model.nObsTotal);
-  const warnings: string[] = [];
   const nObs = model.nObsTotal;
   const offset = new Int32Array(N + 1);
   for (let i = 0; i < N; i++) offset[i + 1] = offset[i] + model.subjects[i].nObs;
-  const pred = new Float64Array(nObs);
-  const ipred = new Float64Array(nObs);
-  const iwres = new Float64Array(nObs).fill(NaN);
-  const npde = new Float64Array(nObs).fill(NaN);
-  const imputed = new Float64Array(nObs).fill(NaN);
-  // Simulations: obs-major per subject, sims[offset*K + k*n + o].
-  const sims = new Float64Array(nObs * K);
+  return {
+    replicates: K,
+    offset,
+    pred: f64(nObs, shared),
+    ipred: f64(nObs, shared),
+    iwres: f64(nObs, shared).fill(NaN),
+    npde: f64(nObs, shared).fill(NaN),
+    imputed: f64(nObs, shared).fill(NaN),
+    sims: f64(nObs * K, shared),
+    failed: i32(N, shared),
+    singular: u8(N, shared),
+  };
+}
+
+/**
+ * PRED, IPRED, IWRES, the simulated replicates and the NPDE of subjects [from, to) into `parts`:
+ * each subject draws from its own stream ('posthoc', 'simulate', i).
+ */
+export function simulationKernel(density: SubjectDensity, modes: ModeResult, parts: SimulationParts, seed: number): { run(from: number, to: number): void } {
+  const model = density.model;
+  const theta = density.theta;
+  const rm = model.residualModel;
+  const d = density.nEta;
+  const p = model.nParams;
+  const K = parts.replicates;
+  const { offset, pred, ipred, iwres, npde, imputed, sims, singular } = parts;
+  const failedSims = parts.failed;
   const zero = new Float64Array(d);
   const etaDraw = new Float64Array(d);
   const z = new Float64Array(d);
   const phi = new Float64Array(p);
   const chol = new Float64Array(d * d);
   if (d > 0) cholesky(theta.omega, d, chol);
-  const root = createStreams(o.seed);
-  let failedSims = 0;
-  let singular: string[] = [];
+  const root = createStreams(seed);
   let maxObs = 0;
   for (const s of model.subjects) maxObs = Math.max(maxObs, s.nObs);
   const f = new Float64Array(maxObs);
@@ -140,112 +176,131 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
   const dec = new Float64Array(maxObs);
   const decSims = new Float64Array(maxObs * K);
   const col = new Float64Array(K);
+  return {
+    run(from, to) {
+      for (let i = from; i < to; i++) {
+        const s = model.subjects[i];
+        const n = s.nObs;
+        if (n === 0) continue;
+        const fi = f.subarray(0, n);
+        const base = offset[i];
+        // PRED, IPRED, IWRES.
+        density.phiOf(i, zero, phi);
+        const okPred = model.predict(i, phi, fi);
+        for (let q = 0; q < n; q++) pred[base + q] = okPred ? fi[q] : NaN;
+        const okIpred = model.predict(i, modes.phi.subarray(i * p, (i + 1) * p), fi);
+        for (let q = 0; q < n; q++) {
+          const ip = okIpred ? fi[q] : NaN;
+          ipred[base + q] = ip;
+          if (s.censored[q] || !Number.isFinite(ip)) continue;
+          if (rm === 'log-additive') iwres[base + q] = ip > 0 && s.y[q] > 0 ? (Math.log(s.y[q]) - Math.log(ip)) / theta.a : NaN;
+          else iwres[base + q] = (s.y[q] - ip) / residualSd(rm, theta.a, theta.b, ip);
+        }
+        // Simulate K replicates of the subject.
+        const rng = root.stream('posthoc', 'simulate', i);
+        const simBase = base * K;
+        for (let k = 0; k < K; k++) {
+          let ok = false;
+          for (let attempt = 0; attempt < 10 && !ok; attempt++) {
+            for (let c = 0; c < d; c++) z[c] = rng.normal();
+            for (let r = 0; r < d; r++) {
+              let v = 0;
+              for (let c = 0; c <= r; c++) v += chol[r * d + c] * z[c];
+              etaDraw[r] = v;
+            }
+            density.phiOf(i, etaDraw, phi);
+            ok = model.predict(i, phi, fi);
+          }
+          for (let q = 0; q < n; q++) {
+            let y = NaN;
+            if (ok) {
+              const e = rng.normal();
+              y = rm === 'log-additive' ? fi[q] * Math.exp(theta.a * e) : fi[q] + residualSd(rm, theta.a, theta.b, fi[q]) * e;
+            }
+            sims[simBase + k * n + q] = y;
+          }
+          if (!ok) failedSims[i]++;
+        }
+        // NPDE: decorrelate with the simulated mean and covariance.
+        let nValid = 0;
+        meanY.fill(0);
+        for (let k = 0; k < K; k++) {
+          if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
+          nValid++;
+          for (let q = 0; q < n; q++) meanY[q] += sims[simBase + k * n + q];
+        }
+        if (nValid < 2) continue;
+        for (let q = 0; q < n; q++) meanY[q] /= nValid;
+        cov.fill(0);
+        for (let k = 0; k < K; k++) {
+          if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
+          for (let r = 0; r < n; r++) {
+            const dr = sims[simBase + k * n + r] - meanY[r];
+            for (let c = 0; c <= r; c++) cov[r * n + c] += dr * (sims[simBase + k * n + c] - meanY[c]);
+          }
+        }
+        for (let r = 0; r < n; r++) for (let c = 0; c <= r; c++) cov[r * n + c] = cov[c * n + r] = cov[r * n + c] / (nValid - 1);
+        if (!cholesky(cov, n, L)) {
+          // A level without variability (e.g. a zero prediction under proportional error):
+          // standardise each level by its own SD instead of decorrelating.
+          singular[i] = 1;
+          L.fill(0);
+          for (let q = 0; q < n; q++) L[q * n + q] = Math.sqrt(Math.max(cov[q * n + q], 1e-300));
+        }
+        let m = 0;
+        for (let k = 0; k < K; k++) {
+          const off = simBase + k * n;
+          if (!(sims[off] === sims[off])) continue;
+          for (let r = 0; r < n; r++) {
+            let v = sims[off + r] - meanY[r];
+            for (let c = 0; c < r; c++) v -= L[r * n + c] * decSims[m * n + c];
+            decSims[m * n + r] = v / L[r * n + r];
+          }
+          m++;
+        }
+        // The Cholesky factor conditions each level on the earlier ones, so a censored level is
+        // imputed in that sequence: pde ~ U(0, P(Y < LLOQ | earlier levels)), then the level that
+        // gives it (after Nguyen, Comets & Mentre 2012, who draw from the marginal distribution).
+        for (let r = 0; r < n; r++) {
+          let shift = meanY[r];
+          for (let c = 0; c < r; c++) shift += L[r * n + c] * dec[c];
+          for (let k = 0; k < m; k++) col[k] = decSims[k * n + r];
+          const sorted = col.subarray(0, m).sort();
+          let pde: number;
+          if (s.censored[r]) {
+            const upper = (s.lloqMgL[r] - shift) / L[r * n + r];
+            let below = 0;
+            while (below < m && sorted[below] < upper) below++;
+            pde = rng.uniform() * (below / m);
+            dec[r] = quantileSorted(sorted, m, pde);
+            if (dec[r] > upper) dec[r] = upper;
+            imputed[base + r] = shift + L[r * n + r] * dec[r];
+          } else {
+            dec[r] = (s.y[r] - shift) / L[r * n + r];
+            let below = 0;
+            while (below < m && sorted[below] < dec[r]) below++;
+            pde = below / m;
+          }
+          npde[base + r] = normalQuantile(Math.min(1 - 1 / m, Math.max(1 / m, pde)));
+        }
+      }
+    },
+  };
+}
 
+/** Everything after the per-subject part, on the calling thread: warnings, shrinkage, records, NPDE tests, VPC, covariate screens. */
+export function concludeDiagnostics(density: SubjectDensity, modes: ModeResult, parts: SimulationParts, o: DiagnosticsOptions): DiagnosticsResult {
+  const model = density.model;
+  const N = model.nSubjects;
+  const K = parts.replicates;
+  const nObs = model.nObsTotal;
+  const warnings: string[] = [];
+  const { offset, pred, ipred, iwres, npde, imputed, sims } = parts;
+  let failedSims = 0;
+  const singular: string[] = [];
   for (let i = 0; i < N; i++) {
-    const s = model.subjects[i];
-    const n = s.nObs;
-    if (n === 0) continue;
-    const fi = f.subarray(0, n);
-    const base = offset[i];
-    // PRED, IPRED, IWRES.
-    density.phiOf(i, zero, phi);
-    const okPred = model.predict(i, phi, fi);
-    for (let q = 0; q < n; q++) pred[base + q] = okPred ? fi[q] : NaN;
-    const okIpred = model.predict(i, modes.phi.subarray(i * p, (i + 1) * p), fi);
-    for (let q = 0; q < n; q++) {
-      const ip = okIpred ? fi[q] : NaN;
-      ipred[base + q] = ip;
-      if (s.censored[q] || !Number.isFinite(ip)) continue;
-      if (rm === 'log-additive') iwres[base + q] = ip > 0 && s.y[q] > 0 ? (Math.log(s.y[q]) - Math.log(ip)) / theta.a : NaN;
-      else iwres[base + q] = (s.y[q] - ip) / residualSd(rm, theta.a, theta.b, ip);
-    }
-    // Simulate K replicates of the subject.
-    const rng = root.stream('posthoc', 'simulate', i);
-    const simBase = base * K;
-    for (let k = 0; k < K; k++) {
-      let ok = false;
-      for (let attempt = 0; attempt < 10 && !ok; attempt++) {
-        for (let c = 0; c < d; c++) z[c] = rng.normal();
-        for (let r = 0; r < d; r++) {
-          let v = 0;
-          for (let c = 0; c <= r; c++) v += chol[r * d + c] * z[c];
-          etaDraw[r] = v;
-        }
-        density.phiOf(i, etaDraw, phi);
-        ok = model.predict(i, phi, fi);
-      }
-      for (let q = 0; q < n; q++) {
-        let y = NaN;
-        if (ok) {
-          const e = rng.normal();
-          y = rm === 'log-additive' ? fi[q] * Math.exp(theta.a * e) : fi[q] + residualSd(rm, theta.a, theta.b, fi[q]) * e;
-        }
-        sims[simBase + k * n + q] = y;
-      }
-      if (!ok) failedSims++;
-    }
-    // NPDE: decorrelate with the simulated mean and covariance.
-    let nValid = 0;
-    meanY.fill(0);
-    for (let k = 0; k < K; k++) {
-      if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
-      nValid++;
-      for (let q = 0; q < n; q++) meanY[q] += sims[simBase + k * n + q];
-    }
-    if (nValid < 2) continue;
-    for (let q = 0; q < n; q++) meanY[q] /= nValid;
-    cov.fill(0);
-    for (let k = 0; k < K; k++) {
-      if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
-      for (let r = 0; r < n; r++) {
-        const dr = sims[simBase + k * n + r] - meanY[r];
-        for (let c = 0; c <= r; c++) cov[r * n + c] += dr * (sims[simBase + k * n + c] - meanY[c]);
-      }
-    }
-    for (let r = 0; r < n; r++) for (let c = 0; c <= r; c++) cov[r * n + c] = cov[c * n + r] = cov[r * n + c] / (nValid - 1);
-    if (!cholesky(cov, n, L)) {
-      // A level without variability (e.g. a zero prediction under proportional error):
-      // standardise each level by its own SD instead of decorrelating.
-      singular.push(s.id);
-      L.fill(0);
-      for (let q = 0; q < n; q++) L[q * n + q] = Math.sqrt(Math.max(cov[q * n + q], 1e-300));
-    }
-    let m = 0;
-    for (let k = 0; k < K; k++) {
-      const off = simBase + k * n;
-      if (!(sims[off] === sims[off])) continue;
-      for (let r = 0; r < n; r++) {
-        let v = sims[off + r] - meanY[r];
-        for (let c = 0; c < r; c++) v -= L[r * n + c] * decSims[m * n + c];
-        decSims[m * n + r] = v / L[r * n + r];
-      }
-      m++;
-    }
-    // The Cholesky factor conditions each level on the earlier ones, so a censored level is
-    // imputed in that sequence: pde ~ U(0, P(Y < LLOQ | earlier levels)), then the level that
-    // gives it (after Nguyen, Comets & Mentre 2012, who draw from the marginal distribution).
-    for (let r = 0; r < n; r++) {
-      let shift = meanY[r];
-      for (let c = 0; c < r; c++) shift += L[r * n + c] * dec[c];
-      for (let k = 0; k < m; k++) col[k] = decSims[k * n + r];
-      const sorted = col.subarray(0, m).sort();
-      let pde: number;
-      if (s.censored[r]) {
-        const upper = (s.lloqMgL[r] - shift) / L[r * n + r];
-        let below = 0;
-        while (below < m && sorted[below] < upper) below++;
-        pde = rng.uniform() * (below / m);
-        dec[r] = quantileSorted(sorted, m, pde);
-        if (dec[r] > upper) dec[r] = upper;
-        imputed[base + r] = shift + L[r * n + r] * dec[r];
-      } else {
-        dec[r] = (s.y[r] - shift) / L[r * n + r];
-        let below = 0;
-        while (below < m && sorted[below] < dec[r]) below++;
-        pde = below / m;
-      }
-      npde[base + r] = normalQuantile(Math.min(1 - 1 / m, Math.max(1 / m, pde)));
-    }
+    failedSims += parts.failed[i];
+    if (parts.singular[i]) singular.push(model.subjects[i].id);
   }
   if (failedSims) warnings.push(`simulation: ${failedSims} simulated subject profile(s) had no valid prediction after 10 draws and are left out of the NPDE and VPC`);
   if (singular.length) warnings.push(`NPDE: the simulated covariance of subject(s) ${list(singular)} is singular; their levels are standardised without decorrelation`);
