@@ -62,8 +62,12 @@ export function threadsForFit(available: number, levels: number, chains: number)
   return levels * chains >= THREADS_MIN_WORK ? Math.max(1, available) : 1;
 }
 
-/** Below this many subjects the post-fit steps stay on one thread (a subject's steps take a few milliseconds; starting a thread and compiling its subjects costs more than a few of them save). */
-export const POSTHOC_THREADS_MIN_SUBJECTS = 100;
+/**
+ * Below this many subjects the post-fit steps stay on one thread: starting the threads and
+ * compiling their subjects took about 80 ms on the 120-patient sparse design, whose post-fit
+ * steps took 0.70 s on 1 thread and 0.67 s on 2; at 4,000 patients 7.9 s against 5.1 s.
+ */
+export const POSTHOC_THREADS_MIN_SUBJECTS = 200;
 
 /** Threads for the post-fit steps of a fit of `subjects` subjects when `available` cores are granted. */
 export function threadsForPosthoc(available: number, subjects: number): number {
