@@ -132,6 +132,8 @@ function preparePosthoc(model: CompiledModel, theta: PopulationParameters, optio
       importance: resolveImportanceOptions({ seed, ...(options.importance ?? {}) }),
       replicates: diagnostics ? (diagnostics.replicates ?? defaultReplicates(model.nObsTotal)) : null,
       diagnosticsSeed: diagnostics ? diagnostics.seed : seed,
+      vpcBins: diagnostics ? diagnostics.vpcBins : DEFAULT_DIAGNOSTICS.vpcBins,
+      vpcTime: diagnostics ? diagnostics.vpcTime : DEFAULT_DIAGNOSTICS.vpcTime,
     },
   };
 }
@@ -178,7 +180,8 @@ function finishPosthoc(prep: PreparedPosthoc, blocks: PosthocBlocks): PosthocRes
   let diagnostics: DiagnosticsResult | null = null;
   if (prep.diagnostics && parts.simulation) {
     blocks.simulation();
-    diagnostics = concludeDiagnostics(density, modes, parts.simulation, prep.diagnostics);
+    blocks.vpc();
+    diagnostics = concludeDiagnostics(density, modes, parts.simulation, prep.diagnostics, blocks.vpcPlans());
     warnings.push(...diagnostics.warnings);
   }
   const t7 = now();

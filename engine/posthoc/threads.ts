@@ -8,9 +8,10 @@
  * subject's numbers do not depend on which thread ran it. The calling thread then does every sum
  * over subjects (Louis' information, -2LL, its Monte Carlo error, counts, warnings) in subject
  * order, as the one-thread path does: the results are the same to the last bit on any number of
- * threads (tests/integration/posthoc/threads.test.ts). What stays on the calling thread: the
- * linearisation (a Hessian of one sum over subjects, cheap), the shrinkage, the VPC and the
- * covariate screens (over all subjects at once).
+ * threads (tests/integration/posthoc/threads.test.ts). The VPC's replicates are split the same
+ * way (each replicate's percentiles in each bin stand alone; the bins are computed identically on
+ * every thread). What stays on the calling thread: the linearisation (a Hessian of one sum over
+ * subjects, cheap), the shrinkage, the VPC bands and the covariate screens.
  */
 import type { Dataset } from '../data/types.js';
 import { allocateTaskWords, createTaskChannel, serveTasks, subjectRanges, type TaskChannel, type ThreadHandle } from '../parallel/tasks.js';
@@ -18,7 +19,7 @@ import type { ModelSpec } from '../spec/modelSpec.js';
 import { compileModel, type CompiledModel, type PopulationParameters } from '../stats/model.js';
 import { allocateConditional, conditionalKernel, type ConditionalOptions, type ConditionalResult } from './conditional.js';
 import { buildDensity, type SubjectDensity } from './density.js';
-import { allocateSimulation, simulationKernel, type SimulationParts } from './diagnostics.js';
+import { allocateSimulation, simulationKernel, vpcKernel, type DiagnosticsOptions, type SimulationParts, type VpcPlan } from './diagnostics.js';
 import { allocateLouis, louisKernel, type LouisParts } from './fisher.js';
 import { allocateImportance, importanceKernel, type ImportanceOptions, type ImportanceResult } from './likelihood.js';
 import { allocateModes, f64, modeKernel, type ModeResult } from './modes.js';
@@ -54,6 +55,11 @@ export interface PosthocThreadInit {
   conditional: ConditionalOptions;
   importance: ImportanceOptions;
   diagnosticsSeed: number;
+  vpcBins: number;
+  vpcTime: DiagnosticsOptions['vpcTime'];
+  /** This thread's replicates in the VPC summaries. */
+  replicateFrom: number;
+  replicateTo: number;
   parts: PosthocParts;
   control: SharedArrayBuffer;
   errorText: SharedArrayBuffer;
@@ -65,6 +71,7 @@ const TASK_CONDITIONAL = 2;
 const TASK_LOUIS = 3;
 const TASK_IMPORTANCE = 4;
 const TASK_SIMULATION = 5;
+const TASK_VPC = 6;
 
 /** The post-fit steps' per-subject parts on one or several threads, seen from the calling thread. */
 export interface PosthocBlocks {
@@ -78,6 +85,10 @@ export interface PosthocBlocks {
   louis(): boolean;
   importance(): void;
   simulation(): void;
+  /** The VPC's replicate summaries, split by replicates (after simulation()). */
+  vpc(): void;
+  /** The VPC bins (for concludeDiagnostics). */
+  vpcPlans(): VpcPlan[];
   close(): void;
 }
 
@@ -88,6 +99,8 @@ export interface PosthocBlockOptions {
   /** Replicates of the simulations, or null when the diagnostics are skipped. */
   replicates: number | null;
   diagnosticsSeed: number;
+  vpcBins: number;
+  vpcTime: DiagnosticsOptions['vpcTime'];
 }
 
 /** Allocate the parts (shared when `shared`). */
@@ -103,12 +116,12 @@ function allocateParts(model: CompiledModel, o: PosthocBlockOptions, shared: boo
     conditional: allocateConditional(model, o.conditional.keepDraws, shared),
     louis: allocateLouis(model, parameterLayout(model), shared),
     importance: allocateImportance(model, o.importance, shared),
-    simulation: o.replicates === null ? null : allocateSimulation(model, o.replicates, shared),
+    simulation: o.replicates === null ? null : allocateSimulation(model, o.replicates, o.vpcBins, shared),
   };
 }
 
 /** Every step's kernel over `parts`, built once (each allocates its own scratch). */
-function kernels(density: SubjectDensity, parts: PosthocParts, conditional: ConditionalOptions, importance: ImportanceOptions, diagnosticsSeed: number) {
+function kernels(density: SubjectDensity, parts: PosthocParts, conditional: ConditionalOptions, importance: ImportanceOptions, diagnosticsSeed: number, vpcBins: number, vpcTime: DiagnosticsOptions['vpcTime']) {
   const louis = louisKernel(density, parameterLayout(density.model), parts.conditional, parts.louis);
   return {
     modes: modeKernel(density, parts.modes, parts.start ?? undefined),
@@ -116,6 +129,7 @@ function kernels(density: SubjectDensity, parts: PosthocParts, conditional: Cond
     louis,
     importance: importanceKernel(density, parts.conditional, parts.modes, parts.importance, importance),
     simulation: parts.simulation ? simulationKernel(density, parts.modes, parts.simulation, diagnosticsSeed) : null,
+    vpc: parts.simulation ? vpcKernel(density.model, parts.simulation, vpcBins, vpcTime) : null,
   };
 }
 
@@ -130,8 +144,14 @@ export function createPosthocBlocks(density: SubjectDensity, o: PosthocBlockOpti
   const ranges = subjectRanges(model, wanted);
   const T = ranges.length;
   const parts = allocateParts(model, o, T > 1);
-  const k = kernels(density, parts, o.conditional, o.importance, o.diagnosticsSeed);
+  const k = kernels(density, parts, o.conditional, o.importance, o.diagnosticsSeed, o.vpcBins, o.vpcTime);
   const { from, to } = ranges[0];
+  // The VPC's replicates in T equal shares (each replicate's summaries stand alone).
+  const K = o.replicates ?? 0;
+  const replicateRange = (t: number) => ({ from: Math.floor((t * K) / T), to: Math.floor(((t + 1) * K) / T) });
+  const noPlans = (): VpcPlan[] => {
+    throw new Error('internal: no VPC without the diagnostics');
+  };
   if (T === 1)
     return {
       threads: 1,
@@ -142,6 +162,8 @@ export function createPosthocBlocks(density: SubjectDensity, o: PosthocBlockOpti
       louis: () => (k.louis.run(from, to), k.louis.omegaOk),
       importance: () => k.importance.run(from, to),
       simulation: () => k.simulation?.run(from, to),
+      vpc: () => k.vpc?.run(0, K),
+      vpcPlans: () => (k.vpc ? k.vpc.plans() : noPlans()),
       close: () => undefined,
     };
 
@@ -167,6 +189,10 @@ export function createPosthocBlocks(density: SubjectDensity, o: PosthocBlockOpti
         conditional: o.conditional,
         importance: o.importance,
         diagnosticsSeed: o.diagnosticsSeed,
+        vpcBins: o.vpcBins,
+        vpcTime: o.vpcTime,
+        replicateFrom: replicateRange(t).from,
+        replicateTo: replicateRange(t).to,
         parts,
         control: words.control,
         errorText: words.errorText,
@@ -191,6 +217,10 @@ export function createPosthocBlocks(density: SubjectDensity, o: PosthocBlockOpti
     simulation: () => {
       if (k.simulation) channel.run(TASK_SIMULATION, 0, () => k.simulation!.run(from, to));
     },
+    vpc: () => {
+      if (k.vpc) channel.run(TASK_VPC, 0, () => k.vpc!.run(replicateRange(0).from, replicateRange(0).to));
+    },
+    vpcPlans: () => (k.vpc ? k.vpc.plans() : noPlans()),
     close,
   };
 }
@@ -206,7 +236,7 @@ export function preparePosthocThread(init: PosthocThreadInit): PosthocThread {
   const model = compileModel(init.spec, init.dataset, { preparedSubjects: { from: init.from, to: init.to } });
   const density = buildDensity(model, init.theta);
   if (!density) throw new Error('the estimated Omega is not positive definite');
-  const k = kernels(density, init.parts, init.conditional, init.importance, init.diagnosticsSeed);
+  const k = kernels(density, init.parts, init.conditional, init.importance, init.diagnosticsSeed, init.vpcBins, init.vpcTime);
   const { from, to } = init;
   return {
     serve() {
@@ -216,6 +246,7 @@ export function preparePosthocThread(init: PosthocThreadInit): PosthocThread {
         else if (task === TASK_LOUIS) k.louis.run(from, to);
         else if (task === TASK_IMPORTANCE) k.importance.run(from, to);
         else if (task === TASK_SIMULATION) k.simulation?.run(from, to);
+        else if (task === TASK_VPC) k.vpc?.run(init.replicateFrom, init.replicateTo);
         else throw new Error(`unknown post-fit task ${task}`);
       });
     },

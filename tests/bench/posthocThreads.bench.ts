@@ -3,7 +3,7 @@
  * of every post-fit step of the invented sparse 2-cmt TDM design at 4,000 patients on 1 and 2
  * threads, each in a process of its own (posthocFit.js, which fits first on every core). The
  * two runs give the same numbers to the last bit (tests/integration/posthoc/threads.test.ts);
- * the -2LL of both is printed as a reminder. The VPC, the linearisation and the covariate
+ * the -2LL of both is printed as a reminder. The linearisation, the VPC bands and the covariate
  * screens stay on the calling thread.
  */
 import { spawnSync } from 'node:child_process';
