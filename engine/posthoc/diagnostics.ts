@@ -25,7 +25,7 @@ import { normalQuantile } from '../rng/index.js';
 import { residualSd } from '../stats/residual.js';
 import type { SubjectDensity } from './density.js';
 import { quantileSorted, studentTTwoSided } from './distributions.js';
-import { list, type ModeResult } from './modes.js';
+import { f64, i32, list, u8, type ModeResult } from './modes.js';
 import { npdeTests, type NpdeTests } from './normality.js';
 
 export interface DiagnosticsOptions {
@@ -104,33 +104,74 @@ const num = (x: number): number | null => (Number.isFinite(x) ? x : null);
 
 export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, options: Partial<DiagnosticsOptions> = {}): DiagnosticsResult {
   const o = { ...DEFAULT_DIAGNOSTICS, ...options };
-  const model = density.model;
-  const theta = density.theta;
-  const rm = model.residualModel;
+  const K = o.replicates ?? defaultReplicates(density.model.nObsTotal);
+  const sim = allocateSimulation(density.model, K, o.vpcBins, false);
+  simulationKernel(density, modes, sim, o.seed).run(0, density.model.nSubjects);
+  const vpc = vpcKernel(density.model, sim, o.vpcBins, o.vpcTime);
+  vpc.run(0, K);
+  return concludeDiagnostics(density, modes, sim, o, vpc.plans());
+}
+
+/** Per-level and per-subject outputs of the simulations and NPDE (SharedArrayBuffers when `shared`, for engine/posthoc/threads.ts). */
+export interface SimulationParts {
+  replicates: number;
+  /** Start of each subject's levels, N + 1. */
+  offset: Int32Array;
+  pred: Float64Array;
+  ipred: Float64Array;
+  iwres: Float64Array;
+  npde: Float64Array;
+  imputed: Float64Array;
+  /** Simulations: obs-major per subject, sims[offset*K + k*n + o]. */
+  sims: Float64Array;
+  /** Per subject: simulated profiles without a valid prediction after 10 draws. */
+  failed: Int32Array;
+  /** Per subject: 1 when the simulated covariance was singular. */
+  singular: Uint8Array;
+  /** The VPC's replicate summaries, plain then prediction-corrected (vpcSummaryLength each). */
+  vpc: Float64Array;
+}
+
+export function allocateSimulation(model: SubjectDensity['model'], K: number, maxBins: number, shared: boolean): SimulationParts {
   const N = model.nSubjects;
-  const d = density.nEta;
-  const p = model.nParams;
-  const K = o.replicates ?? defaultReplicates(model.nObsTotal);
-  const warnings: string[] = [];
   const nObs = model.nObsTotal;
   const offset = new Int32Array(N + 1);
   for (let i = 0; i < N; i++) offset[i + 1] = offset[i] + model.subjects[i].nObs;
-  const pred = new Float64Array(nObs);
-  const ipred = new Float64Array(nObs);
-  const iwres = new Float64Array(nObs).fill(NaN);
-  const npde = new Float64Array(nObs).fill(NaN);
-  const imputed = new Float64Array(nObs).fill(NaN);
-  // Simulations: obs-major per subject, sims[offset*K + k*n + o].
-  const sims = new Float64Array(nObs * K);
+  return {
+    replicates: K,
+    offset,
+    pred: f64(nObs, shared),
+    ipred: f64(nObs, shared),
+    iwres: f64(nObs, shared).fill(NaN),
+    npde: f64(nObs, shared).fill(NaN),
+    imputed: f64(nObs, shared).fill(NaN),
+    sims: f64(nObs * K, shared),
+    failed: i32(N, shared),
+    singular: u8(N, shared),
+    vpc: f64(2 * vpcSummaryLength(maxBins, K), shared),
+  };
+}
+
+/**
+ * PRED, IPRED, IWRES, the simulated replicates and the NPDE of subjects [from, to) into `parts`:
+ * each subject draws from its own stream ('posthoc', 'simulate', i).
+ */
+export function simulationKernel(density: SubjectDensity, modes: ModeResult, parts: SimulationParts, seed: number): { run(from: number, to: number): void } {
+  const model = density.model;
+  const theta = density.theta;
+  const rm = model.residualModel;
+  const d = density.nEta;
+  const p = model.nParams;
+  const K = parts.replicates;
+  const { offset, pred, ipred, iwres, npde, imputed, sims, singular } = parts;
+  const failedSims = parts.failed;
   const zero = new Float64Array(d);
   const etaDraw = new Float64Array(d);
   const z = new Float64Array(d);
   const phi = new Float64Array(p);
   const chol = new Float64Array(d * d);
   if (d > 0) cholesky(theta.omega, d, chol);
-  const root = createStreams(o.seed);
-  let failedSims = 0;
-  let singular: string[] = [];
+  const root = createStreams(seed);
   let maxObs = 0;
   for (const s of model.subjects) maxObs = Math.max(maxObs, s.nObs);
   const f = new Float64Array(maxObs);
@@ -140,112 +181,131 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
   const dec = new Float64Array(maxObs);
   const decSims = new Float64Array(maxObs * K);
   const col = new Float64Array(K);
+  return {
+    run(from, to) {
+      for (let i = from; i < to; i++) {
+        const s = model.subjects[i];
+        const n = s.nObs;
+        if (n === 0) continue;
+        const fi = f.subarray(0, n);
+        const base = offset[i];
+        // PRED, IPRED, IWRES.
+        density.phiOf(i, zero, phi);
+        const okPred = model.predict(i, phi, fi);
+        for (let q = 0; q < n; q++) pred[base + q] = okPred ? fi[q] : NaN;
+        const okIpred = model.predict(i, modes.phi.subarray(i * p, (i + 1) * p), fi);
+        for (let q = 0; q < n; q++) {
+          const ip = okIpred ? fi[q] : NaN;
+          ipred[base + q] = ip;
+          if (s.censored[q] || !Number.isFinite(ip)) continue;
+          if (rm === 'log-additive') iwres[base + q] = ip > 0 && s.y[q] > 0 ? (Math.log(s.y[q]) - Math.log(ip)) / theta.a : NaN;
+          else iwres[base + q] = (s.y[q] - ip) / residualSd(rm, theta.a, theta.b, ip);
+        }
+        // Simulate K replicates of the subject.
+        const rng = root.stream('posthoc', 'simulate', i);
+        const simBase = base * K;
+        for (let k = 0; k < K; k++) {
+          let ok = false;
+          for (let attempt = 0; attempt < 10 && !ok; attempt++) {
+            for (let c = 0; c < d; c++) z[c] = rng.normal();
+            for (let r = 0; r < d; r++) {
+              let v = 0;
+              for (let c = 0; c <= r; c++) v += chol[r * d + c] * z[c];
+              etaDraw[r] = v;
+            }
+            density.phiOf(i, etaDraw, phi);
+            ok = model.predict(i, phi, fi);
+          }
+          for (let q = 0; q < n; q++) {
+            let y = NaN;
+            if (ok) {
+              const e = rng.normal();
+              y = rm === 'log-additive' ? fi[q] * Math.exp(theta.a * e) : fi[q] + residualSd(rm, theta.a, theta.b, fi[q]) * e;
+            }
+            sims[simBase + k * n + q] = y;
+          }
+          if (!ok) failedSims[i]++;
+        }
+        // NPDE: decorrelate with the simulated mean and covariance.
+        let nValid = 0;
+        meanY.fill(0);
+        for (let k = 0; k < K; k++) {
+          if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
+          nValid++;
+          for (let q = 0; q < n; q++) meanY[q] += sims[simBase + k * n + q];
+        }
+        if (nValid < 2) continue;
+        for (let q = 0; q < n; q++) meanY[q] /= nValid;
+        cov.fill(0);
+        for (let k = 0; k < K; k++) {
+          if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
+          for (let r = 0; r < n; r++) {
+            const dr = sims[simBase + k * n + r] - meanY[r];
+            for (let c = 0; c <= r; c++) cov[r * n + c] += dr * (sims[simBase + k * n + c] - meanY[c]);
+          }
+        }
+        for (let r = 0; r < n; r++) for (let c = 0; c <= r; c++) cov[r * n + c] = cov[c * n + r] = cov[r * n + c] / (nValid - 1);
+        if (!cholesky(cov, n, L)) {
+          // A level without variability (e.g. a zero prediction under proportional error):
+          // standardise each level by its own SD instead of decorrelating.
+          singular[i] = 1;
+          L.fill(0);
+          for (let q = 0; q < n; q++) L[q * n + q] = Math.sqrt(Math.max(cov[q * n + q], 1e-300));
+        }
+        let m = 0;
+        for (let k = 0; k < K; k++) {
+          const off = simBase + k * n;
+          if (!(sims[off] === sims[off])) continue;
+          for (let r = 0; r < n; r++) {
+            let v = sims[off + r] - meanY[r];
+            for (let c = 0; c < r; c++) v -= L[r * n + c] * decSims[m * n + c];
+            decSims[m * n + r] = v / L[r * n + r];
+          }
+          m++;
+        }
+        // The Cholesky factor conditions each level on the earlier ones, so a censored level is
+        // imputed in that sequence: pde ~ U(0, P(Y < LLOQ | earlier levels)), then the level that
+        // gives it (after Nguyen, Comets & Mentre 2012, who draw from the marginal distribution).
+        for (let r = 0; r < n; r++) {
+          let shift = meanY[r];
+          for (let c = 0; c < r; c++) shift += L[r * n + c] * dec[c];
+          for (let k = 0; k < m; k++) col[k] = decSims[k * n + r];
+          const sorted = col.subarray(0, m).sort();
+          let pde: number;
+          if (s.censored[r]) {
+            const upper = (s.lloqMgL[r] - shift) / L[r * n + r];
+            let below = 0;
+            while (below < m && sorted[below] < upper) below++;
+            pde = rng.uniform() * (below / m);
+            dec[r] = quantileSorted(sorted, m, pde);
+            if (dec[r] > upper) dec[r] = upper;
+            imputed[base + r] = shift + L[r * n + r] * dec[r];
+          } else {
+            dec[r] = (s.y[r] - shift) / L[r * n + r];
+            let below = 0;
+            while (below < m && sorted[below] < dec[r]) below++;
+            pde = below / m;
+          }
+          npde[base + r] = normalQuantile(Math.min(1 - 1 / m, Math.max(1 / m, pde)));
+        }
+      }
+    },
+  };
+}
 
+/** Everything after the per-subject part, on the calling thread: warnings, shrinkage, records, NPDE tests, VPC, covariate screens. */
+export function concludeDiagnostics(density: SubjectDensity, modes: ModeResult, parts: SimulationParts, o: DiagnosticsOptions, vpcPlans: readonly VpcPlan[]): DiagnosticsResult {
+  const model = density.model;
+  const N = model.nSubjects;
+  const K = parts.replicates;
+  const nObs = model.nObsTotal;
+  const warnings: string[] = [];
+  const { offset, pred, ipred, iwres, npde, imputed, sims } = parts;
+  let failedSims = 0;
+  const singular: string[] = [];
   for (let i = 0; i < N; i++) {
-    const s = model.subjects[i];
-    const n = s.nObs;
-    if (n === 0) continue;
-    const fi = f.subarray(0, n);
-    const base = offset[i];
-    // PRED, IPRED, IWRES.
-    density.phiOf(i, zero, phi);
-    const okPred = model.predict(i, phi, fi);
-    for (let q = 0; q < n; q++) pred[base + q] = okPred ? fi[q] : NaN;
-    const okIpred = model.predict(i, modes.phi.subarray(i * p, (i + 1) * p), fi);
-    for (let q = 0; q < n; q++) {
-      const ip = okIpred ? fi[q] : NaN;
-      ipred[base + q] = ip;
-      if (s.censored[q] || !Number.isFinite(ip)) continue;
-      if (rm === 'log-additive') iwres[base + q] = ip > 0 && s.y[q] > 0 ? (Math.log(s.y[q]) - Math.log(ip)) / theta.a : NaN;
-      else iwres[base + q] = (s.y[q] - ip) / residualSd(rm, theta.a, theta.b, ip);
-    }
-    // Simulate K replicates of the subject.
-    const rng = root.stream('posthoc', 'simulate', i);
-    const simBase = base * K;
-    for (let k = 0; k < K; k++) {
-      let ok = false;
-      for (let attempt = 0; attempt < 10 && !ok; attempt++) {
-        for (let c = 0; c < d; c++) z[c] = rng.normal();
-        for (let r = 0; r < d; r++) {
-          let v = 0;
-          for (let c = 0; c <= r; c++) v += chol[r * d + c] * z[c];
-          etaDraw[r] = v;
-        }
-        density.phiOf(i, etaDraw, phi);
-        ok = model.predict(i, phi, fi);
-      }
-      for (let q = 0; q < n; q++) {
-        let y = NaN;
-        if (ok) {
-          const e = rng.normal();
-          y = rm === 'log-additive' ? fi[q] * Math.exp(theta.a * e) : fi[q] + residualSd(rm, theta.a, theta.b, fi[q]) * e;
-        }
-        sims[simBase + k * n + q] = y;
-      }
-      if (!ok) failedSims++;
-    }
-    // NPDE: decorrelate with the simulated mean and covariance.
-    let nValid = 0;
-    meanY.fill(0);
-    for (let k = 0; k < K; k++) {
-      if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
-      nValid++;
-      for (let q = 0; q < n; q++) meanY[q] += sims[simBase + k * n + q];
-    }
-    if (nValid < 2) continue;
-    for (let q = 0; q < n; q++) meanY[q] /= nValid;
-    cov.fill(0);
-    for (let k = 0; k < K; k++) {
-      if (!(sims[simBase + k * n] === sims[simBase + k * n])) continue;
-      for (let r = 0; r < n; r++) {
-        const dr = sims[simBase + k * n + r] - meanY[r];
-        for (let c = 0; c <= r; c++) cov[r * n + c] += dr * (sims[simBase + k * n + c] - meanY[c]);
-      }
-    }
-    for (let r = 0; r < n; r++) for (let c = 0; c <= r; c++) cov[r * n + c] = cov[c * n + r] = cov[r * n + c] / (nValid - 1);
-    if (!cholesky(cov, n, L)) {
-      // A level without variability (e.g. a zero prediction under proportional error):
-      // standardise each level by its own SD instead of decorrelating.
-      singular.push(s.id);
-      L.fill(0);
-      for (let q = 0; q < n; q++) L[q * n + q] = Math.sqrt(Math.max(cov[q * n + q], 1e-300));
-    }
-    let m = 0;
-    for (let k = 0; k < K; k++) {
-      const off = simBase + k * n;
-      if (!(sims[off] === sims[off])) continue;
-      for (let r = 0; r < n; r++) {
-        let v = sims[off + r] - meanY[r];
-        for (let c = 0; c < r; c++) v -= L[r * n + c] * decSims[m * n + c];
-        decSims[m * n + r] = v / L[r * n + r];
-      }
-      m++;
-    }
-    // The Cholesky factor conditions each level on the earlier ones, so a censored level is
-    // imputed in that sequence: pde ~ U(0, P(Y < LLOQ | earlier levels)), then the level that
-    // gives it (after Nguyen, Comets & Mentre 2012, who draw from the marginal distribution).
-    for (let r = 0; r < n; r++) {
-      let shift = meanY[r];
-      for (let c = 0; c < r; c++) shift += L[r * n + c] * dec[c];
-      for (let k = 0; k < m; k++) col[k] = decSims[k * n + r];
-      const sorted = col.subarray(0, m).sort();
-      let pde: number;
-      if (s.censored[r]) {
-        const upper = (s.lloqMgL[r] - shift) / L[r * n + r];
-        let below = 0;
-        while (below < m && sorted[below] < upper) below++;
-        pde = rng.uniform() * (below / m);
-        dec[r] = quantileSorted(sorted, m, pde);
-        if (dec[r] > upper) dec[r] = upper;
-        imputed[base + r] = shift + L[r * n + r] * dec[r];
-      } else {
-        dec[r] = (s.y[r] - shift) / L[r * n + r];
-        let below = 0;
-        while (below < m && sorted[below] < dec[r]) below++;
-        pde = below / m;
-      }
-      npde[base + r] = normalQuantile(Math.min(1 - 1 / m, Math.max(1 / m, pde)));
-    }
+    failedSims += parts.failed[i];
+    if (parts.singular[i]) singular.push(model.subjects[i].id);
   }
   if (failedSims) warnings.push(`simulation: ${failedSims} simulated subject profile(s) had no valid prediction after 10 draws and are left out of the NPDE and VPC`);
   if (singular.length) warnings.push(`NPDE: the simulated covariance of subject(s) ${list(singular)} is singular; their levels are standardised without decorrelation`);
@@ -267,14 +327,15 @@ export function computeDiagnostics(density: SubjectDensity, modes: ModeResult, o
   const tests = nObs >= 3 ? npdeTests(npde) : null;
   if (!tests || ![tests.meanTest.pValue, tests.varianceTest.pValue, tests.normalityTest.pValue].every((p) => Number.isFinite(p)))
     warnings.push(`NPDE tests: not all available (${nObs < 3 ? 'fewer than 3 levels' : 'too few distinct NPDE values'}); the NPDE values themselves are still reported`);
-  const timeScale = o.vpcTime === 'auto' ? (model.subjects.some((x) => x.doses.length > 1) ? 'timeAfterDose' : 'time') : o.vpcTime;
+  const timeScale = resolveVpcTime(model, o.vpcTime);
   const vpcInput = { model, offset, sims, K, pred, piLevel: o.piLevel, maxBins: o.vpcBins, timeScale };
+  const length = vpcSummaryLength(o.vpcBins, K);
   return {
     observations,
     epsilonShrinkage: num(1 - sdIw),
     npde: { replicates: K, censoredMethod: 'censored levels: pde drawn uniformly on [0, P(Y < LLOQ | earlier levels of the subject)] in the decorrelated (Cholesky) sequence and the level imputed at that pde (after Nguyen, Comets & Mentre 2012)', tests },
-    vpc: vpcData(vpcInput, false),
-    pcVpc: vpcData(vpcInput, true),
+    vpc: vpcData(vpcInput, vpcPlans[0], parts.vpc.subarray(0, length)),
+    pcVpc: vpcData(vpcInput, vpcPlans[1], parts.vpc.subarray(length, 2 * length)),
     covariateRelations: covariateRelations(model, modes),
     warnings,
   };
@@ -317,8 +378,26 @@ function band(x: Float64Array, m: number, level: number): PercentileBand {
   return { lo: num(quantileSorted(s, k, (1 - level) / 2)), median: num(quantileSorted(s, k, 0.5)), hi: num(quantileSorted(s, k, (1 + level) / 2)) };
 }
 
-function vpcData(input: VpcInput, corrected: boolean): VpcData {
-  const { model, offset, sims, K, pred, piLevel, maxBins, timeScale } = input;
+/** One VPC bin's levels: their global indices and, per level, where its replicates start, its stride, LLOQ and correction factor. */
+interface VpcPlanBin {
+  edge: number;
+  members: number[];
+  subject: Int32Array;
+  simBase: Int32Array;
+  stride: Int32Array;
+  lloq: Float64Array;
+  factor: Float64Array;
+}
+
+export interface VpcPlan {
+  corrected: boolean;
+  times: Float64Array;
+  bins: VpcPlanBin[];
+}
+
+/** The bins of a VPC (deterministic from the model, the PRED and the options: every thread computes the same). */
+function planVpc(input: Omit<VpcInput, 'sims' | 'piLevel'>, corrected: boolean): VpcPlan {
+  const { model, offset, K, pred, maxBins, timeScale } = input;
   const nObs = model.nObsTotal;
   const times = new Float64Array(nObs);
   const subjOf = new Int32Array(nObs);
@@ -333,46 +412,103 @@ function vpcData(input: VpcInput, corrected: boolean): VpcData {
   const order = Array.from({ length: nObs }, (_, g) => g).sort((x, y) => times[x] - times[y]);
   const sortedTimes = Float64Array.from(order, (g) => times[g]);
   const edges = nObs > 0 ? binEdges(sortedTimes, nObs, maxBins) : [];
-  const bins: VpcBin[] = [];
+  const bins: VpcPlanBin[] = [];
   for (let b = 0; b + 1 < edges.length; b++) {
     const members = order.filter((g) => times[g] >= edges[b] && times[g] < edges[b + 1]);
     const n = members.length;
     if (n === 0) continue;
     const predSorted = Float64Array.from(members, (g) => pred[g]).filter((x) => Number.isFinite(x)).sort();
     const predBin = quantileSorted(predSorted, predSorted.length, 0.5);
-    const factor = (g: number) => (corrected && pred[g] > 0 && predBin > 0 ? predBin / pred[g] : 1);
-    const obs = new Float64Array(n);
-    let nc = 0;
+    const bin: VpcPlanBin = { edge: edges[b], members, subject: new Int32Array(n), simBase: new Int32Array(n), stride: new Int32Array(n), lloq: new Float64Array(n), factor: new Float64Array(n) };
     members.forEach((g, m) => {
       const i = subjOf[g];
       const q = g - offset[i];
       const s = model.subjects[i];
+      bin.subject[m] = i;
+      bin.simBase[m] = offset[i] * K + q;
+      bin.stride[m] = s.nObs;
+      bin.lloq[m] = s.lloqMgL[q];
+      bin.factor[m] = corrected && pred[g] > 0 && predBin > 0 ? predBin / pred[g] : 1;
+    });
+    bins.push(bin);
+  }
+  return { corrected, times, bins };
+}
+
+/** Words per VPC variant in the replicate summaries: per bin, the 3 simulated percentiles and the censored share, K each. */
+export const vpcSummaryLength = (maxBins: number, K: number): number => Math.max(1, Math.ceil(maxBins)) * 4 * K;
+
+/**
+ * The simulated percentiles (5, 50, 95 %) and censored share of replicates [k0, k1) in every bin
+ * into `out` (bin-major, then percentile, then replicate); each replicate on its own, so any split
+ * of the replicates gives the same numbers.
+ */
+function vpcReplicates(plan: VpcPlan, sims: Float64Array, K: number, k0: number, k1: number, out: Float64Array): void {
+  let maxN = 0;
+  for (const bin of plan.bins) maxN = Math.max(maxN, bin.members.length);
+  const buf = new Float64Array(maxN);
+  plan.bins.forEach((bin, b) => {
+    const n = bin.members.length;
+    const base = b * 4 * K;
+    for (let k = k0; k < k1; k++) {
+      let c = 0, valid = 0;
+      for (let m = 0; m < n; m++) {
+        const v = sims[bin.simBase[m] + k * bin.stride[m]];
+        if (!(v === v)) continue;
+        const lloq = bin.lloq[m];
+        if (lloq > 0 && v < lloq) (c++, (buf[valid++] = -Infinity));
+        else buf[valid++] = v * bin.factor[m];
+      }
+      const sv = buf.subarray(0, valid).sort();
+      out[base + 3 * K + k] = valid > 0 ? c / valid : NaN;
+      out[base + k] = valid > 0 ? percentileOf(sv, valid, c, 0.05) : NaN;
+      out[base + K + k] = valid > 0 ? percentileOf(sv, valid, c, 0.5) : NaN;
+      out[base + 2 * K + k] = valid > 0 ? percentileOf(sv, valid, c, 0.95) : NaN;
+    }
+  });
+}
+
+/** The VPC's replicate summaries of both variants for replicates [k0, k1): the part the post-fit threads split. */
+export function vpcKernel(model: SubjectDensity['model'], parts: SimulationParts, maxBins: number, vpcTime: DiagnosticsOptions['vpcTime']): { plans(): VpcPlan[]; run(k0: number, k1: number): void } {
+  let plans: VpcPlan[] | null = null;
+  const K = parts.replicates;
+  const timeScale = resolveVpcTime(model, vpcTime);
+  const get = () => (plans ??= [false, true].map((corrected) => planVpc({ model, offset: parts.offset, K, pred: parts.pred, maxBins, timeScale }, corrected)));
+  return {
+    plans: get,
+    run(k0, k1) {
+      get().forEach((plan, v) => vpcReplicates(plan, parts.sims, K, k0, k1, parts.vpc.subarray(v * vpcSummaryLength(maxBins, K), (v + 1) * vpcSummaryLength(maxBins, K))));
+    },
+  };
+}
+
+function resolveVpcTime(model: SubjectDensity['model'], vpcTime: DiagnosticsOptions['vpcTime']): 'time' | 'timeAfterDose' {
+  return vpcTime === 'auto' ? (model.subjects.some((x) => x.doses.length > 1) ? 'timeAfterDose' : 'time') : vpcTime;
+}
+
+function vpcData(input: VpcInput, plan: VpcPlan, summaries: Float64Array): VpcData {
+  const { model, offset, K, piLevel, timeScale } = input;
+  const { corrected, times } = plan;
+  const bins: VpcBin[] = [];
+  plan.bins.forEach((bin, b) => {
+    const members = bin.members;
+    const n = members.length;
+    const obs = new Float64Array(n);
+    let nc = 0;
+    members.forEach((g, m) => {
+      const i = bin.subject[m];
+      const q = g - offset[i];
+      const s = model.subjects[i];
       if (s.censored[q]) (nc++, (obs[m] = -Infinity));
-      else obs[m] = s.y[q] * factor(g);
+      else obs[m] = s.y[q] * bin.factor[m];
     });
     obs.sort();
-    const simP = [new Float64Array(K), new Float64Array(K), new Float64Array(K)];
-    const simC = new Float64Array(K);
-    const buf = new Float64Array(n);
-    for (let k = 0; k < K; k++) {
-      let c = 0, valid = 0;
-      members.forEach((g) => {
-        const i = subjOf[g];
-        const q = g - offset[i];
-        const s = model.subjects[i];
-        const v = sims[offset[i] * K + k * s.nObs + q];
-        if (!(v === v)) return;
-        const lloq = s.lloqMgL[q];
-        if (lloq > 0 && v < lloq) (c++, (buf[valid++] = -Infinity));
-        else buf[valid++] = v * factor(g);
-      });
-      const sv = buf.subarray(0, valid).sort();
-      simC[k] = valid > 0 ? c / valid : NaN;
-      [0.05, 0.5, 0.95].forEach((pq, j) => (simP[j][k] = valid > 0 ? percentileOf(sv, valid, c, pq) : NaN));
-    }
+    const base = b * 4 * K;
+    const simP = [summaries.subarray(base, base + K), summaries.subarray(base + K, base + 2 * K), summaries.subarray(base + 2 * K, base + 3 * K)];
+    const simC = summaries.subarray(base + 3 * K, base + 4 * K);
     const mid = members.map((g) => times[g]).sort((x, y) => x - y);
     bins.push({
-      timeLowH: members.length ? times[members[0]] : edges[b],
+      timeLowH: members.length ? times[members[0]] : bin.edge,
       timeHighH: times[members[n - 1]],
       timeMidH: quantileSorted(mid, n, 0.5),
       n,
@@ -380,7 +516,7 @@ function vpcData(input: VpcInput, corrected: boolean): VpcData {
       simulated: { p5: band(simP[0], K, piLevel), p50: band(simP[1], K, piLevel), p95: band(simP[2], K, piLevel) },
       censoredFraction: { observed: nc / n, simulated: band(simC, K, piLevel) },
     });
-  }
+  });
   return { predictionCorrected: corrected, timeScale, replicates: K, piLevel, bins };
 }
 

@@ -17,6 +17,7 @@ import type { ConditionalResult } from './conditional.js';
 import type { SubjectDensity } from './density.js';
 import { linearisedMinus2LL, linearisedScratch, type Linearisation } from './linearised.js';
 import { centralGradient, centralHessian } from '../optim/finiteDifferences.js';
+import { f64, u8 } from './modes.js';
 import { copyTheta, fromWorking, naturalOf, toWorking, type ParameterLayout } from './parameters.js';
 
 export type InformationMethod = 'stochastic approximation (Louis)' | 'linearisation';
@@ -32,9 +33,30 @@ export interface Information {
 const FD = 1e-4;
 
 export function louisInformation(density: SubjectDensity, layout: ParameterLayout, conditional: ConditionalResult): Information {
+  const parts = allocateLouis(density.model, layout, false);
+  const kernel = louisKernel(density, layout, conditional, parts);
+  kernel.run(0, density.model.nSubjects);
+  return concludeLouis(density.model, layout, parts, kernel.omegaOk);
+}
+
+/** Per-subject parts of Louis' information: each subject's P x P term and whether it had a usable draw. */
+export interface LouisParts {
+  contribution: Float64Array;
+  used: Uint8Array;
+}
+
+export function allocateLouis(model: CompiledModel, layout: ParameterLayout, shared: boolean): LouisParts {
+  const P = layout.estimated.length;
+  return { contribution: f64(model.nSubjects * P * P, shared), used: u8(model.nSubjects, shared) };
+}
+
+/**
+ * Louis' terms of subjects [from, to) into `parts` (each subject's entries only): the Omega
+ * derivatives are formed once here, identically on every thread.
+ */
+export function louisKernel(density: SubjectDensity, layout: ParameterLayout, conditional: ConditionalResult, parts: LouisParts): { run(from: number, to: number): void; omegaOk: boolean } {
   const model = density.model;
   const theta = density.theta;
-  const N = model.nSubjects;
   const d = density.nEta;
   const p = model.nParams;
   const est = layout.estimated;
@@ -107,7 +129,6 @@ export function louisInformation(density: SubjectDensity, layout: ParameterLayou
     }
   }
 
-  const info = new Float64Array(P * P);
   const g = new Float64Array(P);
   const H = new Float64Array(P * P);
   const sumG = new Float64Array(P);
@@ -126,137 +147,158 @@ export function louisInformation(density: SubjectDensity, layout: ParameterLayou
   const gD = new Float64Array(nD);
   const hD = new Float64Array(nD * nD);
   const meanRow = new Float64Array(p);
-  let skipped = 0;
   const analyticResidual = !structuralData;
   const residualWhich = Int32Array.from(dataPos, (a) => layout.entries[est[a]].index);
 
-  for (let i = 0; i < N; i++) {
-    const n = conditional.nKept[i];
-    const sub = model.subjects[i];
-    const f = fBuf.subarray(0, sub.nObs);
-    const ft = fTmp.subarray(0, sub.nObs);
-    dm.fill(0);
-    meanPos.forEach((a, r) => {
-      const en = layout.entries[est[a]];
-      if (en.kind === 'typical') dm[r * d + model.parameters[en.index].etaIndex] = 1;
-      else {
-        const t = en.index;
-        dm[r * d + model.parameters[model.covariateTerms[t].parameterIndex].etaIndex] = sub.design[t];
-      }
-    });
-    // Data part as a function of its working entries (phi of the draw held fixed on the BSV components).
-    const dataLL = (x: Float64Array): number => {
-      let a = theta.a, b = theta.b;
-      if (structuralData) {
-        for (let r = 0; r < nD; r++) wTmp[est[dataPos[r]]] = x[r];
-        fromWorking(model, layout, wTmp, thetaTmp);
-        model.meanPhi(i, thetaTmp, meanRow);
-        for (let j = 0; j < p; j++) phiD[j] = model.parameters[j].etaIndex >= 0 ? phi[j] : meanRow[j];
-        a = thetaTmp.a;
-        b = thetaTmp.b;
-        for (let r = 0; r < nD; r++) wTmp[est[dataPos[r]]] = w0[est[dataPos[r]]];
-        if (!model.predict(i, phiD, ft)) return -Infinity;
-        return model.logLikFromPredictions(i, ft, a, b);
-      }
-      for (let r = 0; r < nD; r++) {
-        const en = layout.entries[est[dataPos[r]]];
-        if (en.index === 0) a = Math.exp(x[r]);
-        else b = Math.exp(x[r]);
-      }
-      return model.logLikFromPredictions(i, f, a, b);
-    };
-    const negDataLL = (x: Float64Array) => -dataLL(x);
-    sumG.fill(0);
-    sumGG.fill(0);
-    let used = 0;
-    for (let m = 0; m < n; m++) {
-      const draw = conditional.draws.subarray((i * conditional.keepDraws + m) * d, (i * conditional.keepDraws + m + 1) * d);
-      density.phiOf(i, draw, phi);
-      g.fill(0);
-      H.fill(0);
-      // Population density: e = phi_bsv - m_i(theta) = the draw itself at theta_hat.
-      for (let k = 0; k < d; k++) e[k] = draw[k];
-      for (let r = 0; r < d; r++) {
-        let s = 0;
-        for (let c = 0; c < d; c++) s += A[r * d + c] * e[c];
-        Ae[r] = s;
-      }
-      for (let x = 0; x < nO; x++)
-        for (let r = 0; r < d; r++) {
-          let s = 0;
-          for (let c = 0; c < d; c++) s += Aa[x * d * d + r * d + c] * e[c];
-          Aae[x * d + r] = s;
-        }
-      meanPos.forEach((a, r) => {
-        let s = 0;
-        for (let k = 0; k < d; k++) s += dm[r * d + k] * Ae[k];
-        g[a] += s;
-        meanPos.forEach((b2, r2) => {
-          let h = 0;
-          for (let k = 0; k < d; k++) for (let k2 = 0; k2 < d; k2++) h -= dm[r * d + k] * A[k * d + k2] * dm[r2 * d + k2];
-          H[a * P + b2] += h;
+  const contribution = parts.contribution;
+  const usedFlag = parts.used;
+  return {
+    omegaOk: Number.isFinite(c0),
+    run(from, to) {
+      for (let i = from; i < to; i++) {
+        const n = conditional.nKept[i];
+        const sub = model.subjects[i];
+        const f = fBuf.subarray(0, sub.nObs);
+        const ft = fTmp.subarray(0, sub.nObs);
+        dm.fill(0);
+        meanPos.forEach((a, r) => {
+          const en = layout.entries[est[a]];
+          if (en.kind === 'typical') dm[r * d + model.parameters[en.index].etaIndex] = 1;
+          else {
+            const t = en.index;
+            dm[r * d + model.parameters[model.covariateTerms[t].parameterIndex].etaIndex] = sub.design[t];
+          }
         });
-        for (let x = 0; x < nO; x++) {
-          let h = 0;
-          for (let k = 0; k < d; k++) h += dm[r * d + k] * Aae[x * d + k];
-          H[a * P + omegaPos[x]] += h;
-          H[omegaPos[x] * P + a] += h;
-        }
-      });
-      for (let x = 0; x < nO; x++) {
-        let q = 0;
-        for (let k = 0; k < d; k++) q += e[k] * Aae[x * d + k];
-        g[omegaPos[x]] += ca[x] - 0.5 * q;
-        for (let y = 0; y < nO; y++) {
-          let q2 = 0;
-          const base = (x * nO + y) * d * d;
+        // Data part as a function of its working entries (phi of the draw held fixed on the BSV components).
+        const dataLL = (x: Float64Array): number => {
+          let a = theta.a, b = theta.b;
+          if (structuralData) {
+            for (let r = 0; r < nD; r++) wTmp[est[dataPos[r]]] = x[r];
+            fromWorking(model, layout, wTmp, thetaTmp);
+            model.meanPhi(i, thetaTmp, meanRow);
+            for (let j = 0; j < p; j++) phiD[j] = model.parameters[j].etaIndex >= 0 ? phi[j] : meanRow[j];
+            a = thetaTmp.a;
+            b = thetaTmp.b;
+            for (let r = 0; r < nD; r++) wTmp[est[dataPos[r]]] = w0[est[dataPos[r]]];
+            if (!model.predict(i, phiD, ft)) return -Infinity;
+            return model.logLikFromPredictions(i, ft, a, b);
+          }
+          for (let r = 0; r < nD; r++) {
+            const en = layout.entries[est[dataPos[r]]];
+            if (en.index === 0) a = Math.exp(x[r]);
+            else b = Math.exp(x[r]);
+          }
+          return model.logLikFromPredictions(i, f, a, b);
+        };
+        const negDataLL = (x: Float64Array) => -dataLL(x);
+        sumG.fill(0);
+        sumGG.fill(0);
+        let used = 0;
+        for (let m = 0; m < n; m++) {
+          const draw = conditional.draws.subarray((i * conditional.keepDraws + m) * d, (i * conditional.keepDraws + m + 1) * d);
+          density.phiOf(i, draw, phi);
+          g.fill(0);
+          H.fill(0);
+          // Population density: e = phi_bsv - m_i(theta) = the draw itself at theta_hat.
+          for (let k = 0; k < d; k++) e[k] = draw[k];
           for (let r = 0; r < d; r++) {
             let s = 0;
-            for (let c = 0; c < d; c++) s += Aab[base + r * d + c] * e[c];
-            q2 += e[r] * s;
+            for (let c = 0; c < d; c++) s += A[r * d + c] * e[c];
+            Ae[r] = s;
           }
-          H[omegaPos[x] * P + omegaPos[y]] += cab[x * nO + y] - 0.5 * q2;
-        }
-      }
-      // Data part: analytic in the residual terms for quantified levels, else finite differences.
-      if (nD > 0) {
-        if (!model.predict(i, phi, f)) continue;
-        let sign = 1;
-        if (analyticResidual && sub.nCensored === 0) {
-          if (!residualDerivatives(model.residualModel, theta.a, theta.b, sub.y, f, residualWhich, gD, hD)) continue;
-        } else {
-          for (let r = 0; r < nD; r++) xD[r] = w0[est[dataPos[r]]];
-          centralGradient(negDataLL, xD, gD, FD);
-          centralHessian(negDataLL, xD, hD, FD);
-          sign = -1;
-        }
-        let finite = true;
-        for (let r = 0; r < nD; r++) {
-          if (!Number.isFinite(gD[r])) finite = false;
-          g[dataPos[r]] += sign * gD[r];
-          for (let r2 = 0; r2 < nD; r2++) {
-            if (!Number.isFinite(hD[r * nD + r2])) finite = false;
-            H[dataPos[r] * P + dataPos[r2]] += sign * hD[r * nD + r2];
+          for (let x = 0; x < nO; x++)
+            for (let r = 0; r < d; r++) {
+              let s = 0;
+              for (let c = 0; c < d; c++) s += Aa[x * d * d + r * d + c] * e[c];
+              Aae[x * d + r] = s;
+            }
+          meanPos.forEach((a, r) => {
+            let s = 0;
+            for (let k = 0; k < d; k++) s += dm[r * d + k] * Ae[k];
+            g[a] += s;
+            meanPos.forEach((b2, r2) => {
+              let h = 0;
+              for (let k = 0; k < d; k++) for (let k2 = 0; k2 < d; k2++) h -= dm[r * d + k] * A[k * d + k2] * dm[r2 * d + k2];
+              H[a * P + b2] += h;
+            });
+            for (let x = 0; x < nO; x++) {
+              let h = 0;
+              for (let k = 0; k < d; k++) h += dm[r * d + k] * Aae[x * d + k];
+              H[a * P + omegaPos[x]] += h;
+              H[omegaPos[x] * P + a] += h;
+            }
+          });
+          for (let x = 0; x < nO; x++) {
+            let q = 0;
+            for (let k = 0; k < d; k++) q += e[k] * Aae[x * d + k];
+            g[omegaPos[x]] += ca[x] - 0.5 * q;
+            for (let y = 0; y < nO; y++) {
+              let q2 = 0;
+              const base = (x * nO + y) * d * d;
+              for (let r = 0; r < d; r++) {
+                let s = 0;
+                for (let c = 0; c < d; c++) s += Aab[base + r * d + c] * e[c];
+                q2 += e[r] * s;
+              }
+              H[omegaPos[x] * P + omegaPos[y]] += cab[x * nO + y] - 0.5 * q2;
+            }
+          }
+          // Data part: analytic in the residual terms for quantified levels, else finite differences.
+          if (nD > 0) {
+            if (!model.predict(i, phi, f)) continue;
+            let sign = 1;
+            if (analyticResidual && sub.nCensored === 0) {
+              if (!residualDerivatives(model.residualModel, theta.a, theta.b, sub.y, f, residualWhich, gD, hD)) continue;
+            } else {
+              for (let r = 0; r < nD; r++) xD[r] = w0[est[dataPos[r]]];
+              centralGradient(negDataLL, xD, gD, FD);
+              centralHessian(negDataLL, xD, hD, FD);
+              sign = -1;
+            }
+            let finite = true;
+            for (let r = 0; r < nD; r++) {
+              if (!Number.isFinite(gD[r])) finite = false;
+              g[dataPos[r]] += sign * gD[r];
+              for (let r2 = 0; r2 < nD; r2++) {
+                if (!Number.isFinite(hD[r * nD + r2])) finite = false;
+                H[dataPos[r] * P + dataPos[r2]] += sign * hD[r * nD + r2];
+              }
+            }
+            if (!finite) continue;
+          }
+          used++;
+          for (let a = 0; a < P; a++) {
+            sumG[a] += g[a];
+            for (let b2 = 0; b2 < P; b2++) sumGG[a * P + b2] += H[a * P + b2] + g[a] * g[b2];
           }
         }
-        if (!finite) continue;
+        usedFlag[i] = used > 0 ? 1 : 0;
+        if (used === 0) continue;
+        const cBase = i * P * P;
+        for (let a = 0; a < P; a++)
+          for (let b2 = 0; b2 < P; b2++) contribution[cBase + a * P + b2] = sumGG[a * P + b2] / used - (sumG[a] / used) * (sumG[b2] / used);
       }
-      used++;
-      for (let a = 0; a < P; a++) {
-        sumG[a] += g[a];
-        for (let b2 = 0; b2 < P; b2++) sumGG[a * P + b2] += H[a * P + b2] + g[a] * g[b2];
-      }
-    }
-    if (used === 0) {
+    },
+  };
+}
+
+/** The information: minus the subjects' terms summed in subject order, then its warnings. */
+export function concludeLouis(model: CompiledModel, layout: ParameterLayout, parts: LouisParts, omegaOk: boolean): Information {
+  const N = model.nSubjects;
+  const P = layout.estimated.length;
+  const info = new Float64Array(P * P);
+  let skipped = 0;
+  for (let i = 0; i < N; i++) {
+    if (!parts.used[i]) {
       skipped++;
       continue;
     }
-    for (let a = 0; a < P; a++)
-      for (let b2 = 0; b2 < P; b2++) info[a * P + b2] -= sumGG[a * P + b2] / used - (sumG[a] / used) * (sumG[b2] / used);
+    const cBase = i * P * P;
+    for (let a = 0; a < P; a++) for (let b2 = 0; b2 < P; b2++) info[a * P + b2] -= parts.contribution[cBase + a * P + b2];
   }
   const warnings: string[] = [];
   if (skipped) warnings.push(`Louis' formula: ${skipped} subject(s) had no usable conditional draw and add nothing to the information`);
-  if (!Number.isFinite(c0)) warnings.push("Louis' formula: Omega is not positive definite at the estimate");
+  if (!omegaOk) warnings.push("Louis' formula: Omega is not positive definite at the estimate");
   for (let a = 0; a < P; a++) for (let b2 = 0; b2 < a; b2++) info[a * P + b2] = info[b2 * P + a] = 0.5 * (info[a * P + b2] + info[b2 * P + a]);
   return { method: 'stochastic approximation (Louis)', matrix: info, size: P, warnings };
 }

@@ -9,16 +9,18 @@
  * NPDE, VPC). A failure in one step is reported in `warnings` with its consequence.
  */
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
-import { conditionalDistribution, etaShrinkage, type ConditionalOptions, type ConditionalResult, type Shrinkage } from './conditional.js';
+import { concludeConditional, etaShrinkage, resolveConditionalOptions, type ConditionalOptions, type ConditionalResult, type Shrinkage } from './conditional.js';
 import { buildDensity, type SubjectDensity } from './density.js';
-import { computeDiagnostics, type DiagnosticsOptions, type DiagnosticsResult } from './diagnostics.js';
-import { linearisedInformation, louisInformation, standardErrors, type StandardErrors } from './fisher.js';
-import { importanceSamplingLikelihood, informationCriteria, type ImportanceOptions, type ImportanceResult, type InformationCriteria } from './likelihood.js';
+import { concludeDiagnostics, defaultReplicates, DEFAULT_DIAGNOSTICS, type DiagnosticsOptions, type DiagnosticsResult } from './diagnostics.js';
+import { concludeLouis, linearisedInformation, standardErrors, type StandardErrors } from './fisher.js';
+import { concludeImportance, informationCriteria, resolveImportanceOptions, type ImportanceOptions, type ImportanceResult, type InformationCriteria } from './likelihood.js';
 import { buildLinearisation, linearisedMinus2LL } from './linearised.js';
-import { conditionalModes, type ModeResult } from './modes.js';
+import { concludeModes, type ModeResult } from './modes.js';
 import { parameterLayout, type ParameterLayout } from './parameters.js';
+import { createPosthocBlocks, type PosthocBlockOptions, type PosthocBlocks, type PosthocThreadHost } from './threads.js';
 
 export { thetaFromPopulation } from './parameters.js';
+export type { PosthocThreadHost } from './threads.js';
 
 export interface PosthocOptions {
   /** Root of every random stream of the post-fit steps. */
@@ -66,12 +68,43 @@ export class PosthocError extends Error {
 }
 
 export function runPosthoc(model: CompiledModel, theta: PopulationParameters, options: Partial<PosthocOptions> = {}): PosthocResult {
+  const prep = preparePosthoc(model, theta, options);
+  return finishPosthoc(prep, createPosthocBlocks(prep.density, prep.blocks));
+}
+
+/**
+ * runPosthoc with the per-subject work of its costly steps on `threads` (engine/posthoc/threads.ts):
+ * the same result to the last bit for any number of threads. Without a host, or with one thread,
+ * it is runPosthoc.
+ */
+export async function runPosthocOnThreads(model: CompiledModel, theta: PopulationParameters, options: Partial<PosthocOptions> & { threads?: PosthocThreadHost } = {}): Promise<PosthocResult> {
+  const prep = preparePosthoc(model, theta, options);
+  const blocks = createPosthocBlocks(prep.density, prep.blocks, options.threads);
+  try {
+    await blocks.ready;
+    return finishPosthoc(prep, blocks);
+  } finally {
+    blocks.close();
+  }
+}
+
+interface PreparedPosthoc {
+  model: CompiledModel;
+  theta: PopulationParameters;
+  options: Partial<PosthocOptions>;
+  now: () => number;
+  t0: number;
+  density: SubjectDensity;
+  blocks: PosthocBlockOptions;
+  diagnostics: DiagnosticsOptions | null;
+}
+
+function preparePosthoc(model: CompiledModel, theta: PopulationParameters, options: Partial<PosthocOptions>): PreparedPosthoc {
   const now = options.now ?? Date.now;
   const seed = options.seed ?? 1;
   const t0 = now();
   const density = buildDensity(model, theta);
   if (!density) throw new PosthocError('the estimated Omega is not positive definite: no post-fit computation is possible; check the fit (its warnings) and refit');
-  const warnings: string[] = [];
   const d = model.nEta;
   const p = model.nParams;
   let start: Float64Array | undefined;
@@ -84,15 +117,46 @@ export function runPosthoc(model: CompiledModel, theta: PopulationParameters, op
         start[i * d + k] = Number.isFinite(v) ? v : 0;
       }
   }
-  const modes = conditionalModes(density, start ? { start } : {});
+  const diagnostics = options.diagnostics !== false ? { ...DEFAULT_DIAGNOSTICS, seed, ...(options.diagnostics ?? {}) } : null;
+  return {
+    model,
+    theta,
+    options,
+    now,
+    t0,
+    density,
+    diagnostics,
+    blocks: {
+      start,
+      conditional: resolveConditionalOptions({ seed, ...(options.conditional ?? {}) }),
+      importance: resolveImportanceOptions({ seed, ...(options.importance ?? {}) }),
+      replicates: diagnostics ? (diagnostics.replicates ?? defaultReplicates(model.nObsTotal)) : null,
+      diagnosticsSeed: diagnostics ? diagnostics.seed : seed,
+      vpcBins: diagnostics ? diagnostics.vpcBins : DEFAULT_DIAGNOSTICS.vpcBins,
+      vpcTime: diagnostics ? diagnostics.vpcTime : DEFAULT_DIAGNOSTICS.vpcTime,
+    },
+  };
+}
+
+/** The steps in order; the per-subject parts through `blocks`, every sum over subjects here in subject order. */
+function finishPosthoc(prep: PreparedPosthoc, blocks: PosthocBlocks): PosthocResult {
+  const { model, theta, options, now, t0, density } = prep;
+  const parts = blocks.parts;
+  const warnings: string[] = [];
+  blocks.modes();
+  const modes = parts.modes;
+  concludeModes(model, modes);
   warnings.push(...modes.warnings);
   const t1 = now();
-  const conditional = conditionalDistribution(density, modes, { seed, ...(options.conditional ?? {}) });
+  blocks.conditional();
+  const conditional = parts.conditional;
+  concludeConditional(model, conditional, prep.blocks.conditional);
   warnings.push(...conditional.warnings);
   const shrinkage = etaShrinkage(density, modes, conditional);
   const t2 = now();
   const layout = parameterLayout(model);
-  const se = standardErrors(model, layout, theta, louisInformation(density, layout, conditional));
+  const omegaOk = blocks.louis();
+  const se = standardErrors(model, layout, theta, concludeLouis(model, layout, parts.louis, omegaOk));
   warnings.push(...se.warnings);
   const t3 = now();
   const lin = buildLinearisation(model, modes);
@@ -102,7 +166,9 @@ export function runPosthoc(model: CompiledModel, theta: PopulationParameters, op
     warnings.push(...seLin.warnings.map((w) => `(second method) ${w}`));
   }
   const t4 = now();
-  const importance = importanceSamplingLikelihood(density, conditional, modes, { seed, ...(options.importance ?? {}) });
+  blocks.importance();
+  const importance: ImportanceResult = parts.importance;
+  concludeImportance(model, importance, prep.blocks.importance);
   warnings.push(...importance.warnings);
   const isOk = Number.isFinite(importance.minus2LL);
   const t5 = now();
@@ -112,8 +178,10 @@ export function runPosthoc(model: CompiledModel, theta: PopulationParameters, op
   for (let i = 0; i < model.nSubjects; i++) lap += modes.logMarginalLaplace[i];
   const t6 = now();
   let diagnostics: DiagnosticsResult | null = null;
-  if (options.diagnostics !== false) {
-    diagnostics = computeDiagnostics(density, modes, { seed, ...(options.diagnostics ?? {}) });
+  if (prep.diagnostics && parts.simulation) {
+    blocks.simulation();
+    blocks.vpc();
+    diagnostics = concludeDiagnostics(density, modes, parts.simulation, prep.diagnostics, blocks.vpcPlans());
     warnings.push(...diagnostics.warnings);
   }
   const t7 = now();

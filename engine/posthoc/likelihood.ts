@@ -15,7 +15,7 @@ import { createStreams } from '../rng/index.js';
 import type { ConditionalResult } from './conditional.js';
 import { drawStudentT, logStudentTConstant } from './conditional.js';
 import type { SubjectDensity } from './density.js';
-import { list, type ModeResult } from './modes.js';
+import { f64, i32, list, u8, type ModeResult } from './modes.js';
 import type { ParameterLayout } from './parameters.js';
 
 export interface ImportanceOptions {
@@ -58,13 +58,48 @@ export function importanceSamplingLikelihood(
   modes: ModeResult,
   options: Partial<ImportanceOptions> = {},
 ): ImportanceResult {
+  const o = resolveImportanceOptions(options);
+  const out = allocateImportance(density.model, o, false);
+  importanceKernel(density, conditional, modes, out, o).run(0, density.model.nSubjects);
+  concludeImportance(density.model, out, o);
+  return out;
+}
+
+/** The options with their defaults, checked. */
+export function resolveImportanceOptions(options: Partial<ImportanceOptions>): ImportanceOptions {
   const o = { ...DEFAULT_IMPORTANCE, ...options };
   if (!(Number.isInteger(o.df) && o.df >= 1)) throw new RangeError(`the Student-t proposal needs a whole number of degrees of freedom >= 1, got ${o.df}`);
+  return o;
+}
+
+/** Per-subject outputs (in SharedArrayBuffers when `shared`, for engine/posthoc/threads.ts); `impossible` flags subjects with no finite sample. */
+export function allocateImportance(model: SubjectDensity['model'], o: ImportanceOptions, shared: boolean): ImportanceResult & { impossible: Uint8Array } {
+  const N = model.nSubjects;
+  return {
+    minus2LL: 0,
+    mcError: 0,
+    logLik: f64(N, shared),
+    logLikSe: f64(N, shared),
+    ess: f64(N, shared),
+    samplesUsed: i32(N, shared),
+    samplesPerSubject: o.samplesPerSubject,
+    warnings: [],
+    impossible: u8(N, shared),
+  };
+}
+
+/** Importance sampling of subjects [from, to) into `out`: each subject draws from its own stream ('posthoc', 'importance', i). */
+export function importanceKernel(
+  density: SubjectDensity,
+  conditional: ConditionalResult,
+  modes: ModeResult,
+  out: ImportanceResult & { impossible: Uint8Array },
+  o: ImportanceOptions,
+): { run(from: number, to: number): void } {
   const model = density.model;
   const N = model.nSubjects;
   const d = density.nEta;
   const M = o.samplesPerSubject;
-  const out: ImportanceResult = { minus2LL: 0, mcError: 0, logLik: new Float64Array(N), logLikSe: new Float64Array(N), ess: new Float64Array(N), samplesUsed: new Int32Array(N), samplesPerSubject: M, warnings: [] };
   const target = o.targetMcError === 'auto' ? Math.max(0.1, 0.02 * Math.sqrt(N)) : o.targetMcError;
   const subjectTarget = target !== null && target > 0 ? target / (2 * Math.sqrt(Math.max(1, N))) : 0;
   const CHUNK = 1000;
@@ -77,71 +112,89 @@ export function importanceSamplingLikelihood(
   const eta = new Float64Array(d);
   const loc = new Float64Array(d);
   const root = createStreams(o.seed);
+  const impossibleFlag = out.impossible;
+  return {
+    run(from, to) {
+      for (let i = from; i < to; i++) {
+        const fi = f.subarray(0, model.subjects[i].nObs);
+        if (d === 0) {
+          out.logLik[i] = density.logLik(i, eta, fi);
+          out.ess[i] = M;
+          out.samplesUsed[i] = 0;
+          continue;
+        }
+        for (let k = 0; k < d; k++) loc[k] = conditional.mean[i * d + k];
+        chol.set(conditional.covariance.subarray(i * d * d, (i + 1) * d * d));
+        if (!cholesky(chol, d, chol)) {
+          chol.set(modes.laplaceCovariance.subarray(i * d * d, (i + 1) * d * d));
+          if (!cholesky(chol, d, chol)) {
+            chol.set(density.theta.omega);
+            cholesky(chol, d, chol);
+          }
+        }
+        const c = logStudentTConstant(chol, d, o.df);
+        const rng = root.stream('posthoc', 'importance', i);
+        let max = -Infinity;
+        let used = 0;
+        let s1 = 0, s2 = 0;
+        while (used < M) {
+          const end = Math.min(M, used + CHUNK);
+          for (let m = used; m < end; m++) {
+            const lq = drawStudentT(rng, loc, chol, d, o.df, z, eta) + c;
+            const v = density.logJoint(i, eta, fi) - lq;
+            lw[m] = v;
+            if (v > max) max = v;
+          }
+          used = end;
+          if (max === -Infinity) continue;
+          // The weight sums are needed only for the early-stop check and at the end.
+          const check = subjectTarget > 0 && used >= o.minSamples && used < M;
+          if (!check && used < M) continue;
+          s1 = 0;
+          s2 = 0;
+          for (let m = 0; m < used; m++) {
+            const w = Math.exp(lw[m] - max);
+            s1 += w;
+            s2 += w * w;
+          }
+          if (check) {
+            const mean = s1 / used;
+            const se = Math.sqrt(Math.max(0, s2 / used - mean * mean) / Math.max(1, used - 1)) / mean;
+            if (se < subjectTarget) break;
+          }
+        }
+        out.samplesUsed[i] = used;
+        if (max === -Infinity) {
+          out.logLik[i] = -Infinity;
+          impossibleFlag[i] = 1;
+          continue;
+        }
+        const mean = s1 / used;
+        out.logLik[i] = max + Math.log(mean);
+        const varW = Math.max(0, s2 / used - mean * mean) / Math.max(1, used - 1);
+        out.logLikSe[i] = Math.sqrt(varW) / mean;
+        out.ess[i] = (s1 * s1) / s2;
+      }
+    },
+  };
+}
+
+/** -2LL, its Monte Carlo error and the warnings: sums over subjects in subject order. */
+export function concludeImportance(model: SubjectDensity['model'], out: ImportanceResult & { impossible?: Uint8Array }, o: ImportanceOptions): void {
+  const N = model.nSubjects;
   const degenerate: string[] = [];
   const impossible: string[] = [];
   let var2 = 0;
-  for (let i = 0; i < N; i++) {
-    const fi = f.subarray(0, model.subjects[i].nObs);
-    if (d === 0) {
-      out.logLik[i] = density.logLik(i, eta, fi);
-      out.ess[i] = M;
-      out.samplesUsed[i] = 0;
-      continue;
-    }
-    for (let k = 0; k < d; k++) loc[k] = conditional.mean[i * d + k];
-    chol.set(conditional.covariance.subarray(i * d * d, (i + 1) * d * d));
-    if (!cholesky(chol, d, chol)) {
-      chol.set(modes.laplaceCovariance.subarray(i * d * d, (i + 1) * d * d));
-      if (!cholesky(chol, d, chol)) {
-        chol.set(density.theta.omega);
-        cholesky(chol, d, chol);
+  if (model.nEta > 0)
+    for (let i = 0; i < N; i++) {
+      if (out.impossible![i]) {
+        impossible.push(model.subjects[i].id);
+        continue;
       }
+      var2 += out.logLikSe[i] * out.logLikSe[i];
+      if (out.ess[i] < o.minEssFraction * out.samplesUsed[i]) degenerate.push(`${model.subjects[i].id} (ESS ${out.ess[i].toFixed(0)})`);
     }
-    const c = logStudentTConstant(chol, d, o.df);
-    const rng = root.stream('posthoc', 'importance', i);
-    let max = -Infinity;
-    let used = 0;
-    let s1 = 0, s2 = 0;
-    while (used < M) {
-      const end = Math.min(M, used + CHUNK);
-      for (let m = used; m < end; m++) {
-        const lq = drawStudentT(rng, loc, chol, d, o.df, z, eta) + c;
-        const v = density.logJoint(i, eta, fi) - lq;
-        lw[m] = v;
-        if (v > max) max = v;
-      }
-      used = end;
-      if (max === -Infinity) continue;
-      // The weight sums are needed only for the early-stop check and at the end.
-      const check = subjectTarget > 0 && used >= o.minSamples && used < M;
-      if (!check && used < M) continue;
-      s1 = 0;
-      s2 = 0;
-      for (let m = 0; m < used; m++) {
-        const w = Math.exp(lw[m] - max);
-        s1 += w;
-        s2 += w * w;
-      }
-      if (check) {
-        const mean = s1 / used;
-        const se = Math.sqrt(Math.max(0, s2 / used - mean * mean) / Math.max(1, used - 1)) / mean;
-        if (se < subjectTarget) break;
-      }
-    }
-    out.samplesUsed[i] = used;
-    if (max === -Infinity) {
-      out.logLik[i] = -Infinity;
-      impossible.push(model.subjects[i].id);
-      continue;
-    }
-    const mean = s1 / used;
-    out.logLik[i] = max + Math.log(mean);
-    const varW = Math.max(0, s2 / used - mean * mean) / Math.max(1, used - 1);
-    out.logLikSe[i] = Math.sqrt(varW) / mean;
-    var2 += out.logLikSe[i] * out.logLikSe[i];
-    out.ess[i] = (s1 * s1) / s2;
-    if (out.ess[i] < o.minEssFraction * used) degenerate.push(`${model.subjects[i].id} (ESS ${out.ess[i].toFixed(0)})`);
-  }
+  delete out.impossible;
   let total = 0;
   for (let i = 0; i < N; i++) total += out.logLik[i];
   out.minus2LL = -2 * total;
@@ -151,7 +204,6 @@ export function importanceSamplingLikelihood(
       `importance sampling: the weights degenerate for subject(s) ${list(degenerate)}; their log-likelihood is less precise than its Monte Carlo SE suggests (raise the samples or check the conditional distribution)`,
     );
   if (impossible.length) out.warnings.push(`importance sampling: no sample gave a finite density for subject(s) ${list(impossible)}; -2LL is not available`);
-  return out;
 }
 
 export interface InformationCriteria {

@@ -15,6 +15,7 @@
  * plus the broadcast of theta, Omega's factor and the kernel scales.
  */
 import type { Dataset } from '../data/types.js';
+import { allocateTaskWords, createTaskChannel, serveTasks, subjectRanges, type ThreadHandle } from '../parallel/tasks.js';
 import type { ModelSpec } from '../spec/modelSpec.js';
 import { compileModel, type CompiledModel, type PopulationParameters } from '../stats/model.js';
 import { allocateNewtonBatch, createNewtonBlock, newtonBatchSizes, type NewtonBatchBuffers, type NewtonBlock } from './newtonStep.js';
@@ -44,10 +45,7 @@ export interface SaemThreadHost {
   start(init: BlockThreadInit): BlockThreadHandle;
 }
 
-export interface BlockThreadHandle {
-  readonly ready: Promise<void>;
-  terminate(): void;
-}
+export type BlockThreadHandle = ThreadHandle;
 
 /** Everything a block thread needs (structured-cloneable; the buffers are shared). */
 export interface BlockThreadInit {
@@ -66,23 +64,10 @@ export interface BlockThreadInit {
   errorText: SharedArrayBuffer;
 }
 
-// Control words.
-const GENERATION = 0;
-const TASK = 1;
-const FLAG = 2;
-const PENDING = 3;
-const FAILED = 4;
-const ERROR_LENGTH = 5;
-const CONTROL_WORDS = 8;
-// Tasks.
-const TASK_STOP = 0;
+// Tasks (0 stops the threads: engine/parallel/tasks.ts).
 const TASK_SIMULATE = 1;
 const TASK_REFRESH = 2;
 const TASK_NEWTON = 3;
-
-const ERROR_BYTES = 2048;
-/** A block thread that has not finished its task after this long is taken as stopped. */
-const STALL_MS = 120_000;
 
 /** The subject blocks of a fit, seen from the calling thread. */
 export interface SubjectBlocks {
@@ -103,28 +88,7 @@ export interface SubjectBlocks {
   close(): void;
 }
 
-/** Subject ranges of about equal work (levels + doses + 1 per subject), at least 2 subjects each. */
-export function subjectRanges(model: CompiledModel, threads: number): { from: number; to: number }[] {
-  const N = model.nSubjects;
-  const T = Math.max(1, Math.min(Math.floor(threads), Math.floor(N / 2)));
-  const weight = model.subjects.map((s) => 1 + s.nObs + s.doses.length);
-  const total = weight.reduce((a, b) => a + b, 0);
-  const ranges: { from: number; to: number }[] = [];
-  let from = 0;
-  let acc = 0;
-  for (let t = 0; t < T; t++) {
-    if (t === T - 1) {
-      ranges.push({ from, to: N });
-      break;
-    }
-    const goal = (total * (t + 1)) / T;
-    let to = from;
-    while (to < N - 2 * (T - 1 - t) && (to - from < 2 || acc + weight[to] / 2 <= goal)) acc += weight[to++];
-    ranges.push({ from, to });
-    from = to;
-  }
-  return ranges;
-}
+export { subjectRanges };
 
 /** Layout of the broadcast words: theta, Omega's factor and the kernel scales. */
 function broadcastLayout(model: CompiledModel) {
@@ -206,21 +170,18 @@ export function createSubjectBlocks(
     };
 
   const layout = broadcastLayout(model);
-  const control = new Int32Array(new SharedArrayBuffer(4 * CONTROL_WORDS));
+  const words = allocateTaskWords();
   const broadcast = new Float64Array(new SharedArrayBuffer(8 * layout.length));
   const nAcc = acceptanceWords(model.nEta);
   const acceptance = new Float64Array(new SharedArrayBuffer(8 * nAcc * T));
-  const errorText = new Uint8Array(new SharedArrayBuffer(ERROR_BYTES));
   const handles: BlockThreadHandle[] = [];
-  let closed = false;
-  const close = () => {
-    if (closed) return;
-    closed = true;
-    Atomics.store(control, TASK, TASK_STOP);
-    Atomics.add(control, GENERATION, 1);
-    Atomics.notify(control, GENERATION);
-    for (const h of handles) h.terminate();
-  };
+  const channel = createTaskChannel(words, T - 1, handles, {
+    closed: 'internal: the fit threads were already stopped',
+    stalled: 'a fit thread stopped responding',
+    consequence: 'the fit was stopped',
+    failed: 'a fit thread failed',
+  });
+  const close = () => channel.close();
   const chainShared = Object.fromEntries(Object.entries(chainBuffers).map(([k, v]) => [k, sharedOf(v)])) as BlockThreadInit['chainBuffers'];
   const newtonShared = Object.fromEntries(Object.entries(newtonBatch).map(([k, v]) => [k, sharedOf(v)])) as BlockThreadInit['newtonBuffers'];
   for (let t = 1; t < T; t++)
@@ -235,10 +196,10 @@ export function createSubjectBlocks(
         to: ranges[t].to,
         chainBuffers: chainShared,
         newtonBuffers: newtonShared,
-        control: sharedOf(control),
+        control: words.control,
         broadcast: sharedOf(broadcast),
         acceptance: sharedOf(acceptance),
-        errorText: sharedOf(errorText),
+        errorText: words.errorText,
       }),
     );
   const ready = Promise.all(handles.map((h) => h.ready)).then(
@@ -265,32 +226,9 @@ export function createSubjectBlocks(
 
   /** Hand `task` to every block thread, run `local` here, wait for the others. */
   function runTask(task: number, flag: number, th: PopulationParameters, local: () => void): void {
-    if (closed) throw new Error('internal: the fit threads were already stopped');
+    if (channel.closed) throw new Error('internal: the fit threads were already stopped');
     publish(th);
-    Atomics.store(control, TASK, task);
-    Atomics.store(control, FLAG, flag);
-    Atomics.store(control, PENDING, T - 1);
-    Atomics.add(control, GENERATION, 1);
-    Atomics.notify(control, GENERATION);
-    local();
-    let pending = Atomics.load(control, PENDING);
-    let since = Date.now();
-    while (pending !== 0) {
-      Atomics.wait(control, PENDING, pending, 1000);
-      const now = Atomics.load(control, PENDING);
-      if (now !== pending) {
-        pending = now;
-        since = Date.now();
-      } else if (Date.now() - since > STALL_MS) {
-        close();
-        throw new Error(`a fit thread stopped responding (no answer for ${STALL_MS / 1000} s); the fit was stopped`);
-      }
-    }
-    if (Atomics.load(control, FAILED)) {
-      const text = new TextDecoder().decode(errorText.slice(0, Atomics.load(control, ERROR_LENGTH)));
-      close();
-      throw new Error(`a fit thread failed: ${text}`);
-    }
+    channel.run(task, flag, local);
   }
 
   const part = { ...sim.iterationAcceptance, componentAccepted: new Float64Array(model.nEta), componentTries: new Float64Array(model.nEta) };
@@ -360,10 +298,8 @@ export function prepareBlockThread(init: BlockThreadInit): BlockThread {
   const sim = createSimulationState(model, init.settings, chains, theta, omegaFactor, [], { buffers, from: init.from, to: init.to, initialise: false });
   const newtonBlock: NewtonBlock = createNewtonBlock(model, sim, batch);
   const layout = broadcastLayout(model);
-  const control = new Int32Array(init.control);
   const broadcast = new Float64Array(init.broadcast);
   const acceptance = new Float64Array(init.acceptance);
-  const errorText = new Uint8Array(init.errorText);
   const nAcc = acceptanceWords(model.nEta);
   const nEta = model.nEta;
 
@@ -383,30 +319,16 @@ export function prepareBlockThread(init: BlockThreadInit): BlockThread {
 
   return {
     serve() {
-      // From generation 0: the first task may be posted before this thread gets here.
-      let generation = 0;
-      for (;;) {
-        Atomics.wait(control, GENERATION, generation);
-        generation = Atomics.load(control, GENERATION);
-        const task = Atomics.load(control, TASK);
-        if (task === TASK_STOP) return;
-        try {
-          receive();
-          const flag = Atomics.load(control, FLAG) === 1;
-          if (task === TASK_SIMULATE) {
-            resetAcceptance(sim.iterationAcceptance);
-            simulateSubjects(sim, theta, flag, sim.iterationAcceptance);
-            writeAcceptance(acceptance, init.thread * nAcc, sim.iterationAcceptance);
-          } else if (task === TASK_REFRESH) refreshChains(sim, theta, flag);
-          else if (task === TASK_NEWTON) newtonBlock.evaluate(theta);
-        } catch (e) {
-          const bytes = new TextEncoder().encode(`thread ${init.thread} (subjects ${init.from + 1}-${init.to}): ${(e as Error)?.message ?? String(e)}`).slice(0, ERROR_BYTES);
-          errorText.set(bytes);
-          Atomics.store(control, ERROR_LENGTH, bytes.length);
-          Atomics.store(control, FAILED, 1);
-        }
-        if (Atomics.sub(control, PENDING, 1) === 1) Atomics.notify(control, PENDING);
-      }
+      serveTasks({ control: init.control, errorText: init.errorText }, `thread ${init.thread} (subjects ${init.from + 1}-${init.to})`, (task, flagWord) => {
+        receive();
+        const flag = flagWord === 1;
+        if (task === TASK_SIMULATE) {
+          resetAcceptance(sim.iterationAcceptance);
+          simulateSubjects(sim, theta, flag, sim.iterationAcceptance);
+          writeAcceptance(acceptance, init.thread * nAcc, sim.iterationAcceptance);
+        } else if (task === TASK_REFRESH) refreshChains(sim, theta, flag);
+        else if (task === TASK_NEWTON) newtonBlock.evaluate(theta);
+      });
     },
   };
 }

@@ -2,15 +2,22 @@
  * The post-fit steps for a finished fit (engine/posthoc): standard errors, likelihood,
  * per-subject conditional distributions and diagnostics, merged into the fit record. One entry point for the CLI, the worker and the tests.
  */
-import { mergePosthoc, posthocRecordFields, PosthocError, runPosthoc, thetaFromPopulation, type PosthocOptions, type WithPosthoc } from '../../engine/posthoc/index.js';
+import { mergePosthoc, posthocRecordFields, PosthocError, runPosthocOnThreads, thetaFromPopulation, type PosthocOptions, type PosthocThreadHost, type WithPosthoc } from '../../engine/posthoc/index.js';
 import { assessDegeneracy, type DegeneracyReport } from '../../engine/posthoc/degeneracy.js';
 import { naturalToTransformed } from '../../engine/spec/individual.js';
-import type { FitOutcome } from './fitService.js';
+import { threadsForPosthoc } from '../worker/saemThreads.js';
+import { fitThreadHost, type FitOutcome } from './fitService.js';
 
 export interface FitPosthocOptions {
   /** Seed of the post-fit random streams (default: the fit's seed). */
   seed?: number;
   posthoc?: Partial<PosthocOptions>;
+  /**
+   * Cores for the per-subject work of the post-fit steps (default: those granted to the fit,
+   * `outcome.threads`); used from POSTHOC_THREADS_MIN_SUBJECTS subjects. A host instead of a
+   * number is used as given (tests). The record is the same for any number.
+   */
+  threads?: number | PosthocThreadHost;
   onStatus?: (message: string) => void | Promise<void>;
 }
 
@@ -26,7 +33,9 @@ export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions
   await options.onStatus?.('post-fit: conditional modes and distributions, standard errors, likelihood, diagnostics');
   let merged: PosthocFitRecord;
   try {
-    const r = runPosthoc(model, theta, { seed, startPhi, ...(options.posthoc ?? {}) });
+    const wanted = options.threads ?? outcome.threads ?? 1;
+    const host = typeof wanted === 'number' ? (threadsForPosthoc(wanted, model.nSubjects) > 1 ? fitThreadHost(threadsForPosthoc(wanted, model.nSubjects)) : undefined) : wanted;
+    const r = await runPosthocOnThreads(model, theta, { seed, startPhi, ...(options.posthoc ?? {}), ...(host ? { threads: host } : {}) });
     merged = mergePosthoc(record, posthocRecordFields(model, r, seed));
     const minus2LL = r.likelihood.importance ? r.likelihood.importance.minus2LL : Number.isFinite(r.likelihood.linearisedMinus2LL) ? r.likelihood.linearisedMinus2LL : null;
     markDegeneracy(merged, assessDegeneracy({ model, theta, density: r.density, modes: r.modes, minus2LL }));

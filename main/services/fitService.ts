@@ -9,7 +9,7 @@ import { buildFitRecord, type FitRecord } from '../../engine/saem/fitRecord.js';
 import { runSaem, type AbortSignalLike, type SaemProgress } from '../../engine/saem/saem.js';
 import { parseSaemSettings, resolveChains, type SaemSettings } from '../../engine/saem/settings.js';
 import { resourceLimits as threadResourceLimits, isMainThread } from 'node:worker_threads';
-import { threadsForFit, workerThreadHost } from '../worker/saemThreads.js';
+import { threadsForFit, workerThreadHost, type FitThreadHost } from '../worker/saemThreads.js';
 import { parseModelSpec, type ModelSpec } from '../../engine/spec/modelSpec.js';
 import { compileModel, type CompiledModel } from '../../engine/stats/model.js';
 import { readJsonFile } from './files.js';
@@ -34,6 +34,13 @@ export interface FitOutcome {
   model: CompiledModel;
   dataset: Dataset;
   spec: ModelSpec;
+  /** Cores granted to the fit (its post-fit steps use them too: main/services/fitPosthoc.ts). */
+  threads?: number;
+}
+
+/** The host of a fit's block threads, with the job thread's heap limits when there is one. */
+export function fitThreadHost(threads: number): FitThreadHost {
+  return workerThreadHost(threads, workerResourceLimits ? { resourceLimits: workerResourceLimits } : {});
 }
 
 /** Read a dataset: canonical CSV, or a spreadsheet export with its mapping template (the shared loader). */
@@ -59,11 +66,11 @@ export async function fitDataset(
   const chains = resolveChains(parseSaemSettings(spec.estimation, options.settings ?? {}), model.nSubjects);
   const threads = threadsForFit(options.threads ?? 1, model.nObsTotal, chains);
   const result = await runSaem(model, {
-    ...(threads > 1 ? { threads: workerThreadHost(threads, workerResourceLimits ? { resourceLimits: workerResourceLimits } : {}) } : {}),
+    ...(threads > 1 ? { threads: fitThreadHost(threads) } : {}),
     ...(options.seed !== undefined ? { seed: options.seed } : {}),
     ...(options.settings ? { settings: options.settings } : {}),
     ...(options.onProgress ? { onProgress: options.onProgress } : {}),
     ...(options.signal ? { signal: options.signal, yieldToHost: () => new Promise<void>((resolve) => setImmediate(resolve)) } : {}),
   });
-  return { record: buildFitRecord(model, result, datasetHash(dataset), covariateRanges(dataset)), model, dataset, spec };
+  return { record: buildFitRecord(model, result, datasetHash(dataset), covariateRanges(dataset)), model, dataset, spec, ...(options.threads !== undefined ? { threads: options.threads } : {}) };
 }
