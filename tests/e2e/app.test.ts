@@ -113,6 +113,31 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByRole('heading', { name: /Predictions at the initial values/ }).scrollIntoViewIfNeeded();
     await s.shot('03-models');
     await accessible('Models');
+
+    // Correlated BSV, by keyboard: a block of CL and V, a value out of bounds, V without BSV: each named; then removed.
+    await page.getByRole('button', { name: 'Add a correlation block' }).focus();
+    await page.keyboard.press('Enter');
+    const block1 = page.getByRole('group', { name: 'Parameters in correlation block 1' });
+    expect(await block1.getByRole('checkbox', { name: 'CL', exact: true }).isChecked()).toBe(true);
+    expect(await block1.getByRole('checkbox', { name: 'V', exact: true }).isChecked()).toBe(true);
+    const corr = page.getByLabel('Initial correlation CL with V (no unit, −0.95 to 0.95)');
+    await corr.fill('0.99');
+    await page.getByText('Correlation block 1, CL with V: "0.99" is not a correlation from −0.95 to 0.95.').first().waitFor();
+    await corr.fill('0.2');
+    await page.getByLabel('Between-subject variability on V').focus();
+    await page.keyboard.press('Space');
+    await page.getByText(/^Correlation block 1: V has no between-subject variability \(BSV\), so it cannot be correlated/).first().waitFor();
+    expect(await block1.getByRole('checkbox', { name: 'V (no BSV)' }).count()).toBe(1);
+    await page.getByRole('heading', { name: 'Correlated between-subject variability' }).evaluate((e) => e.scrollIntoView({ block: 'start' }));
+    await s.shot('03b-models-correlations');
+    await accessible('Models (correlations)');
+    await page.getByLabel('Between-subject variability on V').focus();
+    await page.keyboard.press('Space');
+    await expect.poll(() => page.getByText(/^Correlation block 1:/).count()).toBe(0);
+    await page.getByRole('button', { name: 'Remove correlation block 1' }).focus();
+    await page.keyboard.press('Enter');
+    expect(await page.getByRole('group', { name: 'Parameters in correlation block 1' }).count()).toBe(0);
+    expect(await page.locator(':focus').textContent()).toBe('Add a correlation block');
     await page.getByRole('button', { name: 'Save the model to the project' }).click();
     await page.getByText(/Saved\. Next: queue fits/).waitFor();
 
