@@ -223,7 +223,12 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     expect(fitText).toContain('Model comparison');
     expect(fitText).not.toContain('Advice for one patient');
     expect(fitText).not.toContain('Export tables (.xlsx)');
-    for (const part of ['Observed against predictions', 'Residuals and NPDE', 'Prediction-corrected VPC', 'Individual fits (page 1 of', 'Convergence']) expect(fitText).toContain(part);
+    for (const part of ['Observed against predictions', 'Residuals and NPDE', 'Prediction-corrected VPC', 'Convergence']) expect(fitText).toContain(part);
+    // Every subject's individual fit is printed (the screen shows them a page at a time), the last one included.
+    const ids = [...new Set(readFileSync(path.join(ROOT, 'resources', 'demo', 'ward-levels.csv'), 'utf8').trim().split('\n').slice(1).map((l) => l.split(',')[0]))];
+    expect(ids.length).toBeGreaterThan(12);
+    expect(fitText).toContain(`Individual fits: subjects 1 to 6 of ${ids.length} (${ids[0]} to ${ids[5]})`);
+    expect(fitText).toMatch(new RegExp(`Individual fits: subjects \\d+ to ${ids.length} of ${ids.length} \\(${ids[Math.floor((ids.length - 1) / 6) * 6]} to ${ids[ids.length - 1]}\\)`));
 
     // Dosing, first with the literature example model: blocked (labelled "not for clinical use"), then overridden.
     await view('Dosing').click();
