@@ -115,6 +115,22 @@ describe('cancel stops the engine job in its worker', () => {
     await cancelMidJob('import.parse', { fileName: 'big-ward-export.csv', bytesBase64: bytes.toString('base64') }, 'import.cancel', 'import-test-1');
   }, 120_000);
 
+  it('a cancel while the worker process is still starting ends it without running the job', async () => {
+    const before = workers.length;
+    const patient = JSON.parse(readFileSync(path.join(repoRoot, 'resources/demo/patient.json'), 'utf8'));
+    const answer = app.handle('dosing.advise', { prior: { literatureModelId: 'example-vancomycin-1cmt' }, patient, target: 'vancomycin-auc24', requestId: 'advise-early' }) as Promise<Result<unknown>>;
+    await expect.poll(() => workers.length, { timeout: 20_000, interval: 5 }).toBe(before + 1);
+    const w = workers[before];
+    expect(w.pid).toBeUndefined(); // not ready yet
+    expect(await app.handle('dosing.cancel', { requestId: 'advise-early' })).toEqual({ ok: true, value: { cancelled: true } });
+    const r = await answer;
+    expect(r.ok).toBe(false);
+    if (!r.ok) expect(r.error.kind).toBe('cancelled');
+    await w.exited;
+    expect(w.jobs).toEqual([]);
+    expect(app.runningRequests).toBe(0);
+  }, 60_000);
+
   it('refuses a cancel without a request id', async () => {
     const r = (await app.handle('dosing.cancel', {})) as Result<unknown>;
     expect(r.ok).toBe(false);
