@@ -246,6 +246,7 @@ export interface ResponseMap {
   'project.summary': ProjectSummary;
   'import.parse': ImportPreview;
   'import.remap': ImportPreview;
+  'import.cancel': { cancelled: boolean };
   'import.saveTemplate': { templateId: string };
   'import.templates': TemplateSummary[];
   'import.addToProject': { datasetId: string };
@@ -263,6 +264,7 @@ export interface ResponseMap {
   'dosing.targets': TargetPreset[];
   'dosing.literatureModels': LiteratureModel[];
   'dosing.advise': Advice;
+  'dosing.cancel': { cancelled: boolean };
   'dosing.saveSession': { sessionId: string };
   'report.pdf': FileValue;
   'verify.run': VerificationRun;
@@ -305,6 +307,7 @@ export const BRIDGE_METHODS: Readonly<Record<string, Channel>> = Object.freeze({
   projectSummary: 'project.summary',
   importParse: 'import.parse',
   importRemap: 'import.remap',
+  importCancel: 'import.cancel',
   importSaveTemplate: 'import.saveTemplate',
   importTemplates: 'import.templates',
   importAddToProject: 'import.addToProject',
@@ -322,6 +325,7 @@ export const BRIDGE_METHODS: Readonly<Record<string, Channel>> = Object.freeze({
   dosingTargets: 'dosing.targets',
   dosingLiteratureModels: 'dosing.literatureModels',
   dosingAdvise: 'dosing.advise',
+  dosingCancel: 'dosing.cancel',
   dosingSaveSession: 'dosing.saveSession',
   reportPdf: 'report.pdf',
   verifyRun: 'verify.run',

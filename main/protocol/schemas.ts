@@ -19,6 +19,11 @@ export const Seed = z.number().int().min(0).max(2 ** 31 - 1);
 /** A JSON object of any shape (checked by its engine parser). */
 export const JsonObject = z.record(z.string(), z.unknown());
 const Empty = z.strictObject({}).optional();
+/**
+ * The renderer's name for one engine request (dose advice, reading a file), so that the
+ * matching cancel channel can stop that job in its worker.
+ */
+export const RequestId = Id;
 
 /** Base64 text of a file; 4/3 of the 50 MB import limit plus padding. */
 export const Base64 = z
@@ -89,8 +94,9 @@ export const REQUEST_SCHEMAS = {
   'app.info': Empty,
   'app.acknowledgeCaution': Empty,
   'project.summary': Empty,
-  'import.parse': z.strictObject({ fileName: z.string().min(1).max(255), bytesBase64: Base64, options: ImportOptionsInput.optional(), templateId: Id.optional() }),
-  'import.remap': z.strictObject({ importId: Id, mapping: JsonObject }),
+  'import.parse': z.strictObject({ fileName: z.string().min(1).max(255), bytesBase64: Base64, options: ImportOptionsInput.optional(), templateId: Id.optional(), requestId: RequestId.optional() }),
+  'import.remap': z.strictObject({ importId: Id, mapping: JsonObject, requestId: RequestId.optional() }),
+  'import.cancel': z.strictObject({ requestId: RequestId }),
   'import.saveTemplate': z.strictObject({ importId: Id, name: Name }),
   'import.templates': Empty,
   'import.addToProject': z.strictObject({ importId: Id, name: Name }),
@@ -107,7 +113,8 @@ export const REQUEST_SCHEMAS = {
   'fits.exportXlsx': z.strictObject({ fitId: Id }),
   'dosing.targets': Empty,
   'dosing.literatureModels': Empty,
-  'dosing.advise': z.strictObject({ prior: DosingPriorInput, patient: JsonObject, target: DosingTargetInput.optional(), options: DosingOptionsInput.optional() }),
+  'dosing.advise': z.strictObject({ prior: DosingPriorInput, patient: JsonObject, target: DosingTargetInput.optional(), options: DosingOptionsInput.optional(), requestId: RequestId.optional() }),
+  'dosing.cancel': z.strictObject({ requestId: RequestId }),
   'dosing.saveSession': z.strictObject({ advice: JsonObject, reviewer: z.string().max(200).optional() }),
   'report.pdf': z.strictObject({ html: z.string().max(20 * 1024 * 1024) }),
   'verify.run': z.strictObject({ quick: z.boolean() }),

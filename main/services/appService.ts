@@ -68,10 +68,15 @@ const ADVICE_TIME_LIMIT_MS = 10 * 60_000;
 /** The full verification takes about 3 minutes on a 2-core PC; a slow PC gets room. */
 const VERIFY_TIME_LIMIT_MS = 20 * 60_000;
 
+/** Which cancel channel stops a request's engine job. */
+type CancelScope = 'dosing' | 'import';
+
 type Handler<C extends Channel> = (payload: RequestOf<C>) => Promise<unknown>;
 
 export class AppService {
   private readonly imports = new Map<string, ImportSession>();
+  /** Engine jobs of requests that carry a request id, by "scope:requestId". */
+  private readonly running = new Map<string, AbortController>();
   private readonly verifyListeners = new Set<(p: VerifyProgressEvent) => void>();
   /** The verification running now (one at a time). */
   private verifying: { runId: string; abort: AbortController } | undefined;
@@ -138,6 +143,7 @@ export class AppService {
 
   async close(): Promise<void> {
     this.verifying?.abort.abort();
+    for (const abort of this.running.values()) abort.abort();
     await this.queue.close();
     await this.store.close();
   }
@@ -162,12 +168,38 @@ export class AppService {
     return files.filter((f) => f.endsWith('.json')).map((f) => f.slice(0, -5)).sort();
   }
 
-  private async runJob(job: JobRequest, timeLimitMs: number): Promise<unknown> {
-    return runEngineJob(job, { ...workerOptions(this.roots), jobTimeLimitMs: timeLimitMs });
+  /**
+   * Run one engine job in its own worker process. With a request id, the job can be stopped by
+   * the scope's cancel channel (dosing.cancel, import.cancel): the abort reaches the worker the
+   * same way a fit's cancel does (EngineWorker.cancel: a cancel message, then the process is
+   * ended if it does not answer), and the request fails with kind 'cancelled'.
+   */
+  private async runJob(job: JobRequest, timeLimitMs: number, cancel?: { scope: CancelScope; requestId: string | undefined }): Promise<unknown> {
+    const key = cancel?.requestId !== undefined ? `${cancel.scope}:${cancel.requestId}` : undefined;
+    if (key !== undefined && this.running.has(key)) throw new ServiceError('usage', `request ${cancel!.requestId} is already running: give each request its own id`);
+    const abort = new AbortController();
+    if (key !== undefined) this.running.set(key, abort);
+    try {
+      return await runEngineJob(job, { ...workerOptions(this.roots), jobTimeLimitMs: timeLimitMs }, { signal: abort.signal });
+    } finally {
+      if (key !== undefined) this.running.delete(key);
+    }
   }
 
-  private async parse(fileName: string, bytes: Uint8Array, options: Record<string, unknown>, mapping: unknown): Promise<ImportSession> {
-    const analysis = (await this.runJob({ kind: 'parse', fileName, bytes: bytes as Uint8Array<ArrayBuffer>, options, ...(mapping !== undefined ? { mapping } : {}) }, DEFAULT_PARSE_TIME_LIMIT_MS)) as Analysis & { previewRows?: unknown };
+  /** Stop the engine job of one request; false when it is not running (already ended, or never started). */
+  private cancelRequest(scope: CancelScope, requestId: string): { cancelled: boolean } {
+    const abort = this.running.get(`${scope}:${requestId}`);
+    abort?.abort();
+    return { cancelled: abort !== undefined };
+  }
+
+  /** Engine jobs that a cancel channel can stop now (for tests and logs). */
+  get runningRequests(): number {
+    return this.running.size;
+  }
+
+  private async parse(fileName: string, bytes: Uint8Array, options: Record<string, unknown>, mapping: unknown, requestId?: string): Promise<ImportSession> {
+    const analysis = (await this.runJob({ kind: 'parse', fileName, bytes: bytes as Uint8Array<ArrayBuffer>, options, ...(mapping !== undefined ? { mapping } : {}) }, DEFAULT_PARSE_TIME_LIMIT_MS, { scope: 'import', requestId })) as Analysis & { previewRows?: unknown };
     if (typeof analysis !== 'object' || analysis === null || !Array.isArray(analysis.preview) || typeof analysis.report !== 'object')
       throw new ServiceError('worker', 'the import worker answered with an incomplete analysis; the file was not imported');
     const dataset = analysis.dataset ? datasetFromWire(analysis.dataset) : undefined;
@@ -276,17 +308,18 @@ export class AppService {
       if (o.defaultRoute !== undefined) options.defaultRoute = o.defaultRoute;
       if (o.drug !== undefined) options.drug = o.drug;
       const mapping = p.templateId !== undefined ? await this.store.getTemplate(p.templateId) : undefined;
-      const s = await this.parse(p.fileName, bytes, options, mapping);
+      const s = await this.parse(p.fileName, bytes, options, mapping, p.requestId);
       const importId = `i-${Date.now().toString(36)}${Math.floor(Math.random() * 1e6).toString(36)}`;
       this.remember(importId, s);
       return this.preview(importId, s);
     },
     'import.remap': async (p) => {
       const old = this.session(p.importId);
-      const s = await this.parse(old.fileName, old.bytes, old.options, p.mapping);
+      const s = await this.parse(old.fileName, old.bytes, old.options, p.mapping, p.requestId);
       this.remember(p.importId, s);
       return this.preview(p.importId, s);
     },
+    'import.cancel': async (p) => this.cancelRequest('import', p.requestId),
     'import.saveTemplate': async (p) => ({ templateId: await this.store.saveTemplate(p.name, this.session(p.importId).analysis.mapping) }),
     'import.templates': async () => this.store.listTemplates(),
     'import.addToProject': async (p) => {
@@ -387,8 +420,10 @@ export class AppService {
           ...(o.nextDoseH !== undefined ? { nextDoseH: o.nextDoseH } : {}),
         },
         ADVICE_TIME_LIMIT_MS,
+        { scope: 'dosing', requestId: p.requestId },
       );
     },
+    'dosing.cancel': async (p) => this.cancelRequest('dosing', p.requestId),
     'dosing.saveSession': async (p) => {
       if (typeof p.advice.caution !== 'string' || !p.advice.caution) throw new ServiceError('usage', 'the advice to save has no caution text: save the advice record exactly as dosing.advise returned it');
       return { sessionId: await this.store.saveDosingSession(p.advice, p.reviewer) };

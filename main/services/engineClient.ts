@@ -151,6 +151,8 @@ export class EngineWorker {
     if (options.signal?.aborted) throw new ServiceError('cancelled', 'the job was cancelled');
     await this.ready;
     if (!this.alive) throw this.failure ?? new ServiceError('worker', 'the engine worker has ended');
+    // A cancel while the process was starting must stop the job before it is sent.
+    if (options.signal?.aborted) throw new ServiceError('cancelled', 'the job was cancelled');
     const jobId = options.jobId ?? randomUUID();
     return new Promise<unknown>((resolve, reject) => {
       const onAbort = () => this.cancel(jobId);

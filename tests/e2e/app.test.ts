@@ -7,12 +7,12 @@
  * error or failed request. Screenshots go to test-artifacts/ (gitignored).
  */
 import { execFileSync } from 'node:child_process';
-import { existsSync, readFileSync } from 'node:fs';
+import { existsSync, readFileSync, writeFileSync } from 'node:fs';
 import * as path from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ARTIFACTS, CHROMIUM, openBrowser, type Session } from './helpers/browser.js';
 import { seriousViolations } from './helpers/axe.js';
-import { ROOT, startHost, type RunningHost } from './helpers/host.js';
+import { childPids, ROOT, startHost, type RunningHost } from './helpers/host.js';
 
 const haveChromium = existsSync(CHROMIUM);
 const built = existsSync(path.join(ROOT, 'dist', 'renderer', 'index.html')) && existsSync(path.join(ROOT, 'dist', 'main', 'start.js'));
@@ -33,6 +33,24 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
 
   const view = (name: string) => s.page.getByRole('navigation', { name: 'Views' }).getByRole('button', { name: new RegExp(`^${name}`) });
   const heading = (name: string) => s.page.getByRole('heading', { level: 1, name });
+
+  /**
+   * Start an engine request in the view, press its Cancel while the worker computes, and check
+   * that the worker process itself ends (not only that the view stops waiting).
+   */
+  async function cancelEndsWorker(start: () => Promise<void>, busyText: RegExp) {
+    const before = new Set(childPids(host.pid));
+    await start();
+    await expect.poll(() => childPids(host.pid).filter((p) => !before.has(p)).length, { timeout: 20_000, interval: 20 }).toBe(1);
+    const worker = childPids(host.pid).find((p) => !before.has(p)) as number;
+    await s.page.getByText(busyText).waitFor();
+    await s.page.getByRole('button', { name: 'Cancel', exact: true }).click();
+    const cancelledAt = Date.now();
+    await expect.poll(() => childPids(host.pid).includes(worker), { timeout: 5_000, interval: 20 }).toBe(false);
+    expect(Date.now() - cancelledAt).toBeLessThan(3_000);
+    expect(await s.page.getByText(busyText).count()).toBe(0);
+    expect(await s.page.getByRole('button', { name: 'Cancel', exact: true }).count()).toBe(0);
+  }
 
   async function accessible(label: string) {
     const v = await seriousViolations(s.page);
@@ -70,6 +88,15 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     // Import the demo spreadsheet, accept the suggested roles, see the report, add it.
     await view('Import').click();
     await heading('Import').waitFor();
+    // A large export (the demo's rows under 800 sets of new ids, about 13 MB): Cancel ends the worker reading it.
+    const lines = readFileSync(path.join(ROOT, 'resources', 'demo', 'ward-levels.csv'), 'utf8').trim().split('\n');
+    const big = [lines[0]];
+    for (let k = 0; k < 800; k++) for (const l of lines.slice(1)) big.push(l.replace(/^HX-/, `P${k}-`));
+    const bigFile = path.join(ARTIFACTS, 'big-ward-export.csv');
+    writeFileSync(bigFile, big.join('\n') + '\n');
+    await cancelEndsWorker(() => page.getByLabel(/Open a spreadsheet/).setInputFiles(bigFile), /^Reading big-ward-export\.csv in a separate process/);
+    expect(await page.getByRole('heading', { name: /Summary of big-ward-export/ }).count()).toBe(0);
+
     await page.getByLabel(/Open a spreadsheet/).setInputFiles(path.join(ROOT, 'resources', 'demo', 'ward-levels.csv'));
     await page.getByRole('heading', { name: /Summary of ward-levels\.csv/ }).waitFor({ timeout: 30_000 });
     const summary = await page.locator('.summary').textContent();
@@ -113,6 +140,31 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await page.getByRole('heading', { name: /Predictions at the initial values/ }).scrollIntoViewIfNeeded();
     await s.shot('03-models');
     await accessible('Models');
+
+    // Correlated BSV, by keyboard: a block of CL and V, a value out of bounds, V without BSV: each named; then removed.
+    await page.getByRole('button', { name: 'Add a correlation block' }).focus();
+    await page.keyboard.press('Enter');
+    const block1 = page.getByRole('group', { name: 'Parameters in correlation block 1' });
+    expect(await block1.getByRole('checkbox', { name: 'CL', exact: true }).isChecked()).toBe(true);
+    expect(await block1.getByRole('checkbox', { name: 'V', exact: true }).isChecked()).toBe(true);
+    const corr = page.getByLabel('Initial correlation CL with V (no unit, −0.95 to 0.95)');
+    await corr.fill('0.99');
+    await page.getByText('Correlation block 1, CL with V: "0.99" is not a correlation from −0.95 to 0.95.').first().waitFor();
+    await corr.fill('0.2');
+    await page.getByLabel('Between-subject variability on V').focus();
+    await page.keyboard.press('Space');
+    await page.getByText(/^Correlation block 1: V has no between-subject variability \(BSV\), so it cannot be correlated/).first().waitFor();
+    expect(await block1.getByRole('checkbox', { name: 'V (no BSV)' }).count()).toBe(1);
+    await page.getByRole('heading', { name: 'Correlated between-subject variability' }).evaluate((e) => e.scrollIntoView({ block: 'start' }));
+    await s.shot('03b-models-correlations');
+    await accessible('Models (correlations)');
+    await page.getByLabel('Between-subject variability on V').focus();
+    await page.keyboard.press('Space');
+    await expect.poll(() => page.getByText(/^Correlation block 1:/).count()).toBe(0);
+    await page.getByRole('button', { name: 'Remove correlation block 1' }).focus();
+    await page.keyboard.press('Enter');
+    expect(await page.getByRole('group', { name: 'Parameters in correlation block 1' }).count()).toBe(0);
+    expect(await page.locator(':focus').textContent()).toBe('Add a correlation block');
     await page.getByRole('button', { name: 'Save the model to the project' }).click();
     await page.getByText(/Saved\. Next: queue fits/).waitFor();
 
@@ -198,7 +250,12 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     expect(fitText).toContain('Model comparison');
     expect(fitText).not.toContain('Advice for one patient');
     expect(fitText).not.toContain('Export tables (.xlsx)');
-    for (const part of ['Observed against predictions', 'Residuals and NPDE', 'Prediction-corrected VPC', 'Individual fits (page 1 of', 'Convergence']) expect(fitText).toContain(part);
+    for (const part of ['Observed against predictions', 'Residuals and NPDE', 'Prediction-corrected VPC', 'Convergence']) expect(fitText).toContain(part);
+    // Every subject's individual fit is printed (the screen shows them a page at a time), the last one included.
+    const ids = [...new Set(readFileSync(path.join(ROOT, 'resources', 'demo', 'ward-levels.csv'), 'utf8').trim().split('\n').slice(1).map((l) => l.split(',')[0]))];
+    expect(ids.length).toBeGreaterThan(12);
+    expect(fitText).toContain(`Individual fits: subjects 1 to 6 of ${ids.length} (${ids[0]} to ${ids[5]})`);
+    expect(fitText).toMatch(new RegExp(`Individual fits: subjects \\d+ to ${ids.length} of ${ids.length} \\(${ids[Math.floor((ids.length - 1) / 6) * 6]} to ${ids[ids.length - 1]}\\)`));
 
     // Dosing, first with the literature example model: blocked (labelled "not for clinical use"), then overridden.
     await view('Dosing').click();
@@ -210,6 +267,9 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     await expect.poll(() => page.getByLabel('Patient identifier (no names)').inputValue()).toBe('demo bed 4 (invented patient)');
     expect(await page.getByLabel('Level 1 concentration (mg/L)').inputValue()).toBe('18.4');
     await page.getByLabel('Target preset').selectOption('vancomycin-auc24');
+    // Cancel while the advice is computed: its worker process ends and no advice is shown.
+    await cancelEndsWorker(() => page.getByRole('button', { name: 'Compute dose advice' }).click(), /^Computing the posterior and ranking regimens/);
+    expect(await page.locator('div.verdict').count()).toBe(0);
     await page.getByRole('button', { name: 'Compute dose advice' }).click();
     const verdict = page.locator('div.verdict');
     await verdict.waitFor({ timeout: 60_000 });

@@ -2,7 +2,7 @@
  * Starts the real web host (`node dist/main/start.js --web`) on a fresh project folder and
  * gives its URL with the token; stops it by its process id. Needs `npm run build` first.
  */
-import { spawn, type ChildProcess } from 'node:child_process';
+import { execFileSync, spawn, type ChildProcess } from 'node:child_process';
 import { existsSync, mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import * as path from 'node:path';
@@ -12,6 +12,8 @@ export const ROOT = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '
 
 export interface RunningHost {
   url: string;
+  /** The web host's process id (its engine workers are its child processes). */
+  pid: number;
   projectDir: string;
   output: () => string;
   stop: () => Promise<void>;
@@ -42,6 +44,7 @@ export async function startHost(): Promise<RunningHost> {
   });
   return {
     url,
+    pid: child.pid as number,
     projectDir,
     output: () => out,
     stop: async () => {
@@ -54,4 +57,13 @@ export async function startHost(): Promise<RunningHost> {
       rmSync(projectDir, { recursive: true, force: true });
     },
   };
+}
+
+/** Process ids of a process's children now (the web host's engine workers), by pgrep. */
+export function childPids(pid: number): number[] {
+  try {
+    return execFileSync('pgrep', ['-P', String(pid)], { encoding: 'utf8' }).split(/\s+/).filter(Boolean).map(Number);
+  } catch {
+    return []; // pgrep exits 1 when there is none
+  }
 }

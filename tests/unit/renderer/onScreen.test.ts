@@ -6,7 +6,11 @@
  */
 import { describe, expect, it } from 'vitest';
 import { clockTick, timeCell, wardClock } from '../../../renderer/src/lib/format/clock.js';
+import { checkCovariateRanges } from '../../../engine/dosing/warnings.js';
+import { parsePatient } from '../../../engine/dosing/patient.js';
+import { covariateLabel, covariateRange, covariateWording } from '../../../renderer/src/lib/format/covariates.js';
 import { dosingWording, fitWording, importWording } from '../../../renderer/src/lib/format/onScreen.js';
+import { estimateRows } from '../../../renderer/src/features/results/estimates.js';
 
 describe('engine messages on screen', () => {
   it('Import: options become the Reading options controls', () => {
@@ -63,5 +67,35 @@ describe('covariates in words', () => {
     expect(covariateText('sex', 'F')).toBe('sex F');
     expect(covariateText('albumin_g_L', 30)).toBe('albumin_g_L 30');
     expect(covariateName('crcl_mL_min')).toBe('creatinine clearance');
+  });
+
+  it('covariate keys in engine messages become display names with units; file keys and paths stay', () => {
+    // The engine's own messages (engine/dosing/warnings.ts checkCovariateRanges).
+    const [missing, outside] = checkCovariateRanges(new Map<string, unknown>([['crcl_mL_min', 25]]), { weight_kg: [40, 130], crcl_mL_min: [30, 120] });
+    expect(dosingWording(missing.message)).toBe('the model was built on weight (kg) 40-130; the patient file has no weight (kg), so that range is not checked');
+    expect(dosingWording(outside.message)).toBe('creatinine clearance (mL/min) = 25 lies outside the range the model was built on (30-120): the model extrapolates for this patient');
+    // A patient-file path names the form's field; a key quoted as a suggestion for the file stays a key.
+    let problem = '';
+    try {
+      parsePatient({ id: 'x', covariates: { weight_kg: 900, wieght_kg: 70 }, doses: [{ time_h: 0, amount_mg: 1000, duration_h: 1 }], levels: [] });
+    } catch (e) {
+      problem = (e as { problems?: string[] }).problems?.join(' | ') ?? String(e);
+    }
+    expect(problem).toContain('covariates.weight_kg: 900 is outside the plausible range');
+    expect(dosingWording(problem)).toContain('Patient weight (kg): 900 is outside the plausible range');
+    expect(dosingWording(problem)).toContain('(did you mean "weight_kg"?)');
+    // Fit and queue messages (engine/stats/model.ts); one parenthesis for the unit and the parameter.
+    expect(fitWording('no value for covariate crcl_mL_min used on CL; add the column for every subject or remove the effect')).toBe('no value for covariate creatinine clearance (mL/min) used on CL; add the column for every subject or remove the effect');
+    expect(dosingWording('covariate scr_umol_L (on CL): the patient has no value; add it to patient.json covariates')).toBe('covariate serum creatinine (µmol/L, on CL): the patient has no value; add it to patient.json covariates');
+    expect(fitWording('the fit estimated covariate CL~weight_kg with 80 % RSE: the prior rests on a poorly determined value')).toContain('CL~weight (kg) with 80 % RSE');
+    expect(importWording('patient P1: age_y 130 is implausible')).toBe('patient P1: age (years) 130 is implausible');
+    // Unknown covariates, sex and words that only contain a key are left alone.
+    expect(covariateWording('albumin_g_L and sex=F, my_weight_kg, weight_kgs')).toBe('albumin_g_L and sex=F, my_weight_kg, weight_kgs');
+    expect(covariateLabel('crcl_mL_min')).toBe('creatinine clearance (mL/min)');
+    expect(covariateLabel('sex')).toBe('sex');
+    expect(covariateRange('crcl_mL_min', 30, 120)).toBe('creatinine clearance 30–120 mL/min');
+    // The Results table names the covariate of an effect the same way.
+    const rows = estimateRows({ spec: { parameters: { CL: { transform: 'log' } }, residual: { model: 'additive' } }, population: [{ parameter: 'CL', kind: 'covariate', covariate: 'crcl_mL_min', estimate: 0.7, fixed: false }, { parameter: 'CL', kind: 'covariate', covariate: 'sex=F', estimate: -0.2, fixed: false }] });
+    expect(rows.map((r) => r.label)).toEqual(['CL: effect of creatinine clearance (mL/min)', 'CL: effect of sex = F']);
   });
 });

@@ -9,6 +9,7 @@ import { checkEnteredForm, literatureForm } from './enteredModel.js';
 import type { ModelForm } from '../models/modelForm.js';
 import type { CatalogueEntry } from '../../lib/types.js';
 import { request } from '../../lib/bridge/index.js';
+import { RunningRequest } from '../../lib/bridge/cancellable.js';
 import { messageOf } from '../../lib/app.svelte.js';
 import { emptyForm, formFromPatientJson, formFromSubject, formToPatient, type PatientForm } from './patientForm.js';
 import type { Advice, LiteratureModel, PriorChoice, TargetPreset, TargetSpec } from './types.js';
@@ -39,6 +40,8 @@ export class DosingState {
   problems = $state<string[]>([]);
   /** The request counter: a result that arrives after a newer request or a cancel is discarded. */
   private ticket = 0;
+  /** The advice job running in a worker, stopped by Cancel or by a newer request. */
+  private readonly running = new RunningRequest('advise', (requestId) => request('dosing.cancel', { requestId }));
 
   /** Datasets of the project, for the patient picker. */
   dataset = $state<Dataset | null>(null);
@@ -133,9 +136,11 @@ export class DosingState {
     this.problems = all;
     if (all.length || !patient || !prior) return;
     const my = ++this.ticket;
+    const requestId = this.running.start();
     this.busy = true;
     try {
       const advice = await request('dosing.advise', {
+        requestId,
         prior,
         patient,
         ...(target !== undefined ? { target } : {}),
@@ -150,12 +155,15 @@ export class DosingState {
     } catch (e) {
       if (my === this.ticket) this.error = messageOf(e);
     } finally {
+      this.running.done(requestId);
       if (my === this.ticket) this.busy = false;
     }
   }
 
+  /** Stop the advice being computed: its worker job ends and its answer, if any, is dropped. */
   cancel(): void {
     this.ticket++;
+    this.running.stop();
     this.busy = false;
   }
 

@@ -1,5 +1,6 @@
 /** Chart.js configuration of the forecast: credible bands, median, measured levels, what-if, target band. */
-import type { ChartConfiguration, ChartDataset } from 'chart.js';
+import { Chart, type ChartConfiguration, type ChartDataset } from 'chart.js';
+import type { MarkerLabel } from '../../lib/charts/markerLabels.js';
 import type { Forecast } from '../../../../engine/dosing/forecast.js';
 import type { TargetSpec } from '../../../../engine/dosing/targets.js';
 import { COLOURS } from '../../lib/charts/setup.js';
@@ -35,26 +36,22 @@ export function forecastChartConfig(advice: Advice, fc: Forecast | null, whatIf:
     pointBackgroundColor: COLOURS.observed,
     borderColor: COLOURS.observed,
   });
+  // The vertical lines carry no label on the plot: their labels sit in a strip above it
+  // (lib/charts/markerLabels.ts), so they never cover the curves, the levels or each other.
+  const NEXT_DOSE_COLOUR = '#4a5862';
+  const RESTART_COLOUR = '#8a3b12';
   const annotations: Record<string, unknown> = {
-    doseDueAt: {
-      type: 'line',
-      xMin: advice.patient.nextDoseH,
-      xMax: advice.patient.nextDoseH,
-      borderColor: '#4a5862',
-      borderWidth: 1.5,
-      borderDash: [4, 4],
-      label: { display: true, content: advice.patient.nextDoseAssumed ? 'next dose (assumed)' : 'next dose', position: 'start', backgroundColor: 'rgba(74,88,98,0.85)', font: { size: 12 } },
-    },
+    doseDueAt: { type: 'line', xMin: advice.patient.nextDoseH, xMax: advice.patient.nextDoseH, borderColor: NEXT_DOSE_COLOUR, borderWidth: 1.5, borderDash: [4, 4] },
   };
+  const markers: MarkerLabel[] = [{ x: advice.patient.nextDoseH, text: advice.patient.nextDoseAssumed ? 'next dose (assumed)' : 'next dose', color: NEXT_DOSE_COLOUR }];
   if (advice.regimenStart.delayed) {
-    // The advice holds the next dose: mark where the advised regimen starts instead.
-    annotations.regimenStart = { type: 'line', xMin: advice.regimenStart.timeH, xMax: advice.regimenStart.timeH, borderColor: '#8a3b12', borderWidth: 1.5, label: { display: true, content: 'advised restart (dose held)', position: 'end', backgroundColor: 'rgba(138,59,18,0.85)', font: { size: 12 } } };
+    // The advice holds the next dose: mark where the advised regimen starts too.
+    annotations.regimenStart = { type: 'line', xMin: advice.regimenStart.timeH, xMax: advice.regimenStart.timeH, borderColor: RESTART_COLOUR, borderWidth: 1.5 };
+    markers.push({ x: advice.regimenStart.timeH, text: 'advised restart (dose held)', color: RESTART_COLOUR });
   }
-  for (const [i, g] of (target?.goals ?? []).entries()) {
-    if ((g.metric === 'trough' || g.metric === 'peak' || g.metric === 'peakAt') && !g.perMic) {
-      annotations[`goal${i}`] = { type: 'box', yMin: g.min ?? 0, yMax: g.max ?? undefined, xMin: advice.regimenStart.timeH, backgroundColor: COLOURS.target, borderWidth: 0, label: { display: true, content: `${g.metric} goal`, position: 'end', font: { size: 11 } } };
-    }
-  }
+  // Goal bands are named in the legend (a band has no single point to label on the plot).
+  const goalKeys = goalBands(target);
+  for (const g of goalKeys) annotations[`goal${g.index}`] = { type: 'box', yMin: g.min, yMax: g.max, xMin: advice.regimenStart.timeH, backgroundColor: COLOURS.target, borderWidth: 0 };
   return {
     type: 'line',
     data: { datasets },
@@ -67,11 +64,36 @@ export function forecastChartConfig(advice: Advice, fc: Forecast | null, whatIf:
         y: { type: logScale ? 'logarithmic' : 'linear', title: { display: true, text: 'concentration (mg/L)' }, ...(logScale ? {} : { min: 0 }) },
       },
       plugins: {
-        legend: { labels: { filter: (item) => !/lower edge$/.test(item.text) } },
+        legend: {
+          labels: {
+            filter: (item) => !/lower edge$/.test(item.text),
+            generateLabels: (chart) => [
+              ...Chart.defaults.plugins.legend.labels.generateLabels(chart),
+              ...goalKeys.map((k) => ({ text: k.text, fillStyle: COLOURS.target, strokeStyle: COLOURS.third, lineWidth: 1, hidden: false })),
+            ],
+          },
+          // The goal keys stand for no dataset: clicking them hides nothing.
+          onClick: (e, item, legend) => {
+            if (item.datasetIndex !== undefined) Chart.defaults.plugins.legend.onClick.call(legend, e, item, legend);
+          },
+        },
         annotation: { annotations } as never,
+        markerLabels: { markers },
       },
     },
   };
+}
+
+/** The concentration goals drawn as bands, each with its legend text (metric, bounds, unit). */
+export function goalBands(target: TargetSpec | null): { index: number; min: number; max: number | undefined; text: string }[] {
+  const out: { index: number; min: number; max: number | undefined; text: string }[] = [];
+  for (const [index, g] of (target?.goals ?? []).entries()) {
+    if ((g.metric === 'trough' || g.metric === 'peak' || g.metric === 'peakAt') && !g.perMic) {
+      const range = g.min !== undefined && g.max !== undefined ? `${g.min}–${g.max} mg/L` : g.min !== undefined ? `at least ${g.min} mg/L` : g.max !== undefined ? `below ${g.max} mg/L` : '';
+      out.push({ index, min: g.min ?? 0, max: g.max ?? undefined, text: `${g.metric === 'peakAt' ? 'peak' : g.metric} goal${range ? ` ${range}` : ''}` });
+    }
+  }
+  return out;
 }
 
 /** Time axis: ward clock ticks ("24 Nov" over "08:00") for a clock-entered patient, else hours from the first dose. */

@@ -37,24 +37,5 @@ export function provenanceText(advice: Advice, project: ProjectLike | null | und
   return m.source ? `values from its source: ${m.source.replace(/\.$/, '')}` : 'no source given for its values';
 }
 
-/** Covariate keys of the patient file in words with their units: "weight_kg 78" -> "weight 78 kg". */
-const COVARIATE_WORDS: Array<[RegExp, string, string]> = [
-  [/^(weight|wt)_kg$/i, 'weight', 'kg'],
-  [/^height_cm$/i, 'height', 'cm'],
-  [/^age_y$/i, 'age', 'years'],
-  [/^scr_mg_dL$/i, 'serum creatinine', 'mg/dL'],
-  [/^scr_umol_L$/i, 'serum creatinine', 'µmol/L'],
-  [/^crcl_mL_min$/i, 'creatinine clearance', 'mL/min'],
-  [/^egfr_mL_min(_1\.73m2)?$/i, 'eGFR', 'mL/min'],
-  [/^sex$/i, 'sex', ''],
-];
-
-export function covariateName(key: string): string {
-  return COVARIATE_WORDS.find(([re]) => re.test(key))?.[1] ?? key;
-}
-
-export function covariateText(key: string, value: unknown): string {
-  const v = typeof value === 'number' ? String(Number(value.toPrecision(4))) : String(value);
-  for (const [re, word, unit] of COVARIATE_WORDS) if (re.test(key)) return `${word} ${v}${unit ? ` ${unit}` : ''}`;
-  return `${key} ${v}`;
-}
+// Covariates in words: one list for the whole renderer (lib/format/covariates.ts).
+export { covariateName, covariateText } from '../../lib/format/covariates.js';

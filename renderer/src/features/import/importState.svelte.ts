@@ -1,6 +1,7 @@
 /** Import view state: the file, the preview the worker parsed, role changes, templates, adding. */
 import type { MappingTemplate, Role } from '../../../../engine/import/roles.js';
 import { request } from '../../lib/bridge/index.js';
+import { RunningRequest } from '../../lib/bridge/cancellable.js';
 import { messageOf } from '../../lib/app.svelte.js';
 import type { ImportPreview, TemplateSummary } from '../../lib/types.js';
 import { toBase64 } from './roles.js';
@@ -29,9 +30,13 @@ export class ImportState {
   savedTemplate = $state<string | null>(null);
   /** Answers to a request the user cancelled (or that a newer one replaced) are dropped. */
   private ticket = 0;
+  /** The parse job running in a worker, stopped by Cancel or by a newer request. */
+  private readonly running = new RunningRequest('import', (requestId) => request('import.cancel', { requestId }));
 
+  /** Stop reading the file: the worker's parse job ends and its answer, if any, is dropped. */
   cancel(): void {
     this.ticket++;
+    this.running.stop();
     this.busy = false;
   }
 
@@ -66,11 +71,13 @@ export class ImportState {
     }
     const o = this.options;
     const my = ++this.ticket;
+    const requestId = this.running.start();
     this.busy = true;
     this.error = null;
     this.addedDatasetId = null;
     try {
       const preview = await request('import.parse', {
+        requestId,
         fileName: this.fileName,
         bytesBase64: toBase64(this.bytes),
         options: {
@@ -88,6 +95,7 @@ export class ImportState {
     } catch (e) {
       if (my === this.ticket) this.error = messageOf(e);
     } finally {
+      this.running.done(requestId);
       if (my === this.ticket) this.busy = false;
     }
   }
@@ -108,13 +116,15 @@ export class ImportState {
       delete col.note;
     } else sm.columns.push({ role, header, column: letter });
     const my = ++this.ticket;
+    const requestId = this.running.start();
     this.busy = true;
     try {
-      const preview = await request('import.remap', { importId: pv.importId, mapping: mapping as unknown as Record<string, unknown> });
+      const preview = await request('import.remap', { requestId, importId: pv.importId, mapping: mapping as unknown as Record<string, unknown> });
       if (my === this.ticket) this.preview = preview;
     } catch (e) {
       if (my === this.ticket) this.error = messageOf(e);
     } finally {
+      this.running.done(requestId);
       if (my === this.ticket) this.busy = false;
     }
   }

@@ -30,11 +30,27 @@ export interface CovariateRow {
   fixed: boolean;
 }
 
+/**
+ * One block of correlated random effects: the parameters whose BSV is estimated with
+ * correlations between them, and optional starting (or published) correlations per pair.
+ */
+export interface CorrelationBlock {
+  /** Parameter names, kept in the model's parameter order. */
+  parameters: string[];
+  /** Correlation per pair "P1,P2" (P1 before P2 in parameter order) as typed; empty: not given (0). */
+  values: Record<string, string>;
+}
+
+/** Correlations typed in the editor stay within these bounds (the engine accepts (-1, 1)). */
+export const CORRELATION_BOUND = 0.95;
+
 export interface ModelForm {
   structure: string;
   name: string;
   parameters: ParameterRow[];
   covariates: CovariateRow[];
+  /** Blocks of correlated BSV; parameters in no block are uncorrelated. */
+  correlations: CorrelationBlock[];
   residualModel: 'additive' | 'proportional' | 'combined' | 'log-additive';
   a: string;
   b: string;
@@ -66,11 +82,113 @@ export function formFor(entry: CatalogueEntry): ModelForm {
       fixed: false,
     })),
     covariates: [],
+    correlations: [],
     residualModel: 'combined',
     a: '0.5',
     b: '0.1',
     estimation: {},
   };
+}
+
+/** The pairs of a block, each in parameter order, with the key correlationValues uses. */
+export function correlationPairs(block: CorrelationBlock): { a: string; b: string; key: string }[] {
+  const out: { a: string; b: string; key: string }[] = [];
+  for (let i = 0; i < block.parameters.length; i++)
+    for (let j = i + 1; j < block.parameters.length; j++) out.push({ a: block.parameters[i], b: block.parameters[j], key: `${block.parameters[i]},${block.parameters[j]}` });
+  return out;
+}
+
+/** Tick or untick a parameter in a block, keeping the model's parameter order. */
+export function toggleInBlock(f: ModelForm, blockIndex: number, name: string, on: boolean): void {
+  const block = f.correlations[blockIndex];
+  if (!block) return;
+  const set = new Set(block.parameters);
+  if (on) set.add(name);
+  else set.delete(name);
+  block.parameters = f.parameters.map((p) => p.name).filter((n) => set.has(n));
+}
+
+/** A new block: the first two used parameters with BSV that are in no block yet (or none). */
+export function newCorrelationBlock(f: ModelForm): CorrelationBlock {
+  const taken = new Set(f.correlations.flatMap((b) => b.parameters));
+  const free = f.parameters.filter((p) => p.included && p.bsvOn && !taken.has(p.name)).map((p) => p.name);
+  return { parameters: free.length >= 2 ? free.slice(0, 2) : [], values: {} };
+}
+
+/** Cholesky of a small symmetric matrix; false when it is not positive definite. */
+function positiveDefinite(m: number[][]): boolean {
+  const n = m.length;
+  const l = m.map(() => new Array<number>(n).fill(0));
+  for (let i = 0; i < n; i++)
+    for (let j = 0; j <= i; j++) {
+      let sum = m[i][j];
+      for (let k = 0; k < j; k++) sum -= l[i][k] * l[j][k];
+      if (i === j) {
+        if (!(sum > 1e-10)) return false;
+        l[i][i] = Math.sqrt(sum);
+      } else l[i][j] = sum / l[j][j];
+    }
+  return true;
+}
+
+/**
+ * The correlation blocks as the spec's `correlations` and `correlationValues`, with every
+ * problem named by block (and pair). `block` is the 0-based block a problem belongs to.
+ */
+export function correlationsOf(f: ModelForm): { correlations: string[][]; values: Record<string, number>; problems: { block: number; message: string }[] } {
+  const problems: { block: number; message: string }[] = [];
+  const correlations: string[][] = [];
+  const values: Record<string, number> = {};
+  const byName = new Map(f.parameters.map((p) => [p.name, p]));
+  const firstBlock = new Map<string, number>();
+  const bound = CORRELATION_BOUND.toFixed(2);
+  f.correlations.forEach((block, i) => {
+    const where = `Correlation block ${i + 1}`;
+    let usable = true;
+    for (const name of block.parameters) {
+      const p = byName.get(name);
+      if (!p) {
+        problems.push({ block: i, message: `${where}: ${name} is not a parameter of this model; untick it.` });
+        usable = false;
+      } else if (!p.included) {
+        problems.push({ block: i, message: `${where}: ${name} is not used in this model; tick "Use ${name}" above or untick it here.` });
+        usable = false;
+      } else if (!p.bsvOn) {
+        problems.push({ block: i, message: `${where}: ${name} has no between-subject variability (BSV), so it cannot be correlated; tick its BSV box above or untick it here.` });
+        usable = false;
+      }
+      const seen = firstBlock.get(name);
+      if (seen !== undefined) {
+        problems.push({ block: i, message: `${where}: ${name} is already in correlation block ${seen + 1}; a parameter belongs to one block, so tick all of its partners in one block.` });
+        usable = false;
+      } else firstBlock.set(name, i);
+    }
+    if (block.parameters.length < 2) {
+      problems.push({ block: i, message: `${where}: tick at least two parameters with BSV, or remove the block.` });
+      usable = false;
+    }
+    const pairs = correlationPairs(block);
+    const r = new Map<string, number>();
+    for (const pair of pairs) {
+      const text = (block.values[pair.key] ?? '').trim();
+      if (!text) continue;
+      const x = Number(text.replace('−', '-'));
+      if (!Number.isFinite(x) || Math.abs(x) > CORRELATION_BOUND) {
+        problems.push({ block: i, message: `${where}, ${pair.a} with ${pair.b}: "${text}" is not a correlation from −${bound} to ${bound}.` });
+        usable = false;
+      } else r.set(pair.key, x);
+    }
+    if (!usable) return;
+    const n = block.parameters.length;
+    const m = block.parameters.map((a, ia) => block.parameters.map((b, ib) => (ia === ib ? 1 : (r.get(ia < ib ? `${a},${b}` : `${b},${a}`) ?? 0))));
+    if (!positiveDefinite(m)) {
+      problems.push({ block: i, message: `${where}: these ${n} correlations cannot hold together (their matrix is not positive definite); make some of them smaller in size.` });
+      return;
+    }
+    correlations.push([...block.parameters]);
+    for (const [k, x] of r) values[k] = x;
+  });
+  return { correlations, values, problems };
 }
 
 /** The spec JSON and the problems that stop it (numbers that are not numbers, named by field). */
@@ -120,7 +238,10 @@ export function formToSpec(f: ModelForm): { spec?: Record<string, unknown>; prob
       if (x !== undefined) estimation[k] = x;
     }
   }
+  const corr = correlationsOf(f);
+  problems.push(...corr.problems.map((p) => p.message));
   const extra: Record<string, unknown> = {};
+  if (Object.keys(corr.values).length) extra.correlationValues = corr.values;
   if (f.source !== undefined) {
     if (!f.source.trim()) problems.push('Source: give the publication the values come from (authors, journal, year) and its population.');
     else extra.source = f.source.trim();
@@ -139,5 +260,5 @@ export function formToSpec(f: ModelForm): { spec?: Record<string, unknown>; prob
     extra.covariateRanges = ranges;
   }
   if (problems.length) return { problems };
-  return { spec: { name: f.name.trim() || f.structure, structure: f.structure, parameters, covariates, correlations: [], residual, estimation, ...extra }, problems };
+  return { spec: { name: f.name.trim() || f.structure, structure: f.structure, parameters, covariates, correlations: corr.correlations, residual, estimation, ...extra }, problems };
 }

@@ -6,6 +6,7 @@
 import type { ChartConfiguration, ChartDataset } from 'chart.js';
 import type { ObservationDiagnostics, VpcData } from '../../../../engine/posthoc/diagnostics.js';
 import { COLOURS, SERIES } from '../../lib/charts/setup.js';
+import { covariateLabel, covariateName } from '../../lib/format/covariates.js';
 
 type Pt = { x: number; y: number };
 type Scale = 'linear' | 'logarithmic';
@@ -132,7 +133,7 @@ export function covariateScatter(points: Pt[], parameter: string, covariate: str
   return {
     type: 'scatter',
     data: { datasets: [{ label: `${parameter} (individual mode)`, data: byX([...points]), pointRadius: 3.5, backgroundColor: 'rgba(44,95,122,0.6)' }] },
-    options: { parsing: false, scales: { x: axis(covariate), y: axis(`${parameter} (log axis)`, 'logarithmic') }, plugins: { legend: { display: false }, title: { display: true, text: `${parameter} vs ${covariate}`, font: { size: 12 } } } },
+    options: { parsing: false, scales: { x: axis(covariateLabel(covariate)), y: axis(`${parameter} (log axis)`, 'logarithmic') }, plugins: { legend: { display: false }, title: { display: true, text: `${parameter} vs ${covariateName(covariate)}`, font: { size: 12 } } } },
   };
 }
 

@@ -3,6 +3,7 @@
  * estimate, SE and RSE %, and for BSV the SD on the transformed scale, the CV % (log-normal) and
  * the shrinkage. Pure, so the table is tested without a browser.
  */
+import { covariateLabel } from '../../lib/format/covariates.js';
 import { cvFromLogSd } from '../../lib/format/numbers.js';
 
 export interface EstimateRow {
@@ -41,7 +42,7 @@ export function estimateRows(r: RecordLike): EstimateRow[] {
       const s = r.shrinkage?.eta[e.parameter]?.sd;
       shrink = s === null || s === undefined ? null : 100 * s;
     } else if (e.kind === 'correlation') label = `correlation of ${e.parameter.replace(',', ' and ')}`;
-    else if (e.kind === 'covariate') label = `${e.parameter}: effect of ${e.covariate}`;
+    else if (e.kind === 'covariate') label = `${e.parameter}: effect of ${covariateEffectLabel(e.covariate)}`;
     else if (e.kind === 'residual') {
       if (e.parameter === 'b') label = 'residual, proportional (fraction)';
       else if (r.spec.residual.model === 'log-additive') label = 'residual, SD on the log scale';
@@ -52,4 +53,11 @@ export function estimateRows(r: RecordLike): EstimateRow[] {
     }
     return { label, unit, kind: e.kind, estimate: e.estimate, fixed: e.fixed, se: e.se ?? null, rsePercent: e.rsePercent ?? null, cvPercent: cv, shrinkagePercent: shrink };
   });
+}
+
+/** "crcl_mL_min" -> "creatinine clearance (mL/min)"; a categorical level stays: "sex=F". */
+function covariateEffectLabel(covariate: string | undefined): string {
+  if (covariate === undefined) return '';
+  const [key, level] = covariate.split('=');
+  return level === undefined ? covariateLabel(key) : `${covariateLabel(key)} = ${level}`;
 }

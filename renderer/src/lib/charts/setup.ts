@@ -19,12 +19,13 @@ import {
   BarElement,
 } from 'chart.js';
 import annotationPlugin from 'chartjs-plugin-annotation';
+import { markerLabelsPlugin } from './markerLabels.js';
 
 let done = false;
 
 export function setupCharts(): typeof Chart {
   if (done) return Chart;
-  Chart.register(LineController, ScatterController, BarController, LineElement, PointElement, BarElement, LinearScale, LogarithmicScale, CategoryScale, Filler, Legend, Tooltip, Title, annotationPlugin);
+  Chart.register(LineController, ScatterController, BarController, LineElement, PointElement, BarElement, LinearScale, LogarithmicScale, CategoryScale, Filler, Legend, Tooltip, Title, annotationPlugin, markerLabelsPlugin);
   Chart.defaults.font.family = "system-ui, 'Segoe UI', 'DejaVu Sans', Arial, sans-serif";
   Chart.defaults.font.size = 13;
   Chart.defaults.color = '#1c2730';

@@ -5,6 +5,8 @@
  * rest of each message is shown as the engine wrote it (nothing is dropped or softened).
  */
 
+import { covariateLabel, covariateWording } from './covariates.js';
+
 type Rule = readonly [RegExp, string];
 
 const READING = 'under "Reading options" (section 1)';
@@ -21,7 +23,7 @@ const IMPORT_RULES: readonly Rule[] = [
 ];
 
 export function importWording(message: string): string {
-  return IMPORT_RULES.reduce((m, [re, to]) => m.replace(re, to), message);
+  return covariateWording(IMPORT_RULES.reduce((m, [re, to]) => m.replace(re, to), message));
 }
 
 const NEXT_DOSE = '"Next dose can start at" (2. Patient)';
@@ -49,14 +51,14 @@ const SETTING_LABELS: Record<string, string> = {
 
 /** Results, Fit queue (and fit warnings repeated in Dosing): settings named as on the Models view. */
 export function fitWording(message: string): string {
-  return message
+  return covariateWording(message)
     .replace(/raise estimation\.(\w+)/g, (all, key: string) => (SETTING_LABELS[key] ? `raise "${SETTING_LABELS[key]}" in Models (estimation settings) and fit again` : all))
     .replace(/\bestimation\.(\w+)/g, (all, key: string) => (SETTING_LABELS[key] ? `"${SETTING_LABELS[key]}" (Models, estimation settings)` : all));
 }
 
 /** Dosing view: checks and problems that name a patient-file field or a command-line option. */
 export function dosingWording(message: string): string {
-  let m = fitWording(message)
+  let m = fitWording(message.replace(/\bcovariates\.(\w+)/g, (_all, key: string) => `Patient ${covariateLabel(key)}`))
     .replace(/give next_dose_h to set it/g, `set it in ${NEXT_DOSE}`)
     .replace(/give --target to rank regimens/g, 'choose a target preset under 3. Target to rank regimens')
     .replace(/\bnext_dose_h\b|\bnext_dose\b/g, NEXT_DOSE)
