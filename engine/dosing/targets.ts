@@ -249,6 +249,11 @@ export function metricsNeeded(target: TargetSpec): Set<MetricId> {
   return new Set([...target.goals, ...target.toxic].map((c) => c.metric));
 }
 
+/** The unit of a metric's values (mg/L for levels, mg.h/L for AUC24). */
+export function metricUnit(metric: MetricId): string {
+  return METRIC_LABELS[metric].unit;
+}
+
 /** The metric's label, with the sampling delay for peakAt. */
 export function metricLabel(target: TargetSpec, metric: MetricId): string {
   if (metric === 'peakAt') return `level ${target.peakDelayH ?? 0} h after the end of infusion`;

@@ -14,7 +14,7 @@ import { regimenDoses } from './forecast.js';
 import type { Regimen } from './metrics.js';
 import { isDoseLinear } from './metrics.js';
 import { bandOf, sig, type Band } from './summary.js';
-import { metricLabel, resolvedBounds, type MetricId, type TargetSpec } from './targets.js';
+import { metricLabel, metricUnit, resolvedBounds, type MetricId, type TargetSpec } from './targets.js';
 
 /** Future intervals whose exposure enters P(toxic) besides steady state (the forecast shows as many). */
 export const EARLY_INTERVALS = 3;
@@ -273,7 +273,7 @@ export function exposureNow(model: StructuralModel, draws: Float64Array, nDraws:
   const exceeded: string[] = [];
   for (const t of tox) {
     const v = valueFor(t.metric, levelB.median, highB.median, aucB.median);
-    if (v > t.max) exceeded.push(`${metricLabel(target, t.metric)} ${sig(v, 3)} above the toxic limit ${sig(t.max, 3)}`);
+    if (v > t.max) exceeded.push(`${metricLabel(target, t.metric)} ${sig(v, 3)} ${metricUnit(t.metric)} above the toxic limit ${sig(t.max, 3)} ${metricUnit(t.metric)}`);
   }
   return { fromH: sig(fromH, 6), toH: sig(nextH, 6), levelAtNextDose: levelB, highest: highB, auc24: aucB, pToxic: tox.length ? (nDraws ? toxic / nDraws : NaN) : null, exceeded };
 }

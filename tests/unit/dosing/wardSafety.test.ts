@@ -49,6 +49,8 @@ describe('demo patient on 1250 mg q12h, above target (resources/demo/patient.jso
     expect(a.now!.pToxic!).toBeGreaterThan(0.5);
     const w = a.warnings.find((x) => x.code === 'toxic-now')!;
     expect(w.message).toMatch(/consider holding or delaying the next dose/);
+    // Every number in it carries its unit (common practice for ward messages).
+    expect(w.message).toMatch(/AUC24 \d+ mg.h\/L above the toxic limit 600 mg.h\/L/);
     expect(a.hold!.belowAtClock).toMatch(/^2026-11-2\d \d\d:\d\d$/);
     expect(a.hold!.belowAtH).toBeGreaterThan(a.patient.nextDoseH);
     // The advised regimens start after the hold, and the forecast starts there too.
