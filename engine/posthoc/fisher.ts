@@ -142,12 +142,22 @@ export function louisKernel(density: SubjectDensity, layout: ParameterLayout, co
   let maxObs = 0;
   for (const s of model.subjects) maxObs = Math.max(maxObs, s.nObs);
   const fBuf = new Float64Array(maxObs);
-  const fTmp = new Float64Array(maxObs);
   const xD = new Float64Array(nD);
   const gD = new Float64Array(nD);
   const hD = new Float64Array(nD * nD);
   const meanRow = new Float64Array(p);
   const analyticResidual = !structuralData;
+  // The predictions depend only on the structural entries of the data part; the finite-difference
+  // stencils of one draw visit few structural points (3 for one structural entry, against 25
+  // evaluations), so each draw keeps its predictions per structural point (the same numbers).
+  const structuralSlots = Int32Array.from(dataPos.flatMap((a, r) => (layout.entries[est[a]].kind !== 'residual' ? [r] : [])));
+  const nS = structuralSlots.length;
+  const cacheCapacity = 1 + 2 * nS + 2 * nS * (nS - 1);
+  const cacheKeys = new Float64Array(cacheCapacity * nS);
+  const cachePredictions = new Float64Array(cacheCapacity * maxObs);
+  const cacheValid = new Uint8Array(cacheCapacity);
+  let cacheUsed = 0;
+  let cacheNext = 0;
   const residualWhich = Int32Array.from(dataPos, (a) => layout.entries[est[a]].index);
 
   const contribution = parts.contribution;
@@ -159,7 +169,6 @@ export function louisKernel(density: SubjectDensity, layout: ParameterLayout, co
         const n = conditional.nKept[i];
         const sub = model.subjects[i];
         const f = fBuf.subarray(0, sub.nObs);
-        const ft = fTmp.subarray(0, sub.nObs);
         dm.fill(0);
         meanPos.forEach((a, r) => {
           const en = layout.entries[est[a]];
@@ -180,8 +189,21 @@ export function louisKernel(density: SubjectDensity, layout: ParameterLayout, co
             a = thetaTmp.a;
             b = thetaTmp.b;
             for (let r = 0; r < nD; r++) wTmp[est[dataPos[r]]] = w0[est[dataPos[r]]];
-            if (!model.predict(i, phiD, ft)) return -Infinity;
-            return model.logLikFromPredictions(i, ft, a, b);
+            let slot = -1;
+            for (let c = 0; c < cacheUsed && slot < 0; c++) {
+              let same = true;
+              for (let q = 0; q < nS && same; q++) same = cacheKeys[c * nS + q] === x[structuralSlots[q]];
+              if (same) slot = c;
+            }
+            const n = sub.nObs;
+            if (slot < 0) {
+              slot = cacheUsed < cacheCapacity ? cacheUsed++ : cacheNext++ % cacheCapacity;
+              for (let q = 0; q < nS; q++) cacheKeys[slot * nS + q] = x[structuralSlots[q]];
+              const out = cachePredictions.subarray(slot * maxObs, slot * maxObs + n);
+              cacheValid[slot] = model.predict(i, phiD, out) ? 1 : 0;
+            }
+            if (!cacheValid[slot]) return -Infinity;
+            return model.logLikFromPredictions(i, cachePredictions.subarray(slot * maxObs, slot * maxObs + n), a, b);
           }
           for (let r = 0; r < nD; r++) {
             const en = layout.entries[est[dataPos[r]]];
@@ -251,6 +273,7 @@ export function louisKernel(density: SubjectDensity, layout: ParameterLayout, co
               if (!residualDerivatives(model.residualModel, theta.a, theta.b, sub.y, f, residualWhich, gD, hD)) continue;
             } else {
               for (let r = 0; r < nD; r++) xD[r] = w0[est[dataPos[r]]];
+              cacheUsed = 0; // a new draw: its predictions differ
               centralGradient(negDataLL, xD, gD, FD);
               centralHessian(negDataLL, xD, hD, FD);
               sign = -1;
