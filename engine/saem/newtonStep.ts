@@ -14,9 +14,10 @@
  * log-likelihood at every point, and a second walk reads the values back. The predictions depend
  * only on the structural components of a point, and the stencil visits few structural points
  * (1 + 2 S + 2 S (S - 1) for S structural components), so each block predicts once per
- * structural point: with combined error and one parameter without BSV, 3 prediction passes
- * instead of 19. The objective sums the chains' values in subject-then-chain order whatever the
- * blocks, so results do not depend on the number of threads.
+ * structural point: with combined error and one parameter without BSV, 2 prediction passes
+ * instead of 19 (the first point, theta's own, reuses the predictions the chains already hold).
+ * The objective sums the chains' values in subject-then-chain order whatever the blocks, so
+ * results do not depend on the number of threads.
  */
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import { choleskyLower, solveWithCholesky } from '../stats/dense.js';
@@ -152,11 +153,28 @@ export function createNewtonBlock(model: CompiledModel, sim: SimulationState, ba
     }
   }
 
+  /**
+   * The first point of a batch is theta's own: there every chain's phi is its current draw, whose
+   * predictions the chain already holds (the same numbers predict would give). Only a chain whose
+   * log-likelihood is not finite is predicted again, for its validity.
+   */
+  function currentPredictions(): void {
+    const valid = batch.valid;
+    for (let i = sim.from; i < sim.to; i++)
+      for (let c = 0; c < L; c++) {
+        const s = i * L + c;
+        if (Number.isFinite(sim.logLikByChain[s])) {
+          views[0][s].set(sim.predictionsByChain[s]);
+          valid[s] = 1;
+        } else valid[s] = model.predict(i, sim.phiByChain.subarray(s * p, s * p + p), views[0][s]) ? 1 : 0;
+      }
+  }
+
   return {
     evaluate(theta) {
       const nPoints = batch.counts[0];
       const nStructural = batch.counts[1];
-      if (structural) for (let e = 0; e < nStructural; e++) predictAt(theta, e);
+      if (structural) for (let e = 0; e < nStructural; e++) (e === 0 ? currentPredictions() : predictAt(theta, e));
       for (let k = 0; k < nPoints; k++) {
         let a = theta.a;
         let b = theta.b;
