@@ -101,6 +101,15 @@ export function runSeedInProcess(dataset: Dataset, spec: ModelSpec, options: Pic
   };
 }
 
+/**
+ * Seeds run at once on `cores` cores: all of them when they fit; else all at once (up to two per
+ * core) only when that shortens the run (3 seeds on 2 cores take 1.5 seeds' time, not 2), and a
+ * core's worth at a time when the seeds fill the cores evenly (a worker can then be reused).
+ */
+export function seedsAtOnce(seeds: number, cores: number): number {
+  return cores >= seeds ? seeds : seeds % cores === 0 ? cores : Math.min(seeds, 2 * cores);
+}
+
 function cancelledError(): Error {
   const e = new Error('the fit was cancelled');
   e.name = 'AbortError';
@@ -141,9 +150,7 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
       const most = wantsThreads ? Infinity : seeds.length;
       for (let r = held.length < most ? slots.tryAcquire() : null; r; r = held.length < most ? slots.tryAcquire() : null) held.push(r);
       const cores = held.length;
-      // All seeds at once only when that shortens the run (3 seeds on 2 cores); when the seeds
-      // fill the cores evenly they run a core's worth at a time (a worker can then be reused).
-      concurrency = cores >= seeds.length ? seeds.length : seeds.length % cores === 0 ? cores : Math.min(seeds.length, 2 * cores);
+      concurrency = seedsAtOnce(seeds.length, cores);
       if (seeds.length < cores) for (let k = 0; k < seeds.length; k++) threadsOf[k] = Math.floor(cores / seeds.length) + (k < cores % seeds.length ? 1 : 0);
     }
   } catch (error) {

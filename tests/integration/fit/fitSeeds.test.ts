@@ -10,7 +10,7 @@ import { describe, expect, it } from 'vitest';
 import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { CoreSlots } from '../../../main/services/coreSlots.js';
-import { fitSeeds, runSeedInProcess, seedList, type RunOneSeed } from '../../../main/services/fitSeeds.js';
+import { fitSeeds, runSeedInProcess, seedList, seedsAtOnce, type RunOneSeed } from '../../../main/services/fitSeeds.js';
 
 const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv'), 'utf8'));
 const spec = parseModelSpec({
@@ -92,4 +92,11 @@ describe('fitSeeds', () => {
     expect(maxInFlight).toBe(3);
     expect(slots.inUse).toBe(0);
   }, 120_000);
+  it('seeds at once: all when the cores suffice; all (at most two per core) when the seeds do not fill the cores evenly; else a core\'s worth', () => {
+    expect(seedsAtOnce(3, 4)).toBe(3);
+    expect(seedsAtOnce(3, 2)).toBe(3);
+    expect(seedsAtOnce(4, 2)).toBe(2);
+    expect(seedsAtOnce(3, 1)).toBe(1);
+    expect(seedsAtOnce(16, 3)).toBe(6);
+  });
 });
