@@ -87,6 +87,36 @@ describe('engine worker', () => {
     small.kill();
   }, 60_000);
 
+  it('cancelling a fit that runs on threads ends its block threads too (the process goes idle, its thread count drops back)', async () => {
+    // Linux /proc (the CI and the ward PCs' packaging target are checked on Linux here).
+    const threadsOf = (pid: number) => Number(/Threads:\s+(\d+)/.exec(readFileSync(`/proc/${pid}/status`, 'utf8'))![1]);
+    const cpuOf = (pid: number) => {
+      const f = readFileSync(`/proc/${pid}/stat`, 'utf8').split(') ')[1].split(' ');
+      return Number(f[11]) + Number(f[12]);
+    };
+    const dataset = await loadDataset(demo('ward-levels.csv'));
+    // The demo ward made large enough for threads (92 levels x 40 chains >= 1000) and long.
+    const spec = { ...json(demo('ward-model.json')), estimation: { chains: 40, searchMinIterations: 5000, searchMaxIterations: 5000 } };
+    const w = await EngineWorker.start(worker);
+    try {
+      const pid = w.pid!;
+      const ac = new AbortController();
+      const job = w.run({ kind: 'fit', dataset: JSON.parse(JSON.stringify(dataset)), spec, seed: 1, threads: 2, postFit: false }, { signal: ac.signal });
+      await new Promise((r) => setTimeout(r, 1500));
+      const during = threadsOf(pid);
+      ac.abort();
+      await expect(job).rejects.toMatchObject({ kind: 'cancelled' });
+      await new Promise((r) => setTimeout(r, 1000));
+      const c0 = cpuOf(pid);
+      await new Promise((r) => setTimeout(r, 1000));
+      expect(cpuOf(pid) - c0).toBeLessThanOrEqual(5); // clock ticks (1/100 s): idle
+      expect(threadsOf(pid)).toBeLessThanOrEqual(during - 2); // the job thread and its block thread are gone
+      expect(w.alive).toBe(true);
+    } finally {
+      w.kill();
+    }
+  }, 60_000);
+
   it('the command line fit path in a worker gives the in-process fit', async () => {
     const record = await fitFilesInWorker({ dataPath: demo('ward-levels.csv'), modelPath: demo('ward-model.json'), seed: 4, settings: SHORT, postFit: false, workerEntry: engineWorkerPath });
     const direct = await fitDataset(await loadDataset(demo('ward-levels.csv')), parseModelSpec(json(demo('ward-model.json'))), { seed: 4, settings: SHORT });
