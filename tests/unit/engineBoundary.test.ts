@@ -3,6 +3,7 @@
  * other engine files and an allow-list of pure packages; no Node built-ins, no DOM, no Electron,
  * no globals of a host (process, window, document), no require().
  */
+import { spawnSync } from 'node:child_process';
 import { readdirSync, readFileSync, statSync } from 'node:fs';
 import * as path from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -139,4 +140,10 @@ describe('engine boundary', () => {
     ].join('\n');
     expect(checkSource(path.join(engineDir, 'data', 'probe.ts'), fine)).toEqual([]);
   });
+  it('engine/ type-checks with no host types at all (tsconfig.engine.json: lib ES2023, types [])', () => {
+    const tsc = path.join(root, 'node_modules', 'typescript', 'bin', 'tsc');
+    const r = spawnSync(process.execPath, [tsc, '-p', path.join(root, 'tsconfig.engine.json'), '--noEmit'], { encoding: 'utf8', timeout: 120_000 });
+    expect(r.stdout + r.stderr).toBe('');
+    expect(r.status).toBe(0);
+  }, 120_000);
 });
