@@ -21,7 +21,7 @@ import { seedAgreement, type SeedAgreement, type SeedFitSummary } from '../../en
 import type { AbortSignalLike, SaemProgress } from '../../engine/saem/saem.js';
 import type { SaemSettings } from '../../engine/saem/settings.js';
 import { parseSaemSettings, resolveChains } from '../../engine/saem/settings.js';
-import { threadsForFit } from '../worker/saemThreads.js';
+import { fitGainsFromThreads } from '../worker/saemThreads.js';
 import type { ModelSpec } from '../../engine/spec/modelSpec.js';
 import type { ProgressMessage } from '../protocol/worker.js';
 import type { CoreSlots, ReleaseSlot } from './coreSlots.js';
@@ -146,7 +146,7 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
     if (slots) {
       held.push(await slots.acquire(stop.signal));
       const levels = dataset.subjects.reduce((n, s) => n + s.observations.length, 0);
-      const wantsThreads = threadsForFit(2, levels, resolveChains(settings, dataset.subjects.length)) > 1;
+      const wantsThreads = fitGainsFromThreads(levels, resolveChains(settings, dataset.subjects.length));
       const most = wantsThreads ? Infinity : seeds.length;
       for (let r = held.length < most ? slots.tryAcquire() : null; r; r = held.length < most ? slots.tryAcquire() : null) held.push(r);
       const cores = held.length;

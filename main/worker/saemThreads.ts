@@ -59,7 +59,12 @@ export function workerThreadHost(threads: number, options: SaemThreadOptions = {
 
 /** Threads for a fit of `levels` levels with `chains` chains per subject when `available` cores are granted. */
 export function threadsForFit(available: number, levels: number, chains: number): number {
-  return levels * chains >= THREADS_MIN_WORK ? Math.max(1, available) : 1;
+  return fitGainsFromThreads(levels, chains) ? Math.max(1, available) : 1;
+}
+
+/** Whether a fit of `levels` levels with `chains` chains per subject is large enough to gain from threads. */
+export function fitGainsFromThreads(levels: number, chains: number): boolean {
+  return levels * chains >= THREADS_MIN_WORK;
 }
 
 /**
