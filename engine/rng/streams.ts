@@ -4,7 +4,10 @@
  * path, never on how many other streams exist or the order they are drawn from, so a fit is
  * bit-identical however the work is split across threads or workers.
  * Generator: R. P. Brent's xorgens 4096-bit xor-shift with a Weyl sequence (seedrandom's xor4096),
- * seeded with the text of the root seed and the path.
+ * seeded with the text of the root seed and the path. seedrandom seeds it; the draws run on a copy
+ * of its state in an Int32Array (the same sequence, bit for bit: tests/unit/rng/streams.test.ts),
+ * because the fit draws tens of millions of deviates and seedrandom keeps its state in a plain
+ * array behind two closures.
  */
 import seedrandom from 'seedrandom';
 
@@ -48,9 +51,16 @@ function encodePath(path: readonly StreamPathPart[]): string {
     .join('/');
 }
 
+/** Golden-ratio Weyl increment of xorgens (as a signed 32-bit integer). */
+const WEYL = 0x61c88647;
+const TWO_POW_32 = 0x100000000;
+const TWO_POW_21 = 1 << 21;
+
 class Stream implements RngStream {
   readonly path: string;
-  private readonly next: () => number;
+  private readonly x: Int32Array;
+  private i: number;
+  private w: number;
   private spare = 0;
   private hasSpare = false;
   private readonly rootKey: string;
@@ -62,8 +72,38 @@ class Stream implements RngStream {
     this.path = encodePath(parts);
     // The generator's own string seeding mixes every character into its 4096-bit state and
     // discards the first 512 outputs, so nearby paths give unrelated sequences.
-    const prng = seedrandom.xor4096(`plateau-rng-v1\u0000${rootKey}\u0000${this.path}`);
-    this.next = prng.double;
+    const seeded = seedrandom.xor4096(`plateau-rng-v1\u0000${rootKey}\u0000${this.path}`, { state: true }).state();
+    this.x = Int32Array.from(seeded.X);
+    this.i = seeded.i;
+    this.w = seeded.w;
+  }
+
+  /** One 32-bit output of xorgens (signed). */
+  private int32(): number {
+    const x = this.x;
+    let i = this.i;
+    const w = (this.w = (this.w + WEYL) | 0);
+    let v = x[(i + 34) & 127];
+    i = (i + 1) & 127;
+    let t = x[i];
+    v ^= v << 13;
+    t ^= t << 17;
+    v ^= v >>> 15;
+    t ^= t >>> 12;
+    v = x[i] = v ^ t;
+    this.i = i;
+    return (v + (w ^ (w >>> 16))) | 0;
+  }
+
+  /** 53-bit uniform on (0, 1): seedrandom's double() on the same outputs. */
+  private next(): number {
+    let r: number;
+    do {
+      const top = this.int32() >>> 11;
+      const bot = (this.int32() >>> 0) / TWO_POW_32;
+      r = (top + bot) / TWO_POW_21;
+    } while (r === 0);
+    return r;
   }
 
   uniform(): number {

@@ -105,3 +105,17 @@ describe('createStreams', () => {
     expect(() => createStreams(1).stream(Number.POSITIVE_INFINITY)).toThrow(/finite/);
   });
 });
+
+describe('the generator', () => {
+  it('draws the same sequence as seedrandom xor4096 double() seeded with the stream key', async () => {
+    // Reference: the seedrandom package (xorgens 4096 of R. P. Brent, "Some long-period random
+    // number generators using shifts and xors", 2007); the stream runs on a copy of its state.
+    const seedrandom = (await import('seedrandom')).default;
+    for (const [seed, path] of [[1, ['saem', 'subject', 0, 'chain', 0]], ['fit-7', ['x']], [123456789, ['posthoc', 3]]] as const) {
+      const key = `plateau-rng-v1\u0000${typeof seed === 'number' ? `n${seed}` : `s${seed}`}\u0000${path.map((p) => (typeof p === 'number' ? `#${p}` : `$${p}`)).join('/')}`;
+      const reference = seedrandom.xor4096(key);
+      const stream = createStreams(seed).stream(...path);
+      for (let k = 0; k < 5000; k++) expect(stream.uniform()).toBe(reference.double());
+    }
+  });
+});
