@@ -460,13 +460,21 @@ export function compileModel(spec: ModelSpec, dataset: Dataset, options: Compile
   }
 
   // The scratch vector keeps the defaults of absent parameters; predict writes only the others.
+  // Consecutive calls mostly repeat a parameter's value (fixed parameters, the components a
+  // component-wise step leaves alone): its back-transform is kept with the value it came from.
   modelVec.set(modelDefaults);
+  const lastPhi = new Float64Array(nParams).fill(NaN);
   function predict(i: number, phi: ArrayLike<number>, out: Float64Array): boolean {
     for (let j = 0; j < nParams; j++) {
       const x = phi[j];
       const code = transformCode[j];
+      if (x === lastPhi[j] && code !== 2) continue; // (untransformed values are copied: -0 stays -0)
       const v = code === 0 ? Math.exp(x) : code === 1 ? 1 / (1 + Math.exp(-x)) : x;
-      if (!Number.isFinite(v)) return false;
+      if (!Number.isFinite(v)) {
+        lastPhi[j] = NaN;
+        return false;
+      }
+      lastPhi[j] = x;
       modelVec[modelIdx[j]] = v;
     }
     return subjects[i].predictor(modelVec, out);
