@@ -10,7 +10,8 @@ import { beforeAll, describe, expect, it } from 'vitest';
 import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { CoreSlots } from '../../../main/services/coreSlots.js';
-import { runSeedInWorker, SeedWorkerPool } from '../../../main/services/fitRunner.js';
+import { EngineWorker } from '../../../main/services/engineClient.js';
+import { runSeedInWorker } from '../../../main/services/fitRunner.js';
 import { fitSeeds, runSeedInProcess, type RunOneSeed } from '../../../main/services/fitSeeds.js';
 import { engineWorkerPath, ensureBuilt } from '../services/build.js';
 
@@ -49,25 +50,21 @@ describe('seeds in worker processes', () => {
     expect(comparable(inWorkers)).toEqual(comparable(inProcess));
   }, 180_000);
 
-  it('one reused worker running the seeds one after another gives the same record (the command line with fewer cores than seeds)', async () => {
-    const pool = new SeedWorkerPool({ modulePath: engineWorkerPath });
-    const pids = new Set<number | undefined>();
+  it('one reused worker running the seeds one after another gives the same record (the queue keeps idle workers)', async () => {
+    const idle: EngineWorker[] = [];
+    const made: EngineWorker[] = [];
     try {
       const runOne = runSeedInWorker(dataset, {
         specJson,
         worker: { modulePath: engineWorkerPath },
-        takeWorker: () => {
-          const w = pool.take();
-          void w.ready.then(() => pids.add(w.pid));
-          return w;
-        },
-        giveBack: pool.giveBack,
+        takeWorker: () => idle.pop() ?? (made.push(EngineWorker.spawn({ modulePath: engineWorkerPath })), made[made.length - 1]),
+        giveBack: (w) => void idle.push(w),
       });
-      const reused = await fitSeeds(dataset, spec, { runOne, slots: new CoreSlots(1) });
-      expect(pids.size).toBe(1);
+      const reused = await fitSeeds(dataset, spec, { runOne, concurrency: 1 });
+      expect(made).toHaveLength(1);
       expect(comparable(reused)).toEqual(comparable(await fitSeeds(dataset, spec)));
     } finally {
-      pool.close();
+      for (const w of made) w.kill();
     }
   }, 180_000);
 

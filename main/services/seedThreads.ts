@@ -1,0 +1,35 @@
+/**
+ * fitSeeds' runOne in job threads of this process (main/worker/jobThreads.ts): how `plateau fit`
+ * runs its seeds (docs/architecture.md, "Command line"). Each seed's job (estimation and post-fit
+ * steps, seedJob.ts) runs in its own heap-limited thread, so seeds run in parallel on separate
+ * cores, a cancel terminates the seed's thread at once, and this thread stays free. It is the job
+ * an engine worker process runs (runSeedInWorker) without the process: the same code in the same
+ * kind of thread, so the record is the same number for number.
+ */
+import type { Dataset } from '../../engine/data/types.js';
+import type { JobThreads } from '../worker/jobThreads.js';
+import type { PosthocFitRecord } from './fitPosthoc.js';
+import type { RunOneSeed } from './fitSeeds.js';
+import { seedFitJob, type SeedJobOptions } from './seedJob.js';
+
+export interface SeedThreadOptions extends SeedJobOptions {
+  /** The job threads the seeds run in (a thread whose seed ended cleanly runs the next one). */
+  jobs: JobThreads;
+  /** Each seed's job CPU and wall time (benchmarks). */
+  onTiming?: (seed: number, t: { cpuMs: number; wallMs: number }) => void;
+}
+
+export function runSeedInThreads(dataset: Dataset, o: SeedThreadOptions): RunOneSeed {
+  const wire = JSON.parse(JSON.stringify(dataset)) as unknown;
+  return async (seed, signal, onProgress, threads = 1) => {
+    const value = await o.jobs.run(seedFitJob(wire, o, seed, threads), {
+      signal,
+      ...(o.onTiming ? { onTiming: (t: { cpuMs: number; wallMs: number }) => o.onTiming!(seed, t) } : {}),
+      onProgress: (p) => {
+        const { jobId: _jobId, ...rest } = p;
+        void onProgress(rest);
+      },
+    });
+    return value as PosthocFitRecord;
+  };
+}
