@@ -5,13 +5,13 @@
  * command with it. The dataset and spec are read and checked here first, so errors in them
  * appear before any process starts.
  */
-import type { ProgressMessage } from '../protocol/worker.js';
+import type { JobRequest, ProgressMessage } from '../protocol/worker.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { EngineWorker, runEngineJob, type EngineWorkerOptions } from './engineClient.js';
 import type { PosthocFitRecord } from './fitPosthoc.js';
-import type { RunOneSeed } from './fitSeeds.js';
+import type { AddSeedDiagnostics, RunOneSeed } from './fitSeeds.js';
 import type { SaemSettings } from '../../engine/saem/settings.js';
-import { seedFitJob, type SeedJobOptions } from './seedJob.js';
+import { seedDiagnosticsJob, seedFitJob, type SeedJobOptions } from './seedJob.js';
 
 export interface FitInWorkerOptions {
   dataPath: string;
@@ -69,24 +69,33 @@ export interface SeedWorkerOptions extends SeedJobOptions {
  */
 export function runSeedInWorker(dataset: Dataset, o: SeedWorkerOptions): RunOneSeed {
   const wire = JSON.parse(JSON.stringify(dataset)) as never;
-  return async (seed, signal, onProgress, threads = 1) => {
-    const w = o.takeWorker ? o.takeWorker() : EngineWorker.spawn(o.worker);
-    let clean = false;
-    try {
-      const value = await w.run(seedFitJob(wire, o, seed, threads), {
-        signal,
-        ...(o.jobId ? { jobId: o.jobId(seed) } : {}),
-        ...(o.onTiming ? { onTiming: (t: { cpuMs: number; wallMs: number }) => o.onTiming!(seed, t) } : {}),
-        onProgress: (p: ProgressMessage) => {
-          const { jobId: _jobId, ...rest } = p;
-          void onProgress(rest);
-        },
-      });
-      clean = true;
-      return value as PosthocFitRecord;
-    } finally {
-      if (clean && o.giveBack && w.alive && !w.busy) o.giveBack(w);
-      else w.kill();
-    }
-  };
+  return (seed, signal, onProgress, threads = 1, deferDiagnostics = false) => inWorker(o, seed, seedFitJob(wire, o, seed, threads, deferDiagnostics), signal, onProgress);
+}
+
+/** fitSeeds' addDiagnostics in an engine worker process: the kept seed's diagnostics, left for later by runSeedInWorker. */
+export function addDiagnosticsInWorker(dataset: Dataset, o: SeedWorkerOptions): AddSeedDiagnostics {
+  const wire = JSON.parse(JSON.stringify(dataset)) as never;
+  return (record, signal, onProgress) => inWorker(o, record.seed, seedDiagnosticsJob(wire, o, record), signal, onProgress);
+}
+
+/** One job of a seed in a worker (taken, or started for it), given back when it ended cleanly. */
+async function inWorker(o: SeedWorkerOptions, seed: number, job: JobRequest, signal: AbortSignal, onProgress: Parameters<RunOneSeed>[2]): Promise<PosthocFitRecord> {
+  const w = o.takeWorker ? o.takeWorker() : EngineWorker.spawn(o.worker);
+  let clean = false;
+  try {
+    const value = await w.run(job, {
+      signal,
+      ...(o.jobId ? { jobId: o.jobId(seed) } : {}),
+      ...(o.onTiming ? { onTiming: (t: { cpuMs: number; wallMs: number }) => o.onTiming!(seed, t) } : {}),
+      onProgress: (p: ProgressMessage) => {
+        const { jobId: _jobId, ...rest } = p;
+        void onProgress(rest);
+      },
+    });
+    clean = true;
+    return value as PosthocFitRecord;
+  } finally {
+    if (clean && o.giveBack && w.alive && !w.busy) o.giveBack(w);
+    else w.kill();
+  }
 }

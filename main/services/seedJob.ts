@@ -1,7 +1,7 @@
 /**
- * The engine job of one seed of a fit (main/protocol/worker.ts FitJob), built the same way for
- * an engine worker process (fitRunner.ts runSeedInWorker) and for a job thread of this process
- * (seedThreads.ts runSeedInThreads), so both run the same job.
+ * The engine jobs of one seed of a fit (main/protocol/worker.ts FitJob, and DiagnosticsJob for
+ * the kept seed), built the same way for an engine worker process (fitRunner.ts) and for a job
+ * thread of this process (seedThreads.ts), so both run the same jobs.
  */
 import type { SaemSettings } from '../../engine/saem/settings.js';
 import type { JobRequest } from '../protocol/worker.js';
@@ -15,7 +15,7 @@ export interface SeedJobOptions {
 }
 
 /** The fit job of `seed` on the dataset in its wire form (a JSON copy) with `threads` cores. */
-export function seedFitJob(wire: unknown, o: SeedJobOptions, seed: number, threads: number): Extract<JobRequest, { kind: 'fit' }> {
+export function seedFitJob(wire: unknown, o: SeedJobOptions, seed: number, threads: number, deferDiagnostics = false): Extract<JobRequest, { kind: 'fit' }> {
   return {
     kind: 'fit',
     dataset: wire as never,
@@ -24,5 +24,11 @@ export function seedFitJob(wire: unknown, o: SeedJobOptions, seed: number, threa
     ...(threads > 1 ? { threads } : {}),
     ...(o.settings ? { settings: o.settings as never } : {}),
     postFit: o.postFit !== false,
+    ...(deferDiagnostics && o.postFit !== false ? { deferDiagnostics } : {}),
   };
+}
+
+/** The job that adds the diagnostics a seed's fit job left for later (the kept seed). */
+export function seedDiagnosticsJob(wire: unknown, o: SeedJobOptions, record: unknown): Extract<JobRequest, { kind: 'diagnostics' }> {
+  return { kind: 'diagnostics', dataset: wire as never, spec: o.specJson, record: record as never };
 }

@@ -34,8 +34,8 @@ a summary. The spec's "estimation" block holds the estimator settings; --seed ov
 
 The seeds run in parallel threads, as many at once as the machine has cores.
 Each seed's fit is followed by standard errors, -2LL (importance sampling), AIC, BIC, individual
-conditional distributions, shrinkage and diagnostics (NPDE, VPC); the kept fit is written to
-fit.json with the seeds' verdict ("seeds") and its degeneracy checks ("degeneracy").`;
+conditional distributions and shrinkage, and the kept seed's by diagnostics (NPDE, VPC); the kept
+fit is written to fit.json with the seeds' verdict ("seeds") and its degeneracy checks ("degeneracy").`;
 
 export const command: CliCommand = {
   name: 'fit',
@@ -89,7 +89,7 @@ export const command: CliCommand = {
       jobs.close();
       throw e;
     }
-    const [{ formatFitSummary }, { compileModel, ModelDataError }, { parseModelSpec }, { parseSaemSettings }, { readDataset }, { formatPosthocSummary }, { runSeedInThreads }, { fitSeeds, formatSeeds, seedsAtOnce }] = modules;
+    const [{ formatFitSummary }, { compileModel, ModelDataError }, { parseModelSpec }, { parseSaemSettings }, { readDataset }, { formatPosthocSummary }, { addDiagnosticsInThreads, runSeedInThreads }, { fitSeeds, formatSeeds, seedsAtOnce }] = modules;
     let record;
     try {
       const dataset = await readDataset(resolvePath(io.cwd, stringFlag(args, 'data')!), mapping !== undefined ? resolvePath(io.cwd, mapping) : undefined);
@@ -105,6 +105,7 @@ export const command: CliCommand = {
       record = await fitSeeds(dataset, spec, {
         settings,
         runOne: runSeedInThreads(dataset, { specJson, settings, jobs }),
+        addDiagnostics: addDiagnosticsInThreads(dataset, { specJson, settings, jobs }),
         slots: new CoreSlots(cores),
         ...(signal ? { signal } : {}),
         ...(progress

@@ -2,7 +2,8 @@
  * The seeds of a fit in engine worker processes (main/services/fitRunner.ts runSeedInWorker) on
  * R's Theoph (datasets::Theoph, resources/validation/reference/theoph): the record equals the in-process path
  * for the same seeds, number for number (the worker runs the same engine code; only the
- * timing fields differ), and the shared core slots bound how many seeds compute at once.
+ * timing fields differ; the kept seed's diagnostics from a later job), and the shared core slots
+ * bound how many seeds compute at once.
  */
 import { readFileSync } from 'node:fs';
 import * as path from 'node:path';
@@ -11,7 +12,7 @@ import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { CoreSlots } from '../../../main/services/coreSlots.js';
 import { EngineWorker } from '../../../main/services/engineClient.js';
-import { runSeedInWorker } from '../../../main/services/fitRunner.js';
+import { addDiagnosticsInWorker, runSeedInWorker } from '../../../main/services/fitRunner.js';
 import { fitSeeds, runSeedInProcess, type RunOneSeed } from '../../../main/services/fitSeeds.js';
 import { engineWorkerPath, ensureBuilt } from '../services/build.js';
 
@@ -36,13 +37,17 @@ describe('seeds in worker processes', () => {
     const slots = new CoreSlots(2);
     let maxInUse = 0;
     const inner = runSeedInWorker(dataset, { specJson, worker: { modulePath: engineWorkerPath } });
-    const runOne: RunOneSeed = async (seed, signal, onProgress) => {
+    const runOne: RunOneSeed = async (...args) => {
       maxInUse = Math.max(maxInUse, slots.inUse);
-      return inner(seed, signal, onProgress);
+      return inner(...args);
     };
     const phases = new Set<string>();
-    const inWorkers = await fitSeeds(dataset, spec, { runOne, slots, onProgress: (_s, p) => void phases.add(p.phase) });
-    const inProcess = await fitSeeds(dataset, spec);
+    // 3 seeds on 2 cores: the kept seed's diagnostics come from a later job in a worker.
+    const addDiagnostics = addDiagnosticsInWorker(dataset, { specJson, worker: { modulePath: engineWorkerPath } });
+    const inWorkers = await fitSeeds(dataset, spec, { runOne, addDiagnostics, slots, onProgress: (_s, p) => void phases.add(p.phase) });
+    // In process with the three seeds at once: every seed's diagnostics in one go.
+    const inProcess = await fitSeeds(dataset, spec, { concurrency: 3 });
+    expect(inWorkers.diagnostics?.npde.replicates).toBeGreaterThan(0);
     expect(inWorkers.seeds.runs.map((r) => r.seed)).toEqual([3, 4, 5]);
     expect(maxInUse).toBeLessThanOrEqual(2);
     expect(slots.inUse).toBe(0);
