@@ -115,6 +115,14 @@ export function parseCsvRecords(text: string, problems: DataProblem[]): CsvRecor
   return records;
 }
 
+/** True when the first line of a CSV is Plateau's canonical header (subject, time_h and event columns). */
+export function isCanonicalCsv(text: string): boolean {
+  const firstLine = text.slice(0, Math.min(text.length, 10_000)).split(/\r\n|\r|\n/)[0] ?? '';
+  const records = parseCsvRecords(firstLine + '\n', []);
+  const names = new Set((records[0]?.fields ?? []).map((f) => f.trim().toLowerCase()));
+  return names.has('subject') && names.has('time_h') && names.has('event');
+}
+
 const NUMBER_RE = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/;
 
 /** Parse a number strictly ("1e-3", "-2.5"); undefined when not a plain finite number. */

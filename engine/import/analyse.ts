@@ -7,7 +7,9 @@ import { readWorkbook, previewWorkbook, type ReadOptions, type SheetPreview } fr
 import { suggestMapping, parseTemplate, type ImportOptions, type MappingTemplate } from './roles.js';
 import { importWorkbook, type ImportReport } from './build.js';
 import { DataError, type Dataset } from '../data/types.js';
-import { parseCanonicalCsvDetailed, parseCsvRecords } from '../data/canonicalCsv.js';
+import { isCanonicalCsv, parseCanonicalCsvDetailed } from '../data/canonicalCsv.js';
+
+export { isCanonicalCsv };
 import { decodeTextChecked } from './workbook.js';
 import type { ReportProblem } from './roles.js';
 
@@ -90,14 +92,6 @@ function listUnimported(report: ImportReport, unimported: ReturnType<typeof sugg
         report.summary.excludedRows++;
       }
   }
-}
-
-/** True when the first line of a CSV is Plateau's canonical header (subject, time_h and event columns). */
-export function isCanonicalCsv(text: string): boolean {
-  const firstLine = text.slice(0, Math.min(text.length, 10_000)).split(/\r\n|\r|\n/)[0] ?? '';
-  const records = parseCsvRecords(firstLine + '\n', []);
-  const names = new Set((records[0]?.fields ?? []).map((f) => f.trim().toLowerCase()));
-  return names.has('subject') && names.has('time_h') && names.has('event');
 }
 
 /**

@@ -11,11 +11,11 @@
 import type { CompiledModel, PopulationParameters } from '../stats/model.js';
 import { concludeConditional, etaShrinkage, resolveConditionalOptions, type ConditionalOptions, type ConditionalResult, type Shrinkage } from './conditional.js';
 import { buildDensity, type SubjectDensity } from './density.js';
-import { concludeDiagnostics, defaultReplicates, DEFAULT_DIAGNOSTICS, type DiagnosticsOptions, type DiagnosticsResult } from './diagnostics.js';
+import { computeDiagnostics, concludeDiagnostics, defaultReplicates, DEFAULT_DIAGNOSTICS, type DiagnosticsOptions, type DiagnosticsResult } from './diagnostics.js';
 import { concludeLouis, linearisedInformation, standardErrors, type StandardErrors } from './fisher.js';
 import { concludeImportance, informationCriteria, resolveImportanceOptions, type ImportanceOptions, type ImportanceResult, type InformationCriteria } from './likelihood.js';
 import { buildLinearisation, linearisedMinus2LL } from './linearised.js';
-import { concludeModes, type ModeResult } from './modes.js';
+import { conditionalModes, concludeModes, type ModeResult } from './modes.js';
 import { parameterLayout, type ParameterLayout } from './parameters.js';
 import { createPosthocBlocks, type PosthocBlockOptions, type PosthocBlocks, type PosthocThreadHost } from './threads.js';
 
@@ -86,6 +86,22 @@ export async function runPosthocOnThreads(model: CompiledModel, theta: Populatio
   } finally {
     blocks.close();
   }
+}
+
+/**
+ * The diagnostics step of runPosthoc alone (PRED, IPRED, IWRES, NPDE, VPC, covariate relations),
+ * for a fit whose other post-fit steps ran without it (`diagnostics: false`): the conditional
+ * modes are found again from the same start (a deterministic optimisation), and the simulations
+ * draw from the same streams, so the result is the one runPosthoc gives with the same options
+ * (to the last bit; tests/integration/fit/keptDiagnostics.test.ts). A fit from several seeds uses it
+ * for the kept seed only.
+ */
+export function runPosthocDiagnostics(model: CompiledModel, theta: PopulationParameters, options: Partial<PosthocOptions> = {}): { diagnostics: DiagnosticsResult; timingMs: number } {
+  if (options.diagnostics === false) throw new Error('internal: runPosthocDiagnostics with the diagnostics switched off');
+  const prep = preparePosthoc(model, theta, options);
+  const modes = conditionalModes(prep.density, prep.blocks.start ? { start: prep.blocks.start } : {});
+  const diagnostics = computeDiagnostics(prep.density, modes, prep.diagnostics!);
+  return { diagnostics, timingMs: prep.now() - prep.t0 };
 }
 
 interface PreparedPosthoc {
@@ -257,7 +273,12 @@ export interface PosthocRecordFields {
   }[];
   shrinkage: { eta: Record<string, { sd: number | null; variance: number | null; sdConditionalMean: number | null }>; epsilon: number | null; method: string };
   diagnostics: DiagnosticsResult | null;
-  posthoc: { seed: number; timingMs: PosthocResult['timingMs']; warnings: string[] };
+  /**
+   * `diagnosticsDeferred`: the diagnostics were left for later (a seed of a multi-seed fit, which
+   * gets them only if it is kept; main/services/fitPosthoc.ts addDeferredDiagnostics); never in a
+   * saved fit.
+   */
+  posthoc: { seed: number; timingMs: PosthocResult['timingMs']; warnings: string[]; diagnosticsDeferred?: true };
 }
 
 /** Draws kept per subject in the record (evenly thinned from the conditional draws). */

@@ -102,7 +102,10 @@ function supervise(): void {
   childProcess.on('exit', (code, signal) => {
     clearTimeout(killTimer);
     for (const t of temps) rmSync(t, { force: true });
-    process.exitCode = stopping ? 130 : code ?? (signal ? 1 : 1);
+    // A command child ended by a signal nobody here sent (a crash, the system's out-of-memory
+    // killer) says nothing itself: say it here, as the engine worker's owner would.
+    if (!stopping && signal) process.stderr.write(`plateau: internal error: the command process ended unexpectedly (signal ${signal}), not because of a problem in your files; unfinished output files were removed\n`);
+    process.exitCode = stopping ? 130 : code ?? 1;
   });
 }
 

@@ -32,6 +32,8 @@ export const FitJob = z.strictObject({
   threads: z.number().int().min(1).max(64).optional(),
   /** Run the post-fit steps after the estimator in the same job (default true). */
   postFit: z.boolean().optional(),
+  /** Leave the post-fit diagnostics for a later diagnostics job (a seed of a multi-seed fit: only the kept seed gets them). */
+  deferDiagnostics: z.boolean().optional(),
 });
 export const PostFitJob = z.strictObject({
   kind: z.literal('postFit'),
@@ -40,6 +42,14 @@ export const PostFitJob = z.strictObject({
   /** The fit record from a fit job (engine/saem/fitRecord). */
   record: JsonObject,
   seed: Seed.optional(),
+});
+/** The diagnostics a fit job left for later (deferDiagnostics), added to its record: the kept seed of a multi-seed fit. */
+export const DiagnosticsJob = z.strictObject({
+  kind: z.literal('diagnostics'),
+  dataset: DatasetWire,
+  spec: JsonObject,
+  /** The record the fit job returned. */
+  record: JsonObject,
 });
 export const SimulateJob = z.strictObject({
   kind: z.literal('simulate'),
@@ -78,7 +88,7 @@ export const VerifyJob = z.strictObject({
 /** Sleeps (cancellably) or spins: a job for tests and benchmarks of the process machinery. */
 export const ProbeJob = z.strictObject({ kind: z.literal('probe'), mode: z.enum(['echo', 'sleep', 'spin', 'crash', 'hang', 'alloc']), ms: z.number().min(0).max(600_000).optional(), value: z.unknown().optional() });
 
-export const JobRequestSchema = z.discriminatedUnion('kind', [ParseJob, FitJob, PostFitJob, SimulateJob, AdviseJob, VerifyJob, ProbeJob]);
+export const JobRequestSchema = z.discriminatedUnion('kind', [ParseJob, FitJob, PostFitJob, DiagnosticsJob, SimulateJob, AdviseJob, VerifyJob, ProbeJob]);
 export type JobRequest = z.infer<typeof JobRequestSchema>;
 export type JobKind = JobRequest['kind'];
 

@@ -6,9 +6,9 @@
  * and is loaded only when needed, so this module works before that branch exists.
  */
 import * as path from 'node:path';
-import { parseCanonicalCsvDetailed } from '../../engine/data/canonicalCsv.js';
-import { decodeTextChecked } from '../../engine/import/workbook.js';
-import { isCanonicalCsv } from '../../engine/import/analyse.js';
+import { isCanonicalCsv, parseCanonicalCsvDetailed } from '../../engine/data/canonicalCsv.js';
+// The decoder alone, not the spreadsheet reader: a canonical CSV never loads SheetJS.
+import { decodeTextChecked } from '../../engine/import/textDecode.js';
 import { DataError, type Dataset } from '../../engine/data/types.js';
 import { readRegularFile } from './fileGuard.js';
 

@@ -2,7 +2,7 @@
  * The post-fit steps for a finished fit (engine/posthoc): standard errors, likelihood,
  * per-subject conditional distributions and diagnostics, merged into the fit record. One entry point for the CLI, the worker and the tests.
  */
-import { mergePosthoc, posthocRecordFields, PosthocError, runPosthocOnThreads, thetaFromPopulation, type PosthocOptions, type PosthocThreadHost, type WithPosthoc } from '../../engine/posthoc/index.js';
+import { mergePosthoc, posthocRecordFields, PosthocError, runPosthocDiagnostics, runPosthocOnThreads, thetaFromPopulation, type PosthocOptions, type PosthocThreadHost, type WithPosthoc } from '../../engine/posthoc/index.js';
 import { assessDegeneracy, type DegeneracyReport } from '../../engine/posthoc/degeneracy.js';
 import { naturalToTransformed } from '../../engine/spec/individual.js';
 import { threadsForPosthoc } from '../worker/saemThreads.js';
@@ -19,24 +19,39 @@ export interface FitPosthocOptions {
    */
   threads?: number | PosthocThreadHost;
   onStatus?: (message: string) => void | Promise<void>;
+  /**
+   * Leave the diagnostics (NPDE, VPC, IPRED...) for later: a seed of a multi-seed fit gets them
+   * only once it is kept (addDeferredDiagnostics, with the same options). The record is marked
+   * `posthoc.diagnosticsDeferred`; everything else in it is final.
+   */
+  deferDiagnostics?: boolean;
 }
 
-export type PosthocFitRecord = WithPosthoc<FitOutcome['record']> 
+export type PosthocFitRecord = WithPosthoc<FitOutcome['record']>;
+
+/** The post-fit steps' start: the estimator's individual estimates on the transformed scale (N x nParams). */
+function startPhiOf(model: FitOutcome['model'], record: Pick<FitOutcome['record'], 'individual'>): Float64Array {
+  const p = model.nParams;
+  const startPhi = new Float64Array(model.nSubjects * p);
+  record.individual.forEach((s, i) => model.parameters.forEach((par, j) => (startPhi[i * p + j] = naturalToTransformed(par.transform, s.parameters[par.name]))));
+  return startPhi;
+}
 
 export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions = {}): Promise<PosthocFitRecord> {
   const { model, record } = outcome;
   const seed = options.seed ?? record.seed;
   const theta = thetaFromPopulation(model, record.population);
-  const p = model.nParams;
-  const startPhi = new Float64Array(model.nSubjects * p);
-  record.individual.forEach((s, i) => model.parameters.forEach((par, j) => (startPhi[i * p + j] = naturalToTransformed(par.transform, s.parameters[par.name]))));
+  const startPhi = startPhiOf(model, record);
+  // Deferring means nothing when the caller switched the diagnostics off.
+  const defer = options.deferDiagnostics === true && options.posthoc?.diagnostics !== false;
   await options.onStatus?.('post-fit: conditional modes and distributions, standard errors, likelihood, diagnostics');
   let merged: PosthocFitRecord;
   try {
     const wanted = options.threads ?? outcome.threads ?? 1;
     const host = typeof wanted === 'number' ? (threadsForPosthoc(wanted, model.nSubjects) > 1 ? fitThreadHost(threadsForPosthoc(wanted, model.nSubjects)) : undefined) : wanted;
-    const r = await runPosthocOnThreads(model, theta, { seed, startPhi, ...(options.posthoc ?? {}), ...(host ? { threads: host } : {}) });
+    const r = await runPosthocOnThreads(model, theta, { seed, startPhi, ...(options.posthoc ?? {}), ...(defer ? { diagnostics: false as const } : {}), ...(host ? { threads: host } : {}) });
     merged = mergePosthoc(record, posthocRecordFields(model, r, seed));
+    if (defer) merged.posthoc.diagnosticsDeferred = true;
     const minus2LL = r.likelihood.importance ? r.likelihood.importance.minus2LL : Number.isFinite(r.likelihood.linearisedMinus2LL) ? r.likelihood.linearisedMinus2LL : null;
     markDegeneracy(merged, assessDegeneracy({ model, theta, density: r.density, modes: r.modes, minus2LL }));
   } catch (e) {
@@ -47,6 +62,32 @@ export async function addPosthoc(outcome: FitOutcome, options: FitPosthocOptions
   }
   return merged;
 }
+
+/**
+ * The diagnostics of a record whose post-fit steps left them for later (addPosthoc with
+ * `deferDiagnostics`), with the options addPosthoc had: the record becomes the one addPosthoc
+ * gives without deferring, field for field and in the same order (the diagnostics' warnings go
+ * where the diagnostics step puts them, after the other post-fit warnings and before the
+ * degeneracy warning); only its timing fields differ. A record without the mark is returned as
+ * it is.
+ */
+export async function addDeferredDiagnostics(outcome: { record: PosthocFitRecord; model: FitOutcome['model'] }, options: Omit<FitPosthocOptions, 'deferDiagnostics' | 'threads'> = {}): Promise<PosthocFitRecord> {
+  const { model, record } = outcome;
+  if (!record.posthoc?.diagnosticsDeferred) return record;
+  const seed = options.seed ?? record.seed;
+  await options.onStatus?.('post-fit: diagnostics of the kept seed (NPDE, VPC)');
+  const { diagnostics, timingMs } = runPosthocDiagnostics(model, thetaFromPopulation(model, record.population), { seed, startPhi: startPhiOf(model, record), ...(options.posthoc ?? {}) });
+  const done = { ...record, diagnostics, shrinkage: { ...record.shrinkage, epsilon: finite(diagnostics.epsilonShrinkage) } } as PosthocFitRecord;
+  const { diagnosticsDeferred: _deferred, ...posthoc } = record.posthoc;
+  done.posthoc = { ...posthoc, timingMs: { ...posthoc.timingMs, diagnostics: timingMs, total: posthoc.timingMs.total + timingMs }, warnings: [...posthoc.warnings, ...diagnostics.warnings] };
+  // markDegeneracy added its one warning last, when the fit is not usable as a prior.
+  const warnings = [...record.warnings];
+  warnings.splice(record.degeneracy && !record.degeneracy.usableAsPrior ? warnings.length - 1 : warnings.length, 0, ...diagnostics.warnings);
+  done.warnings = warnings;
+  return done;
+}
+
+const finite = (x: number | null | undefined): number | null => (x !== null && x !== undefined && Number.isFinite(x) ? x : null);
 
 /** Attach the degeneracy report; a degenerate fit gets a warning that blocks its use as a prior. */
 function markDegeneracy(record: { degeneracy?: DegeneracyReport; warnings: string[] }, report: DegeneracyReport): void {

@@ -18,7 +18,7 @@ import { SaemSettingsInput } from '../protocol/schemas.js';
 import type { ProgressMessage } from '../protocol/worker.js';
 import { CoreSlots, machineCores } from './coreSlots.js';
 import { EngineWorker, type EngineWorkerOptions } from './engineClient.js';
-import { runSeedInWorker } from './fitRunner.js';
+import { addDiagnosticsInWorker, runSeedInWorker, type SeedWorkerOptions } from './fitRunner.js';
 import { fitSeeds, seedList, SEEDS_MAX } from './fitSeeds.js';
 import { newId, type ProjectStore } from './projectStore.js';
 import { ServiceError, toErrorValue } from './serviceError.js';
@@ -357,7 +357,7 @@ export class FitQueue {
       const model = await this.store.getModel(j.modelId);
       const seeds = j.seeds ?? [j.seed];
       const settings = { ...(j.settings ?? {}), seeds: seeds.length } as never;
-      const runOne = runSeedInWorker(dataset, {
+      const seedWorkers: SeedWorkerOptions = {
         specJson: model.specJson,
         ...(j.settings ? { settings: j.settings as never } : {}),
         postFit: j.postFit?.run !== false,
@@ -374,16 +374,28 @@ export class FitQueue {
           else w.kill();
         },
         onTiming: (_seed, t) => this.workerWallMs.set(j.id, (this.workerWallMs.get(j.id) ?? 0) + t.wallMs),
-      });
+      };
+      const runOne = runSeedInWorker(dataset, seedWorkers);
+      const addDiagnostics = addDiagnosticsInWorker(dataset, seedWorkers);
+      // A worker not given back (failed or cancelled) was ended by the runner.
+      const forget = () => {
+        for (const w of live.workers) if (!w.alive) live.workers.delete(w);
+      };
       const record = await fitSeeds(dataset, model.spec, {
         seeds,
         settings,
-        runOne: async (seed, signal, onProgress) => {
+        runOne: async (...args) => {
           try {
-            return await runOne(seed, signal, onProgress);
+            return await runOne(...args);
           } finally {
-            // A worker not given back (failed or cancelled) was ended by the runner.
-            for (const w of live.workers) if (!w.alive) live.workers.delete(w);
+            forget();
+          }
+        },
+        addDiagnostics: async (...args) => {
+          try {
+            return await addDiagnostics(...args);
+          } finally {
+            forget();
           }
         },
         slots: this.slots,

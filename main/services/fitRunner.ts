@@ -5,12 +5,13 @@
  * command with it. The dataset and spec are read and checked here first, so errors in them
  * appear before any process starts.
  */
-import type { ProgressMessage } from '../protocol/worker.js';
+import type { JobRequest, ProgressMessage } from '../protocol/worker.js';
 import type { Dataset } from '../../engine/data/types.js';
 import { EngineWorker, runEngineJob, type EngineWorkerOptions } from './engineClient.js';
 import type { PosthocFitRecord } from './fitPosthoc.js';
-import type { RunOneSeed } from './fitSeeds.js';
+import type { AddSeedDiagnostics, RunOneSeed } from './fitSeeds.js';
 import type { SaemSettings } from '../../engine/saem/settings.js';
+import { seedDiagnosticsJob, seedFitJob, type SeedJobOptions } from './seedJob.js';
 
 export interface FitInWorkerOptions {
   dataPath: string;
@@ -48,12 +49,7 @@ export async function fitFilesInWorker(o: FitInWorkerOptions): Promise<Record<st
   return value as Record<string, unknown>;
 }
 
-export interface SeedWorkerOptions {
-  /** The model spec as JSON (the worker parses it again). */
-  specJson: Record<string, unknown>;
-  settings?: Partial<SaemSettings>;
-  /** Run the post-fit steps (default true; without them the record has no -2LL to choose by). */
-  postFit?: boolean;
+export interface SeedWorkerOptions extends SeedJobOptions {
   /** Where the worker comes from (default: a fresh process per seed, ended afterwards). */
   worker: EngineWorkerOptions;
   takeWorker?: () => EngineWorker;
@@ -66,78 +62,40 @@ export interface SeedWorkerOptions {
 }
 
 /**
- * fitSeeds' runOne in engine worker processes: one fit job (estimation and post-fit steps) per
- * seed, in its own worker, so seeds run in parallel on separate cores and the command line
- * shares the app's path. Cancelling ends the seed's job (its thread is terminated).
+ * fitSeeds' runOne in engine worker processes (the app's fit queue): one fit job (estimation and
+ * post-fit steps) per seed, in its own worker, so seeds run in parallel on separate cores and a
+ * crash ends only its own job. Cancelling ends the seed's job (its thread is terminated).
+ * `plateau fit` runs the same job in job threads of its own process (seedThreads.ts).
  */
 export function runSeedInWorker(dataset: Dataset, o: SeedWorkerOptions): RunOneSeed {
   const wire = JSON.parse(JSON.stringify(dataset)) as never;
-  return async (seed, signal, onProgress, threads = 1) => {
-    const w = o.takeWorker ? o.takeWorker() : EngineWorker.spawn(o.worker);
-    let clean = false;
-    try {
-      const value = await w.run(
-        {
-          kind: 'fit',
-          dataset: wire,
-          spec: o.specJson,
-          seed,
-          ...(threads > 1 ? { threads } : {}),
-          ...(o.settings ? { settings: o.settings as never } : {}),
-          postFit: o.postFit !== false,
-        },
-        {
-          signal,
-          ...(o.jobId ? { jobId: o.jobId(seed) } : {}),
-          ...(o.onTiming ? { onTiming: (t: { cpuMs: number; wallMs: number }) => o.onTiming!(seed, t) } : {}),
-          onProgress: (p: ProgressMessage) => {
-            const { jobId: _jobId, ...rest } = p;
-            void onProgress(rest);
-          },
-        },
-      );
-      clean = true;
-      return value as PosthocFitRecord;
-    } finally {
-      if (clean && o.giveBack && w.alive && !w.busy) o.giveBack(w);
-      else w.kill();
-    }
-  };
+  return (seed, signal, onProgress, threads = 1, deferDiagnostics = false) => inWorker(o, seed, seedFitJob(wire, o, seed, threads, deferDiagnostics), signal, onProgress);
 }
 
-/**
- * The engine worker processes of one fit's seeds, reused (runSeedInWorker's takeWorker and
- * giveBack): a worker whose seed ended cleanly runs the next seed, with its job thread, loaded
- * modules and compiled code kept, so when there are fewer cores than seeds the later seeds start
- * no process. A worker whose seed failed or was cancelled is ended by the runner, never reused.
- * `close` ends them all.
- */
-export class SeedWorkerPool {
-  private readonly idle: EngineWorker[] = [];
-  private readonly made = new Set<EngineWorker>();
-  private closed = false;
+/** fitSeeds' addDiagnostics in an engine worker process: the kept seed's diagnostics, left for later by runSeedInWorker. */
+export function addDiagnosticsInWorker(dataset: Dataset, o: SeedWorkerOptions): AddSeedDiagnostics {
+  const wire = JSON.parse(JSON.stringify(dataset)) as never;
+  return (record, signal, onProgress) => inWorker(o, record.seed, seedDiagnosticsJob(wire, o, record), signal, onProgress);
+}
 
-  constructor(private readonly options: EngineWorkerOptions) {}
-
-  readonly take = (): EngineWorker => {
-    while (this.idle.length) {
-      const w = this.idle.pop()!;
-      if (w.alive) return w;
-    }
-    const w = EngineWorker.spawn(this.options);
-    this.made.add(w);
-    w.onExit(() => this.made.delete(w));
-    return w;
-  };
-
-  readonly giveBack = (w: EngineWorker): void => {
-    if (w.alive && !this.closed) this.idle.push(w);
+/** One job of a seed in a worker (taken, or started for it), given back when it ended cleanly. */
+async function inWorker(o: SeedWorkerOptions, seed: number, job: JobRequest, signal: AbortSignal, onProgress: Parameters<RunOneSeed>[2]): Promise<PosthocFitRecord> {
+  const w = o.takeWorker ? o.takeWorker() : EngineWorker.spawn(o.worker);
+  let clean = false;
+  try {
+    const value = await w.run(job, {
+      signal,
+      ...(o.jobId ? { jobId: o.jobId(seed) } : {}),
+      ...(o.onTiming ? { onTiming: (t: { cpuMs: number; wallMs: number }) => o.onTiming!(seed, t) } : {}),
+      onProgress: (p: ProgressMessage) => {
+        const { jobId: _jobId, ...rest } = p;
+        void onProgress(rest);
+      },
+    });
+    clean = true;
+    return value as PosthocFitRecord;
+  } finally {
+    if (clean && o.giveBack && w.alive && !w.busy) o.giveBack(w);
     else w.kill();
-  };
-
-  close(): void {
-    this.closed = true;
-    this.idle.length = 0;
-    for (const w of [...this.made]) w.kill();
   }
 }

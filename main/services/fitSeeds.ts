@@ -14,7 +14,18 @@
  * main/services/coreSlots.ts) the fit takes its cores from the scheduler (one in its turn, then
  * those free) and splits them over its seeds, as threads when the cores outnumber the seeds, so
  * every fit and the queue's jobs share the machine's cores. The worker runner is
- * `runSeedInWorker` (main/services/fitRunner.ts). When one seed fails, the others are cancelled.
+ * `runSeedInWorker` (main/services/fitRunner.ts), the thread runner `runSeedInThreads`
+ * (main/services/seedThreads.ts). When one seed fails, the others are cancelled.
+ *
+ * Diagnostics for the kept seed only: the choice needs each seed's estimates, -2LL, Monte Carlo
+ * error and degeneracy, and the kept seed's SEs, not the diagnostics (NPDE and VPC simulations,
+ * about half of a small fit's post-fit time). When the seeds outnumber the cores they run on (so
+ * a seed's diagnostics would delay the others), and the caller gives `addDiagnostics`, each seed
+ * runs its post-fit steps without them and the kept seed alone gets them afterwards
+ * (addDeferredDiagnostics, main/services/fitPosthoc.ts): the kept record is the one a seed with
+ * its diagnostics gives, field for field (tests/integration/fit/keptDiagnostics.test.ts); the
+ * seeds not kept carry no diagnostics' warnings in `seeds.runs`. With a core per seed nothing is
+ * deferred: the diagnostics then cost no time, and deferring would add them at the end.
  */
 import type { Dataset } from '../../engine/data/types.js';
 import { seedAgreement, type SeedAgreement, type SeedFitSummary } from '../../engine/posthoc/seedAgreement.js';
@@ -25,8 +36,7 @@ import { fitGainsFromThreads } from '../worker/saemThreads.js';
 import type { ModelSpec } from '../../engine/spec/modelSpec.js';
 import type { ProgressMessage } from '../protocol/worker.js';
 import type { CoreSlots, ReleaseSlot } from './coreSlots.js';
-import { fitDataset } from './fitService.js';
-import { addPosthoc, type FitPosthocOptions, type PosthocFitRecord } from './fitPosthoc.js';
+import type { FitPosthocOptions, PosthocFitRecord } from './fitPosthoc.js';
 import { SEEDS_MAX, SEEDS_MIN } from './seedBounds.js';
 
 export { SEEDS_MAX, SEEDS_MIN } from './seedBounds.js';
@@ -43,8 +53,14 @@ export interface SeedProgress {
   message?: string;
 }
 
-/** One seed's complete fit; `threads` = the cores the scheduler gave it (default 1). */
-export type RunOneSeed = (seed: number, signal: AbortSignal, onProgress: (p: SeedProgress) => void | Promise<void>, threads?: number) => Promise<PosthocFitRecord>;
+/**
+ * One seed's complete fit; `threads` = the cores the scheduler gave it (default 1);
+ * `deferDiagnostics`: leave the post-fit diagnostics for `addDiagnostics` (FitSeedsOptions).
+ */
+export type RunOneSeed = (seed: number, signal: AbortSignal, onProgress: (p: SeedProgress) => void | Promise<void>, threads?: number, deferDiagnostics?: boolean) => Promise<PosthocFitRecord>;
+
+/** The diagnostics a seed's run left for later, added to its record (the kept seed). */
+export type AddSeedDiagnostics = (record: PosthocFitRecord, signal: AbortSignal, onProgress: (p: SeedProgress) => void | Promise<void>) => Promise<PosthocFitRecord>;
 
 /** An estimator progress report in the worker's form (finite estimates by name). */
 export function seedProgress(p: SaemProgress): SeedProgress {
@@ -60,6 +76,8 @@ export interface FitSeedsOptions {
   seeds?: readonly number[];
   /** One complete fit from one seed (default: in this process). */
   runOne?: RunOneSeed;
+  /** The kept seed's diagnostics when the seeds' runs left them for later (default with the in-process runOne: in this process; without it nothing is deferred). */
+  addDiagnostics?: AddSeedDiagnostics;
   /** How many runs at once (default 1; with `slots`, all seeds, bounded by the free slots). */
   concurrency?: number;
   /** The shared core scheduler: each run holds one slot while it computes. */
@@ -95,9 +113,18 @@ export function seedList(base: number, count: number): number[] {
 
 /** The default runOne: estimation and post-fit steps in this process. */
 export function runSeedInProcess(dataset: Dataset, spec: ModelSpec, options: Pick<FitSeedsOptions, 'settings' | 'posthoc'> = {}): RunOneSeed {
-  return async (seed, signal, onProgress, threads = 1) => {
+  return async (seed, signal, onProgress, threads = 1, deferDiagnostics = false) => {
+    const [{ fitDataset }, { addPosthoc }] = await Promise.all([import('./fitService.js'), import('./fitPosthoc.js')]);
     const outcome = await fitDataset(dataset, spec, { seed, threads, onProgress: (p) => onProgress(seedProgress(p)), signal, ...(options.settings ? { settings: options.settings } : {}) });
-    return addPosthoc(outcome, options.posthoc ? { posthoc: options.posthoc } : {});
+    return addPosthoc(outcome, { ...(options.posthoc ? { posthoc: options.posthoc } : {}), ...(deferDiagnostics ? { deferDiagnostics } : {}) });
+  };
+}
+
+/** The default addDiagnostics, with runSeedInProcess: in this process, with the same post-fit options. */
+export function addDiagnosticsInProcess(dataset: Dataset, spec: ModelSpec, options: Pick<FitSeedsOptions, 'posthoc'> = {}): AddSeedDiagnostics {
+  return async (record) => {
+    const [{ compileModel }, { addDeferredDiagnostics }] = await Promise.all([import('../../engine/stats/model.js'), import('./fitPosthoc.js')]);
+    return addDeferredDiagnostics({ record, model: compileModel(spec, dataset) }, options.posthoc ? { posthoc: options.posthoc } : {});
   };
 }
 
@@ -124,6 +151,7 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
   const seeds = options.seeds ? [...options.seeds] : seedList(settings.seed, settings.seeds);
   if (seeds.length < SEEDS_MIN || seeds.length > SEEDS_MAX) throw new RangeError(`a fit runs ${SEEDS_MIN} to ${SEEDS_MAX} seeds, got ${seeds.length}`);
   const runOne = options.runOne ?? runSeedInProcess(dataset, spec, options);
+  const addDiagnostics = options.addDiagnostics ?? (options.runOne ? undefined : addDiagnosticsInProcess(dataset, spec, options));
   // One controller for the runs: the caller's cancel, or the first failure, stops them all.
   const stop = new AbortController();
   const outer = options.signal;
@@ -159,6 +187,9 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
     if (stop.signal.aborted) throw cancelledError();
     throw error;
   }
+  // The seeds outnumber the cores they run on (in-process runs: one at a time): each seed's
+  // diagnostics would delay the others, so only the kept seed gets them, afterwards.
+  const defer = addDiagnostics !== undefined && seeds.length > 1 && seeds.length > (slots ? held.length : concurrency);
   const finished = new Uint8Array(seeds.length);
   const giveBackSpare = () => {
     let needed = 0;
@@ -167,7 +198,7 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
   };
   const runK = async (k: number) => {
     await options.onStatus?.(`seed ${seeds[k]} (${k + 1} of ${seeds.length})`);
-    records[k] = await runOne(seeds[k], stop.signal, (p) => options.onProgress?.(seeds[k], p), threadsOf[k]);
+    records[k] = await runOne(seeds[k], stop.signal, (p) => options.onProgress?.(seeds[k], p), threadsOf[k], defer);
   };
   const worker = async () => {
     while (next < seeds.length && !failure) {
@@ -193,6 +224,24 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
   }
   if (failure && !outer?.aborted) throw failure.error;
   if (outer?.aborted || records.some((r) => r === undefined)) throw cancelledError();
+  /** The kept seed's diagnostics, on one core of the scheduler, cancellable as the seeds were. */
+  const keptDiagnostics = async (record: PosthocFitRecord): Promise<PosthocFitRecord> => {
+    const again = new AbortController();
+    const onAbort = () => again.abort();
+    if (outer && typeof (outer as AbortSignal).addEventListener === 'function') (outer as AbortSignal).addEventListener('abort', onAbort, { once: true });
+    let release: ReleaseSlot | undefined;
+    try {
+      if (slots) release = await slots.acquire(again.signal);
+      await options.onStatus?.(`diagnostics of the kept seed ${record.seed}`);
+      return await addDiagnostics!(record, again.signal, (p) => options.onProgress?.(record.seed, p));
+    } catch (error) {
+      if (outer?.aborted) throw cancelledError();
+      throw error;
+    } finally {
+      release?.();
+      if (outer && typeof (outer as AbortSignal).removeEventListener === 'function') (outer as AbortSignal).removeEventListener('abort', onAbort);
+    }
+  };
   const summaries: SeedFitSummary[] = records.map((r, k) => ({
     seed: seeds[k],
     estimates: r.population.map((e) => e.estimate),
@@ -205,6 +254,7 @@ export async function fitSeeds(dataset: Dataset, spec: ModelSpec, options: FitSe
   // SEs of the kept fit judge the spread.
   const provisional = seedAgreement(labels, summaries, first.population.map(() => null));
   const keptAt = seeds.indexOf(provisional.keptSeed);
+  if (defer && records[keptAt].posthoc?.diagnosticsDeferred) records[keptAt] = await keptDiagnostics(records[keptAt]);
   const kept = records[keptAt];
   const agreement = seedAgreement(labels, summaries, kept.population.map((e) => e.se));
   const runs: SeedRunRecord[] = summaries.map((s, k) => ({

@@ -1,6 +1,7 @@
 /**
  * The engine jobs a worker runs (docs/architecture.md, "Processes"): parse, fit (with its
- * post-fit steps), post-fit alone, simulate, dose advice, and a probe for the process tests.
+ * post-fit steps), post-fit alone, the diagnostics a fit left for later, simulate, dose advice,
+ * and a probe for the process tests.
  * Every input arrived over a process line, so each is rebuilt through its engine parser
  * (createDataset, parseModelSpec, parsePatient, parseTarget) before use. Values returned are
  * plain JSON data. Errors are thrown; the caller turns them into ErrorValues.
@@ -17,7 +18,7 @@ import { parseModelSpec } from '../../engine/spec/modelSpec.js';
 import { compileModel } from '../../engine/stats/model.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
 import type { JobRequest, ProgressPhase } from '../protocol/worker.js';
-import { addPosthoc } from '../services/fitPosthoc.js';
+import { addDeferredDiagnostics, addPosthoc, type PosthocFitRecord } from '../services/fitPosthoc.js';
 import { fitDataset, type FitOutcome } from '../services/fitService.js';
 import { debugDetail, ServiceError, toErrorValue } from '../services/serviceError.js';
 import { datasetFromWire } from '../services/datasetWire.js';
@@ -60,15 +61,28 @@ async function runFit(job: Extract<JobRequest, { kind: 'fit' }>, ctx: JobContext
     onProgress: (p) => ctx.onProgress(saemProgress(p)),
   });
   if (job.postFit === false) return plain(outcome.record);
-  return plain(await postFit(outcome, undefined, ctx));
+  return plain(await postFit(outcome, undefined, ctx, job.deferDiagnostics === true));
 }
 
-async function postFit(outcome: FitOutcome, seed: number | undefined, ctx: JobContext): Promise<unknown> {
+const postFitStatus = (ctx: JobContext) => {
   let step = 0;
+  return (message: string) => ctx.onProgress({ phase: 'post-fit', iteration: ++step, maxIterations: 1, estimates: Object.create(null), message });
+};
+
+async function postFit(outcome: FitOutcome, seed: number | undefined, ctx: JobContext, deferDiagnostics = false): Promise<unknown> {
   return addPosthoc(outcome, {
     ...(seed !== undefined ? { seed } : {}),
-    onStatus: (message) => ctx.onProgress({ phase: 'post-fit', iteration: ++step, maxIterations: 1, estimates: Object.create(null), message }),
+    ...(deferDiagnostics ? { deferDiagnostics } : {}),
+    onStatus: postFitStatus(ctx),
   });
+}
+
+/** A fit record as a job received it, checked for the fields the post-fit steps read. */
+function receivedRecord(value: Record<string, unknown>, kind: string): FitRecord {
+  const record = value as unknown as FitRecord;
+  if (record.format !== 'plateau-fit' || !Array.isArray(record.population) || !Array.isArray(record.individual))
+    throw new ServiceError('usage', `${kind}: the record is not a plateau fit record (format "plateau-fit" with population and individual estimates)`);
+  return record;
 }
 
 /** Rows shown in an import preview, per sheet. */
@@ -124,10 +138,13 @@ async function runJobUnguarded(job: JobRequest, ctx: JobContext): Promise<unknow
       const dataset = datasetFromWire(job.dataset);
       const spec = parseModelSpec(job.spec);
       const model = compileModel(spec, dataset);
-      const record = job.record as unknown as FitRecord;
-      if (record.format !== 'plateau-fit' || !Array.isArray(record.population) || !Array.isArray(record.individual))
-        throw new ServiceError('usage', 'postFit: the record is not a plateau fit record (format "plateau-fit" with population and individual estimates)');
+      const record = receivedRecord(job.record, 'postFit');
       return plain(await postFit({ record, model, dataset, spec }, job.seed, ctx));
+    }
+    case 'diagnostics': {
+      const model = compileModel(parseModelSpec(job.spec), datasetFromWire(job.dataset));
+      const record = receivedRecord(job.record, 'diagnostics') as unknown as PosthocFitRecord;
+      return plain(await addDeferredDiagnostics({ record, model }, { onStatus: postFitStatus(ctx) }));
     }
     case 'simulate': {
       const dataset = datasetFromWire(job.dataset);

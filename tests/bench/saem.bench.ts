@@ -12,7 +12,7 @@ import * as path from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { cliServiceRoots } from '../../main/cli/run.js';
 import { CoreSlots, machineCores } from '../../main/services/coreSlots.js';
-import { runSeedInWorker } from '../../main/services/fitRunner.js';
+import { addDiagnosticsInWorker, runSeedInWorker } from '../../main/services/fitRunner.js';
 import { runSaem } from '../../engine/saem/saem.js';
 import { compileModel } from '../../engine/stats/model.js';
 import { fitDataset } from '../../main/services/fitService.js';
@@ -88,8 +88,9 @@ export const suite = {
       const inWorkers = async (seeds: number[]) => {
         const t0 = performance.now();
         let workerCpuMs = 0;
-        const runOne = runSeedInWorker(sparse, { specJson: sparseTdmSpecJson, worker: { modulePath: workerEntry }, onTiming: (_seed, t) => (workerCpuMs += t.cpuMs) });
-        const rec = await fitSeeds(sparse, sparseTdmSpec, { seeds, runOne, slots: new CoreSlots(machineCores()) });
+        const o = { specJson: sparseTdmSpecJson, worker: { modulePath: workerEntry }, onTiming: (_seed: number, t: { cpuMs: number }) => (workerCpuMs += t.cpuMs) };
+        // As the app's queue runs it: with more seeds than cores, the kept seed alone gets the diagnostics.
+        const rec = await fitSeeds(sparse, sparseTdmSpec, { seeds, runOne: runSeedInWorker(sparse, o), addDiagnostics: addDiagnosticsInWorker(sparse, o), slots: new CoreSlots(machineCores()) });
         return { s: (performance.now() - t0) / 1000, cpuS: workerCpuMs / 1000, rec };
       };
       const one = await inWorkers([1]);
@@ -107,11 +108,11 @@ export const suite = {
         const bin = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../../main/cli/plateau.js');
         const csv = findRepoFile('resources/validation/reference/theoph/theoph.csv');
         const plateau = (extra: string[]) => median([0, 1, 2].map(() => processMs(process.execPath, [bin, 'fit', '--data', csv, '--model', 'spec.json', '--out', 'fit.json', ...extra], dir)));
-        // The bin's two processes (supervisor and command child) and the engine worker processes:
-        // the first worker starts before the child loads the fit's modules, and with fewer cores
-        // than seeds a worker whose seed is done runs the next (main/cli/workersAhead.ts, SeedWorkerPool).
-        figures.push({ name: 'whole process: plateau fit on Theoph (default: 3 seeds + post-fit), median of 3', value: plateau([]) / 1000, unit: 's', note: `node start to fit.json written; ${seedsAtOnce(3, machineCores())} worker process(es) for 3 seeds` });
-        figures.push({ name: 'whole process: plateau fit on Theoph --seeds 1, median of 3', value: plateau(['--seeds', '1']) / 1000, unit: 's', note: 'one worker process; estimation and post-fit start with cold compiled code' });
+        // The bin's two processes (supervisor and command child); the seeds run in job threads of
+        // the command child (main/services/seedThreads.ts): the first thread starts before the
+        // child loads the fit's modules, and a thread whose seed is done runs the next.
+        figures.push({ name: 'whole process: plateau fit on Theoph (default: 3 seeds + post-fit), median of 3', value: plateau([]) / 1000, unit: 's', note: `node start to fit.json written; ${seedsAtOnce(3, machineCores())} job thread(s) for 3 seeds` });
+        figures.push({ name: 'whole process: plateau fit on Theoph --seeds 1, median of 3', value: plateau(['--seeds', '1']) / 1000, unit: 's', note: 'one job thread; estimation and post-fit start with cold compiled code' });
         figures.push({ name: 'whole process: plateau --version, median of 3', value: median([0, 1, 2].map(() => processMs(process.execPath, [bin, '--version'], dir))) / 1000, unit: 's', note: 'supervisor and command child start, no command module: the floor under every command' });
         const rscript = ['/usr/bin/Rscript', '/usr/local/bin/Rscript'].find((c) => existsSync(c));
         if (!rscript) figures.push({ name: 'whole process: R nlme on Theoph', value: NaN, unit: 's', note: 'skipped: Rscript not found' });

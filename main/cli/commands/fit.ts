@@ -1,8 +1,12 @@
 /**
- * `plateau fit`: population fit by SAEM from the command line. The modules of the fit itself are
- * loaded after the first engine worker process has been started (workersAhead.ts), so the
- * worker's start overlaps their loading and the reading of the inputs.
+ * `plateau fit`: population fit by SAEM from the command line. Each seed runs in a heap-limited
+ * job thread of this process (main/worker/jobThreads.ts, main/services/seedThreads.ts), the job an
+ * engine worker process runs, without starting one: this process is already the supervised
+ * command child (main/cli/plateau.ts), its main thread stays free for Ctrl-C, and a cancel ends
+ * the threads at once. The first thread starts before the fit's modules load and the inputs are
+ * read, so its start overlaps that work.
  */
+import * as path from 'node:path';
 import { CoreSlots, machineCores } from '../../services/coreSlots.js';
 import { SEEDS_MAX, SEEDS_MIN } from '../../services/seedBounds.js';
 import { checkOutputPath, readJsonFile, resolvePath, writeFileAtomic } from '../../services/files.js';
@@ -10,7 +14,7 @@ import type { SeedProgress } from '../../services/fitSeeds.js';
 import { booleanFlag, numberFlag, parseArgs, stringFlag } from '../args.js';
 import { cliServiceRoots } from '../run.js';
 import { CliError, type CliCommand } from '../types.js';
-import { WorkersAhead } from '../workersAhead.js';
+import { DEFAULT_JOB_HEAP_MB, DEFAULT_JOB_TIME_LIMIT_MS, JobThreads } from '../../worker/jobThreads.js';
 
 const usage = `usage: plateau fit --data <canonical.csv|spreadsheet> --model <spec.json> [--mapping <template.json>]
                   [--seed N] [--seeds K] [--out fit.json] [--progress]
@@ -28,10 +32,10 @@ a summary. The spec's "estimation" block holds the estimator settings; --seed ov
   --out       write the fit result (JSON) to this file
   --progress  print each seed's phase, iteration and estimates to stderr (about once a second)
 
-The seeds run in parallel engine worker processes, as many at once as the machine has cores.
+The seeds run in parallel threads, as many at once as the machine has cores.
 Each seed's fit is followed by standard errors, -2LL (importance sampling), AIC, BIC, individual
-conditional distributions, shrinkage and diagnostics (NPDE, VPC); the kept fit is written to
-fit.json with the seeds' verdict ("seeds") and its degeneracy checks ("degeneracy").`;
+conditional distributions and shrinkage, and the kept seed's by diagnostics (NPDE, VPC); the kept
+fit is written to fit.json with the seeds' verdict ("seeds") and its degeneracy checks ("degeneracy").`;
 
 export const command: CliCommand = {
   name: 'fit',
@@ -66,9 +70,9 @@ export const command: CliCommand = {
     const cores = machineCores();
     // Checked before any worker starts: a fit of minutes must not end in "cannot write".
     if (outFile !== undefined) await checkOutputPath(outFile);
-    const workerEntry = cliServiceRoots().workerEntry;
-    const ahead = new WorkersAhead({ modulePath: workerEntry, args: [] });
-    ahead.start(1);
+    // The engine worker process's default limits: heap per job and wall-clock time.
+    const jobs = new JobThreads({ heapMb: DEFAULT_JOB_HEAP_MB, timeLimitMs: DEFAULT_JOB_TIME_LIMIT_MS, entry: path.join(path.dirname(cliServiceRoots().workerEntry), 'jobThread.js') });
+    jobs.ahead(1);
     let modules;
     try {
       modules = await Promise.all([
@@ -78,30 +82,30 @@ export const command: CliCommand = {
         import('../../../engine/saem/settings.js'),
         import('../../services/fitService.js'),
         import('../../services/fitPosthoc.js'),
-        import('../../services/fitRunner.js'),
+        import('../../services/seedThreads.js'),
         import('../../services/fitSeeds.js'),
       ]);
     } catch (e) {
-      ahead.close();
+      jobs.close();
       throw e;
     }
-    const [{ formatFitSummary }, { compileModel, ModelDataError }, { parseModelSpec }, { parseSaemSettings }, { readDataset }, { formatPosthocSummary }, { runSeedInWorker, SeedWorkerPool }, { fitSeeds, formatSeeds }] = modules;
+    const [{ formatFitSummary }, { compileModel, ModelDataError }, { parseModelSpec }, { parseSaemSettings }, { readDataset }, { formatPosthocSummary }, { addDiagnosticsInThreads, runSeedInThreads }, { fitSeeds, formatSeeds, seedsAtOnce }] = modules;
     let record;
-    let pool: { close(): void } | undefined;
     try {
       const dataset = await readDataset(resolvePath(io.cwd, stringFlag(args, 'data')!), mapping !== undefined ? resolvePath(io.cwd, mapping) : undefined);
       const specJson = (await readJsonFile(resolvePath(io.cwd, stringFlag(args, 'model')!))) as Record<string, unknown>;
       const spec = parseModelSpec(specJson);
       compileModel(spec, dataset); // the model must match the data before any seed is sent
       const settings = { ...(seed !== undefined ? { seed } : {}), ...(seeds !== undefined ? { seeds } : {}) };
-      // A worker for each seed that can run at once; a worker whose seed is done runs the next.
-      ahead.start(Math.min(cores, parseSaemSettings(spec.estimation, settings).seeds));
-      const workers = new SeedWorkerPool({ modulePath: workerEntry, spawn: ahead.spawner });
-      pool = workers;
+      // A thread for each seed that runs at once (fitSeeds' rule); a thread whose seed is done runs the next.
+      const atOnce = seedsAtOnce(parseSaemSettings(spec.estimation, settings).seeds, cores);
+      jobs.setMaxIdle(atOnce);
+      jobs.ahead(atOnce);
       const lastPrinted = new Map<number, { atMs: number; phase: string }>();
       record = await fitSeeds(dataset, spec, {
         settings,
-        runOne: runSeedInWorker(dataset, { specJson, settings, worker: { modulePath: workerEntry }, takeWorker: workers.take, giveBack: workers.giveBack }),
+        runOne: runSeedInThreads(dataset, { specJson, settings, jobs }),
+        addDiagnostics: addDiagnosticsInThreads(dataset, { specJson, settings, jobs }),
         slots: new CoreSlots(cores),
         ...(signal ? { signal } : {}),
         ...(progress
@@ -123,9 +127,8 @@ export const command: CliCommand = {
       if (e instanceof Error && e.name === 'AbortError') throw new CliError(e.message);
       throw e;
     } finally {
-      // Every worker process ends with the fit.
-      pool?.close();
-      ahead.close();
+      // Every job thread ends with the fit.
+      jobs.close();
     }
     io.stdout(`${formatFitSummary(record, formatSeeds(record.seeds))}\n`);
     io.stdout(`${formatPosthocSummary(record)}\n`);

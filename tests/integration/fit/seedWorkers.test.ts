@@ -2,7 +2,8 @@
  * The seeds of a fit in engine worker processes (main/services/fitRunner.ts runSeedInWorker) on
  * R's Theoph (datasets::Theoph, resources/validation/reference/theoph): the record equals the in-process path
  * for the same seeds, number for number (the worker runs the same engine code; only the
- * timing fields differ), and the shared core slots bound how many seeds compute at once.
+ * timing fields differ; the kept seed's diagnostics from a later job), and the shared core slots
+ * bound how many seeds compute at once.
  */
 import { readFileSync } from 'node:fs';
 import * as path from 'node:path';
@@ -10,7 +11,8 @@ import { beforeAll, describe, expect, it } from 'vitest';
 import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
 import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
 import { CoreSlots } from '../../../main/services/coreSlots.js';
-import { runSeedInWorker, SeedWorkerPool } from '../../../main/services/fitRunner.js';
+import { EngineWorker } from '../../../main/services/engineClient.js';
+import { addDiagnosticsInWorker, runSeedInWorker } from '../../../main/services/fitRunner.js';
 import { fitSeeds, runSeedInProcess, type RunOneSeed } from '../../../main/services/fitSeeds.js';
 import { engineWorkerPath, ensureBuilt } from '../services/build.js';
 
@@ -35,13 +37,17 @@ describe('seeds in worker processes', () => {
     const slots = new CoreSlots(2);
     let maxInUse = 0;
     const inner = runSeedInWorker(dataset, { specJson, worker: { modulePath: engineWorkerPath } });
-    const runOne: RunOneSeed = async (seed, signal, onProgress) => {
+    const runOne: RunOneSeed = async (...args) => {
       maxInUse = Math.max(maxInUse, slots.inUse);
-      return inner(seed, signal, onProgress);
+      return inner(...args);
     };
     const phases = new Set<string>();
-    const inWorkers = await fitSeeds(dataset, spec, { runOne, slots, onProgress: (_s, p) => void phases.add(p.phase) });
-    const inProcess = await fitSeeds(dataset, spec);
+    // 3 seeds on 2 cores: the kept seed's diagnostics come from a later job in a worker.
+    const addDiagnostics = addDiagnosticsInWorker(dataset, { specJson, worker: { modulePath: engineWorkerPath } });
+    const inWorkers = await fitSeeds(dataset, spec, { runOne, addDiagnostics, slots, onProgress: (_s, p) => void phases.add(p.phase) });
+    // In process with the three seeds at once: every seed's diagnostics in one go.
+    const inProcess = await fitSeeds(dataset, spec, { concurrency: 3 });
+    expect(inWorkers.diagnostics?.npde.replicates).toBeGreaterThan(0);
     expect(inWorkers.seeds.runs.map((r) => r.seed)).toEqual([3, 4, 5]);
     expect(maxInUse).toBeLessThanOrEqual(2);
     expect(slots.inUse).toBe(0);
@@ -49,25 +55,21 @@ describe('seeds in worker processes', () => {
     expect(comparable(inWorkers)).toEqual(comparable(inProcess));
   }, 180_000);
 
-  it('one reused worker running the seeds one after another gives the same record (the command line with fewer cores than seeds)', async () => {
-    const pool = new SeedWorkerPool({ modulePath: engineWorkerPath });
-    const pids = new Set<number | undefined>();
+  it('one reused worker running the seeds one after another gives the same record (the queue keeps idle workers)', async () => {
+    const idle: EngineWorker[] = [];
+    const made: EngineWorker[] = [];
     try {
       const runOne = runSeedInWorker(dataset, {
         specJson,
         worker: { modulePath: engineWorkerPath },
-        takeWorker: () => {
-          const w = pool.take();
-          void w.ready.then(() => pids.add(w.pid));
-          return w;
-        },
-        giveBack: pool.giveBack,
+        takeWorker: () => idle.pop() ?? (made.push(EngineWorker.spawn({ modulePath: engineWorkerPath })), made[made.length - 1]),
+        giveBack: (w) => void idle.push(w),
       });
-      const reused = await fitSeeds(dataset, spec, { runOne, slots: new CoreSlots(1) });
-      expect(pids.size).toBe(1);
+      const reused = await fitSeeds(dataset, spec, { runOne, concurrency: 1 });
+      expect(made).toHaveLength(1);
       expect(comparable(reused)).toEqual(comparable(await fitSeeds(dataset, spec)));
     } finally {
-      pool.close();
+      for (const w of made) w.kill();
     }
   }, 180_000);
 

@@ -1,10 +1,11 @@
 /**
  * Process faults of the command line and the workers (issue 11, finding 7), with real
  * processes: Ctrl-C during the post-fit steps stops `plateau fit` (exit 130, --out not written,
- * no temp file left); a closed stdout does not lose --out; a worker dies with its parent.
+ * no temp file left); a crash of the command process is reported by the supervisor; a closed
+ * stdout does not lose --out; a worker dies with its parent.
  */
 import { spawn } from 'node:child_process';
-import { existsSync, mkdtempSync, readdirSync } from 'node:fs';
+import { existsSync, mkdtempSync, readdirSync, readFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import * as path from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
@@ -34,7 +35,7 @@ describe('command line and worker processes', () => {
     let err = '';
     const exit = exitOf(child);
     await new Promise<void>((resolve) => child.stderr!.on('data', (d) => ((err += d), /\[seed \d+ post-fit/.test(err) && resolve())));
-    // A seed's post-fit steps are running now (in its engine worker).
+    // A seed's post-fit steps are running now (in its job thread).
     const t0 = performance.now();
     process.kill(-child.pid!, 'SIGINT');
     const { code } = await exit;
@@ -42,6 +43,25 @@ describe('command line and worker processes', () => {
     expect(code).toBe(130);
     expect(ms).toBeLessThan(5000);
     expect(err).toMatch(/stopping/);
+    expect(existsSync(path.join(dir, 'fit.json'))).toBe(false);
+    expect(readdirSync(dir).filter((f) => f.endsWith('.tmp'))).toEqual([]);
+  }, 120_000);
+
+  it('a fit whose command process crashes (killed from outside) is reported by the supervisor: exit 1, a message, no --out, no temp file', async () => {
+    // The seeds run in job threads of the command process: a crash of that process (here SIGKILL,
+    // as the system's out-of-memory killer sends) must still be reported, not end in silence.
+    const dir = mkdtempSync(path.join(tmpdir(), 'plateau-crash-'));
+    const child = spawn(process.execPath, [bin, 'fit', '--data', demo('ward-levels.csv'), '--model', demo('ward-model.json'), '--progress', '--out', 'fit.json'], { cwd: dir, stdio: ['ignore', 'pipe', 'pipe'] });
+    let err = '';
+    const exit = exitOf(child);
+    await new Promise<void>((resolve) => child.stderr!.on('data', (d) => ((err += d), /\[seed \d+ search/.test(err) && resolve())));
+    // Linux: the supervisor's one child is the command process.
+    const commandPid = Number(readFileSync(`/proc/${child.pid}/task/${child.pid}/children`, 'utf8').trim().split(/\s+/)[0]);
+    expect(commandPid).toBeGreaterThan(0);
+    process.kill(commandPid, 'SIGKILL');
+    const { code } = await exit;
+    expect(code).toBe(1);
+    expect(err).toMatch(/plateau: internal error: the command process ended unexpectedly \(signal SIGKILL\)/);
     expect(existsSync(path.join(dir, 'fit.json'))).toBe(false);
     expect(readdirSync(dir).filter((f) => f.endsWith('.tmp'))).toEqual([]);
   }, 120_000);

@@ -1,4 +1,4 @@
-import { mkdtempSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import * as path from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
@@ -6,6 +6,22 @@ import { DataError } from '../../../engine/data/types.js';
 import { DatasetLoadError, isSpreadsheetPath, loadDataset, setSpreadsheetDatasetLoader } from '../../../main/services/datasetLoader.js';
 
 const dir = mkdtempSync(path.join(tmpdir(), 'plateau-load-'));
+
+/** Every module a TypeScript file loads by static imports (type-only imports left out), bare package names as they are. */
+function staticImports(file: string, seen = new Set<string>()): Set<string> {
+  if (seen.has(file)) return seen;
+  seen.add(file);
+  const src = readFileSync(file, 'utf8');
+  for (const m of src.matchAll(/^(?:import|export)\s+(?!type\b)[^;]*?from\s+'([^']+)'/gm)) {
+    const spec = m[1];
+    if (!spec.startsWith('.')) seen.add(spec);
+    else {
+      const ts = path.resolve(path.dirname(file), spec).replace(/\.js$/, '.ts');
+      if (existsSync(ts)) staticImports(ts, seen);
+    }
+  }
+  return seen;
+}
 
 describe('loadDataset', () => {
   afterEach(() => setSpreadsheetDatasetLoader(undefined));
@@ -15,6 +31,14 @@ describe('loadDataset', () => {
     writeFileSync(f, 'subject,time_h,event,amount_mg,conc_mg_L\nA,0,dose,100,\nA,1,level,,2\n');
     const ds = await loadDataset(f);
     expect(ds.subjects[0].observations[0].valueMgL).toBe(2);
+  });
+
+  it('reading a canonical CSV does not load the spreadsheet library (its start-up cost, about 40 ms, is on every fit)', () => {
+    const graph = staticImports(path.resolve(__dirname, '../../../main/services/datasetLoader.ts'));
+    expect(graph.has(path.resolve(__dirname, '../../../engine/data/canonicalCsv.ts'))).toBe(true);
+    expect(graph.has('xlsx')).toBe(false);
+    // The check itself sees the library where it is imported.
+    expect(staticImports(path.resolve(__dirname, '../../../engine/import/workbook.ts')).has('xlsx')).toBe(true);
   });
 
   it('names the file in data problems and in read errors', async () => {
