@@ -3,7 +3,7 @@
  * errors, the one atomic writer, path resolution. Failures are ServiceErrors of kind 'file'.
  */
 import { randomBytes } from 'node:crypto';
-import { promises as fs, rmSync } from 'node:fs';
+import { promises as fs, readFileSync, rmSync } from 'node:fs';
 import * as path from 'node:path';
 import { ServiceError } from './serviceError.js';
 import { MAX_JSON_BYTES, readRegularTextFile } from './fileGuard.js';
@@ -223,9 +223,24 @@ export async function checkOutputPath(file: string): Promise<void> {
 function processAlive(pid: number): boolean {
   try {
     process.kill(pid, 0);
-    return true;
   } catch (e) {
     return (e as NodeJS.ErrnoException).code === 'EPERM';
+  }
+  return !zombie(pid);
+}
+
+/**
+ * A killed process whose parent was killed too can stay a zombie under a parent that does not
+ * reap it; signal 0 still reaches a zombie, but it writes nothing any more (Linux: state Z in
+ * /proc/<pid>/stat, after the command name in parentheses).
+ */
+function zombie(pid: number): boolean {
+  if (process.platform !== 'linux') return false;
+  try {
+    const stat = readFileSync(`/proc/${pid}/stat`, 'utf8');
+    return stat.slice(stat.lastIndexOf(')') + 2, stat.lastIndexOf(')') + 3) === 'Z';
+  } catch {
+    return false;
   }
 }
 

@@ -201,4 +201,30 @@ describe('SIGKILL at random moments never leaves a broken file, and stale temp f
     expect(brokenReason(target)).toBeUndefined();
     expect(await removeStaleTemps(path.join(dir, 'other.csv'))).toEqual([other]);
   }, 60_000);
+
+  it.runIf(process.platform === 'linux')('a temp file of a zombie (killed, never reaped by its parent) counts as stale', async () => {
+    const dir = workspace();
+    // sh starts `true` in the background, prints its pid, then becomes `sleep`, which never
+    // reaps it: `true` ends as a zombie that signal 0 still reaches.
+    const parent = spawn('/bin/sh', ['-c', 'true & echo $!; exec sleep 5'], { stdio: ['ignore', 'pipe', 'ignore'] });
+    try {
+      const zombiePid = await new Promise<number>((resolve) => parent.stdout!.once('data', (d: Buffer) => resolve(Number(String(d).trim()))));
+      const deadline = Date.now() + 5000;
+      const state = () => {
+        try {
+          const stat = readFileSync(`/proc/${zombiePid}/stat`, 'utf8');
+          return stat[stat.lastIndexOf(')') + 2];
+        } catch {
+          return '';
+        }
+      };
+      while (state() !== 'Z' && Date.now() < deadline) await new Promise((r) => setTimeout(r, 10));
+      expect(state()).toBe('Z');
+      const temp = path.join(dir, `.fit.json.${zombiePid}.0badc0de.tmp`);
+      writeFileSync(temp, 'half a fi');
+      expect(await removeStaleTemps(path.join(dir, 'fit.json'))).toEqual([temp]);
+    } finally {
+      parent.kill('SIGKILL');
+    }
+  }, 30_000);
 });
