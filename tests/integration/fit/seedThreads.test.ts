@@ -5,11 +5,8 @@
  * differ; the kept seed's diagnostics added by a later job), a thread whose seed is done runs the
  * next one, and a cancel ends every seed's thread.
  */
-import { readFileSync } from 'node:fs';
-import * as path from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
-import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
-import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { comparableRecord as comparable, theophSeedsDataset as dataset, theophSeedsSpec as spec, theophSeedsSpecJson as specJson } from '../../helpers/theophSeeds.js';
 import { CoreSlots } from '../../../main/services/coreSlots.js';
 import { fitSeeds } from '../../../main/services/fitSeeds.js';
 import { addDiagnosticsInThreads, runSeedInThreads } from '../../../main/services/seedThreads.js';
@@ -18,20 +15,7 @@ import { ensureBuilt } from '../services/build.js';
 
 beforeAll(() => ensureBuilt(), 300_000);
 
-const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv'), 'utf8'));
-const specJson = {
-  structure: '1cmt',
-  parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
-  residual: { model: 'additive', a: 1 },
-  estimation: { seed: 3, seeds: 3, searchMinIterations: 40, searchMaxIterations: 60, averagingIterations: 30, chains: 2 },
-};
-const spec = parseModelSpec(specJson);
 const limits = { heapMb: 1024, timeLimitMs: 600_000 };
-
-/** The record without its wall/CPU times, as JSON. */
-function comparable(record: unknown): unknown {
-  return JSON.parse(JSON.stringify(record, (k, v) => (k === 'timing' || /Ms$|Seconds$|S$/.test(k) ? undefined : v)));
-}
 
 describe('seeds in job threads', () => {
   it('give the same record as the in-process path; with one core one thread runs the three seeds in turn, then the kept seed\'s diagnostics', async () => {

@@ -5,11 +5,8 @@
  * timing fields differ; the kept seed's diagnostics from a later job), and the shared core slots
  * bound how many seeds compute at once.
  */
-import { readFileSync } from 'node:fs';
-import * as path from 'node:path';
 import { beforeAll, describe, expect, it } from 'vitest';
-import { parseCanonicalCsv } from '../../../engine/data/canonicalCsv.js';
-import { parseModelSpec } from '../../../engine/spec/modelSpec.js';
+import { comparableRecord as comparable, theophSeedsDataset as dataset, theophSeedsSpec as spec, theophSeedsSpecJson as specJson } from '../../helpers/theophSeeds.js';
 import { CoreSlots } from '../../../main/services/coreSlots.js';
 import { EngineWorker } from '../../../main/services/engineClient.js';
 import { addDiagnosticsInWorker, runSeedInWorker } from '../../../main/services/fitRunner.js';
@@ -17,20 +14,6 @@ import { fitSeeds, runSeedInProcess, type RunOneSeed } from '../../../main/servi
 import { engineWorkerPath, ensureBuilt } from '../services/build.js';
 
 beforeAll(() => ensureBuilt(), 300_000);
-
-const dataset = parseCanonicalCsv(readFileSync(path.resolve(__dirname, '../../../resources/validation/reference/theoph/theoph.csv'), 'utf8'));
-const specJson = {
-  structure: '1cmt',
-  parameters: { CL: { typical: 0.05, bsv: 0.3 }, V: { typical: 0.5, bsv: 0.3 }, ka: { typical: 1.5, bsv: 0.3 } },
-  residual: { model: 'additive', a: 1 },
-  estimation: { seed: 3, seeds: 3, searchMinIterations: 40, searchMaxIterations: 60, averagingIterations: 30, chains: 2 },
-};
-const spec = parseModelSpec(specJson);
-
-/** The record without its wall/CPU times, as JSON (the worker's answer is JSON too). */
-function comparable(record: unknown): unknown {
-  return JSON.parse(JSON.stringify(record, (k, v) => (k === 'timing' || /Ms$|Seconds$|S$/.test(k) ? undefined : v)));
-}
 
 describe('seeds in worker processes', () => {
   it('give the same record as the in-process path for the same seeds, with at most `slots` at once', async () => {
