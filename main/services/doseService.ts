@@ -15,6 +15,7 @@ import { literatureStatus, valuesFingerprint } from '../../engine/spec/literatur
 import { parseModelSpec } from '../../engine/spec/modelSpec.js';
 import { printable } from '../../engine/text/printable.js';
 import { ENGINE_VERSION } from '../../engine/version.js';
+import { MAX_FIT_RECORD_BYTES } from './fileGuard.js';
 import { readJsonFile, writeFileAtomic } from './files.js';
 import { ServiceError } from './serviceError.js';
 
@@ -82,7 +83,7 @@ function parseAs<T>(file: string, parse: () => T, what: string): T {
 
 /** A site fit (fit.json) or a model spec, for --model. */
 export async function loadModelFile(file: string, option = '--model'): Promise<PopulationModel> {
-  const json = await readJsonFile(file);
+  const json = await readJsonFile(file, MAX_FIT_RECORD_BYTES);
   checkKind(file, json, ['model spec', 'fit.json'], 'a model spec or fit.json', option);
   return parseAs(
     file,

@@ -9,8 +9,15 @@ import { ServiceError } from './serviceError.js';
 
 /** Largest input file (datasets, spreadsheets, JSON documents), bytes. */
 export const MAX_INPUT_BYTES = 50 * 1024 * 1024;
-/** Largest JSON document (model spec, patient, target, mapping, fit record). */
+/** Largest JSON document a user writes or edits (model spec, patient, target, mapping). */
 export const MAX_JSON_BYTES = 50 * 1024 * 1024;
+/**
+ * Largest fit record (fit.json, a project's fit): Plateau must read back what it writes, and a
+ * record grows with the patients (about 5 KB each on sparse TDM data: individual estimates and
+ * draws, per-level diagnostics), so a site's 12,000 patients already write 57 MB. 512 MiB covers
+ * a fit of the largest dataset file (MAX_INPUT_BYTES) and stays under V8's longest string.
+ */
+export const MAX_FIT_RECORD_BYTES = 512 * 1024 * 1024;
 
 export interface ReadLimits {
   maxBytes?: number;

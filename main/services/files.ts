@@ -13,9 +13,9 @@ export function resolvePath(cwd: string, file: string): string {
   return path.resolve(cwd, file);
 }
 
-/** Read a text file (regular files only, within the input size limit; fileGuard.ts); errors name it. */
-export async function readTextFile(file: string): Promise<string> {
-  return readRegularTextFile(file, { maxBytes: MAX_JSON_BYTES });
+/** Read a text file (regular files only, within a size limit: fileGuard.ts); errors name it. */
+export async function readTextFile(file: string, maxBytes = MAX_JSON_BYTES): Promise<string> {
+  return readRegularTextFile(file, { maxBytes });
 }
 
 /** 1-based line and column of a character offset. */
@@ -160,9 +160,12 @@ export function parseJsonText(text: string, file: string): unknown {
   }
 }
 
-/** Read and parse a JSON file, with errors naming the file and the syntax position. */
-export async function readJsonFile(file: string): Promise<unknown> {
-  return parseJsonText(await readTextFile(file), file);
+/**
+ * Read and parse a JSON file, with errors naming the file and the syntax position; `maxBytes`
+ * MAX_FIT_RECORD_BYTES where the file may be a fit record.
+ */
+export async function readJsonFile(file: string, maxBytes = MAX_JSON_BYTES): Promise<unknown> {
+  return parseJsonText(await readTextFile(file, maxBytes), file);
 }
 
 /** Temp files of writes in flight, removed if the process exits before they are renamed. */

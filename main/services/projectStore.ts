@@ -30,7 +30,7 @@ import { ENGINE_VERSION } from '../../engine/version.js';
 import type { DatasetSummary, DosingSessionSummary, FitSummary, ModelSummary, ProjectSummary, TemplateSummary, VerificationRunSummary } from '../protocol/bridge.js';
 import type { VerificationReport } from '../verify/types.js';
 import { datasetFromWire } from './datasetWire.js';
-import { readRegularTextFile } from './fileGuard.js';
+import { MAX_FIT_RECORD_BYTES, readRegularTextFile } from './fileGuard.js';
 import { parseJsonText, writeFileAtomic } from './files.js';
 import { ServiceError } from './serviceError.js';
 
@@ -369,7 +369,7 @@ export class ProjectStore {
 
   private async readItem(rel: string, what: string): Promise<unknown> {
     const file = path.join(this.dir, rel);
-    return parseJsonText(await readRegularTextFile(file, { what, maxBytes: 512 * 1024 * 1024 }), file);
+    return parseJsonText(await readRegularTextFile(file, { what, maxBytes: MAX_FIT_RECORD_BYTES }), file);
   }
 
   summary(): ProjectSummary {

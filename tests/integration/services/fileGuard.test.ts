@@ -3,13 +3,15 @@
  * refused at once, sizes are checked before reading, for JSON, canonical CSV and spreadsheets.
  */
 import { execFileSync } from 'node:child_process';
-import { mkdtempSync, truncateSync, writeFileSync } from 'node:fs';
+import { appendFileSync, mkdtempSync, truncateSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import * as path from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { loadDataset } from '../../../main/services/datasetLoader.js';
 import { MAX_INPUT_BYTES, readRegularFile } from '../../../main/services/fileGuard.js';
+import { loadModelFile } from '../../../main/services/doseService.js';
 import { readJsonFile } from '../../../main/services/files.js';
+import { fitTheophInto } from '../../helpers/theophFit.js';
 import { importSpreadsheetFile } from '../../../main/services/importService.js';
 
 const dir = mkdtempSync(path.join(tmpdir(), 'plateau-guard-'));
@@ -56,6 +58,19 @@ describe('file guard', () => {
     expect((await quick(() => importSpreadsheetFile(huge, { mapping: {} }))).error.message).toMatch(/above the limit/);
     expect((await quick(() => readRegularFile(huge, { maxBytes: 10 }))).error.message).toMatch(/above the limit/);
   });
+
+  it('reads back a fit record above the 50 MB JSON limit (a fit of about 12,000 patients writes 57 MB)', async () => {
+    const fitDir = mkdtempSync(path.join(tmpdir(), 'plateau-bigfit-'));
+    const record = await fitTheophInto(fitDir);
+    // A real fit.json grown past the JSON limit by trailing whitespace (valid JSON).
+    const file = path.join(fitDir, 'fit.json');
+    appendFileSync(file, ' '.repeat(MAX_INPUT_BYTES + 1024));
+    const model = await loadModelFile(file);
+    expect(model.provenance).toMatchObject({ kind: 'site fit', dataHash: record.dataHash });
+    expect(record.format).toBe('plateau-fit');
+    // A document a user writes keeps the JSON limit.
+    expect((await quick(() => readJsonFile(file))).error.message).toMatch(/above the limit of 50 MB/);
+  }, 120_000);
 
   it('reads an ordinary file whole', async () => {
     const f = path.join(dir, 'ok.json');
