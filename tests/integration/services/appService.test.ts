@@ -93,7 +93,12 @@ describe('application service', () => {
     expect(fit.record.seed).toBe(5);
     const xlsx = await ok('fits.exportXlsx', { fitId: job.fitId });
     const wb = XLSX.read(Buffer.from(xlsx.bytesBase64, 'base64'));
-    expect(wb.SheetNames).toEqual(['Estimates', 'Individual', 'Fit', 'Warnings']);
+    expect(wb.SheetNames).toEqual(['Estimates', 'Individual', 'Levels', 'Fit', 'Warnings']);
+    // Every level of the fit with its predictions, as the fit record holds them.
+    const levels = XLSX.utils.sheet_to_json<Record<string, unknown>>(wb.Sheets.Levels);
+    const record = (await ok('fits.get', { fitId: job.fitId })).record as { nObservations: number; diagnostics: { observations: Array<{ subject: string; ipred: number }> } };
+    expect(levels.length).toBe(record.nObservations);
+    expect(levels[0]).toMatchObject({ Subject: record.diagnostics.observations[0].subject, 'IPRED (mg/L)': record.diagnostics.observations[0].ipred });
     expect((await ok('project.summary')).fits).toHaveLength(1);
 
     // Dose advice from that fit, for the demo patient, carries the caution and the model's provenance.
