@@ -1,0 +1,38 @@
+/**
+ * Which subjects' individual fits the printed fit report holds. Up to PRINT_SUBJECTS_MAX, every
+ * subject; a larger site's history (thousands of patients) would print thousands of pages and
+ * exhaust the browser's canvases, so the report then holds the PRINT_SUBJECTS_MAX subjects whose
+ * levels lie furthest from their own fitted curves (largest |IWRES|: the fits a reviewer has to
+ * look at), in dataset order, and says so. Every subject stays on screen (Individual fits pages)
+ * and every level with its predictions is in the exported workbook (Levels sheet).
+ */
+
+/** Most individual fits printed: 100 groups of six, about 25 A4 pages. */
+export const PRINT_SUBJECTS_MAX = 600;
+
+export interface PrintSelection {
+  /** Subject ids to print, in dataset order. */
+  ids: string[];
+  /** What was left out and how the printed ones were chosen; null when every subject is printed. */
+  note: string | null;
+}
+
+export function printedSubjects(subjectIds: readonly string[], observations: ReadonlyArray<{ subject: string; iwres?: number | null }> | undefined, max = PRINT_SUBJECTS_MAX): PrintSelection {
+  if (subjectIds.length <= max) return { ids: [...subjectIds], note: null };
+  const worst = new Map<string, number>();
+  for (const o of observations ?? []) {
+    const a = typeof o.iwres === 'number' && Number.isFinite(o.iwres) ? Math.abs(o.iwres) : -1;
+    if (a > (worst.get(o.subject) ?? -1)) worst.set(o.subject, a);
+  }
+  // Largest |IWRES| first; equal ones (and subjects without a residual) in dataset order.
+  const order = subjectIds.map((id, k) => ({ id, k, w: worst.get(id) ?? -1 })).sort((x, y) => y.w - x.w || x.k - y.k);
+  const chosen = order.slice(0, max).sort((x, y) => x.k - y.k);
+  const cut = order[max - 1].w;
+  return {
+    ids: chosen.map((c) => c.id),
+    note:
+      `Individual fits of ${max} of the ${subjectIds.length} subjects are printed: those whose levels lie furthest from their own fitted curve ` +
+      `(largest absolute IWRES${cut >= 0 ? `, ${cut.toFixed(2)} or more` : ''}), in dataset order. ` +
+      'Every subject is in Results, Individual fits, on screen, and every level with its predictions and residuals is in the exported workbook (Levels sheet).',
+  };
+}
