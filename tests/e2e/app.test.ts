@@ -232,6 +232,22 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
       await s.shot(`07-results-plot-${i + 1}`);
     }
     expect(await page.getByRole('img', { name: /^Convergence of CL$/ }).count()).toBe(1);
+    // Individual fits of a large site: go to a subject by its ID; the worst-fitted first.
+    await page.getByRole('button', { name: 'Individual fits', exact: true }).click();
+    const demoIds = [...new Set(readFileSync(path.join(ROOT, 'resources', 'demo', 'ward-levels.csv'), 'utf8').trim().split('\n').slice(1).map((l) => l.split(',')[0]))];
+    const lastId = demoIds[demoIds.length - 1];
+    await page.getByRole('textbox', { name: 'Go to subject' }).fill(lastId);
+    await page.getByRole('button', { name: 'Go', exact: true }).click();
+    await page.getByText(new RegExp(`^Subject ${lastId}: page ${Math.ceil(demoIds.length / 12)}\\.`)).waitFor();
+    expect(await page.getByRole('img', { name: `Subject ${lastId}: levels and fitted curves` }).count()).toBe(1);
+    await page.getByRole('textbox', { name: 'Go to subject' }).fill('no-such-id');
+    await page.getByRole('button', { name: 'Go', exact: true }).click();
+    await page.getByText(/^No subject "no-such-id" in this fit's dataset/).waitFor();
+    await page.getByRole('combobox', { name: 'Order' }).selectOption('iwres');
+    await page.getByText(/^Page 1 of /).waitFor();
+    await s.shot('07b-results-individual-order');
+    await accessible('Results, individual fits controls');
+    await page.getByRole('combobox', { name: 'Order' }).selectOption('dataset');
     // The tables as .xlsx: a real spreadsheet (zip container) arrives as a download.
     const [download] = await Promise.all([page.waitForEvent('download'), page.getByRole('button', { name: 'Export tables (.xlsx)' }).click()]);
     expect(download.suggestedFilename()).toMatch(/\.xlsx$/);

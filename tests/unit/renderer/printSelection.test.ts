@@ -1,6 +1,6 @@
 /** The printed report's individual fits for a large site (renderer/src/features/results/printSelection.ts); invented ids and residuals. */
 import { describe, expect, it } from 'vitest';
-import { printedSubjects, PRINT_SUBJECTS_MAX } from '../../../renderer/src/features/results/printSelection.js';
+import { byLargestIwres, printedSubjects, PRINT_SUBJECTS_MAX } from '../../../renderer/src/features/results/printSelection.js';
 
 describe('printedSubjects', () => {
   it('prints every subject up to the limit, with no note', () => {
@@ -29,5 +29,11 @@ describe('printedSubjects', () => {
     const s = printedSubjects(['A', 'B', 'C', 'D'], [{ subject: 'B', iwres: 1 }, { subject: 'D', iwres: 1 }], 3);
     expect(s.ids).toEqual(['A', 'B', 'D']);
     expect(s.note).toMatch(/Individual fits of 3 of the 4/);
+  });
+
+  it('orders subjects for review: largest |IWRES| first, then dataset order, those without residuals last', () => {
+    const order = byLargestIwres(['A', 'B', 'C', 'D'], [{ subject: 'C', iwres: -2 }, { subject: 'A', iwres: 1 }, { subject: 'B', iwres: 1 }, { subject: 'B', iwres: NaN }]);
+    expect(order.map((o) => o.id)).toEqual(['C', 'A', 'B', 'D']);
+    expect(order.map((o) => o.w)).toEqual([2, 1, 1, -1]);
   });
 });

@@ -17,15 +17,24 @@ export interface PrintSelection {
   note: string | null;
 }
 
-export function printedSubjects(subjectIds: readonly string[], observations: ReadonlyArray<{ subject: string; iwres?: number | null }> | undefined, max = PRINT_SUBJECTS_MAX): PrintSelection {
-  if (subjectIds.length <= max) return { ids: [...subjectIds], note: null };
+type Residuals = ReadonlyArray<{ subject: string; iwres?: number | null }> | undefined;
+
+/**
+ * The subjects by their largest |IWRES|, largest first; equal ones (and subjects without a
+ * residual, last, with w = -1) in dataset order. k is the dataset position.
+ */
+export function byLargestIwres(subjectIds: readonly string[], observations: Residuals): Array<{ id: string; k: number; w: number }> {
   const worst = new Map<string, number>();
   for (const o of observations ?? []) {
     const a = typeof o.iwres === 'number' && Number.isFinite(o.iwres) ? Math.abs(o.iwres) : -1;
     if (a > (worst.get(o.subject) ?? -1)) worst.set(o.subject, a);
   }
-  // Largest |IWRES| first; equal ones (and subjects without a residual) in dataset order.
-  const order = subjectIds.map((id, k) => ({ id, k, w: worst.get(id) ?? -1 })).sort((x, y) => y.w - x.w || x.k - y.k);
+  return subjectIds.map((id, k) => ({ id, k, w: worst.get(id) ?? -1 })).sort((x, y) => y.w - x.w || x.k - y.k);
+}
+
+export function printedSubjects(subjectIds: readonly string[], observations: Residuals, max = PRINT_SUBJECTS_MAX): PrintSelection {
+  if (subjectIds.length <= max) return { ids: [...subjectIds], note: null };
+  const order = byLargestIwres(subjectIds, observations);
   const chosen = order.slice(0, max).sort((x, y) => x.k - y.k);
   const cut = order[max - 1].w;
   return {
