@@ -204,10 +204,10 @@ describe('SIGKILL at random moments never leaves a broken file, and stale temp f
 
   it.runIf(process.platform === 'linux')('a temp file of a zombie (killed, never reaped by its parent) counts as stale', async () => {
     const dir = workspace();
-    // sh starts a short sleep in the background, prints its pid, then becomes a long `sleep`,
-    // which never reaps it: the short one ends (after the exec, so sh cannot reap it first) as a
-    // zombie that signal 0 still reaches.
-    const parent = spawn('/bin/sh', ['-c', 'sleep 0.3 & echo $!; exec sleep 10'], { stdio: ['ignore', 'pipe', 'ignore'] });
+    // sh starts a background subshell, prints its pid, then becomes `sleep`, which never reaps
+    // it; the subshell ends only once sh has become sleep (so sh cannot reap it first), as a
+    // zombie that signal 0 still reaches. ($$ in a subshell is the shell's own pid.)
+    const parent = spawn('/bin/sh', ['-c', '(while [ "$(cat /proc/$$/comm)" != sleep ]; do sleep 0.05; done) & echo $!; exec sleep 10'], { stdio: ['ignore', 'pipe', 'ignore'] });
     try {
       const zombiePid = await new Promise<number>((resolve) => parent.stdout!.once('data', (d: Buffer) => resolve(Number(String(d).trim()))));
       const deadline = Date.now() + 8000;
