@@ -298,15 +298,17 @@ export function posthocRecordFields(model: CompiledModel, r: PosthocResult, seed
   const individual = model.subjects.map((s, i) => {
     const sh: Record<string, number | null> = Object.create(null);
     for (let k = 0; k < d; k++) sh[names[model.etaParameter[k]]] = fin(r.shrinkage.individual[i * d + k]);
+    // Draws of the parameters with BSV only: the others are one value per subject (its mode),
+    // and repeating it 50 times made up half of a sparse-data record.
     const draws: Record<string, number[]> = Object.create(null);
-    names.forEach((n) => (draws[n] = []));
+    for (let k = 0; k < d; k++) draws[names[model.etaParameter[k]]] = [];
     const kept = r.conditional.nKept[i];
     const step = Math.max(1, Math.floor(kept / RECORD_DRAWS));
-    for (let m = 0; m < kept && draws[names[0]].length < RECORD_DRAWS; m += step) {
+    for (let m = 0, n = 0; m < kept && n < RECORD_DRAWS; m += step, n++) {
       const off = (i * r.conditional.keepDraws + m) * d;
       r.density.phiOf(i, r.conditional.draws.subarray(off, off + d), phiRow);
       model.toNatural(phiRow, natRow);
-      names.forEach((n, j) => draws[n].push(natRow[j]));
+      for (let k = 0; k < d; k++) draws[names[model.etaParameter[k]]].push(natRow[model.etaParameter[k]]);
     }
     return {
       subject: s.id,

@@ -7,12 +7,22 @@
 
 /** Largest message accepted at the renderer boundary (characters of text, bytes of binary). */
 export const MAX_MESSAGE_BYTES = 80 * 1024 * 1024;
-/** Largest message accepted from or to a worker (fit records with trajectories are big). */
-export const MAX_WORKER_MESSAGE_BYTES = 256 * 1024 * 1024;
+/**
+ * Largest message accepted from or to a worker: a fit record grows with the patients (about 4 KB
+ * each on sparse TDM data), so this is the fit record's file limit (fileGuard.ts
+ * MAX_FIT_RECORD_BYTES), not the renderer's.
+ */
+export const MAX_WORKER_MESSAGE_BYTES = 512 * 1024 * 1024;
 /** Deepest nesting of objects and arrays; our records are at most ~8 deep. */
 export const MAX_DEPTH = 64;
-/** Most object keys plus array items in one message. */
+/** Most object keys plus array items in one message from the renderer. */
 export const MAX_NODES = 5_000_000;
+/**
+ * Most values in one worker message: a fit record holds about 175 values a patient on sparse
+ * TDM data (2 BSV parameters, 3 levels; measured) and about 330 with 11 levels, so 25 million
+ * cover more patients than the largest dataset file holds; 5 million stopped a fit of 18,000.
+ */
+export const MAX_WORKER_NODES = 25_000_000;
 
 /** Keys that could reach an object's prototype when merged or assigned naively. */
 export const PROTOTYPE_KEYS: ReadonlySet<string> = new Set(['__proto__', 'constructor', 'prototype']);
@@ -26,7 +36,7 @@ export interface GuardLimits {
 }
 
 export const RENDERER_LIMITS: Readonly<GuardLimits> = Object.freeze({ maxBytes: MAX_MESSAGE_BYTES, maxDepth: MAX_DEPTH, maxNodes: MAX_NODES, allowBinary: false });
-export const WORKER_LIMITS: Readonly<GuardLimits> = Object.freeze({ maxBytes: MAX_WORKER_MESSAGE_BYTES, maxDepth: MAX_DEPTH, maxNodes: MAX_NODES, allowBinary: true });
+export const WORKER_LIMITS: Readonly<GuardLimits> = Object.freeze({ maxBytes: MAX_WORKER_MESSAGE_BYTES, maxDepth: MAX_DEPTH, maxNodes: MAX_WORKER_NODES, allowBinary: true });
 
 /**
  * Why `value` is not acceptable plain data, or undefined when it is. Plain data: null,
