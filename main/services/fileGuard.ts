@@ -14,7 +14,7 @@ export const MAX_JSON_BYTES = 50 * 1024 * 1024;
 /**
  * Largest fit record (fit.json, a project's fit): Plateau must read back what it writes, and a
  * record grows with the patients (about 4 KB each on sparse TDM data: individual estimates and
- * draws, per-level diagnostics), so a site's 12,000 patients already write 57 MB. 512 MiB covers
+ * draws, per-level diagnostics), so 12,000 patients write about 50 MB. 512 MiB covers
  * a fit of the largest dataset file (MAX_INPUT_BYTES) and stays under V8's longest string.
  */
 export const MAX_FIT_RECORD_BYTES = 512 * 1024 * 1024;

@@ -59,7 +59,7 @@ describe('file guard', () => {
     expect((await quick(() => readRegularFile(huge, { maxBytes: 10 }))).error.message).toMatch(/above the limit/);
   });
 
-  it('reads back a fit record above the 50 MB JSON limit (a fit of about 12,000 patients writes 57 MB)', async () => {
+  it('reads back a fit record above the 50 MB JSON limit (a fit of about 12,000 sparse-data patients writes about 50 MB)', async () => {
     const fitDir = mkdtempSync(path.join(tmpdir(), 'plateau-bigfit-'));
     const record = await fitTheophInto(fitDir);
     // A real fit.json grown past the JSON limit by trailing whitespace (valid JSON).
