@@ -1,5 +1,6 @@
 /**
- * Which subjects' individual fits the printed fit report holds. Up to PRINT_SUBJECTS_MAX, every
+ * Which subjects the individual-fit views show, and in what order. On screen: dataset order or
+ * the worst-fitted first (byLargestIwres). Printed (printedSubjects): up to PRINT_SUBJECTS_MAX, every
  * subject; a larger site's history (thousands of patients) would print thousands of pages and
  * exhaust the browser's canvases, so the report then holds the PRINT_SUBJECTS_MAX subjects whose
  * levels lie furthest from their own fitted curves (largest |IWRES|: the fits a reviewer has to

@@ -1,6 +1,6 @@
-/** The printed report's individual fits for a large site (renderer/src/features/results/printSelection.ts); invented ids and residuals. */
+/** The printed report's individual fits for a large site (renderer/src/features/results/subjectSelection.ts); invented ids and residuals. */
 import { describe, expect, it } from 'vitest';
-import { byLargestIwres, printedSubjects, PRINT_SUBJECTS_MAX } from '../../../renderer/src/features/results/printSelection.js';
+import { byLargestIwres, printedSubjects, PRINT_SUBJECTS_MAX } from '../../../renderer/src/features/results/subjectSelection.js';
 
 describe('printedSubjects', () => {
   it('prints every subject up to the limit, with no note', () => {
