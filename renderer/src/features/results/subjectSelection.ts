@@ -8,7 +8,7 @@
  * and every level with its predictions is in the exported workbook (Levels sheet).
  */
 
-/** Most individual fits printed: 100 groups of six, about 25 A4 pages. */
+/** Most individual fits printed: 100 groups of six, about 35 A4 pages (measured). */
 export const PRINT_SUBJECTS_MAX = 600;
 
 export interface PrintSelection {
