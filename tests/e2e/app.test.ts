@@ -370,6 +370,16 @@ describe.skipIf(!haveChromium || !built)('the app in Chromium (web host, real se
     expect(await page.getByLabel('Times are entered as').inputValue()).toBe('hours');
     expect(await page.getByLabel('Dose 1 amount (mg)').inputValue()).toBe('1250');
     expect(await page.getByLabel('Level 1 concentration (mg/L)').inputValue()).toMatch(/^8\.89/);
+    // Or by its ID (a site's dataset of thousands has no list): a wrong ID is named, a right one loads.
+    await page.getByRole('textbox', { name: 'or its ID' }).fill('hx-003');
+    await page.getByRole('button', { name: 'Load the patient' }).click();
+    await page.getByText(/^No patient "hx-003" in this dataset \(IDs are matched exactly, including case\)\./).waitFor();
+    await page.getByRole('textbox', { name: 'or its ID' }).fill('HX-003');
+    await page.getByRole('button', { name: 'Load the patient' }).click();
+    await expect.poll(() => page.getByLabel('Patient identifier (no names)').inputValue()).toBe('HX-003');
+    expect(await page.getByText(/^No patient "hx-003"/).count()).toBe(0);
+    expect(await page.getByLabel('Patient in the dataset').inputValue()).toBe('HX-003');
+    await s.shot('11-dosing-patient-by-id');
 
     expect(s.failures).toEqual([]);
   }, 240_000);
