@@ -89,7 +89,9 @@ function supervise(): void {
     if (stopping) return killChild('stopped at once');
     stopping = true;
     process.stderr.write('\nplateau: stopping (press Ctrl-C again to exit at once)\n');
-    if (childProcess.connected) childProcess.send({ type: 'abort' });
+    // The command got the terminal's Ctrl-C too and may be ending already: a send that finds
+    // its channel closed (EPIPE) has nothing left to abort, and must not crash the supervisor.
+    if (childProcess.connected) childProcess.send({ type: 'abort' }, () => undefined);
     killTimer = setTimeout(() => killChild(`stopped (the command did not end within ${STOP_GRACE_MS / 1000} s of Ctrl-C)`), STOP_GRACE_MS);
   };
   process.on('SIGINT', onSignal);
